@@ -1,0 +1,37 @@
+/* cli.h - shared helpers of the command-line front end (uses only the public API). */
+#ifndef SL_CLI_H
+#define SL_CLI_H
+
+#include "sluice/sluice.h"
+
+typedef struct cli_args {
+    int argc;
+    char **argv;
+    int i;              /* next argument */
+    const char *cmd;
+    sl_ctx *ctx;
+} cli_args;
+
+/* Is argv[i] the option `name`? Consumes it. "--name=value" is split. */
+int cli_opt(cli_args *a, const char *name);
+/* Value of the option just matched; prints a usage error and returns NULL if missing. */
+const char *cli_value(cli_args *a);
+/* Strict number parsing; print "sluice CMD: OPTION: ..." on error. */
+int cli_double(cli_args *a, const char *opt, const char *s, double *out);
+int cli_int64(cli_args *a, const char *opt, const char *s, int64_t *out);
+/* Print a usage error (rank 0) and return SL_EUSAGE. */
+int cli_usage_error(cli_args *a, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
+/* Report a library failure (rank 0) and return its exit code. */
+int cli_fail(cli_args *a, sl_status st);
+
+int cmd_build(cli_args *a);
+int cmd_import(cli_args *a);
+int cmd_estimate(cli_args *a);
+int cmd_info(cli_args *a);
+int cmd_solve(cli_args *a);
+int cmd_evaluate(cli_args *a);
+int cmd_verify(cli_args *a);
+int cmd_export(cli_args *a);
+int cmd_simulate(cli_args *a);
+
+#endif

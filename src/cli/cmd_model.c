@@ -1,0 +1,210 @@
+/* cmd_model.c - build, import, estimate and info commands. */
+#include <stdlib.h>
+#include <string.h>
+
+#include "cli/cli.h"
+
+/* Options every command accepts; returns 1 if consumed, -1 for --help. */
+static int common_opt(cli_args *a, const char *help)
+{
+    if (cli_opt(a, "--quiet") || cli_opt(a, "-q") || cli_opt(a, "--debug")) return 1;
+    if (cli_opt(a, "--help") || cli_opt(a, "-h")) {
+        if (sl_ctx_rank(a->ctx) == 0) fputs(help, stdout);
+        return -1;
+    }
+    return 0;
+}
+
+static int parse_objective(cli_args *a, sl_objective *obj)
+{
+    const char *v = cli_value(a);
+    if (v == NULL) return 0;
+    if (!sl_objective_parse(v, obj)) {
+        cli_usage_error(a, "--objective: '%s' is not one of discounted, total, average, finite", v);
+        return 0;
+    }
+    return 1;
+}
+
+static const char build_help[] =
+    "usage: sluice build GENERATOR.c|GENERATOR.so -o MODEL.h5 [options]\n"
+    "  compile a generator program (see sluice/generator.h), enumerate every state\n"
+    "  and action, validate, and write the model file.\n"
+    "  --param NAME=VALUE   set a generator parameter (repeatable)\n"
+    "  --discount G         override the generator's discount factor\n"
+    "  --objective NAME     discounted (default), total, average or finite\n"
+    "  --prob-tolerance T   allowed |sum of probabilities - 1| per pair (default 1e-9)\n"
+    "  --renormalize        rescale pairs whose sum drifts by at most 1e-6 (reports how many)\n"
+    "  --cache DIR          compiled-generator cache (default $SLUICE_CACHE or ~/.cache/sluice)\n"
+    "  --cc COMPILER        C compiler (default $CC or cc)\n"
+    "  -q, --quiet          no progress lines\n";
+
+int cmd_build(cli_args *a)
+{
+    sl_build_opts o;
+    memset(&o, 0, sizeof(o));
+    const char *names[256];
+    double values[256];
+    char *owned[256];
+    int n_owned = 0, rc = 0;
+    o.param_names = names;
+    o.param_values = values;
+    while (a->i < a->argc && rc == 0) {
+        int c = common_opt(a, build_help);
+        const char *v;
+        if (c < 0) return 0;
+        if (c > 0) continue;
+        if (cli_opt(a, "-o") || cli_opt(a, "--output")) {
+            if ((o.output = cli_value(a)) == NULL) rc = SL_EUSAGE;
+        } else if (cli_opt(a, "--param")) {
+            if ((v = cli_value(a)) == NULL) { rc = SL_EUSAGE; break; }
+            const char *eq = strchr(v, '=');
+            if (eq == NULL || eq == v) { rc = cli_usage_error(a, "--param: expected NAME=VALUE, got '%s'", v); break; }
+            if (o.n_params >= 256) { rc = cli_usage_error(a, "too many --param options"); break; }
+            char *name = strndup(v, (size_t)(eq - v));
+            if (name == NULL) { rc = SL_ENOMEM; break; }
+            owned[n_owned++] = name;
+            if (!cli_double(a, name, eq + 1, &values[o.n_params])) { rc = SL_EUSAGE; break; }
+            names[o.n_params++] = name;
+        } else if (cli_opt(a, "--discount")) {
+            if ((v = cli_value(a)) == NULL || !cli_double(a, "--discount", v, &o.discount)) rc = SL_EUSAGE;
+            o.have_discount = 1;
+        } else if (cli_opt(a, "--objective")) {
+            if (!parse_objective(a, &o.objective)) rc = SL_EUSAGE;
+        } else if (cli_opt(a, "--prob-tolerance")) {
+            if ((v = cli_value(a)) == NULL || !cli_double(a, "--prob-tolerance", v, &o.prob_tolerance)) rc = SL_EUSAGE;
+        } else if (cli_opt(a, "--renormalize")) {
+            o.renormalize = 1;
+        } else if (cli_opt(a, "--cache")) {
+            if ((o.cache_dir = cli_value(a)) == NULL) rc = SL_EUSAGE;
+        } else if (cli_opt(a, "--cc")) {
+            if ((o.cc = cli_value(a)) == NULL) rc = SL_EUSAGE;
+        } else if (a->argv[a->i][0] == '-' && a->argv[a->i][1] != '\0') {
+            rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
+        } else if (o.generator == NULL) {
+            o.generator = a->argv[a->i++];
+        } else {
+            rc = cli_usage_error(a, "unexpected argument '%s'", a->argv[a->i]);
+        }
+    }
+    if (rc == 0 && o.generator == NULL) rc = cli_usage_error(a, "no generator given");
+    if (rc == 0 && o.output == NULL) rc = cli_usage_error(a, "no output file given (-o MODEL.h5)");
+    if (rc == 0) rc = cli_fail(a, sl_build(a->ctx, &o));
+    for (int k = 0; k < n_owned; k++) free(owned[k]);
+    return rc;
+}
+
+static const char import_help[] =
+    "usage: sluice import TRIPLETS.csv|- --discount G -o MODEL.h5 [options]\n"
+    "  read rows 'state,action,next_state,probability,reward' (header required,\n"
+    "  any order, one row per transition) and write the model file.\n"
+    "  --discount G         discount factor (required)\n"
+    "  --objective NAME     discounted (default), total, average or finite\n"
+    "  --states N           number of states (default: largest index + 1)\n"
+    "  --prob-tolerance T   allowed |sum of probabilities - 1| per pair (default 1e-9)\n"
+    "  --renormalize        rescale pairs whose sum drifts by at most 1e-6 (reports how many)\n";
+
+static const char estimate_help[] =
+    "usage: sluice estimate EXPERIENCE.csv|- --discount G -o MODEL.h5 [options]\n"
+    "  estimate a model from logged steps 'state,action,reward,next_state':\n"
+    "  P(j|s,a) = count(s,a,j)/count(s,a), r(s,a) = mean observed reward.\n"
+    "  --discount G         discount factor (required)\n"
+    "  --objective NAME     discounted (default), total, average or finite\n"
+    "  --states N           number of states (default: largest index + 1)\n"
+    "  --min-visits K       drop pairs seen fewer than K times (default 1)\n"
+    "  --unseen absorb      states with no data become absorbing with reward 0\n"
+    "                       (default: such a state is an error)\n";
+
+/* import and estimate share their options */
+static int csv_command(cli_args *a, int estimate)
+{
+    const char *help = estimate ? estimate_help : import_help;
+    const char *input = NULL, *output = NULL, *v;
+    double discount = -1, tol = 0;
+    int have_discount = 0, renorm = 0, absorb = 0, rc = 0;
+    int64_t states = 0, min_visits = 1;
+    sl_objective obj = SL_OBJ_DISCOUNTED;
+    while (a->i < a->argc && rc == 0) {
+        int c = common_opt(a, help);
+        if (c < 0) return 0;
+        if (c > 0) continue;
+        if (cli_opt(a, "-o") || cli_opt(a, "--output")) {
+            if ((output = cli_value(a)) == NULL) rc = SL_EUSAGE;
+        } else if (cli_opt(a, "--discount")) {
+            if ((v = cli_value(a)) == NULL || !cli_double(a, "--discount", v, &discount)) rc = SL_EUSAGE;
+            have_discount = 1;
+        } else if (cli_opt(a, "--objective")) {
+            if (!parse_objective(a, &obj)) rc = SL_EUSAGE;
+        } else if (cli_opt(a, "--states")) {
+            if ((v = cli_value(a)) == NULL || !cli_int64(a, "--states", v, &states)) rc = SL_EUSAGE;
+            else if (states < 1) rc = cli_usage_error(a, "--states must be at least 1");
+        } else if (!estimate && cli_opt(a, "--prob-tolerance")) {
+            if ((v = cli_value(a)) == NULL || !cli_double(a, "--prob-tolerance", v, &tol)) rc = SL_EUSAGE;
+        } else if (!estimate && cli_opt(a, "--renormalize")) {
+            renorm = 1;
+        } else if (estimate && cli_opt(a, "--min-visits")) {
+            if ((v = cli_value(a)) == NULL || !cli_int64(a, "--min-visits", v, &min_visits)) rc = SL_EUSAGE;
+            else if (min_visits < 1) rc = cli_usage_error(a, "--min-visits must be at least 1");
+        } else if (estimate && cli_opt(a, "--unseen")) {
+            if ((v = cli_value(a)) == NULL) rc = SL_EUSAGE;
+            else if (strcmp(v, "absorb") == 0) absorb = 1;
+            else if (strcmp(v, "error") == 0) absorb = 0;
+            else rc = cli_usage_error(a, "--unseen: expected 'absorb' or 'error', got '%s'", v);
+        } else if (strcmp(a->argv[a->i], "-") != 0 && a->argv[a->i][0] == '-') {
+            rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
+        } else if (input == NULL) {
+            input = a->argv[a->i++];
+        } else {
+            rc = cli_usage_error(a, "unexpected argument '%s'", a->argv[a->i]);
+        }
+    }
+    if (rc) return rc;
+    if (input == NULL) return cli_usage_error(a, "no input CSV given");
+    if (output == NULL) return cli_usage_error(a, "no output file given (-o MODEL.h5)");
+    if (!have_discount) return cli_usage_error(a, "--discount G is required");
+    if (estimate) {
+        sl_estimate_opts o = {input, output, discount, obj, states, min_visits, absorb};
+        return cli_fail(a, sl_estimate(a->ctx, &o));
+    }
+    sl_import_opts o = {input, output, discount, obj, states, tol, renorm};
+    return cli_fail(a, sl_import(a->ctx, &o));
+}
+
+int cmd_import(cli_args *a) { return csv_command(a, 0); }
+int cmd_estimate(cli_args *a) { return csv_command(a, 1); }
+
+static const char info_help[] =
+    "usage: sluice info FILE.h5 [--json] [--partition N]\n"
+    "  describe a model, solution, values or checkpoint file.\n"
+    "  --json          machine-readable output\n"
+    "  --partition N   for a model: predicted rows, transitions, halo entries and\n"
+    "                  bytes exchanged per sweep for each of N ranks\n";
+
+int cmd_info(cli_args *a)
+{
+    sl_info_opts o = {NULL, 0, 0, stdout};
+    int rc = 0;
+    const char *v;
+    while (a->i < a->argc && rc == 0) {
+        int c = common_opt(a, info_help);
+        if (c < 0) return 0;
+        if (c > 0) continue;
+        if (cli_opt(a, "--json")) {
+            o.json = 1;
+        } else if (cli_opt(a, "--partition")) {
+            int64_t n = 0;
+            if ((v = cli_value(a)) == NULL || !cli_int64(a, "--partition", v, &n)) rc = SL_EUSAGE;
+            else if (n < 1 || n > 1000000) rc = cli_usage_error(a, "--partition: N must be in [1, 1000000]");
+            else o.partition = (int)n;
+        } else if (a->argv[a->i][0] == '-') {
+            rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
+        } else if (o.path == NULL) {
+            o.path = a->argv[a->i++];
+        } else {
+            rc = cli_usage_error(a, "unexpected argument '%s'", a->argv[a->i]);
+        }
+    }
+    if (rc) return rc;
+    if (o.path == NULL) return cli_usage_error(a, "no file given");
+    return cli_fail(a, sl_info(a->ctx, &o));
+}

@@ -1,0 +1,477 @@
+/* generator.c - compile, cache and load a generator; enumerate it into a model. */
+#include <dlfcn.h>
+#include <errno.h>
+#include <fcntl.h>
+#include <math.h>
+#include <signal.h>
+#include <spawn.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <sys/wait.h>
+#include <unistd.h>
+
+#include "dist/dist.h"
+#include "store/store.h"
+
+extern char **environ;
+extern const unsigned char sl_generator_header[];
+extern const size_t sl_generator_header_len;
+
+#define SL_MAX_STATES ((int64_t)1 << 48)
+
+/* ---- crash reporting --------------------------------------------------------
+ * The one piece of process-wide state in the library: a signal handler can
+ * only reach what is static. It is set only while a generator runs. */
+static volatile sig_atomic_t crash_armed;
+static volatile int64_t crash_state;
+static volatile int32_t crash_action;
+static char crash_name[128];
+
+static size_t fmt_i64(char *buf, int64_t v)
+{
+    char tmp[24];
+    size_t n = 0, k = 0;
+    uint64_t u = v < 0 ? (uint64_t)(-(v + 1)) + 1 : (uint64_t)v;
+    do {
+        tmp[n++] = (char)('0' + u % 10);
+        u /= 10;
+    } while (u && n < sizeof(tmp));
+    if (v < 0) buf[k++] = '-';
+    while (n) buf[k++] = tmp[--n];
+    return k;
+}
+
+static void crash_handler(int sig)
+{
+    if (crash_armed) {
+        char msg[400];
+        size_t k = 0;
+        const char *a = "sluice: generator ";
+        for (const char *p = a; *p; p++) msg[k++] = *p;
+        for (const char *p = crash_name; *p && k < 200; p++) msg[k++] = *p;
+        const char *b = " crashed (signal ";
+        for (const char *p = b; *p; p++) msg[k++] = *p;
+        k += fmt_i64(msg + k, sig);
+        const char *c = ") while generating state ";
+        for (const char *p = c; *p; p++) msg[k++] = *p;
+        k += fmt_i64(msg + k, crash_state);
+        const char *d = ", action ";
+        for (const char *p = d; *p; p++) msg[k++] = *p;
+        k += fmt_i64(msg + k, crash_action);
+        msg[k++] = '\n';
+        ssize_t w = write(STDERR_FILENO, msg, k);
+        (void)w;
+        _exit(SL_EDATA);
+    }
+    signal(sig, SIG_DFL);
+    raise(sig);
+}
+
+/* ---- compile and cache -------------------------------------------------------- */
+
+static uint64_t hash_bytes(uint64_t h, const void *data, size_t n)
+{
+    const unsigned char *p = data;
+    for (size_t i = 0; i < n; i++) h = (h ^ p[i]) * 0x100000001b3ULL; /* FNV-1a */
+    return h;
+}
+
+static sl_status read_file(sl_ctx *ctx, const char *path, char **out, size_t *len)
+{
+    *out = NULL;
+    FILE *f = fopen(path, "rb");
+    if (f == NULL) return SL_ERR(ctx, SL_ENOINPUT, "%s: %s", path, strerror(errno));
+    sl_status st = SL_OK;
+    char *buf = NULL;
+    size_t cap = 0, n = 0;
+    for (;;) {
+        if (n + 65536 > cap) {
+            cap = cap ? cap * 2 : 131072;
+            char *nb = realloc(buf, cap);
+            if (nb == NULL) {
+                st = SL_ERR(ctx, SL_ENOMEM, "%s: out of memory reading", path);
+                break;
+            }
+            buf = nb;
+        }
+        size_t r = fread(buf + n, 1, cap - n - 1, f);
+        n += r;
+        if (r == 0) break;
+    }
+    if (st == SL_OK && ferror(f)) st = SL_ERR(ctx, SL_ENOINPUT, "%s: read error", path);
+    fclose(f);
+    if (st != SL_OK) {
+        free(buf);
+        return st;
+    }
+    buf[n] = '\0';
+    *out = buf;
+    *len = n;
+    return SL_OK;
+}
+
+static sl_status mkdirs(sl_ctx *ctx, const char *dir)
+{
+    char buf[4096];
+    snprintf(buf, sizeof(buf), "%s", dir);
+    for (char *p = buf + 1; *p; p++) {
+        if (*p == '/') {
+            *p = '\0';
+            if (mkdir(buf, 0755) != 0 && errno != EEXIST)
+                return SL_ERR(ctx, SL_ECANTCREAT, "%s: cannot create directory: %s", buf, strerror(errno));
+            *p = '/';
+        }
+    }
+    if (mkdir(buf, 0755) != 0 && errno != EEXIST)
+        return SL_ERR(ctx, SL_ECANTCREAT, "%s: cannot create directory: %s", buf, strerror(errno));
+    return SL_OK;
+}
+
+/* Write bytes to path atomically unless identical content is already there. */
+static sl_status write_if_changed(sl_ctx *ctx, const char *path, const void *data, size_t n)
+{
+    char *old = NULL;
+    size_t oldn = 0;
+    FILE *f = fopen(path, "rb");
+    if (f != NULL) {
+        fclose(f);
+        sl_ctx quiet = *ctx;
+        if (read_file(&quiet, path, &old, &oldn) == SL_OK && oldn == n && memcmp(old, data, n) == 0) {
+            free(old);
+            return SL_OK;
+        }
+        free(old);
+    }
+    char tmp[4200];
+    int w = snprintf(tmp, sizeof(tmp), "%s.%ld.tmp", path, (long)getpid());
+    if (w < 0 || (size_t)w >= sizeof(tmp)) return SL_ERR(ctx, SL_EUSAGE, "%s: path too long", path);
+    f = fopen(tmp, "wb");
+    if (f == NULL) return SL_ERR(ctx, SL_ECANTCREAT, "%s: %s", tmp, strerror(errno));
+    int bad = fwrite(data, 1, n, f) != n;
+    bad |= fclose(f) != 0;
+    if (bad || rename(tmp, path) != 0) {
+        unlink(tmp);
+        return SL_ERR(ctx, SL_ECANTCREAT, "%s: cannot write", path);
+    }
+    return SL_OK;
+}
+
+static sl_status cache_dir(sl_ctx *ctx, const char *given, char *out, size_t n)
+{
+    const char *env = getenv("SLUICE_CACHE");
+    const char *xdg = getenv("XDG_CACHE_HOME");
+    const char *home = getenv("HOME");
+    if (given) snprintf(out, n, "%s", given);
+    else if (env && *env) snprintf(out, n, "%s", env);
+    else if (xdg && *xdg) snprintf(out, n, "%s/sluice", xdg);
+    else if (home && *home) snprintf(out, n, "%s/.cache/sluice", home);
+    else snprintf(out, n, "/tmp/sluice-cache-%ld", (long)getuid());
+    return mkdirs(ctx, out);
+}
+
+/* Compile `src` into a cached shared object; rank 0 only. */
+static sl_status compile_generator(sl_ctx *ctx, const sl_build_opts *o, char *so_path, size_t n)
+{
+    sl_status st = SL_OK;
+    char *src = NULL;
+    size_t len = 0;
+    char dir[4096], inc[4200], hdr[4300], log[4300], tmp[4400];
+    const char *cc = o->cc ? o->cc : (getenv("CC") && *getenv("CC") ? getenv("CC") : "cc");
+    SL_TRY(read_file(ctx, o->generator, &src, &len));
+    SL_TRY(cache_dir(ctx, o->cache_dir, dir, sizeof(dir)));
+    uint64_t h = 0xcbf29ce484222325ULL;
+    h = hash_bytes(h, src, len);
+    h = hash_bytes(h, sl_generator_header, sl_generator_header_len);
+    h = hash_bytes(h, cc, strlen(cc));
+    int abi = SLUICE_GENERATOR_ABI;
+    h = hash_bytes(h, &abi, sizeof(abi));
+    snprintf(inc, sizeof(inc), "%s/include/sluice", dir);
+    SL_TRY(mkdirs(ctx, inc));
+    snprintf(inc, sizeof(inc), "%s/include", dir);
+    snprintf(hdr, sizeof(hdr), "%s/include/sluice/generator.h", dir);
+    SL_TRY(write_if_changed(ctx, hdr, sl_generator_header, sl_generator_header_len));
+    snprintf(so_path, n, "%s/gen-abi%d-%016llx.so", dir, abi, (unsigned long long)h);
+    if (access(so_path, R_OK) == 0) {
+        sl_log(ctx, "build: using cached %s", so_path);
+        goto cleanup;
+    }
+    snprintf(tmp, sizeof(tmp), "%s.%ld.tmp", so_path, (long)getpid());
+    snprintf(log, sizeof(log), "%s.%ld.log", so_path, (long)getpid());
+    char incflag[4300];
+    snprintf(incflag, sizeof(incflag), "-I%s", inc);
+    char *argv[] = {(char *)cc, "-std=c11", "-O2", "-fPIC", "-shared", "-Wall", incflag,
+                    "-o", tmp, (char *)o->generator, "-lm", NULL};
+    posix_spawn_file_actions_t fa;
+    posix_spawn_file_actions_init(&fa);
+    posix_spawn_file_actions_addopen(&fa, STDOUT_FILENO, log, O_WRONLY | O_CREAT | O_TRUNC, 0644);
+    posix_spawn_file_actions_adddup2(&fa, STDOUT_FILENO, STDERR_FILENO);
+    pid_t pid;
+    sl_log(ctx, "build: compiling %s with %s", o->generator, cc);
+    int rc = posix_spawnp(&pid, cc, &fa, NULL, argv, environ);
+    posix_spawn_file_actions_destroy(&fa);
+    if (rc != 0) {
+        unlink(log);
+        SL_FAIL(SL_EUSAGE, "cannot run the C compiler '%s': %s (install gcc, or set CC)", cc, strerror(rc));
+    }
+    int wst = 0;
+    while (waitpid(pid, &wst, 0) < 0 && errno == EINTR) {}
+    if (!WIFEXITED(wst) || WEXITSTATUS(wst) != 0) {
+        char *msg = NULL;
+        size_t ml = 0;
+        sl_ctx quiet = *ctx;
+        if (read_file(&quiet, log, &msg, &ml) == SL_OK && ctx->rank == 0) fputs(msg, stderr);
+        free(msg);
+        unlink(log);
+        unlink(tmp);
+        SL_FAIL(SL_EDATA, "%s: the generator does not compile (compiler output above)", o->generator);
+    }
+    unlink(log);
+    if (rename(tmp, so_path) != 0) {
+        unlink(tmp);
+        SL_FAIL(SL_ECANTCREAT, "%s: cannot store compiled generator: %s", so_path, strerror(errno));
+    }
+cleanup:
+    free(src);
+    return st;
+}
+
+/* ---- enumeration ---------------------------------------------------------------- */
+
+typedef struct sink_state {
+    sluice_sink sink;
+    sl_ctx *ctx;
+    sl_block *block;
+    sl_status st;
+} sink_state;
+
+static int sink_emit(sluice_sink *sink, int64_t next, double p, double r)
+{
+    sink_state *s = sink->opaque;
+    if (s->st != SL_OK) return 1;
+    s->st = sl_block_add(s->ctx, s->block, next, p, r);
+    return s->st != SL_OK;
+}
+
+static int ends_with(const char *s, const char *suf)
+{
+    size_t a = strlen(s), b = strlen(suf);
+    return a >= b && strcmp(s + a - b, suf) == 0;
+}
+
+static void progress(sl_ctx *ctx, double t0, double *last, int64_t done, int64_t total, int final)
+{
+    if (ctx->rank != 0 || ctx->verbosity < 1 || ctx->log == NULL) return;
+    double now = sl_now(), every = ctx->log_tty ? 0.5 : 10.0;
+    if (!final && now - *last < every) return;
+    *last = now;
+    double rate = done / (now - t0 + 1e-9);
+    double eta = rate > 0 ? (total - done) / rate : 0;
+    if (ctx->log_tty)
+        fprintf(ctx->log, "\rbuild: %lld/%lld states (rank 0), %.0f states/s, ETA %.0f s   %s", (long long)done,
+                (long long)total, rate, eta, final ? "\n" : "");
+    else
+        fprintf(ctx->log, "build: %lld/%lld states (rank 0), %.0f states/s, ETA %.0f s\n", (long long)done,
+                (long long)total, rate, eta);
+    fflush(ctx->log);
+}
+
+sl_status sl_build(sl_ctx *ctx, const sl_build_opts *o)
+{
+    sl_status st = SL_OK;
+    char so_path[4400] = "";
+    void *dl = NULL, *inst = NULL;
+    const sluice_generator_def *g = NULL;
+    double *pv = NULL;
+    sl_meta meta;
+    sl_block blk;
+    sluice_shape shape;
+    struct sigaction sa, old[5];
+    int sigs[5] = {SIGSEGV, SIGBUS, SIGFPE, SIGILL, SIGABRT}, armed = 0;
+    memset(&meta, 0, sizeof(meta));
+    memset(&blk, 0, sizeof(blk));
+    memset(&shape, 0, sizeof(shape));
+
+    if (ctx->rank == 0) {
+        if (access(o->generator, R_OK) != 0)
+            st = SL_ERR(ctx, SL_ENOINPUT, "%s: %s", o->generator, strerror(errno));
+        else if (ends_with(o->generator, ".so"))
+            snprintf(so_path, sizeof(so_path), "%s", o->generator);
+        else if (ends_with(o->generator, ".c"))
+            st = compile_generator(ctx, o, so_path, sizeof(so_path));
+        else
+            st = SL_ERR(ctx, SL_EUSAGE, "%s: a generator is a .c source or a compiled .so", o->generator);
+    }
+    SL_TRY(sl_agree(ctx, st));
+    MPI_Bcast(so_path, (int)sizeof(so_path), MPI_CHAR, 0, ctx->comm);
+
+    /* load: every rank (a shared file system is assumed for the cache) */
+    if (strchr(so_path, '/') == NULL) {
+        char rel[4400];
+        snprintf(rel, sizeof(rel), "./%s", so_path);
+        snprintf(so_path, sizeof(so_path), "%s", rel);
+    }
+    dl = dlopen(so_path, RTLD_NOW | RTLD_LOCAL);
+    if (dl == NULL) {
+        st = SL_ERR(ctx, SL_EDATA, "%s: cannot load generator: %s", o->generator, dlerror());
+    } else {
+        g = (const sluice_generator_def *)dlsym(dl, "sluice_generator");
+        if (g == NULL)
+            st = SL_ERR(ctx, SL_EDATA, "%s: no symbol 'sluice_generator' (see sluice/generator.h)", o->generator);
+        else if (g->abi_version != SLUICE_GENERATOR_ABI)
+            st = SL_ERR(ctx, SL_EDATA, "%s: generator ABI %d, this sluice implements ABI %d", o->generator,
+                        g->abi_version, SLUICE_GENERATOR_ABI);
+        else if (g->init == NULL || g->transitions == NULL || g->n_params < 0 || (g->n_params > 0 && !g->params))
+            st = SL_ERR(ctx, SL_EDATA, "%s: generator definition is incomplete (init/transitions missing)",
+                        o->generator);
+    }
+    SL_TRY(sl_agree(ctx, st));
+
+    /* parameters */
+    if (SL_ALLOC(ctx, pv, g->n_params, "parameters") == NULL) st = SL_ENOMEM;
+    for (int i = 0; st == SL_OK && i < g->n_params; i++) pv[i] = g->params[i].default_value;
+    for (int j = 0; st == SL_OK && j < o->n_params; j++) {
+        int found = -1;
+        for (int i = 0; i < g->n_params; i++)
+            if (strcmp(g->params[i].name, o->param_names[j]) == 0) found = i;
+        if (found < 0) {
+            char names[1024] = "";
+            for (int i = 0; i < g->n_params; i++) {
+                strncat(names, i ? ", " : "", sizeof(names) - strlen(names) - 1);
+                strncat(names, g->params[i].name, sizeof(names) - strlen(names) - 1);
+            }
+            st = SL_ERR(ctx, SL_EUSAGE, "%s: unknown parameter '%s' (this generator has: %s)", o->generator,
+                        o->param_names[j], g->n_params ? names : "no parameters");
+        } else {
+            pv[found] = o->param_values[j];
+        }
+    }
+    SL_TRY(sl_agree(ctx, st));
+
+    char err[512] = "";
+    int rc = g->init(pv, &shape, &inst, err, sizeof(err));
+    if (rc != 0)
+        st = SL_ERR(ctx, SL_EDATA, "%s: generator init failed (code %d): %s", o->generator, rc,
+                    err[0] ? err : "no message");
+    SL_TRY(sl_agree(ctx, st));
+
+    /* shape checks */
+    if (shape.n_states <= 0)
+        st = SL_ERR(ctx, SL_EDATA, "%s: the generator declares %lld states: the model is empty", o->generator,
+                    (long long)shape.n_states);
+    else if (shape.n_states > SL_MAX_STATES)
+        st = SL_ERR(ctx, SL_EDATA, "%s: state count %lld overflows the supported range (at most 2^48)",
+                    o->generator, (long long)shape.n_states);
+    else if (shape.n_actions <= 0)
+        st = SL_ERR(ctx, SL_EDATA, "%s: the generator declares no actions", o->generator);
+    else if (shape.n_factors < 0 || shape.n_factors > SLUICE_MAX_FACTORS)
+        st = SL_ERR(ctx, SL_EDATA, "%s: %d factors (at most %d)", o->generator, shape.n_factors,
+                    SLUICE_MAX_FACTORS);
+    if (st == SL_OK && shape.n_factors > 0) {
+        int64_t prod = 1;
+        for (int f = 0; f < shape.n_factors && st == SL_OK; f++) {
+            int64_t sz = shape.factors[f].size;
+            if (sz < 1 || prod > INT64_MAX / sz)
+                st = SL_ERR(ctx, SL_EDATA, "%s: factor sizes overflow the state count (factor %d)", o->generator,
+                            f);
+            else prod *= sz;
+        }
+        if (st == SL_OK && prod != shape.n_states)
+            st = SL_ERR(ctx, SL_EDATA, "%s: factor sizes multiply to %lld but the generator declares %lld states",
+                        o->generator, (long long)prod, (long long)shape.n_states);
+    }
+    double gamma = o->have_discount ? o->discount : shape.discount;
+    if (st == SL_OK && o->objective == SL_OBJ_DISCOUNTED && !(gamma >= 0.0 && gamma < 1.0))
+        st = SL_ERR(ctx, SL_EUSAGE, "discount %g is not in [0, 1) (required for the discounted objective)", gamma);
+    if (st == SL_OK && o->objective != SL_OBJ_DISCOUNTED && !(gamma > 0.0 && gamma <= 1.0))
+        st = SL_ERR(ctx, SL_EUSAGE, "discount %g is not in (0, 1]", gamma);
+    SL_TRY(sl_agree(ctx, st));
+
+    /* enumerate my slice of states */
+    int64_t n = shape.n_states;
+    int64_t s0 = n * ctx->rank / ctx->size, s1 = n * (ctx->rank + 1) / ctx->size;
+    SL_TRY(sl_block_init(ctx, &blk, s0, n, o->generator));
+    blk.prob_tolerance = o->prob_tolerance > 0 ? o->prob_tolerance : 1e-9;
+    blk.renormalize = o->renormalize;
+    snprintf(crash_name, sizeof(crash_name), "%s", g->name ? g->name : "?");
+    memset(&sa, 0, sizeof(sa));
+    sa.sa_handler = crash_handler;
+    sigemptyset(&sa.sa_mask);
+    for (int i = 0; i < 5; i++) sigaction(sigs[i], &sa, &old[i]);
+    armed = 1;
+    crash_armed = 1;
+    sink_state sk = {{sink_emit, NULL}, ctx, &blk, SL_OK};
+    sk.sink.opaque = &sk;
+    double t0 = sl_now(), last = t0;
+    for (int64_t s = s0; s < s1 && st == SL_OK; s++) {
+        st = sl_block_begin_state(ctx, &blk);
+        for (int32_t a = 0; a < shape.n_actions && st == SL_OK; a++) {
+            crash_state = s;
+            crash_action = a;
+            if (g->available && !g->available(inst, s, a)) continue;
+            st = sl_block_begin_pair(ctx, &blk, a);
+            if (st != SL_OK) break;
+            int grc = g->transitions(inst, s, a, &sk.sink);
+            if (sk.st != SL_OK) st = sk.st;
+            else if (grc != 0)
+                st = SL_ERR(ctx, SL_EDATA, "%s: generator returned error %d at state %lld, action %d",
+                            o->generator, grc, (long long)s, (int)a);
+            if (st == SL_OK) st = sl_block_end_pair(ctx, &blk);
+        }
+        if (st == SL_OK) st = sl_block_end_state(ctx, &blk);
+        if (((s - s0) & 1023) == 0) progress(ctx, t0, &last, s - s0, s1 - s0, 0);
+    }
+    crash_armed = 0;
+    if (st == SL_OK) progress(ctx, t0, &last, s1 - s0, s1 - s0, 1);
+    SL_TRY(sl_agree(ctx, st));
+    if (blk.n_renormalized > 0 || o->renormalize) {
+        int64_t tot = sl_sum_i64(ctx, blk.n_renormalized);
+        sl_warn(ctx, "--renormalize rescaled %lld pair(s) whose probabilities drifted from 1", (long long)tot);
+    }
+
+    /* global offsets, metadata, fingerprint, write */
+    sl_block_rebase(&blk, sl_exscan_i64(ctx, sl_block_pairs(&blk)), sl_exscan_i64(ctx, sl_block_trans(&blk)));
+    meta.format_version = SLUICE_FORMAT_VERSION;
+    meta.n_states = n;
+    meta.n_pairs = sl_sum_i64(ctx, sl_block_pairs(&blk));
+    meta.n_trans = sl_sum_i64(ctx, sl_block_trans(&blk));
+    meta.discount = gamma;
+    meta.objective = o->objective;
+    meta.n_factors = shape.n_factors;
+    for (int f = 0; f < shape.n_factors; f++) {
+        snprintf(meta.factor_name[f], SL_NAME_MAX, "%s", shape.factors[f].name ? shape.factors[f].name : "");
+        meta.factor_size[f] = shape.factors[f].size;
+        meta.factor_stage[f] = shape.factors[f].stage != 0;
+    }
+    meta.n_action_names = shape.action_names ? shape.n_actions : 0;
+    meta.n_params = g->n_params;
+    if (SL_ZALLOC(ctx, meta.action_name, meta.n_action_names, "action names") == NULL ||
+        SL_ZALLOC(ctx, meta.param_name, meta.n_params, "params") == NULL ||
+        SL_ZALLOC(ctx, meta.param_unit, meta.n_params, "params") == NULL ||
+        SL_ZALLOC(ctx, meta.param_value, meta.n_params, "params") == NULL)
+        st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    for (int32_t a = 0; a < meta.n_action_names; a++)
+        snprintf(meta.action_name[a], SL_NAME_MAX, "%s", shape.action_names[a] ? shape.action_names[a] : "");
+    for (int i = 0; i < g->n_params; i++) {
+        snprintf(meta.param_name[i], SL_NAME_MAX, "%s", g->params[i].name);
+        snprintf(meta.param_unit[i], SL_NAME_MAX, "%s", g->params[i].unit ? g->params[i].unit : "");
+        meta.param_value[i] = pv[i];
+    }
+    snprintf(meta.generator, sizeof(meta.generator), "%s", g->name ? g->name : "generator");
+    const char *base = strrchr(o->generator, '/');
+    snprintf(meta.source, sizeof(meta.source), "%s", base ? base + 1 : o->generator);
+    SL_TRY(sl_fingerprint(ctx, &meta, &blk, meta.fingerprint));
+    SL_TRY(sl_store_model_write(ctx, o->output, &meta, &blk));
+    sl_log(ctx, "build: wrote %s: %lld states, %lld pairs, %lld transitions in %.1f s", o->output,
+           (long long)meta.n_states, (long long)meta.n_pairs, (long long)meta.n_trans, sl_now() - t0);
+cleanup:
+    if (armed)
+        for (int i = 0; i < 5; i++) sigaction(sigs[i], &old[i], NULL);
+    crash_armed = 0;
+    if (inst && g && g->finish) g->finish(inst);
+    if (dl) dlclose(dl);
+    free(pv);
+    sl_block_free(&blk);
+    sl_meta_free(&meta);
+    return st;
+}

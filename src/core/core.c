@@ -1,0 +1,252 @@
+/* core.c - context, errors, agreement across ranks, allocation, atomic files. */
+#define _POSIX_C_SOURCE 200809L
+#include "core/core.h"
+
+#include <errno.h>
+#include <fcntl.h>
+#include <string.h>
+#include <sys/stat.h>
+#include <time.h>
+#include <unistd.h>
+
+const char *sl_strerror(sl_status st)
+{
+    switch (st) {
+    case SL_OK: return "success";
+    case SL_EUSAGE: return "usage error";
+    case SL_EDATA: return "invalid data";
+    case SL_ENOINPUT: return "missing or unreadable input";
+    case SL_EINTERNAL: return "internal error";
+    case SL_ENOMEM: return "out of memory";
+    case SL_ECANTCREAT: return "cannot create output";
+    case SL_EIO: return "input/output error";
+    case SL_ESTOPPED: return "stopped early";
+    }
+    return "unknown status";
+}
+
+sl_status sl_ctx_new(MPI_Comm comm, int verbosity, sl_ctx **out)
+{
+    *out = NULL;
+    sl_ctx *ctx = calloc(1, sizeof(*ctx));
+    int ok = ctx != NULL;
+    int all_ok = 0;
+    /* agree before any rank returns, so none is left in MPI_Comm_dup */
+    MPI_Allreduce(&ok, &all_ok, 1, MPI_INT, MPI_MIN, comm);
+    if (!all_ok) {
+        free(ctx);
+        return SL_ENOMEM;
+    }
+    if (MPI_Comm_dup(comm, &ctx->comm) != MPI_SUCCESS) {
+        free(ctx);
+        return SL_EINTERNAL;
+    }
+    MPI_Comm_rank(ctx->comm, &ctx->rank);
+    MPI_Comm_size(ctx->comm, &ctx->size);
+    ctx->verbosity = verbosity;
+    ctx->log = stderr;
+    ctx->log_tty = isatty(STDERR_FILENO);
+    *out = ctx;
+    return SL_OK;
+}
+
+void sl_ctx_free(sl_ctx **pctx)
+{
+    if (pctx == NULL || *pctx == NULL) return;
+    MPI_Comm_free(&(*pctx)->comm);
+    free(*pctx);
+    *pctx = NULL;
+}
+
+int sl_ctx_rank(const sl_ctx *ctx) { return ctx->rank; }
+int sl_ctx_size(const sl_ctx *ctx) { return ctx->size; }
+const char *sl_ctx_message(const sl_ctx *ctx) { return ctx->err; }
+
+void sl_ctx_set_log(sl_ctx *ctx, FILE *log)
+{
+    ctx->log = log;
+    ctx->log_tty = log != NULL && isatty(fileno(log));
+}
+
+void sl_ctx_set_signal_flag(sl_ctx *ctx, volatile sig_atomic_t *flag)
+{
+    ctx->signal_flag = flag;
+}
+
+sl_status sl_error_at(sl_ctx *ctx, sl_status st, const char *file, int line,
+                      const char *fmt, ...)
+{
+    if (ctx == NULL || ctx->err_status != SL_OK) return st;
+    ctx->err_status = st;
+    va_list ap;
+    va_start(ap, fmt);
+    int n = vsnprintf(ctx->err, sizeof(ctx->err), fmt, ap);
+    va_end(ap);
+    if (ctx->verbosity >= 2 && n >= 0 && (size_t)n < sizeof(ctx->err))
+        snprintf(ctx->err + n, sizeof(ctx->err) - (size_t)n, " [%s:%d]", file, line);
+    return st;
+}
+
+void sl_error_clear(sl_ctx *ctx)
+{
+    ctx->err_status = SL_OK;
+    ctx->err[0] = '\0';
+}
+
+sl_status sl_agree(sl_ctx *ctx, sl_status st)
+{
+    int mine = (int)st, worst = 0;
+    MPI_Allreduce(&mine, &worst, 1, MPI_INT, MPI_MAX, ctx->comm);
+    if (worst == SL_OK) return SL_OK;
+    /* the lowest rank that failed with any error speaks for all */
+    int cand = st != SL_OK ? ctx->rank : ctx->size, root = 0;
+    MPI_Allreduce(&cand, &root, 1, MPI_INT, MPI_MIN, ctx->comm);
+    if (ctx->rank == root && ctx->err[0] == '\0')
+        snprintf(ctx->err, sizeof(ctx->err), "%s", sl_strerror(st));
+    MPI_Bcast(ctx->err, SL_MSG_MAX, MPI_CHAR, root, ctx->comm);
+    ctx->err[SL_MSG_MAX - 1] = '\0';
+    ctx->err_status = (sl_status)worst;
+    return (sl_status)worst;
+}
+
+void *sl_malloc(sl_ctx *ctx, size_t count, size_t size, const char *what)
+{
+    if (size != 0 && count > SIZE_MAX / size) {
+        SL_ERR(ctx, SL_ENOMEM, "size overflow allocating %s", what);
+        return NULL;
+    }
+    size_t bytes = count * size;
+    void *p = malloc(bytes ? bytes : 1);
+    if (p == NULL)
+        SL_ERR(ctx, SL_ENOMEM, "out of memory allocating %s (%zu bytes)", what, bytes);
+    return p;
+}
+
+void *sl_calloc(sl_ctx *ctx, size_t count, size_t size, const char *what)
+{
+    if (size != 0 && count > SIZE_MAX / size) {
+        SL_ERR(ctx, SL_ENOMEM, "size overflow allocating %s", what);
+        return NULL;
+    }
+    void *p = calloc(count ? count : 1, size ? size : 1);
+    if (p == NULL)
+        SL_ERR(ctx, SL_ENOMEM, "out of memory allocating %s (%zu bytes)", what,
+               count * size);
+    return p;
+}
+
+static void vlog(sl_ctx *ctx, const char *prefix, const char *fmt, va_list ap)
+{
+    if (ctx->log == NULL || ctx->rank != 0) return;
+    fputs(prefix, ctx->log);
+    vfprintf(ctx->log, fmt, ap);
+    fputc('\n', ctx->log);
+    fflush(ctx->log);
+}
+
+void sl_log(sl_ctx *ctx, const char *fmt, ...)
+{
+    if (ctx->verbosity < 1) return;
+    va_list ap;
+    va_start(ap, fmt);
+    vlog(ctx, "", fmt, ap);
+    va_end(ap);
+}
+
+void sl_warn(sl_ctx *ctx, const char *fmt, ...)
+{
+    va_list ap;
+    va_start(ap, fmt);
+    vlog(ctx, "sluice: warning: ", fmt, ap);
+    va_end(ap);
+}
+
+double sl_now(void)
+{
+    struct timespec ts;
+    clock_gettime(CLOCK_MONOTONIC, &ts);
+    return (double)ts.tv_sec + 1e-9 * (double)ts.tv_nsec;
+}
+
+double sl_physical_memory(void)
+{
+    long pages = sysconf(_SC_PHYS_PAGES), psize = sysconf(_SC_PAGESIZE);
+    if (pages <= 0 || psize <= 0) return 0.0;
+    return (double)pages * (double)psize;
+}
+
+/* ---- atomic output files ---------------------------------------------- */
+
+static sl_status fsync_path(sl_ctx *ctx, const char *path, int dir)
+{
+    int fd = open(path, dir ? O_RDONLY | O_DIRECTORY : O_RDONLY);
+    if (fd < 0) return SL_ERR(ctx, SL_EIO, "%s: cannot open for fsync: %s", path, strerror(errno));
+    sl_status st = SL_OK;
+    if (fsync(fd) != 0 && !(dir && (errno == EINVAL || errno == EBADF)))
+        st = SL_ERR(ctx, SL_EIO, "%s: fsync failed: %s", path, strerror(errno));
+    if (close(fd) != 0 && st == SL_OK)
+        st = SL_ERR(ctx, SL_EIO, "%s: close failed: %s", path, strerror(errno));
+    return st;
+}
+
+static void dir_of(const char *path, char *dir, size_t n)
+{
+    const char *slash = strrchr(path, '/');
+    if (slash == NULL) snprintf(dir, n, ".");
+    else if (slash == path) snprintf(dir, n, "/");
+    else snprintf(dir, n, "%.*s", (int)(slash - path), path);
+}
+
+sl_status sl_outfile_begin(sl_ctx *ctx, sl_outfile *of, const char *path)
+{
+    sl_status st = SL_OK;
+    memset(of, 0, sizeof(*of));
+    if (strlen(path) + 32 >= sizeof(of->final_path))
+        st = SL_ERR(ctx, SL_EUSAGE, "%s: path too long", path);
+    if (st == SL_OK && ctx->rank == 0) {
+        snprintf(of->final_path, sizeof(of->final_path), "%s", path);
+        const char *base = strrchr(path, '/');
+        base = base ? base + 1 : path;
+        char dir[4096];
+        dir_of(path, dir, sizeof(dir));
+        struct stat sb;
+        int w = snprintf(of->tmp_path, sizeof(of->tmp_path), "%s/.%s.%ld.partial", dir, base,
+                         (long)getpid());
+        if (w < 0 || (size_t)w >= sizeof(of->tmp_path))
+            st = SL_ERR(ctx, SL_EUSAGE, "%s: path too long", path);
+        else if (stat(dir, &sb) != 0 || !S_ISDIR(sb.st_mode))
+            st = SL_ERR(ctx, SL_ECANTCREAT, "%s: directory %s does not exist", path, dir);
+        else if (access(dir, W_OK) != 0)
+            st = SL_ERR(ctx, SL_ECANTCREAT, "%s: directory %s is not writable", path, dir);
+        else if (stat(path, &sb) == 0 && S_ISDIR(sb.st_mode))
+            st = SL_ERR(ctx, SL_ECANTCREAT, "%s: is a directory", path);
+    }
+    st = sl_agree(ctx, st);
+    if (st != SL_OK) return st;
+    MPI_Bcast(of->final_path, (int)sizeof(of->final_path), MPI_CHAR, 0, ctx->comm);
+    MPI_Bcast(of->tmp_path, (int)sizeof(of->tmp_path), MPI_CHAR, 0, ctx->comm);
+    return SL_OK;
+}
+
+sl_status sl_outfile_end(sl_ctx *ctx, sl_outfile *of, sl_status st)
+{
+    st = sl_agree(ctx, st);
+    sl_status fs = SL_OK;
+    if (ctx->rank == 0 && of->tmp_path[0] != '\0') {
+        if (st == SL_OK) {
+            char dir[4096];
+            dir_of(of->final_path, dir, sizeof(dir));
+            fs = fsync_path(ctx, of->tmp_path, 0);
+            if (fs == SL_OK && rename(of->tmp_path, of->final_path) != 0)
+                fs = SL_ERR(ctx, SL_ECANTCREAT, "%s: cannot rename into place: %s",
+                            of->final_path, strerror(errno));
+            if (fs == SL_OK) fs = fsync_path(ctx, dir, 1);
+            if (fs != SL_OK) unlink(of->tmp_path);
+        } else {
+            unlink(of->tmp_path);
+        }
+    }
+    if (st == SL_OK) st = sl_agree(ctx, fs);
+    of->tmp_path[0] = '\0';
+    return st;
+}

@@ -1,0 +1,250 @@
+/* dist.c - partition by transitions, halo plan and exchange, reductions. */
+#include "dist/dist.h"
+
+#include <string.h>
+
+#include "store/store.h"
+
+double sl_sum(sl_ctx *ctx, double v)
+{
+    double r = 0;
+    MPI_Allreduce(&v, &r, 1, MPI_DOUBLE, MPI_SUM, ctx->comm);
+    return r;
+}
+
+double sl_max(sl_ctx *ctx, double v)
+{
+    double r = 0;
+    MPI_Allreduce(&v, &r, 1, MPI_DOUBLE, MPI_MAX, ctx->comm);
+    return r;
+}
+
+double sl_min(sl_ctx *ctx, double v)
+{
+    double r = 0;
+    MPI_Allreduce(&v, &r, 1, MPI_DOUBLE, MPI_MIN, ctx->comm);
+    return r;
+}
+
+int64_t sl_sum_i64(sl_ctx *ctx, int64_t v)
+{
+    int64_t r = 0;
+    MPI_Allreduce(&v, &r, 1, MPI_INT64_T, MPI_SUM, ctx->comm);
+    return r;
+}
+
+int64_t sl_exscan_i64(sl_ctx *ctx, int64_t v)
+{
+    int64_t r = 0;
+    MPI_Exscan(&v, &r, 1, MPI_INT64_T, MPI_SUM, ctx->comm);
+    return ctx->rank == 0 ? 0 : r;
+}
+
+/* First i in [lo, hi] with cum[i] >= q (cum non-decreasing). */
+static int64_t lower_bound(const int64_t *cum, int64_t lo, int64_t hi, int64_t q)
+{
+    while (lo < hi) {
+        int64_t mid = lo + (hi - lo) / 2;
+        if (cum[mid] < q) lo = mid + 1;
+        else hi = mid;
+    }
+    return lo;
+}
+
+void sl_partition_split(const int64_t *cum, int64_t n, int nparts, int64_t *bounds)
+{
+    int64_t total = cum[n];
+    bounds[0] = 0;
+    for (int k = 1; k < nparts; k++) {
+        int64_t q = (int64_t)((double)total * k / nparts);
+        int64_t b = lower_bound(cum, 0, n, q);
+        if (b < bounds[k - 1]) b = bounds[k - 1];
+        bounds[k] = b;
+    }
+    bounds[nparts] = n;
+}
+
+sl_status sl_dist_partition(sl_ctx *ctx, const char *path, const sl_meta *m, int64_t *bounds)
+{
+    int P = ctx->size, r = ctx->rank;
+    int64_t n = m->n_states;
+    /* phase 1: each rank reads an even share of states' cumulative counts */
+    int64_t lo = n * r / P, hi = n * (r + 1) / P;
+    int64_t *cum = NULL, *cand = NULL;
+    sl_status st = sl_store_model_cumulative(ctx, path, lo, hi, &cum);
+    if (st != SL_OK) return st;
+    if (SL_ALLOC(ctx, cand, P + 1, "partition") == NULL) st = SL_ENOMEM;
+    st = sl_agree(ctx, st);
+    if (st != SL_OK) {
+        free(cum);
+        free(cand);
+        return st;
+    }
+    int64_t total = m->n_trans;
+    /* phase 2: split point k is the first state whose cumulative count
+     * reaches q_k; the rank whose share holds it proposes it */
+    for (int k = 0; k <= P; k++) {
+        int64_t q = (int64_t)((double)total * k / P);
+        cand[k] = n;
+        if (k == 0) cand[k] = 0;
+        else if (k < P && cum[hi - lo] >= q && (r == 0 || cum[0] < q))
+            cand[k] = lo + lower_bound(cum, 0, hi - lo, q);
+        else if (k < P && r == 0 && cum[0] >= q)
+            cand[k] = 0;
+    }
+    MPI_Allreduce(cand, bounds, P + 1, MPI_INT64_T, MPI_MIN, ctx->comm);
+    for (int k = 1; k <= P; k++)
+        if (bounds[k] < bounds[k - 1]) bounds[k] = bounds[k - 1];
+    bounds[P] = n;
+    free(cum);
+    free(cand);
+    return SL_OK;
+}
+
+int sl_dist_owner(const int64_t *bounds, int nparts, int64_t s)
+{
+    int lo = 0, hi = nparts - 1;
+    while (lo < hi) {
+        int mid = (lo + hi + 1) / 2;
+        if (bounds[mid] <= s) lo = mid;
+        else hi = mid - 1;
+    }
+    return lo;
+}
+
+static int cmp_i64(const void *a, const void *b)
+{
+    int64_t x = *(const int64_t *)a, y = *(const int64_t *)b;
+    return (x > y) - (x < y);
+}
+
+void sl_halo_free(sl_halo *h)
+{
+    if (h == NULL) return;
+    free(h->halo_global);
+    free(h->recv_rank);
+    free(h->recv_off);
+    free(h->send_rank);
+    free(h->send_off);
+    free(h->send_idx);
+    free(h->send_buf);
+    free(h->reqs);
+    memset(h, 0, sizeof(*h));
+}
+
+sl_status sl_halo_build(sl_ctx *ctx, const int64_t *bounds, sl_block *b, sl_halo *h)
+{
+    sl_status st = SL_OK;
+    int P = ctx->size;
+    int *cnt_recv = NULL, *cnt_send = NULL, *displ_r = NULL, *displ_s = NULL;
+    int64_t *want = NULL;
+    memset(h, 0, sizeof(*h));
+    int64_t nt = sl_block_trans(b), s0 = b->s_begin, s1 = b->s_end;
+    h->n_local = s1 - s0;
+
+    /* distinct off-rank targets */
+    int64_t n_off = 0;
+    for (int64_t t = 0; t < nt; t++)
+        if (b->target[t] < s0 || b->target[t] >= s1) n_off++;
+    if (SL_ALLOC(ctx, h->halo_global, n_off, "halo") == NULL) st = SL_ENOMEM;
+    if (st == SL_OK) {
+        int64_t w = 0;
+        for (int64_t t = 0; t < nt; t++)
+            if (b->target[t] < s0 || b->target[t] >= s1) h->halo_global[w++] = b->target[t];
+        qsort(h->halo_global, (size_t)n_off, sizeof(int64_t), cmp_i64);
+        int64_t u = 0;
+        for (int64_t i = 0; i < n_off; i++)
+            if (u == 0 || h->halo_global[i] != h->halo_global[u - 1]) h->halo_global[u++] = h->halo_global[i];
+        h->n_halo = u;
+        /* rewrite targets to local columns */
+        for (int64_t t = 0; t < nt; t++) {
+            int64_t g = b->target[t];
+            if (g >= s0 && g < s1) {
+                b->target[t] = g - s0;
+            } else {
+                int64_t lo = 0, hi = u - 1;
+                while (lo < hi) {
+                    int64_t mid = lo + (hi - lo) / 2;
+                    if (h->halo_global[mid] < g) lo = mid + 1;
+                    else hi = mid;
+                }
+                b->target[t] = h->n_local + lo;
+            }
+        }
+    }
+    if (SL_ZALLOC(ctx, cnt_recv, P, "halo") == NULL || SL_ZALLOC(ctx, cnt_send, P, "halo") == NULL ||
+        SL_ZALLOC(ctx, displ_r, P, "halo") == NULL || SL_ZALLOC(ctx, displ_s, P, "halo") == NULL)
+        st = SL_ENOMEM;
+    st = sl_agree(ctx, st);
+    if (st != SL_OK) goto cleanup;
+
+    /* how many we want from each owner (halo is sorted, so owners are contiguous) */
+    for (int64_t i = 0; i < h->n_halo; i++) cnt_recv[sl_dist_owner(bounds, P, h->halo_global[i])]++;
+    MPI_Alltoall(cnt_recv, 1, MPI_INT, cnt_send, 1, MPI_INT, ctx->comm);
+    int64_t n_send = 0;
+    for (int p = 0; p < P; p++) {
+        displ_r[p] = p ? displ_r[p - 1] + cnt_recv[p - 1] : 0;
+        displ_s[p] = p ? displ_s[p - 1] + cnt_send[p - 1] : 0;
+        n_send += cnt_send[p];
+        if (cnt_recv[p]) h->n_recv++;
+        if (cnt_send[p]) h->n_send++;
+    }
+    if (SL_ALLOC(ctx, h->send_idx, n_send, "halo") == NULL || SL_ALLOC(ctx, h->send_buf, n_send, "halo") == NULL ||
+        SL_ALLOC(ctx, h->recv_rank, h->n_recv, "halo") == NULL ||
+        SL_ALLOC(ctx, h->recv_off, h->n_recv + 1, "halo") == NULL ||
+        SL_ALLOC(ctx, h->send_rank, h->n_send, "halo") == NULL ||
+        SL_ALLOC(ctx, h->send_off, h->n_send + 1, "halo") == NULL ||
+        SL_ALLOC(ctx, h->reqs, h->n_recv + h->n_send, "halo") == NULL)
+        st = SL_ENOMEM;
+    st = sl_agree(ctx, st);
+    if (st != SL_OK) goto cleanup;
+    MPI_Alltoallv(h->halo_global, cnt_recv, displ_r, MPI_INT64_T, h->send_idx, cnt_send, displ_s, MPI_INT64_T,
+                  ctx->comm);
+    for (int64_t i = 0; i < n_send; i++) h->send_idx[i] -= s0;
+    int ir = 0, is = 0;
+    h->recv_off[0] = 0;
+    h->send_off[0] = 0;
+    for (int p = 0; p < P; p++) {
+        if (cnt_recv[p]) {
+            h->recv_rank[ir] = p;
+            h->recv_off[ir + 1] = h->recv_off[ir] + cnt_recv[p];
+            ir++;
+        }
+        if (cnt_send[p]) {
+            h->send_rank[is] = p;
+            h->send_off[is + 1] = h->send_off[is] + cnt_send[p];
+            is++;
+        }
+    }
+    for (int64_t i = 0; i < n_send; i++)
+        if (h->send_idx[i] < 0 || h->send_idx[i] >= h->n_local) {
+            st = SL_ERR(ctx, SL_EINTERNAL, "halo plan: requested state not owned");
+            break;
+        }
+    st = sl_agree(ctx, st);
+cleanup:
+    free(cnt_recv);
+    free(cnt_send);
+    free(displ_r);
+    free(displ_s);
+    free(want);
+    if (st != SL_OK) sl_halo_free(h);
+    return st;
+}
+
+sl_status sl_halo_exchange(sl_ctx *ctx, const sl_halo *h, double *x)
+{
+    int nreq = 0;
+    for (int i = 0; i < h->n_recv; i++) {
+        int64_t off = h->recv_off[i], n = h->recv_off[i + 1] - off;
+        MPI_Irecv(x + h->n_local + off, (int)n, MPI_DOUBLE, h->recv_rank[i], 17, ctx->comm, &h->reqs[nreq++]);
+    }
+    for (int i = 0; i < h->n_send; i++) {
+        int64_t off = h->send_off[i], n = h->send_off[i + 1] - off;
+        for (int64_t k = off; k < off + n; k++) h->send_buf[k] = x[h->send_idx[k]];
+        MPI_Isend(h->send_buf + off, (int)n, MPI_DOUBLE, h->send_rank[i], 17, ctx->comm, &h->reqs[nreq++]);
+    }
+    if (nreq > 0 && MPI_Waitall(nreq, h->reqs, MPI_STATUSES_IGNORE) != MPI_SUCCESS)
+        return SL_ERR(ctx, SL_EINTERNAL, "halo exchange failed");
+    return SL_OK;
+}

@@ -1,0 +1,384 @@
+/* model.c - row builder, validation, fingerprint and metadata helpers. */
+#include "model/model.h"
+
+#include <math.h>
+#include <string.h>
+
+/* ---- metadata ----------------------------------------------------------- */
+
+void sl_meta_free(sl_meta *m)
+{
+    if (m == NULL) return;
+    free(m->action_name);
+    free(m->param_name);
+    free(m->param_value);
+    free(m->param_unit);
+    m->action_name = NULL;
+    m->param_name = NULL;
+    m->param_value = NULL;
+    m->param_unit = NULL;
+    m->n_action_names = 0;
+    m->n_params = 0;
+}
+
+static sl_status meta_alloc_arrays(sl_ctx *ctx, sl_meta *m)
+{
+    m->action_name = NULL;
+    m->param_name = NULL;
+    m->param_value = NULL;
+    m->param_unit = NULL;
+    if (SL_ZALLOC(ctx, m->action_name, m->n_action_names, "action names") == NULL ||
+        SL_ZALLOC(ctx, m->param_name, m->n_params, "parameter names") == NULL ||
+        SL_ZALLOC(ctx, m->param_value, m->n_params, "parameter values") == NULL ||
+        SL_ZALLOC(ctx, m->param_unit, m->n_params, "parameter units") == NULL) {
+        sl_meta_free(m);
+        return SL_ENOMEM;
+    }
+    return SL_OK;
+}
+
+sl_status sl_meta_copy(sl_ctx *ctx, sl_meta *dst, const sl_meta *src)
+{
+    *dst = *src;
+    sl_status st = meta_alloc_arrays(ctx, dst);
+    if (st != SL_OK) return st;
+    memcpy(dst->action_name, src->action_name, (size_t)src->n_action_names * SL_NAME_MAX);
+    memcpy(dst->param_name, src->param_name, (size_t)src->n_params * SL_NAME_MAX);
+    memcpy(dst->param_unit, src->param_unit, (size_t)src->n_params * SL_NAME_MAX);
+    memcpy(dst->param_value, src->param_value, (size_t)src->n_params * sizeof(double));
+    return SL_OK;
+}
+
+sl_status sl_meta_bcast(sl_ctx *ctx, sl_meta *m)
+{
+    sl_meta copy = *m;
+    MPI_Bcast(&copy, (int)sizeof(copy), MPI_BYTE, 0, ctx->comm);
+    sl_status st = SL_OK;
+    if (ctx->rank != 0) {
+        *m = copy;
+        st = meta_alloc_arrays(ctx, m);
+    }
+    st = sl_agree(ctx, st);
+    if (st != SL_OK) return st;
+    MPI_Bcast(m->action_name, m->n_action_names * SL_NAME_MAX, MPI_CHAR, 0, ctx->comm);
+    MPI_Bcast(m->param_name, m->n_params * SL_NAME_MAX, MPI_CHAR, 0, ctx->comm);
+    MPI_Bcast(m->param_unit, m->n_params * SL_NAME_MAX, MPI_CHAR, 0, ctx->comm);
+    MPI_Bcast(m->param_value, m->n_params, MPI_DOUBLE, 0, ctx->comm);
+    return SL_OK;
+}
+
+void sl_meta_decode(const sl_meta *m, int64_t state, int64_t *values)
+{
+    for (int f = 0; f < m->n_factors; f++) {
+        int64_t n = m->factor_size[f] > 0 ? m->factor_size[f] : 1;
+        values[f] = state % n;
+        state /= n;
+    }
+}
+
+int sl_meta_stage_factor(const sl_meta *m)
+{
+    for (int f = 0; f < m->n_factors; f++)
+        if (m->factor_stage[f]) return f;
+    return -1;
+}
+
+/* ---- block ---------------------------------------------------------------- */
+
+void sl_block_free(sl_block *b)
+{
+    if (b == NULL) return;
+    free(b->first_pair);
+    free(b->action);
+    free(b->reward);
+    free(b->first_trans);
+    free(b->target);
+    free(b->prob);
+    memset(b, 0, sizeof(*b));
+}
+
+static sl_status grow(sl_ctx *ctx, void **p, size_t *cap, size_t need, size_t elem,
+                      const char *what)
+{
+    if (need <= *cap) return SL_OK;
+    size_t n = *cap ? *cap : 1024;
+    while (n < need) n *= 2;
+    if (n > SIZE_MAX / elem) return SL_ERR(ctx, SL_ENOMEM, "size overflow growing %s", what);
+    void *q = realloc(*p, n * elem);
+    if (q == NULL)
+        return SL_ERR(ctx, SL_ENOMEM, "out of memory growing %s to %zu entries", what, n);
+    *p = q;
+    *cap = n;
+    return SL_OK;
+}
+
+sl_status sl_block_init(sl_ctx *ctx, sl_block *b, int64_t s_begin, int64_t n_states_total,
+                        const char *where)
+{
+    memset(b, 0, sizeof(*b));
+    b->s_begin = b->s_end = s_begin;
+    b->n_states_total = n_states_total;
+    b->prob_tolerance = 1e-9;
+    b->where = where ? where : "model";
+    sl_status st = grow(ctx, (void **)&b->first_pair, &b->cap_states, 1, sizeof(int64_t),
+                        "state index");
+    if (st != SL_OK) return st;
+    st = grow(ctx, (void **)&b->first_trans, &b->cap_ptrs, 1, sizeof(int64_t), "pair index");
+    if (st != SL_OK) return st;
+    b->first_pair[0] = 0;
+    b->first_trans[0] = 0;
+    return SL_OK;
+}
+
+sl_status sl_block_begin_state(sl_ctx *ctx, sl_block *b)
+{
+    size_t need = (size_t)(b->s_end - b->s_begin) + 2;
+    return grow(ctx, (void **)&b->first_pair, &b->cap_states, need, sizeof(int64_t),
+                "state index");
+}
+
+sl_status sl_block_begin_pair(sl_ctx *ctx, sl_block *b, int32_t action)
+{
+    int64_t s = b->s_end;
+    int64_t np = b->p_end - b->p_begin;
+    int64_t first = b->first_pair[s - b->s_begin] - b->p_begin;
+    for (int64_t k = first; k < np; k++)
+        if (b->action[k] == action)
+            return SL_ERR(ctx, SL_EDATA, "%s: state %lld: action %d appears twice", b->where,
+                          (long long)s, (int)action);
+    if (action < 0)
+        return SL_ERR(ctx, SL_EDATA, "%s: state %lld: negative action id %d", b->where,
+                      (long long)s, (int)action);
+    size_t need = (size_t)np + 1, cap_a = b->cap_pairs, cap_r = b->cap_pairs;
+    sl_status st = grow(ctx, (void **)&b->action, &cap_a, need, sizeof(int32_t), "pair actions");
+    if (st == SL_OK)
+        st = grow(ctx, (void **)&b->reward, &cap_r, need, sizeof(double), "pair rewards");
+    if (st == SL_OK)
+        st = grow(ctx, (void **)&b->first_trans, &b->cap_ptrs, need + 1, sizeof(int64_t),
+                  "pair index");
+    if (st != SL_OK) return st;
+    b->cap_pairs = cap_a < cap_r ? cap_a : cap_r;
+    b->action[np] = action;
+    b->reward[np] = 0.0;
+    b->in_pair = 1;
+    return SL_OK;
+}
+
+sl_status sl_block_add(sl_ctx *ctx, sl_block *b, int64_t target, double prob, double reward)
+{
+    int64_t s = b->s_end;
+    int32_t a = b->action[b->p_end - b->p_begin];
+    if (!isfinite(prob) || prob < 0.0 || prob > 1.0)
+        return SL_ERR(ctx, SL_EDATA,
+                      "%s: state %lld, action %d, next state %lld: probability %.17g is not in [0, 1]",
+                      b->where, (long long)s, (int)a, (long long)target, prob);
+    if (!isfinite(reward))
+        return SL_ERR(ctx, SL_EDATA,
+                      "%s: state %lld, action %d, next state %lld: reward %g is not finite",
+                      b->where, (long long)s, (int)a, (long long)target, reward);
+    if (target < 0 || (b->n_states_total > 0 && target >= b->n_states_total))
+        return SL_ERR(ctx, SL_EDATA,
+                      "%s: state %lld, action %d: next state %lld is out of range [0, %lld)",
+                      b->where, (long long)s, (int)a, (long long)target,
+                      (long long)b->n_states_total);
+    size_t nt = (size_t)(b->t_end - b->t_begin);
+    size_t cap_t = b->cap_trans, cap_p = b->cap_trans;
+    sl_status st = grow(ctx, (void **)&b->target, &cap_t, nt + 1, sizeof(int64_t), "transitions");
+    if (st == SL_OK)
+        st = grow(ctx, (void **)&b->prob, &cap_p, nt + 1, sizeof(double), "transitions");
+    if (st != SL_OK) return st;
+    b->cap_trans = cap_t < cap_p ? cap_t : cap_p;
+    b->target[nt] = target;
+    b->prob[nt] = prob;
+    /* reward accumulated as sum p*r; merged targets keep the sum */
+    b->reward[b->p_end - b->p_begin] += prob * reward;
+    b->t_end++;
+    return SL_OK;
+}
+
+sl_status sl_block_end_pair(sl_ctx *ctx, sl_block *b)
+{
+    int64_t k = b->p_end - b->p_begin;
+    int64_t s = b->s_end;
+    int32_t a = b->action[k];
+    int64_t lo = b->first_trans[k] - b->t_begin, hi = b->t_end - b->t_begin;
+    if (hi == lo)
+        return SL_ERR(ctx, SL_EDATA, "%s: state %lld, action %d: no successor states", b->where,
+                      (long long)s, (int)a);
+    /* insertion sort by target (pairs have few successors), then merge */
+    for (int64_t i = lo + 1; i < hi; i++) {
+        int64_t t = b->target[i];
+        double p = b->prob[i];
+        int64_t j = i - 1;
+        while (j >= lo && b->target[j] > t) {
+            b->target[j + 1] = b->target[j];
+            b->prob[j + 1] = b->prob[j];
+            j--;
+        }
+        b->target[j + 1] = t;
+        b->prob[j + 1] = p;
+    }
+    int64_t w = lo;
+    for (int64_t i = lo + 1; i < hi; i++) {
+        if (b->target[i] == b->target[w]) {
+            b->prob[w] += b->prob[i];
+        } else {
+            w++;
+            b->target[w] = b->target[i];
+            b->prob[w] = b->prob[i];
+        }
+    }
+    hi = w + 1;
+    b->t_end = b->t_begin + hi;
+    double sum = 0.0;
+    for (int64_t i = lo; i < hi; i++) sum += b->prob[i];
+    double drift = fabs(sum - 1.0);
+    if (drift > b->prob_tolerance) {
+        if (b->renormalize && drift <= 1e-6) {
+            for (int64_t i = lo; i < hi; i++) b->prob[i] /= sum;
+            b->reward[k] /= sum;
+            b->n_renormalized++;
+        } else {
+            return SL_ERR(ctx, SL_EDATA,
+                          "%s: state %lld, action %d: probabilities sum to %.17g, not 1 "
+                          "(tolerance %g%s)",
+                          b->where, (long long)s, (int)a, sum, b->prob_tolerance,
+                          b->renormalize ? "; --renormalize fixes drift up to 1e-6 only"
+                                         : "; --renormalize rescales drift up to 1e-6");
+        }
+    }
+    for (int64_t i = lo; i < hi; i++)
+        if (b->prob[i] > 1.0 + b->prob_tolerance)
+            return SL_ERR(ctx, SL_EDATA,
+                          "%s: state %lld, action %d, next state %lld: merged probability %.17g > 1",
+                          b->where, (long long)s, (int)a, (long long)b->target[i], b->prob[i]);
+    b->p_end++;
+    b->first_trans[b->p_end - b->p_begin] = b->t_end;
+    b->in_pair = 0;
+    return SL_OK;
+}
+
+sl_status sl_block_end_state(sl_ctx *ctx, sl_block *b)
+{
+    int64_t i = b->s_end - b->s_begin;
+    if (b->p_end == b->first_pair[i])
+        return SL_ERR(ctx, SL_EDATA, "%s: state %lld has no action", b->where,
+                      (long long)b->s_end);
+    b->s_end++;
+    b->first_pair[i + 1] = b->p_end;
+    return SL_OK;
+}
+
+void sl_block_rebase(sl_block *b, int64_t p_begin, int64_t t_begin)
+{
+    int64_t dp = p_begin - b->p_begin, dt = t_begin - b->t_begin;
+    for (int64_t i = 0; i <= sl_block_states(b); i++) b->first_pair[i] += dp;
+    for (int64_t k = 0; k <= sl_block_pairs(b); k++) b->first_trans[k] += dt;
+    b->p_begin += dp;
+    b->p_end += dp;
+    b->t_begin += dt;
+    b->t_end += dt;
+}
+
+/* ---- validation of rows read from a file --------------------------------- */
+
+sl_status sl_block_validate(sl_ctx *ctx, const sl_block *b, const sl_meta *m,
+                            double tol, const char *where)
+{
+    int64_t ns = sl_block_states(b);
+    if (b->first_pair[0] != b->p_begin || b->first_pair[ns] != b->p_end)
+        return SL_ERR(ctx, SL_EDATA,
+                      "%s: /state/first_pair of states %lld..%lld does not match the pair range",
+                      where, (long long)b->s_begin, (long long)b->s_end);
+    int64_t np = sl_block_pairs(b);
+    if (b->first_trans[0] != b->t_begin || b->first_trans[np] != b->t_end)
+        return SL_ERR(ctx, SL_EDATA,
+                      "%s: /pair/first_transition does not match the transition range of "
+                      "states %lld..%lld",
+                      where, (long long)b->s_begin, (long long)b->s_end);
+    for (int64_t i = 0; i < ns; i++) {
+        int64_t s = b->s_begin + i;
+        int64_t p0 = b->first_pair[i] - b->p_begin, p1 = b->first_pair[i + 1] - b->p_begin;
+        if (p1 < p0)
+            return SL_ERR(ctx, SL_EDATA, "%s: state %lld: /state/first_pair decreases", where,
+                          (long long)s);
+        if (p1 == p0)
+            return SL_ERR(ctx, SL_EDATA, "%s: state %lld has no action", where, (long long)s);
+        for (int64_t k = p0; k < p1; k++) {
+            int32_t a = b->action[k];
+            for (int64_t k2 = p0; k2 < k; k2++)
+                if (b->action[k2] == a)
+                    return SL_ERR(ctx, SL_EDATA, "%s: state %lld: action %d appears twice",
+                                  where, (long long)s, (int)a);
+            if (!isfinite(b->reward[k]))
+                return SL_ERR(ctx, SL_EDATA, "%s: state %lld, action %d: reward is not finite",
+                              where, (long long)s, (int)a);
+            int64_t t0 = b->first_trans[k] - b->t_begin, t1 = b->first_trans[k + 1] - b->t_begin;
+            if (t1 <= t0)
+                return SL_ERR(ctx, SL_EDATA,
+                              "%s: state %lld, action %d: /pair/first_transition not increasing",
+                              where, (long long)s, (int)a);
+            double sum = 0.0;
+            for (int64_t t = t0; t < t1; t++) {
+                if (b->target[t] < 0 || b->target[t] >= m->n_states)
+                    return SL_ERR(ctx, SL_EDATA,
+                                  "%s: state %lld, action %d: next state %lld out of range "
+                                  "[0, %lld)",
+                                  where, (long long)s, (int)a, (long long)b->target[t],
+                                  (long long)m->n_states);
+                double p = b->prob[t];
+                if (!(p >= 0.0 && p <= 1.0))
+                    return SL_ERR(ctx, SL_EDATA,
+                                  "%s: state %lld, action %d: probability %g not in [0, 1]",
+                                  where, (long long)s, (int)a, p);
+                sum += p;
+            }
+            if (fabs(sum - 1.0) > tol)
+                return SL_ERR(ctx, SL_EDATA,
+                              "%s: state %lld, action %d: probabilities sum to %.17g, not 1",
+                              where, (long long)s, (int)a, sum);
+        }
+    }
+    return SL_OK;
+}
+
+/* ---- fingerprint ---------------------------------------------------------- */
+
+static inline uint64_t dbits(double x)
+{
+    uint64_t u;
+    if (x == 0.0) x = 0.0; /* -0 == +0 */
+    memcpy(&u, &x, sizeof(u));
+    return u;
+}
+
+static inline void acc_entry(uint64_t acc[2], uint64_t tag, int64_t pos, uint64_t val)
+{
+    uint64_t h = sl_mix64(tag ^ sl_mix64((uint64_t)pos ^ sl_mix64(val)));
+    acc[0] += h;
+    acc[1] += sl_mix64(h ^ 0x5851f42d4c957f2dULL);
+}
+
+sl_status sl_fingerprint(sl_ctx *ctx, const sl_meta *m, const sl_block *b, char out[40])
+{
+    uint64_t acc[2] = {0, 0}, tot[2] = {0, 0};
+    int64_t ns = sl_block_states(b), np = sl_block_pairs(b), nt = sl_block_trans(b);
+    for (int64_t i = 0; i < ns; i++)
+        acc_entry(acc, 1, b->s_begin + i, (uint64_t)b->first_pair[i + 1]);
+    for (int64_t k = 0; k < np; k++) {
+        acc_entry(acc, 2, b->p_begin + k, (uint64_t)(uint32_t)b->action[k]);
+        acc_entry(acc, 3, b->p_begin + k, dbits(b->reward[k]));
+        acc_entry(acc, 4, b->p_begin + k, (uint64_t)b->first_trans[k + 1]);
+    }
+    for (int64_t t = 0; t < nt; t++) {
+        acc_entry(acc, 5, b->t_begin + t, (uint64_t)b->target[t]);
+        acc_entry(acc, 6, b->t_begin + t, dbits(b->prob[t]));
+    }
+    MPI_Allreduce(acc, tot, 2, MPI_UINT64_T, MPI_SUM, ctx->comm);
+    uint64_t head = sl_mix64((uint64_t)m->n_states) ^ sl_mix64((uint64_t)m->n_pairs * 3u) ^
+                    sl_mix64((uint64_t)m->n_trans * 7u) ^ sl_mix64(dbits(m->discount)) ^
+                    sl_mix64((uint64_t)m->objective + 11u);
+    uint64_t h0 = sl_mix64(tot[0] ^ head), h1 = sl_mix64(tot[1] + head);
+    snprintf(out, 40, "%016llx%016llx", (unsigned long long)h0, (unsigned long long)h1);
+    return SL_OK;
+}

@@ -1,0 +1,100 @@
+/* model.h - a contiguous block of model rows in memory, its metadata,
+ * the row builder used by every input path, validation and fingerprint. */
+#ifndef SL_MODEL_H
+#define SL_MODEL_H
+
+#include "core/core.h"
+#include "sluice/generator.h"
+
+#define SL_NAME_MAX 64
+
+/* Everything about a model except its rows; identical on every rank. */
+typedef struct sl_meta {
+    int format_version;
+    int64_t n_states, n_pairs, n_trans;
+    double discount;
+    sl_objective objective;
+    char fingerprint[40];               /* 32 hex digits */
+    int n_factors;
+    char factor_name[SLUICE_MAX_FACTORS][SL_NAME_MAX];
+    int64_t factor_size[SLUICE_MAX_FACTORS];
+    int factor_stage[SLUICE_MAX_FACTORS];
+    int32_t n_action_names;             /* 0: no names */
+    char (*action_name)[SL_NAME_MAX];   /* [n_action_names], indexed by action id */
+    char generator[SL_NAME_MAX];        /* "" if not built from a generator */
+    char source[256];                   /* input file the model came from */
+    int n_params;
+    char (*param_name)[SL_NAME_MAX];
+    double *param_value;
+    char (*param_unit)[SL_NAME_MAX];
+} sl_meta;
+
+void sl_meta_free(sl_meta *m);
+/* Deep copy (allocates the name arrays). Local. */
+sl_status sl_meta_copy(sl_ctx *ctx, sl_meta *dst, const sl_meta *src);
+/* Broadcast meta from rank 0 to all ranks (arrays allocated on receivers). */
+sl_status sl_meta_bcast(sl_ctx *ctx, sl_meta *m);
+/* Decode a state into its factor values (mixed radix, factor 0 fastest). */
+void sl_meta_decode(const sl_meta *m, int64_t state, int64_t *values);
+/* Index of the stage factor, or -1. */
+int sl_meta_stage_factor(const sl_meta *m);
+
+/* Rows [s_begin, s_end) of the model. Index arrays hold GLOBAL indices, as
+ * in the file: pairs of state s (global) are first_pair[s - s_begin] ..
+ * first_pair[s - s_begin + 1] - 1, and so on. */
+typedef struct sl_block {
+    int64_t s_begin, s_end;     /* owned states */
+    int64_t p_begin, p_end;     /* owned pairs */
+    int64_t t_begin, t_end;     /* owned transitions */
+    int64_t *first_pair;        /* [n_states_local + 1] */
+    int32_t *action;            /* [n_pairs_local] */
+    double *reward;             /* [n_pairs_local] */
+    int64_t *first_trans;       /* [n_pairs_local + 1] */
+    int64_t *target;            /* [n_trans_local] */
+    double *prob;               /* [n_trans_local] */
+    /* builder state */
+    size_t cap_states, cap_pairs, cap_ptrs, cap_trans;
+    int in_pair;
+    double prob_tolerance;      /* |sum - 1| allowed */
+    int renormalize;            /* fix |sum - 1| <= 1e-6 by rescaling */
+    int64_t n_renormalized;     /* pairs rescaled */
+    int64_t n_states_total;     /* for target range checks; 0 = unchecked */
+    const char *where;          /* source name for messages */
+} sl_block;
+
+static inline int64_t sl_block_states(const sl_block *b) { return b->s_end - b->s_begin; }
+static inline int64_t sl_block_pairs(const sl_block *b) { return b->p_end - b->p_begin; }
+static inline int64_t sl_block_trans(const sl_block *b) { return b->t_end - b->t_begin; }
+
+void sl_block_free(sl_block *b);
+
+/* ---- builder: append rows in order ------------------------------------
+ * sl_block_init(b, s_begin, p_begin, t_begin) (p_begin/t_begin may be 0 and
+ * fixed later with sl_block_rebase once global offsets are known); then per
+ * state: sl_block_begin_state; per pair: sl_block_begin_pair, any number of
+ * sl_block_add, sl_block_end_pair (merges duplicate targets, sorts them,
+ * computes r(s,a) = sum p*r, validates); sl_block_end_state (fails if the
+ * state has no action). Errors name the state and action. Local. */
+sl_status sl_block_init(sl_ctx *ctx, sl_block *b, int64_t s_begin, int64_t n_states_total,
+                        const char *where);
+sl_status sl_block_begin_state(sl_ctx *ctx, sl_block *b);
+sl_status sl_block_begin_pair(sl_ctx *ctx, sl_block *b, int32_t action);
+sl_status sl_block_add(sl_ctx *ctx, sl_block *b, int64_t target, double prob, double reward);
+sl_status sl_block_end_pair(sl_ctx *ctx, sl_block *b);
+sl_status sl_block_end_state(sl_ctx *ctx, sl_block *b);
+/* Shift the global pair/transition offsets (after an exclusive scan). */
+void sl_block_rebase(sl_block *b, int64_t p_begin, int64_t t_begin);
+
+/* Check a block read from a file: monotone pointers, sizes, targets in
+ * range, probabilities in [0,1] summing to 1, finite rewards, no repeated
+ * action in a state, every state with an action. `where` names the file.
+ * Local (callers agree). */
+sl_status sl_block_validate(sl_ctx *ctx, const sl_block *b, const sl_meta *m,
+                            double prob_tolerance, const char *where);
+
+/* Fingerprint of the model contents: an order-independent sum of hashed
+ * (position, value) entries over the block, reduced over ranks, mixed with
+ * sizes and discount. Same value for any partition. Collective. */
+sl_status sl_fingerprint(sl_ctx *ctx, const sl_meta *m, const sl_block *b, char out[40]);
+
+#endif /* SL_MODEL_H */

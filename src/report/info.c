@@ -1,0 +1,449 @@
+/* info.c - `sluice info`: describe model, solution, values and checkpoint files;
+ * predict the partition of a model over N ranks. */
+#include <math.h>
+#include <string.h>
+#include <sys/stat.h>
+
+#include "dist/dist.h"
+#include "report/json.h"
+#include "store/h5.h"
+#include "store/store.h"
+
+typedef struct model_stats {
+    int64_t tpp_min, tpp_max;   /* transitions per pair */
+    int64_t pps_min, pps_max;   /* pairs per state */
+    double stored, raw, file_bytes, plain_bytes;
+} model_stats;
+
+/* Distributed scan of the index arrays for min/max counts. */
+static sl_status scan_counts(sl_ctx *ctx, hid_t f, const sl_meta *m, model_stats *ms, const char *path)
+{
+    sl_status st = SL_OK;
+    int64_t *buf = NULL;
+    int P = ctx->size, r = ctx->rank;
+    int64_t lim[4] = {INT64_MAX, 0, INT64_MAX, 0};
+    const int64_t CH = 1 << 20;
+    if (SL_ALLOC(ctx, buf, CH + 1, "scan") == NULL) st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    for (int pass = 0; pass < 2; pass++) {
+        const char *name = pass == 0 ? "/pair/first_transition" : "/state/first_pair";
+        int64_t n = pass == 0 ? m->n_pairs : m->n_states;
+        int64_t lo = n * r / P, hi = n * (r + 1) / P;
+        /* every rank runs the same number of rounds (collective-safe) */
+        int64_t rounds = (n / P + CH) / CH + 1;
+        for (int64_t k = 0; k < rounds; k++) {
+            int64_t a = lo + k * CH, b = a + CH < hi ? a + CH : hi;
+            int64_t cnt = b > a ? b - a + 1 : 0;
+            st = sl_h5_read_1d(ctx, f, name, H5T_NATIVE_INT64, n + 1, cnt ? a : 0, cnt, buf, path);
+            if (st != SL_OK) break;
+            for (int64_t i = 0; i + 1 < cnt; i++) {
+                int64_t d = buf[i + 1] - buf[i];
+                if (d < lim[2 * pass]) lim[2 * pass] = d;
+                if (d > lim[2 * pass + 1]) lim[2 * pass + 1] = d;
+            }
+        }
+        if (st != SL_OK) break;
+    }
+    SL_TRY(sl_agree(ctx, st));
+    int64_t mins[2] = {lim[0], lim[2]}, maxs[2] = {lim[1], lim[3]}, gmin[2], gmax[2];
+    MPI_Allreduce(mins, gmin, 2, MPI_INT64_T, MPI_MIN, ctx->comm);
+    MPI_Allreduce(maxs, gmax, 2, MPI_INT64_T, MPI_MAX, ctx->comm);
+    ms->tpp_min = gmin[0];
+    ms->tpp_max = gmax[0];
+    ms->pps_min = gmin[1];
+    ms->pps_max = gmax[1];
+cleanup:
+    free(buf);
+    return st;
+}
+
+static const char *names[] = {"/state/first_pair", "/pair/action", "/pair/reward", "/pair/first_transition",
+                              "/transition/target", "/transition/probability"};
+
+/* Predicted partition: halo per part from a streaming pass over targets (rank 0). */
+static sl_status partition_report(sl_ctx *ctx, const char *path, const sl_meta *m, int N, int json, FILE *out)
+{
+    sl_status st = SL_OK;
+    int64_t *cum = NULL, *bounds = NULL, *fp = NULL, *ft = NULL, *tg = NULL;
+    uint32_t *t32 = NULL;
+    uint8_t *mark = NULL;
+    int64_t *halo = NULL, *nbr = NULL;
+    hid_t f = H5I_INVALID_HID;
+    int64_t ns = m->n_states;
+    /* rank 0 reads; the others wait at the final agreement */
+    SL_TRY(sl_store_model_cumulative(ctx, path, 0, ctx->rank == 0 ? ns : 0, &cum));
+    if (ctx->rank == 0) {
+        if (SL_ALLOC(ctx, bounds, N + 1, "partition") == NULL || SL_ZALLOC(ctx, mark, (ns + 7) / 8, "halo bitmap") == NULL ||
+            SL_ZALLOC(ctx, halo, N, "halo") == NULL || SL_ZALLOC(ctx, nbr, N, "halo") == NULL)
+            st = SL_ENOMEM;
+    }
+    SL_TRY(sl_agree(ctx, st));
+    SL_TRY(sl_h5_open(ctx, path, 0, &f));
+    if (ctx->rank == 0) {
+        sl_partition_split(cum, ns, N, bounds);
+        int use32 = sl_h5_is_u32(f, "/transition/target");
+        const int64_t CH = 1 << 20;
+        if (SL_ALLOC(ctx, tg, CH, "targets") == NULL || SL_ALLOC(ctx, t32, CH, "targets") == NULL) st = SL_ENOMEM;
+        int *touched = NULL;
+        if (st == SL_OK && SL_ZALLOC(ctx, touched, N, "neighbours") == NULL) st = SL_ENOMEM;
+        int64_t *distinct = NULL;
+        for (int k = 0; k < N && st == SL_OK; k++) {
+            int64_t t0 = cum[bounds[k]], t1 = cum[bounds[k + 1]];
+            int64_t s0 = bounds[k], s1 = bounds[k + 1], nd = 0, cap = 0;
+            for (int64_t a = t0; a < t1 && st == SL_OK; a += CH) {
+                int64_t c = a + CH < t1 ? CH : t1 - a;
+                if (use32) {
+                    st = sl_h5_read_1d(ctx, f, "/transition/target", H5T_NATIVE_UINT32, m->n_trans, a, c, t32, path);
+                    for (int64_t i = 0; i < c; i++) tg[i] = t32[i];
+                } else {
+                    st = sl_h5_read_1d(ctx, f, "/transition/target", H5T_NATIVE_INT64, m->n_trans, a, c, tg, path);
+                }
+                for (int64_t i = 0; st == SL_OK && i < c; i++) {
+                    int64_t g = tg[i];
+                    if (g < 0 || g >= ns) {
+                        st = SL_ERR(ctx, SL_EDATA, "%s: transition %lld: target %lld out of range", path,
+                                    (long long)(a + i), (long long)g);
+                        break;
+                    }
+                    if (g >= s0 && g < s1) continue;
+                    if (mark[g >> 3] & (1u << (g & 7))) continue;
+                    mark[g >> 3] |= (uint8_t)(1u << (g & 7));
+                    if (nd == cap) {
+                        cap = cap ? 2 * cap : 1024;
+                        int64_t *q = realloc(distinct, (size_t)cap * sizeof(int64_t));
+                        if (q == NULL) {
+                            st = SL_ERR(ctx, SL_ENOMEM, "out of memory in the partition report");
+                            break;
+                        }
+                        distinct = q;
+                    }
+                    distinct[nd++] = g;
+                }
+            }
+            halo[k] = nd;
+            int nn = 0;
+            for (int64_t i = 0; i < nd; i++) {
+                int o = sl_dist_owner(bounds, N, distinct[i]);
+                if (!touched[o]) {
+                    touched[o] = 1;
+                    nn++;
+                }
+                mark[distinct[i] >> 3] = 0;
+            }
+            for (int64_t i = 0; i < nd; i++) touched[sl_dist_owner(bounds, N, distinct[i])] = 0;
+            nbr[k] = nn;
+        }
+        free(distinct);
+        free(touched);
+        if (st == SL_OK) {
+            int64_t hmax = 0, htot = 0, tmax = 0;
+            for (int k = 0; k < N; k++) {
+                htot += halo[k];
+                if (halo[k] > hmax) hmax = halo[k];
+                int64_t t = cum[bounds[k + 1]] - cum[bounds[k]];
+                if (t > tmax) tmax = t;
+            }
+            if (json) {
+                sl_json j;
+                sl_json_begin(&j, out);
+                sl_json_int(&j, "ranks", N);
+                sl_json_int(&j, "halo_total", htot);
+                sl_json_int(&j, "halo_max", hmax);
+                sl_json_num(&j, "bytes_exchanged_per_sweep", 8.0 * (double)htot);
+                sl_json_num(&j, "transition_imbalance", (double)tmax * N / (double)(m->n_trans > 0 ? m->n_trans : 1));
+                sl_json_arr_open(&j, "parts");
+                for (int k = 0; k < N; k++) {
+                    sl_json_obj_open(&j, NULL);
+                    sl_json_int(&j, "rank", k);
+                    sl_json_int(&j, "first_state", bounds[k]);
+                    sl_json_int(&j, "states", bounds[k + 1] - bounds[k]);
+                    sl_json_int(&j, "transitions", cum[bounds[k + 1]] - cum[bounds[k]]);
+                    sl_json_int(&j, "halo", halo[k]);
+                    sl_json_int(&j, "neighbours", nbr[k]);
+                    sl_json_num(&j, "bytes_in_per_sweep", 8.0 * (double)halo[k]);
+                    double mem = 16.0 * (double)(cum[bounds[k + 1]] - cum[bounds[k]]) +
+                                 40.0 * (double)(bounds[k + 1] - bounds[k]) + 16.0 * (double)halo[k];
+                    sl_json_num(&j, "memory_bytes_estimate", mem);
+                    sl_json_close_obj(&j);
+                }
+                sl_json_close_arr(&j);
+                sl_json_end(&j);
+            } else {
+                fprintf(out, "partition of %s over %d ranks (balanced by transitions)\n", path, N);
+                fprintf(out, "%8s %14s %12s %14s %12s %6s %14s %12s\n", "rank", "first_state", "states", "transitions",
+                        "halo", "nbrs", "bytes_in/sweep", "mem_est_MB");
+                int shown = 0;
+                for (int k = 0; k < N; k++) {
+                    if (N > 40 && k >= 16 && k < N - 8) {
+                        if (!shown) fprintf(out, "%8s\n", "...");
+                        shown = 1;
+                        continue;
+                    }
+                    int64_t t = cum[bounds[k + 1]] - cum[bounds[k]];
+                    double mem = 16.0 * (double)t + 40.0 * (double)(bounds[k + 1] - bounds[k]) + 16.0 * (double)halo[k];
+                    fprintf(out, "%8d %14lld %12lld %14lld %12lld %6lld %14.0f %12.1f\n", k, (long long)bounds[k],
+                            (long long)(bounds[k + 1] - bounds[k]), (long long)t, (long long)halo[k], (long long)nbr[k],
+                            8.0 * (double)halo[k], mem / 1e6);
+                }
+                fprintf(out, "total halo entries %lld (%.3g MB exchanged per sweep), largest %lld; transition imbalance %.3f\n",
+                        (long long)htot, 8e-6 * (double)htot, (long long)hmax,
+                        (double)tmax * N / (double)(m->n_trans > 0 ? m->n_trans : 1));
+                fprintf(out, "memory estimate: 16 B per transition + 40 B per state + 16 B per halo entry, plus pairs;\n"
+                             "policy iteration with a direct solve needs more on rank 0 (see sluice solve --method pi)\n");
+            }
+        }
+    }
+    st = sl_agree(ctx, st);
+cleanup:
+    if (f >= 0) H5Fclose(f);
+    free(cum);
+    free(bounds);
+    free(fp);
+    free(ft);
+    free(tg);
+    free(t32);
+    free(mark);
+    free(halo);
+    free(nbr);
+    return st;
+}
+
+static sl_status model_info(sl_ctx *ctx, const sl_info_opts *o)
+{
+    sl_status st = SL_OK;
+    sl_meta m;
+    model_stats ms;
+    hid_t f = H5I_INVALID_HID;
+    memset(&ms, 0, sizeof(ms));
+    SL_TRY(sl_store_model_meta(ctx, o->path, &m));
+    SL_TRY(sl_h5_open(ctx, o->path, 0, &f));
+    SL_TRY(scan_counts(ctx, f, &m, &ms, o->path));
+    for (size_t i = 0; i < sizeof(names) / sizeof(names[0]); i++) {
+        double s, r;
+        sl_h5_sizes(f, names[i], &s, &r);
+        ms.stored += s;
+    }
+    struct stat sb;
+    ms.file_bytes = stat(o->path, &sb) == 0 ? (double)sb.st_size : 0;
+    /* raw: 8-byte probability + 4-byte index per transition, plus per-pair
+     * action (4) + reward (8) + pointer (8) and per-state pointer (8) */
+    ms.raw = 12.0 * (double)m.n_trans + 20.0 * (double)m.n_pairs + 8.0 * (double)m.n_states;
+    if (ctx->rank == 0) {
+        FILE *out = o->out;
+        double mean = (double)m.n_trans / (double)m.n_pairs;
+        if (o->json) {
+            sl_json j;
+            sl_json_begin(&j, out);
+            sl_json_str(&j, "kind", "model");
+            sl_json_str(&j, "path", o->path);
+            sl_json_int(&j, "format_version", m.format_version);
+            sl_json_int(&j, "n_states", m.n_states);
+            sl_json_int(&j, "n_pairs", m.n_pairs);
+            sl_json_int(&j, "n_transitions", m.n_trans);
+            sl_json_num(&j, "discount", m.discount);
+            sl_json_str(&j, "objective", sl_objective_name(m.objective));
+            sl_json_str(&j, "fingerprint", m.fingerprint);
+            sl_json_obj_open(&j, "transitions_per_pair");
+            sl_json_int(&j, "min", ms.tpp_min);
+            sl_json_num(&j, "mean", mean);
+            sl_json_int(&j, "max", ms.tpp_max);
+            sl_json_close_obj(&j);
+            sl_json_obj_open(&j, "actions_per_state");
+            sl_json_int(&j, "min", ms.pps_min);
+            sl_json_num(&j, "mean", (double)m.n_pairs / (double)m.n_states);
+            sl_json_int(&j, "max", ms.pps_max);
+            sl_json_close_obj(&j);
+            sl_json_num(&j, "file_bytes", ms.file_bytes);
+            sl_json_num(&j, "data_bytes_stored", ms.stored);
+            sl_json_num(&j, "raw_bytes", ms.raw);
+            sl_json_num(&j, "compression_ratio", ms.raw > 0 ? ms.file_bytes / ms.raw : NAN);
+            sl_json_arr_open(&j, "factors");
+            for (int i = 0; i < m.n_factors; i++) {
+                sl_json_obj_open(&j, NULL);
+                sl_json_str(&j, "name", m.factor_name[i]);
+                sl_json_int(&j, "size", m.factor_size[i]);
+                sl_json_bool(&j, "stage", m.factor_stage[i]);
+                sl_json_close_obj(&j);
+            }
+            sl_json_close_arr(&j);
+            sl_json_arr_open(&j, "actions");
+            for (int32_t a = 0; a < m.n_action_names; a++) sl_json_str(&j, NULL, m.action_name[a]);
+            sl_json_close_arr(&j);
+            if (m.generator[0]) {
+                sl_json_obj_open(&j, "generator");
+                sl_json_str(&j, "name", m.generator);
+                sl_json_str(&j, "source", m.source);
+                sl_json_obj_open(&j, "parameters");
+                for (int i = 0; i < m.n_params; i++) sl_json_num(&j, m.param_name[i], m.param_value[i]);
+                sl_json_close_obj(&j);
+                sl_json_close_obj(&j);
+            } else if (m.source[0]) {
+                sl_json_str(&j, "source", m.source);
+            }
+            sl_json_end(&j);
+        } else {
+            fprintf(out, "%s: sluice model (format %d)\n", o->path, m.format_version);
+            fprintf(out, "  states        %lld\n  pairs         %lld (actions per state %lld..%lld, mean %.2f)\n",
+                    (long long)m.n_states, (long long)m.n_pairs, (long long)ms.pps_min, (long long)ms.pps_max,
+                    (double)m.n_pairs / (double)m.n_states);
+            fprintf(out, "  transitions   %lld (per pair min %lld, mean %.2f, max %lld)\n", (long long)m.n_trans,
+                    (long long)ms.tpp_min, mean, (long long)ms.tpp_max);
+            fprintf(out, "  objective     %s, discount %.10g\n", sl_objective_name(m.objective), m.discount);
+            fprintf(out, "  size          %.3f MB on disk, %.3f MB raw: %.1f%% of raw\n", ms.file_bytes / 1e6,
+                    ms.raw / 1e6, ms.raw > 0 ? 100.0 * ms.file_bytes / ms.raw : 0.0);
+            fprintf(out, "  fingerprint   %s\n", m.fingerprint);
+            if (m.n_factors > 0) {
+                fprintf(out, "  factors      ");
+                for (int i = 0; i < m.n_factors; i++)
+                    fprintf(out, " %s(%lld%s)", m.factor_name[i], (long long)m.factor_size[i],
+                            m.factor_stage[i] ? ", stage" : "");
+                fprintf(out, "  [state = factor 0 fastest]\n");
+            }
+            if (m.n_action_names > 0) {
+                fprintf(out, "  actions      ");
+                for (int32_t a = 0; a < m.n_action_names && a < 32; a++) fprintf(out, " %d=%s", a, m.action_name[a]);
+                if (m.n_action_names > 32) fprintf(out, " ... (%d in all)", m.n_action_names);
+                fprintf(out, "\n");
+            }
+            if (m.generator[0]) {
+                fprintf(out, "  generator     %s (from %s)\n", m.generator, m.source);
+                for (int i = 0; i < m.n_params; i++)
+                    fprintf(out, "    %-22s %.10g %s\n", m.param_name[i], m.param_value[i], m.param_unit[i]);
+            } else if (m.source[0]) {
+                fprintf(out, "  source        %s\n", m.source);
+            }
+        }
+    }
+    if (o->partition > 0) {
+        H5Fclose(f);
+        f = H5I_INVALID_HID;
+        SL_TRY(partition_report(ctx, o->path, &m, o->partition, o->json, o->out));
+    }
+cleanup:
+    if (f >= 0) H5Fclose(f);
+    sl_meta_free(&m);
+    return st;
+}
+
+static void print_history_tail(FILE *out, const sl_history *h)
+{
+    if (h->n == 0) return;
+    fprintf(out, "  history       %lld checks; last:\n", (long long)h->n);
+    fprintf(out, "    %10s %10s %10s %12s %12s %12s\n", "iteration", "sweeps", "seconds", "sup", "span", "policy_bound");
+    for (int64_t i = h->n > 5 ? h->n - 5 : 0; i < h->n; i++)
+        fprintf(out, "    %10lld %10lld %10.2f %12.4e %12.4e %12.4e\n", (long long)h->iteration[i], (long long)h->sweeps[i],
+                h->seconds[i], h->sup[i], h->span[i], h->policy_loss[i]);
+}
+
+static sl_status solution_info(sl_ctx *ctx, const sl_info_opts *o, sl_file_kind kind)
+{
+    sl_status st = SL_OK;
+    sl_solution_info in;
+    hid_t f = H5I_INVALID_HID;
+    int64_t n = 0;
+    SL_TRY(sl_h5_open(ctx, o->path, 0, &f));
+    st = sl_agree(ctx, sl_h5_attr_read_i64(ctx, f, "n_states", &n, 0, o->path));
+    if (n == 0) n = sl_h5_length(f, "/value");
+    H5Fclose(f);
+    SL_TRY(st);
+    SL_TRY(sl_store_solution_read(ctx, o->path, kind, n, 0, 0, NULL, NULL, &in));
+    if (ctx->rank == 0) {
+        FILE *out = o->out;
+        const char *kn = kind == SL_FILE_VALUES ? "values" : "solution";
+        if (o->json) {
+            sl_json j;
+            sl_json_begin(&j, out);
+            sl_json_str(&j, "kind", kn);
+            sl_json_str(&j, "path", o->path);
+            sl_json_int(&j, "n_states", n);
+            sl_json_str(&j, "model_fingerprint", in.model_fingerprint);
+            sl_json_str(&j, "method", in.method);
+            sl_json_bool(&j, "converged", in.converged);
+            sl_json_int(&j, "iterations", in.iterations);
+            sl_json_int(&j, "sweeps", in.sweeps);
+            sl_json_num(&j, "seconds", in.seconds);
+            sl_json_num(&j, "tolerance", in.tolerance);
+            sl_json_num(&j, "discount", in.discount);
+            sl_json_num(&j, "residual_sup", in.residual_sup);
+            sl_json_num(&j, "residual_span", in.residual_span);
+            sl_json_num(&j, "value_error_bound", in.value_error_bound);
+            if (kind == SL_FILE_SOLUTION) sl_json_num(&j, "policy_loss_bound", in.policy_loss_bound);
+            sl_json_end(&j);
+        } else {
+            fprintf(out, "%s: sluice %s file\n", o->path, kn);
+            fprintf(out, "  states        %lld\n  model         fingerprint %s\n", (long long)n, in.model_fingerprint);
+            fprintf(out, "  method        %s%s%s\n", in.method, in.order[0] ? ", order " : "", in.order);
+            if (kind == SL_FILE_SOLUTION)
+                fprintf(out, "  converged     %s after %lld iterations, %lld sweeps, %.2f s (tolerance %.1e)\n",
+                        in.converged ? "yes" : "NO", (long long)in.iterations, (long long)in.sweeps, in.seconds,
+                        in.tolerance);
+            fprintf(out, "  residual      sup %.3e, span %.3e\n", in.residual_sup, in.residual_span);
+            fprintf(out, "  certificate   |value - v%s| <= %.3e", kind == SL_FILE_VALUES ? "_policy" : "*",
+                    in.value_error_bound);
+            if (kind == SL_FILE_SOLUTION) fprintf(out, "; policy within %.3e of optimal", in.policy_loss_bound);
+            fprintf(out, "\n");
+        }
+    }
+cleanup:
+    return st;
+}
+
+static sl_status checkpoint_info(sl_ctx *ctx, const sl_info_opts *o)
+{
+    sl_solver_state s;
+    sl_history h;
+    char fp[40] = "";
+    int64_t n = 0;
+    int complete = 0;
+    memset(&h, 0, sizeof(h));
+    sl_status st = sl_ckpt_info(ctx, o->path, fp, &n, &s, &h, &complete);
+    if (st == SL_OK && ctx->rank == 0) {
+        FILE *out = o->out;
+        double sup = h.n ? h.sup[h.n - 1] : NAN, span = h.n ? h.span[h.n - 1] : NAN;
+        double bound = h.n ? h.policy_loss[h.n - 1] : NAN, verr = h.n ? h.value_error[h.n - 1] : NAN;
+        if (o->json) {
+            sl_json j;
+            sl_json_begin(&j, out);
+            sl_json_str(&j, "kind", "checkpoint");
+            sl_json_str(&j, "path", o->path);
+            sl_json_bool(&j, "complete", complete);
+            sl_json_str(&j, "model_fingerprint", fp);
+            sl_json_int(&j, "n_states", n);
+            sl_json_str(&j, "method", s.method);
+            sl_json_int(&j, "iteration", s.iteration);
+            sl_json_int(&j, "sweeps", s.sweeps);
+            sl_json_num(&j, "seconds_used", s.elapsed);
+            sl_json_num(&j, "residual_sup", sup);
+            sl_json_num(&j, "residual_span", span);
+            sl_json_num(&j, "value_error_bound", verr);
+            sl_json_num(&j, "policy_loss_bound", bound);
+            sl_json_end(&j);
+        } else {
+            fprintf(out, "%s: sluice checkpoint%s\n", o->path, complete ? "" : " (INCOMPLETE: will not be used)");
+            fprintf(out, "  model         fingerprint %s, %lld states\n", fp, (long long)n);
+            fprintf(out, "  progress      method %s, iteration %lld, %lld sweeps, %.1f s used\n", s.method,
+                    (long long)s.iteration, (long long)s.sweeps, s.elapsed);
+            fprintf(out, "  bounds        sup %.3e, span %.3e, value within %.3e, policy within %.3e (last check)\n", sup,
+                    span, verr, bound);
+            print_history_tail(out, &h);
+        }
+    }
+    sl_history_free(&h);
+    return st;
+}
+
+sl_status sl_info(sl_ctx *ctx, const sl_info_opts *o)
+{
+    sl_file_kind kind;
+    sl_status st = sl_store_kind(ctx, o->path, &kind);
+    if (st != SL_OK) return st;
+    switch (kind) {
+    case SL_FILE_MODEL: return model_info(ctx, o);
+    case SL_FILE_SOLUTION:
+    case SL_FILE_VALUES:
+        if (o->partition > 0) return SL_ERR(ctx, SL_EUSAGE, "--partition applies to model files only");
+        return solution_info(ctx, o, kind);
+    case SL_FILE_CHECKPOINT: return checkpoint_info(ctx, o);
+    default: return SL_ERR(ctx, SL_EDATA, "%s: unknown file kind", o->path);
+    }
+}

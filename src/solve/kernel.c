@@ -1,0 +1,242 @@
+/* kernel.c - loading a distributed problem, Bellman backups, certificates. */
+#include <float.h>
+#include <math.h>
+#include <string.h>
+
+#include "solve/solve.h"
+#include "store/store.h"
+
+void sl_problem_free(sl_problem *p)
+{
+    if (p == NULL) return;
+    sl_meta_free(&p->meta);
+    sl_block_free(&p->blk);
+    sl_halo_free(&p->halo);
+    free(p->bounds);
+    free(p->order);
+    memset(p, 0, sizeof(*p));
+}
+
+static sl_status build_order(sl_ctx *ctx, sl_problem *p, sl_order order)
+{
+    int64_t n = p->n_local;
+    int stage = sl_meta_stage_factor(&p->meta);
+    if (order == SL_ORDER_AUTO) order = stage >= 0 ? SL_ORDER_STAGE_REVERSE : SL_ORDER_NATURAL;
+    if (order == SL_ORDER_STAGE_REVERSE && stage < 0) {
+        sl_warn(ctx, "%s: no stage factor; using natural sweep order", p->path);
+        order = SL_ORDER_NATURAL;
+    }
+    p->order_used = order;
+    if (SL_ALLOC(ctx, p->order, n, "sweep order") == NULL) return SL_ENOMEM;
+    if (order == SL_ORDER_NATURAL) {
+        for (int64_t i = 0; i < n; i++) p->order[i] = i;
+    } else if (order == SL_ORDER_REVERSE) {
+        for (int64_t i = 0; i < n; i++) p->order[i] = n - 1 - i;
+    } else {
+        /* stable counting sort by stage value, descending */
+        int64_t ns = p->meta.factor_size[stage], *count = NULL;
+        int64_t stride = 1;
+        for (int f = 0; f < stage; f++) stride *= p->meta.factor_size[f];
+        if (SL_ZALLOC(ctx, count, ns + 1, "stage order") == NULL) return SL_ENOMEM;
+        for (int64_t i = 0; i < n; i++) {
+            int64_t st = ((p->blk.s_begin + i) / stride) % ns;
+            count[ns - 1 - st + 1]++;
+        }
+        for (int64_t k = 1; k <= ns; k++) count[k] += count[k - 1];
+        for (int64_t i = 0; i < n; i++) {
+            int64_t st = ((p->blk.s_begin + i) / stride) % ns;
+            p->order[count[ns - 1 - st]++] = i;
+        }
+        free(count);
+    }
+    return SL_OK;
+}
+
+sl_status sl_problem_load(sl_ctx *ctx, const char *path, sl_order order, sl_problem *p)
+{
+    sl_status st = SL_OK;
+    char fp[40];
+    memset(p, 0, sizeof(*p));
+    p->path = path;
+    SL_TRY(sl_store_model_meta(ctx, path, &p->meta));
+    if (p->meta.objective != SL_OBJ_DISCOUNTED)
+        st = SL_ERR(ctx, SL_EDATA,
+                    "%s: objective \"%s\" is recorded in the file, but this version of sluice solves "
+                    "only the discounted objective",
+                    path, sl_objective_name(p->meta.objective));
+    else if (!(p->meta.discount >= 0.0 && p->meta.discount < 1.0))
+        st = SL_ERR(ctx, SL_EDATA, "%s: discount %g is not in [0, 1) as the discounted objective requires",
+                    path, p->meta.discount);
+    SL_TRY(sl_agree(ctx, st));
+    p->gamma = p->meta.discount;
+    if (SL_ALLOC(ctx, p->bounds, ctx->size + 1, "partition") == NULL) st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    SL_TRY(sl_dist_partition(ctx, path, &p->meta, p->bounds));
+    SL_TRY(sl_store_model_read(ctx, path, &p->meta, p->bounds[ctx->rank], p->bounds[ctx->rank + 1], &p->blk));
+    SL_TRY(sl_fingerprint(ctx, &p->meta, &p->blk, fp));
+    if (strcmp(fp, p->meta.fingerprint) != 0)
+        SL_TRY(SL_ERR(ctx, SL_EDATA,
+                      "%s: contents do not match the file's fingerprint (%s recorded, %s computed): the file "
+                      "was altered or is corrupted",
+                      path, p->meta.fingerprint, fp));
+    p->n_local = sl_block_states(&p->blk);
+    double rmax = 0;
+    for (int64_t k = 0; k < sl_block_pairs(&p->blk); k++)
+        if (fabs(p->blk.reward[k]) > rmax) rmax = fabs(p->blk.reward[k]);
+    p->rmax_abs = sl_max(ctx, rmax);
+    SL_TRY(sl_halo_build(ctx, p->bounds, &p->blk, &p->halo));
+    SL_TRY(sl_agree(ctx, build_order(ctx, p, order)));
+cleanup:
+    if (st != SL_OK) sl_problem_free(p);
+    return st;
+}
+
+/* q(s,a) for local pair k: r + gamma * sum p x[col] */
+static inline double qval(const sl_block *b, int64_t k, const double *x, double gamma)
+{
+    int64_t t0 = b->first_trans[k] - b->t_begin, t1 = b->first_trans[k + 1] - b->t_begin;
+    double acc = 0.0;
+    for (int64_t t = t0; t < t1; t++) acc += b->prob[t] * x[b->target[t]];
+    return b->reward[k] + gamma * acc;
+}
+
+/* Best value over the pairs of local state i; *choice is the pair offset
+ * (kept unless another pair is better by more than a tiny margin). */
+static inline double best_q(const sl_block *b, int64_t i, const double *x, double gamma, int32_t *choice)
+{
+    int64_t p0 = b->first_pair[i] - b->p_begin, p1 = b->first_pair[i + 1] - b->p_begin;
+    int32_t cur = *choice;
+    if (cur < 0 || cur >= p1 - p0) cur = 0;
+    double qcur = qval(b, p0 + cur, x, gamma), best = qcur;
+    int32_t arg = cur;
+    for (int64_t k = p0; k < p1; k++) {
+        if (k - p0 == cur) continue;
+        double q = qval(b, k, x, gamma);
+        if (q > best) {
+            best = q;
+            arg = (int32_t)(k - p0);
+        }
+    }
+    /* margin: relative 1e-13 of the magnitude (roundoff level of a backup) */
+    if (arg != cur && best - qcur <= 1e-13 * (fabs(best) + 1e-300)) {
+        arg = cur;
+        best = qcur > best ? qcur : best;
+    }
+    *choice = arg;
+    return best;
+}
+
+void sl_bellman_check(const sl_problem *p, const double *x, double *y, int32_t *policy, sl_check *c)
+{
+    const sl_block *b = &p->blk;
+    double dmin = INFINITY, dmax = -INFINITY, xmax = 0;
+    int64_t changed = 0;
+    for (int64_t i = 0; i < p->n_local; i++) {
+        int32_t ch = policy[i];
+        double v = best_q(b, i, x, p->gamma, &ch);
+        if (ch != policy[i]) changed++;
+        policy[i] = ch;
+        double d = v - x[i];
+        if (d < dmin) dmin = d;
+        if (d > dmax) dmax = d;
+        if (fabs(x[i]) > xmax) xmax = fabs(x[i]);
+        y[i] = v;
+    }
+    memset(c, 0, sizeof(*c));
+    c->dmin = dmin;
+    c->dmax = dmax;
+    c->xmax_abs = xmax;
+    c->changed = changed;
+}
+
+void sl_policy_check(const sl_problem *p, const double *x, double *y, const int32_t *policy, sl_check *c)
+{
+    const sl_block *b = &p->blk;
+    double dmin = INFINITY, dmax = -INFINITY, xmax = 0;
+    for (int64_t i = 0; i < p->n_local; i++) {
+        int64_t k = b->first_pair[i] - b->p_begin + policy[i];
+        double v = qval(b, k, x, p->gamma);
+        double d = v - x[i];
+        if (d < dmin) dmin = d;
+        if (d > dmax) dmax = d;
+        if (fabs(x[i]) > xmax) xmax = fabs(x[i]);
+        y[i] = v;
+    }
+    memset(c, 0, sizeof(*c));
+    c->dmin = dmin;
+    c->dmax = dmax;
+    c->xmax_abs = xmax;
+}
+
+void sl_certify(sl_ctx *ctx, const sl_problem *p, sl_check *c)
+{
+    double in[4] = {-c->dmin, c->dmax, c->xmax_abs, (double)c->changed}, out[4];
+    MPI_Allreduce(in, out, 3, MPI_DOUBLE, MPI_MAX, ctx->comm);
+    MPI_Allreduce(&in[3], &out[3], 1, MPI_DOUBLE, MPI_SUM, ctx->comm);
+    c->dmin = -out[0];
+    c->dmax = out[1];
+    c->xmax_abs = out[2];
+    c->changed = (int64_t)out[3];
+    c->sup = fmax(fabs(c->dmin), fabs(c->dmax));
+    /* Roundoff allowance: each computed d(s) may differ from the exact one by
+     * a few ulps of the magnitudes involved (common practice, no source:
+     * 16 eps * (max|x| + max|r|) covers the sums over a handful of
+     * successors). It widens the span on both sides. */
+    double fp = 16.0 * DBL_EPSILON * (c->xmax_abs + p->rmax_abs);
+    c->span = (c->dmax - c->dmin) + 2.0 * fp;
+    double g = p->gamma, f = g < 1.0 ? g / (1.0 - g) : INFINITY;
+    /* MacQueen bounds (Puterman 1994, Thm 6.6.3): with d = Tx - x,
+     *   Tx + f*min d <= v* <= Tx + f*max d, and the greedy policy pi has
+     *   v_pi >= Tx + f*min d, so v* - v_pi <= f*span(d). */
+    c->value_error = 0.5 * f * c->span + fp;
+    c->policy_loss = f * c->span;
+}
+
+void sl_midpoint(const sl_problem *p, const double *y, const sl_check *c, double *out)
+{
+    double g = p->gamma, shift = g / (1.0 - g) * 0.5 * (c->dmin + c->dmax);
+    for (int64_t i = 0; i < p->n_local; i++) out[i] = y[i] + shift;
+}
+
+double sl_sweep_gs(const sl_problem *p, double *x, int32_t *policy, int eval)
+{
+    const sl_block *b = &p->blk;
+    double delta = 0;
+    for (int64_t j = 0; j < p->n_local; j++) {
+        int64_t i = p->order[j];
+        double v;
+        if (eval) {
+            v = qval(b, b->first_pair[i] - b->p_begin + policy[i], x, p->gamma);
+        } else {
+            int32_t ch = policy[i];
+            v = best_q(b, i, x, p->gamma, &ch);
+            policy[i] = ch;
+        }
+        double dd = fabs(v - x[i]);
+        if (dd > delta) delta = dd;
+        x[i] = v;
+    }
+    return delta;
+}
+
+void sl_policy_actions(const sl_problem *p, const int32_t *policy, int32_t *actions)
+{
+    const sl_block *b = &p->blk;
+    for (int64_t i = 0; i < p->n_local; i++) actions[i] = b->action[b->first_pair[i] - b->p_begin + policy[i]];
+}
+
+sl_status sl_policy_offsets(sl_ctx *ctx, const sl_problem *p, const int32_t *actions, int32_t *policy,
+                            const char *where)
+{
+    const sl_block *b = &p->blk;
+    for (int64_t i = 0; i < p->n_local; i++) {
+        int64_t p0 = b->first_pair[i] - b->p_begin, p1 = b->first_pair[i + 1] - b->p_begin;
+        policy[i] = -1;
+        for (int64_t k = p0; k < p1; k++)
+            if (b->action[k] == actions[i]) policy[i] = (int32_t)(k - p0);
+        if (policy[i] < 0)
+            return SL_ERR(ctx, SL_EDATA, "%s: state %lld: policy action %d is not available in the model", where,
+                          (long long)(b->s_begin + i), (int)actions[i]);
+    }
+    return SL_OK;
+}

@@ -1,0 +1,484 @@
+/* methods.c - sl_solve: Gauss-Seidel / Jacobi value iteration, modified
+ * policy iteration and policy iteration, with certified stopping,
+ * progress lines, checkpoints and the solution file. */
+#include <math.h>
+#include <string.h>
+
+#include "report/json.h"
+#include "solve/solve.h"
+#include "store/store.h"
+
+typedef struct run {
+    sl_ctx *ctx;
+    const sl_solve_opts *o;
+    sl_problem P;
+    double *x, *y;          /* [n_local + n_halo] */
+    int32_t *pol;           /* pair offsets, owned states */
+    int32_t *actions;       /* scratch for writing */
+    sl_history hist;
+    sl_solver_state S;
+    double t0;              /* start of this process's solve */
+    double tol;
+    double last_ckpt, last_progress;
+    sl_check last;
+    int have_check;
+    void *lu;               /* PI: cached factorization */
+    char evaluation[16];
+    double lu_estimate;
+    int64_t n_ckpt;
+} run;
+
+static double elapsed(const run *r) { return r->S.elapsed + (sl_now() - r->t0); }
+
+/* ---- progress ------------------------------------------------------------------- */
+
+static void progress(run *r, const sl_check *c, int force)
+{
+    sl_ctx *ctx = r->ctx;
+    double now = sl_now();
+    double every = r->o->progress_every > 0 ? r->o->progress_every : (ctx->log_tty ? 1.0 : 30.0);
+    if (!force && now - r->last_progress < every) return;
+    r->last_progress = now;
+    /* observed contraction per sweep from the last two checks */
+    double rate = NAN, eta = NAN;
+    if (r->hist.n >= 2) {
+        int64_t a = r->hist.n - 2, b = r->hist.n - 1;
+        int64_t ds = r->hist.sweeps[b] - r->hist.sweeps[a];
+        if (ds > 0 && r->hist.span[a] > 0 && r->hist.span[b] > 0)
+            rate = pow(r->hist.span[b] / r->hist.span[a], 1.0 / (double)ds);
+        double target = r->tol * (1.0 - r->P.gamma) / (r->P.gamma > 0 ? r->P.gamma : 1.0);
+        double secs_per_sweep = r->S.sweeps > 0 ? elapsed(r) / (double)r->S.sweeps : 0;
+        if (rate > 0 && rate < 1 && c->span > target)
+            eta = log(target / c->span) / log(rate) * secs_per_sweep;
+        else if (c->span <= target)
+            eta = 0;
+    }
+    char etas[32] = "?";
+    if (isfinite(eta)) snprintf(etas, sizeof(etas), "%.0fs", eta);
+    sl_log(ctx, "solve: iter %lld  sweeps %lld  sup|Tv-v| %.3e  span %.3e  bound %.3e  rate %.4f  %.1fs  ETA %s",
+           (long long)r->S.iteration, (long long)r->S.sweeps, c->sup, c->span, c->policy_loss, rate, elapsed(r),
+           etas);
+}
+
+/* ---- checks ----------------------------------------------------------------- */
+
+/* Synchronous check at x: y = Tx, greedy policy into pol; records history.
+ * Returns 1 if certified within tolerance. Collective. */
+static int check(run *r, int32_t *pol)
+{
+    sl_halo_exchange(r->ctx, &r->P.halo, r->x);
+    sl_bellman_check(&r->P, r->x, r->y, pol, &r->last);
+    sl_certify(r->ctx, &r->P, &r->last);
+    r->have_check = 1;
+    r->S.last_span = r->last.span;
+    r->S.last_check_sweeps = r->S.sweeps;
+    if (sl_history_push(r->ctx, &r->hist, r->S.iteration, r->S.sweeps, elapsed(r), r->last.sup, r->last.span,
+                        r->last.value_error, r->last.policy_loss) != SL_OK)
+        return -1;
+    progress(r, &r->last, 0);
+    return r->last.value_error <= r->tol && r->last.policy_loss <= r->tol;
+}
+
+/* ---- output ------------------------------------------------------------------- */
+
+static sl_status write_solution(run *r, int converged)
+{
+    sl_ctx *ctx = r->ctx;
+    sl_status st = SL_OK;
+    int64_t n = r->P.n_local;
+    int32_t *pol2 = NULL;
+    double *val = NULL;
+    if (SL_ALLOC(ctx, pol2, n, "policy") == NULL || SL_ALLOC(ctx, val, n, "values") == NULL) st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    memcpy(pol2, r->pol, (size_t)n * sizeof(int32_t));
+    /* a fresh synchronous check at the current x defines value and bounds
+     * (x itself is left untouched so a checkpoint stays exact) */
+    if (!converged) {
+        if (check(r, pol2) < 0) st = SL_ENOMEM;
+        SL_TRY(sl_agree(ctx, st));
+    } else {
+        memcpy(pol2, r->pol, (size_t)n * sizeof(int32_t));
+    }
+    sl_midpoint(&r->P, r->y, &r->last, val);
+    sl_policy_actions(&r->P, pol2, r->actions);
+    sl_solution_info in;
+    memset(&in, 0, sizeof(in));
+    snprintf(in.model_fingerprint, sizeof(in.model_fingerprint), "%s", r->P.meta.fingerprint);
+    snprintf(in.method, sizeof(in.method), "%s", sl_method_name(r->o->method));
+    snprintf(in.order, sizeof(in.order), "%s", sl_order_name(r->P.order_used));
+    snprintf(in.evaluation, sizeof(in.evaluation), "%s", r->evaluation);
+    in.converged = converged;
+    in.iterations = r->S.iteration;
+    in.sweeps = r->S.sweeps;
+    in.seconds = elapsed(r);
+    in.tolerance = r->tol;
+    in.discount = r->P.gamma;
+    in.residual_sup = r->last.sup;
+    in.residual_span = r->last.span;
+    in.residual_min = r->last.dmin;
+    in.residual_max = r->last.dmax;
+    in.value_error_bound = r->last.value_error;
+    in.policy_loss_bound = r->last.policy_loss;
+    st = sl_store_solution_write(ctx, r->o->output, SL_FILE_SOLUTION, r->P.meta.n_states, r->P.blk.s_begin, n, val,
+                                 r->actions, &in, &r->hist);
+cleanup:
+    free(pol2);
+    free(val);
+    return st;
+}
+
+static sl_status write_report(run *r, int converged, sl_status outcome)
+{
+    if (r->o->report == NULL) return SL_OK;
+    sl_ctx *ctx = r->ctx;
+    sl_status st = SL_OK;
+    if (ctx->rank == 0) {
+        char tmp[4200];
+        snprintf(tmp, sizeof(tmp), "%s.partial", r->o->report);
+        FILE *f = fopen(tmp, "w");
+        if (f == NULL) {
+            st = SL_ERR(ctx, SL_ECANTCREAT, "%s: cannot create report", r->o->report);
+        } else {
+            sl_json j;
+            sl_json_begin(&j, f);
+            sl_json_str(&j, "sluice_version", SLUICE_VERSION);
+            sl_json_str(&j, "model", r->o->model);
+            sl_json_str(&j, "model_fingerprint", r->P.meta.fingerprint);
+            sl_json_str(&j, "solution", r->o->output);
+            sl_json_str(&j, "method", sl_method_name(r->o->method));
+            sl_json_str(&j, "order", sl_order_name(r->P.order_used));
+            if (r->evaluation[0]) sl_json_str(&j, "evaluation", r->evaluation);
+            sl_json_int(&j, "ranks", ctx->size);
+            sl_json_int(&j, "n_states", r->P.meta.n_states);
+            sl_json_int(&j, "n_transitions", r->P.meta.n_trans);
+            sl_json_num(&j, "discount", r->P.gamma);
+            sl_json_bool(&j, "converged", converged);
+            sl_json_int(&j, "exit_code", (int64_t)outcome);
+            sl_json_num(&j, "tolerance", r->tol);
+            sl_json_int(&j, "iterations", r->S.iteration);
+            sl_json_int(&j, "sweeps", r->S.sweeps);
+            sl_json_num(&j, "seconds", elapsed(r));
+            sl_json_num(&j, "residual_sup", r->last.sup);
+            sl_json_num(&j, "residual_span", r->last.span);
+            sl_json_num(&j, "residual_min", r->last.dmin);
+            sl_json_num(&j, "residual_max", r->last.dmax);
+            sl_json_num(&j, "value_error_bound", r->last.value_error);
+            sl_json_num(&j, "policy_loss_bound", r->last.policy_loss);
+            sl_json_int(&j, "checkpoints_written", r->n_ckpt);
+            sl_json_arr_open(&j, "history");
+            for (int64_t i = 0; i < r->hist.n; i++) {
+                sl_json_obj_open(&j, NULL);
+                sl_json_int(&j, "iteration", r->hist.iteration[i]);
+                sl_json_int(&j, "sweeps", r->hist.sweeps[i]);
+                sl_json_num(&j, "seconds", r->hist.seconds[i]);
+                sl_json_num(&j, "sup", r->hist.sup[i]);
+                sl_json_num(&j, "span", r->hist.span[i]);
+                sl_json_num(&j, "value_error_bound", r->hist.value_error[i]);
+                sl_json_num(&j, "policy_loss_bound", r->hist.policy_loss[i]);
+                sl_json_close_obj(&j);
+            }
+            sl_json_close_arr(&j);
+            sl_json_str(&j, "caution",
+                        "results support, and never replace, licensed engineering judgement and local regulations");
+            sl_json_end(&j);
+            int bad = ferror(f);
+            bad |= fclose(f) != 0;
+            if (bad || rename(tmp, r->o->report) != 0) {
+                remove(tmp);
+                st = SL_ERR(ctx, SL_EIO, "%s: cannot write report", r->o->report);
+            }
+        }
+    }
+    return sl_agree(ctx, st);
+}
+
+static void summary(run *r, int converged)
+{
+    sl_ctx *ctx = r->ctx;
+    if (ctx->rank != 0 || ctx->verbosity < 1 || ctx->log == NULL) return;
+    FILE *f = ctx->log;
+    fprintf(f, "\nsluice solve summary\n");
+    fprintf(f, "  model        %s (%lld states, %lld transitions, discount %g)\n", r->o->model,
+            (long long)r->P.meta.n_states, (long long)r->P.meta.n_trans, r->P.gamma);
+    fprintf(f, "  method       %s (order %s%s%s) on %d rank(s)\n", sl_method_name(r->o->method),
+            sl_order_name(r->P.order_used), r->evaluation[0] ? ", evaluation " : "", r->evaluation, ctx->size);
+    fprintf(f, "  result       %s after %lld iterations, %lld sweeps, %.2f s\n",
+            converged ? "CERTIFIED" : "NOT converged", (long long)r->S.iteration, (long long)r->S.sweeps, elapsed(r));
+    fprintf(f, "  residual     sup|Tv - v| = %.3e, span = %.3e\n", r->last.sup, r->last.span);
+    fprintf(f, "  certificate  |value - v*| <= %.3e in every state; policy within %.3e of optimal (tolerance %.1e)\n",
+            r->last.value_error, r->last.policy_loss, r->tol);
+    fprintf(f, "  written      %s\n", r->o->output);
+    fprintf(f, "  caution      results support, and never replace, licensed engineering judgement\n"
+               "               and local regulations.\n");
+}
+
+/* ---- checkpoints and stop requests ------------------------------------------------ */
+
+enum { POLL_NONE = 0, POLL_CKPT = 1, POLL_STOP = 2 };
+
+/* Agree on what to do at this sweep boundary. Deterministic for the numbers:
+ * only whether to write/stop depends on time or signals. Collective. */
+static int poll(run *r)
+{
+    int want = 0;
+    double now = sl_now();
+    if (r->ctx->signal_flag && *r->ctx->signal_flag) {
+        want = *r->ctx->signal_flag >= 2 ? POLL_STOP : POLL_CKPT;
+        if (want == POLL_CKPT) *r->ctx->signal_flag = 0;
+    }
+    double every = r->o->checkpoint_every > 0 ? r->o->checkpoint_every : 600.0;
+    if (r->o->checkpoint_dir && now - r->last_ckpt >= every && want < POLL_CKPT) want = POLL_CKPT;
+    if (r->o->walltime > 0) {
+        /* stop with a margin for the final write: 5% or 10 s, whichever is more (common practice, no source) */
+        double margin = fmax(10.0, 0.05 * r->o->walltime);
+        if (r->o->walltime < 60) margin = fmin(margin, 0.2 * r->o->walltime);
+        if (now - r->t0 >= r->o->walltime - margin) want = POLL_STOP;
+    }
+    int agreed = 0;
+    MPI_Allreduce(&want, &agreed, 1, MPI_INT, MPI_MAX, r->ctx->comm);
+    return agreed;
+}
+
+static sl_status checkpoint(run *r)
+{
+    if (r->o->checkpoint_dir == NULL) return SL_OK;
+    sl_policy_actions(&r->P, r->pol, r->actions);
+    r->S.elapsed = elapsed(r);
+    r->t0 = sl_now();
+    snprintf(r->S.method, sizeof(r->S.method), "%s", sl_method_name(r->o->method));
+    sl_status st = sl_ckpt_write(r->ctx, r->o->checkpoint_dir, r->P.meta.fingerprint, r->P.meta.n_states,
+                                 r->P.blk.s_begin, r->P.n_local, r->x, r->actions, &r->S, &r->hist);
+    r->last_ckpt = sl_now();
+    if (st == SL_OK) {
+        r->n_ckpt++;
+        sl_log(r->ctx, "solve: checkpoint written to %s (iteration %lld, sweep %lld)", r->o->checkpoint_dir,
+               (long long)r->S.iteration, (long long)r->S.sweeps);
+    }
+    return st;
+}
+
+/* ---- methods ------------------------------------------------------------------ */
+
+/* One step of a method. Returns 1 converged, 0 continue, <0 error (st set). */
+static int step_gs(run *r)
+{
+    sl_halo_exchange(r->ctx, &r->P.halo, r->x);
+    double delta = sl_max(r->ctx, sl_sweep_gs(&r->P, r->x, r->pol, 0));
+    r->S.sweeps++;
+    r->S.since_check++;
+    r->S.iteration++;
+    double target = r->tol * (1.0 - r->P.gamma) / (r->P.gamma > 0 ? r->P.gamma : 1.0);
+    if (r->S.since_check >= r->S.check_interval || delta <= target) {
+        r->S.since_check = 0;
+        if (r->S.check_interval < 32) r->S.check_interval *= 2;
+        int c = check(r, r->pol);
+        if (c != 0) return c;
+        /* y = Tx is one more exact backup; continue from it */
+        double *t = r->x;
+        r->x = r->y;
+        r->y = t;
+        r->S.sweeps++;
+    }
+    return 0;
+}
+
+static int step_jacobi(run *r)
+{
+    int c = check(r, r->pol);
+    r->S.iteration++;
+    r->S.sweeps++;
+    if (c != 0) return c;
+    double *t = r->x;
+    r->x = r->y;
+    r->y = t;
+    return 0;
+}
+
+static int step_mpi(run *r)
+{
+    int c = check(r, r->pol); /* improvement: greedy policy + certificate */
+    r->S.sweeps++;
+    if (c != 0) return c;
+    double *t = r->x;
+    r->x = r->y;
+    r->y = t;
+    int64_t m = r->o->sweeps > 0 ? r->o->sweeps : r->S.mpi_m;
+    for (int64_t j = 0; j < m; j++) {
+        sl_halo_exchange(r->ctx, &r->P.halo, r->x);
+        sl_sweep_gs(&r->P, r->x, r->pol, 1);
+        r->S.sweeps++;
+    }
+    /* adapt m: a stable policy deserves longer evaluation (Puterman & Shin 1978
+     * leave m free; doubling when no action changed is common practice, no source) */
+    if (r->o->sweeps <= 0) {
+        if (r->last.changed == 0 && r->S.mpi_m < 512) r->S.mpi_m *= 2;
+        else if (r->last.changed > 0 && r->S.mpi_m > 4) r->S.mpi_m /= 2;
+    }
+    r->S.iteration++;
+    return 0;
+}
+
+static int step_pi(run *r, sl_status *st)
+{
+    sl_ctx *ctx = r->ctx;
+    if (!r->S.pi_initialized) {
+        /* initial policy: greedy with respect to the starting values */
+        check(r, r->pol);
+        r->S.sweeps++;
+        r->S.pi_initialized = 1;
+        r->hist.n = 0; /* that check certifies nothing useful */
+    }
+    int direct = 0;
+    double est = 0;
+    double limit = r->o->memory_limit > 0 ? r->o->memory_limit : 0.5 * sl_physical_memory();
+    *st = sl_evaluate_direct(ctx, &r->P, r->pol, limit, r->x, &direct, &est, &r->lu);
+    if (*st != SL_OK) return -1;
+    r->lu_estimate = est;
+    if (!direct) {
+        if (r->o->strict_memory) {
+            *st = SL_ERR(ctx, SL_EDATA,
+                         "exact evaluation needs about %.2f GB (UMFPACK estimate), over the memory limit of %.2f GB; "
+                         "use --memory-limit, another method, or drop --strict-memory to evaluate iteratively",
+                         est / 1e9, limit / 1e9);
+            return -1;
+        }
+        if (strcmp(r->evaluation, "iterative") != 0)
+            sl_warn(ctx, "exact evaluation needs about %.2f GB (UMFPACK estimate), over the limit of %.2f GB: "
+                         "evaluating iteratively",
+                    est / 1e9, limit / 1e9);
+        snprintf(r->evaluation, sizeof(r->evaluation), "iterative");
+        sl_check ce;
+        int64_t sw = 0;
+        *st = sl_evaluate_iterative(ctx, &r->P, r->pol, r->S.eval_tol, 0, r->x, r->y, &ce, &sw);
+        if (*st != SL_OK) return -1;
+        r->S.sweeps += sw;
+    } else {
+        snprintf(r->evaluation, sizeof(r->evaluation), "direct");
+    }
+    r->S.iteration++;
+    int c = check(r, r->pol);
+    r->S.sweeps++;
+    if (c != 0) return c;
+    if (r->last.changed == 0) {
+        /* stable policy but not certified: evaluation was too loose */
+        if (!direct) r->S.eval_tol *= 0.01;
+        else {
+            /* exact evaluation and no improving action: the certificate is
+             * limited by roundoff; accept what the bound says */
+            return 2;
+        }
+    }
+    return 0;
+}
+
+sl_status sl_solve(sl_ctx *ctx, const sl_solve_opts *o)
+{
+    sl_status st = SL_OK;
+    run R;
+    run *r = &R;
+    memset(r, 0, sizeof(*r));
+    r->ctx = ctx;
+    r->o = o;
+    r->t0 = sl_now();
+    r->last_ckpt = r->t0;
+    r->last_progress = r->t0 - 1e9;
+    r->tol = o->tolerance > 0 ? o->tolerance : 1e-6;
+    sl_status outcome = SL_OK;
+    int converged = 0;
+
+    SL_TRY(sl_problem_load(ctx, o->model, o->order, &r->P));
+    int64_t n = r->P.n_local, nx = n + r->P.halo.n_halo;
+    if (SL_ZALLOC(ctx, r->x, nx, "values") == NULL || SL_ZALLOC(ctx, r->y, nx, "values") == NULL ||
+        SL_ZALLOC(ctx, r->pol, n, "policy") == NULL || SL_ZALLOC(ctx, r->actions, n, "policy") == NULL)
+        st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    r->S.check_interval = 1;
+    r->S.mpi_m = 4;
+    r->S.eval_tol = r->tol * 0.1;
+    if (o->method == SL_METHOD_MPI) {
+        /* start below v*: x = min r / (1 - gamma) makes Tx >= x, the
+         * condition of the convergence theorem (Puterman & Shin 1978) */
+        double rmin = INFINITY;
+        for (int64_t k = 0; k < sl_block_pairs(&r->P.blk); k++) rmin = fmin(rmin, r->P.blk.reward[k]);
+        rmin = sl_min(ctx, rmin);
+        for (int64_t i = 0; i < n; i++) r->x[i] = rmin / (1.0 - r->P.gamma);
+    }
+    if (o->resume && o->checkpoint_dir) {
+        int found = 0;
+        SL_TRY(sl_ckpt_load(ctx, o->checkpoint_dir, r->P.meta.fingerprint, r->P.meta.n_states, r->P.blk.s_begin, n,
+                            r->x, r->actions, &r->S, &r->hist, &found));
+        if (found) {
+            SL_TRY(sl_agree(ctx, sl_policy_offsets(ctx, &r->P, r->actions, r->pol, o->checkpoint_dir)));
+            if (strcmp(r->S.method, sl_method_name(o->method)) != 0) {
+                sl_warn(ctx, "checkpoint was written by method %s; continuing with %s from its values", r->S.method,
+                        sl_method_name(o->method));
+                sl_solver_state keep = r->S;
+                memset(&r->S, 0, sizeof(r->S));
+                r->S.check_interval = 1;
+                r->S.mpi_m = 4;
+                r->S.eval_tol = r->tol * 0.1;
+                r->S.elapsed = keep.elapsed;
+                r->S.sweeps = keep.sweeps;
+                r->S.iteration = keep.iteration;
+            }
+            sl_log(ctx, "solve: resumed at iteration %lld, sweep %lld (%.1f s already spent)",
+                   (long long)r->S.iteration, (long long)r->S.sweeps, r->S.elapsed);
+        } else {
+            sl_log(ctx, "solve: no checkpoint in %s; starting fresh", o->checkpoint_dir);
+        }
+    }
+    sl_log(ctx, "solve: %s, %lld states, %lld transitions, discount %g, %s order, %d rank(s), tolerance %.1e",
+           o->model, (long long)r->P.meta.n_states, (long long)r->P.meta.n_trans, r->P.gamma,
+           sl_order_name(r->P.order_used), ctx->size, r->tol);
+
+    for (;;) {
+        int pr = poll(r);
+        if (pr >= POLL_CKPT) SL_TRY(checkpoint(r));
+        if (pr == POLL_STOP) {
+            sl_log(ctx, "solve: stop requested; %s", o->checkpoint_dir ? "checkpoint written" : "no checkpoint directory given");
+            outcome = SL_ESTOPPED;
+            break;
+        }
+        if (o->max_iterations > 0 && r->S.iteration >= o->max_iterations) {
+            sl_log(ctx, "solve: reached --max-iterations %lld without certifying the tolerance",
+                   (long long)o->max_iterations);
+            if (o->checkpoint_dir) SL_TRY(checkpoint(r));
+            outcome = SL_ESTOPPED;
+            break;
+        }
+        int c = 0;
+        switch (o->method) {
+        case SL_METHOD_GS: c = step_gs(r); break;
+        case SL_METHOD_JACOBI: c = step_jacobi(r); break;
+        case SL_METHOD_MPI: c = step_mpi(r); break;
+        case SL_METHOD_PI: c = step_pi(r, &st); break;
+        }
+        st = sl_agree(ctx, st);
+        if (st != SL_OK) goto cleanup;
+        if (c < 0) SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_ENOMEM, "out of memory recording the history")));
+        if (c == 2) {
+            sl_warn(ctx, "policy iteration: the policy is stable but roundoff limits the certificate to %.3e",
+                    r->last.policy_loss);
+            outcome = SL_ESTOPPED;
+            break;
+        }
+        if (c == 1) {
+            converged = 1;
+            break;
+        }
+    }
+    progress(r, &r->last, 1);
+    SL_TRY(write_solution(r, converged));
+    SL_TRY(write_report(r, converged, outcome));
+    summary(r, converged);
+    st = outcome;
+cleanup:
+    sl_evaluate_direct_free(&r->lu);
+    free(r->x);
+    free(r->y);
+    free(r->pol);
+    free(r->actions);
+    sl_history_free(&r->hist);
+    sl_problem_free(&r->P);
+    return st;
+}

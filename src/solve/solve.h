@@ -1,0 +1,75 @@
+/* solve.h - distributed problem, Bellman kernels, certificates (internal). */
+#ifndef SL_SOLVE_H
+#define SL_SOLVE_H
+
+#include "dist/dist.h"
+
+/* A model loaded across ranks: each rank owns rows [s_begin, s_end) with
+ * targets rewritten to local columns of x = [owned | halo]. */
+typedef struct sl_problem {
+    sl_meta meta;
+    sl_block blk;
+    sl_halo halo;
+    int64_t *bounds;        /* [size + 1] state ranges of all ranks */
+    int64_t n_local;
+    double gamma;
+    double rmax_abs;        /* global max |r(s,a)| */
+    int64_t *order;         /* [n_local] sweep order (local indices) */
+    sl_order order_used;
+    const char *path;
+} sl_problem;
+
+/* Load, partition by transitions, validate, check the fingerprint, build the
+ * halo and the sweep order. Collective. */
+sl_status sl_problem_load(sl_ctx *ctx, const char *path, sl_order order, sl_problem *p);
+void sl_problem_free(sl_problem *p);
+
+/* One synchronous Bellman check: y = T x on owned states, greedy policy
+ * (pair offsets within each state; ties keep the current choice unless
+ * another is better by more than a tiny margin), d = y - x. x's halo must
+ * be current. Local; results reduced by sl_certify. */
+typedef struct sl_check {
+    double dmin, dmax;      /* global after sl_certify */
+    double sup, span;
+    double xmax_abs;        /* global max |x| */
+    double value_error;     /* certified bound for the midpoint value */
+    double policy_loss;     /* certified bound for the greedy policy */
+    int64_t changed;        /* policy entries changed by this check */
+} sl_check;
+void sl_bellman_check(const sl_problem *p, const double *x, double *y, int32_t *policy,
+                      sl_check *c);
+/* Same with the operator of a fixed policy (T_pi x). */
+void sl_policy_check(const sl_problem *p, const double *x, double *y, const int32_t *policy,
+                     sl_check *c);
+/* Reduce a check over ranks and fill the bounds. Collective. */
+void sl_certify(sl_ctx *ctx, const sl_problem *p, sl_check *c);
+/* Midpoint value: out = y + gamma/(1-gamma) * (dmin + dmax)/2 (owned part). */
+void sl_midpoint(const sl_problem *p, const double *y, const sl_check *c, double *out);
+
+/* Gauss-Seidel sweep in the problem's order, in place on x (owned part).
+ * policy != NULL and eval: sweep of the fixed policy. Returns the largest
+ * change. Local. */
+double sl_sweep_gs(const sl_problem *p, double *x, int32_t *policy, int eval);
+
+/* Exact value of a fixed policy: gather P_pi to rank 0, UMFPACK, scatter.
+ * *used_direct = 0 (and x untouched) when the factorization would exceed
+ * memory_limit. Collective. */
+sl_status sl_evaluate_direct(sl_ctx *ctx, const sl_problem *p, const int32_t *policy,
+                             double memory_limit, double *x, int *used_direct,
+                             double *estimate_bytes, void **lu_cache);
+void sl_evaluate_direct_free(void **lu_cache);
+
+/* Iterative evaluation of a fixed policy to a certified sup error `tol`.
+ * x holds the start and receives the midpoint value. Collective. */
+sl_status sl_evaluate_iterative(sl_ctx *ctx, const sl_problem *p, const int32_t *policy,
+                                double tol, int64_t max_sweeps, double *x, double *y,
+                                sl_check *c, int64_t *sweeps);
+
+/* Action ids of a pair-offset policy (owned states). Local. */
+void sl_policy_actions(const sl_problem *p, const int32_t *policy, int32_t *actions);
+/* Pair offsets from action ids; fails naming the state if an action is not
+ * available there. Local (callers agree). */
+sl_status sl_policy_offsets(sl_ctx *ctx, const sl_problem *p, const int32_t *actions,
+                            int32_t *policy, const char *where);
+
+#endif /* SL_SOLVE_H */

@@ -1,0 +1,52 @@
+/* h5.h - thin checked adapters over parallel HDF5 (internal to src/store). */
+#ifndef SL_H5_H
+#define SL_H5_H
+
+#include <hdf5.h>
+
+#include "core/core.h"
+
+#define SL_H5_CHUNK ((hsize_t)1 << 16)
+
+/* Open or create a file with the MPI-IO driver on ctx->comm. Collective.
+ * open: missing -> SL_ENOINPUT, not HDF5 -> SL_EDATA. */
+sl_status sl_h5_open(sl_ctx *ctx, const char *path, int writable, hid_t *file);
+sl_status sl_h5_create(sl_ctx *ctx, const char *path, hid_t *file);
+/* Flush (collective) and close; records an error if either fails. */
+sl_status sl_h5_close(sl_ctx *ctx, hid_t *file, const char *path);
+
+/* Attributes on the root group or any object (scalars / strings). Writes are
+ * collective with identical values on all ranks. */
+sl_status sl_h5_attr_write_i64(sl_ctx *ctx, hid_t obj, const char *name, int64_t v, const char *path);
+sl_status sl_h5_attr_write_f64(sl_ctx *ctx, hid_t obj, const char *name, double v, const char *path);
+sl_status sl_h5_attr_write_str(sl_ctx *ctx, hid_t obj, const char *name, const char *v, const char *path);
+/* Reads: `required` = 0 leaves the output untouched if missing and returns OK. */
+sl_status sl_h5_attr_read_i64(sl_ctx *ctx, hid_t obj, const char *name, int64_t *v, int required, const char *path);
+sl_status sl_h5_attr_read_f64(sl_ctx *ctx, hid_t obj, const char *name, double *v, int required, const char *path);
+sl_status sl_h5_attr_read_str(sl_ctx *ctx, hid_t obj, const char *name, char *v, size_t n, int required, const char *path);
+
+/* Create group (and parents); returns a handle to close with H5Gclose. */
+sl_status sl_h5_group(sl_ctx *ctx, hid_t file, const char *name, hid_t *group, const char *path);
+int sl_h5_exists(hid_t file, const char *name);
+
+/* Collective 1-D write: the dataset `name` of `total` elements of file type
+ * `ftype`, this rank writing `count` elements from `buf` (memory type
+ * `mtype`) at `offset`. Chunked, shuffle + deflate when `compress`. */
+sl_status sl_h5_write_1d(sl_ctx *ctx, hid_t file, const char *name, hid_t ftype, hid_t mtype,
+                         int64_t total, int64_t offset, int64_t count, const void *buf,
+                         int compress, const char *path);
+/* Collective 1-D read of [offset, offset+count) into buf (memory type mtype).
+ * *total receives the dataset length if not NULL; expected >= 0 checks it. */
+sl_status sl_h5_read_1d(sl_ctx *ctx, hid_t file, const char *name, hid_t mtype, int64_t expected,
+                        int64_t offset, int64_t count, void *buf, const char *path);
+/* Length of a 1-D dataset (-1 if missing). Local. */
+int64_t sl_h5_length(hid_t file, const char *name);
+/* Storage and raw sizes of a dataset in bytes. Local. */
+void sl_h5_sizes(hid_t file, const char *name, double *stored, double *raw);
+/* Is the on-disk integer type of `name` 32-bit unsigned? Local. */
+int sl_h5_is_u32(hid_t file, const char *name);
+
+/* Fixed-length string type of n bytes (close with H5Tclose). */
+hid_t sl_h5_str_type(size_t n);
+
+#endif /* SL_H5_H */

@@ -1,0 +1,379 @@
+/* model_io.c - the model file (DESIGN.md contract), written and read in parallel. */
+#include <inttypes.h>
+#include <string.h>
+
+#include "store/h5.h"
+#include "store/store.h"
+
+static const char *kind_name(sl_file_kind k)
+{
+    switch (k) {
+    case SL_FILE_MODEL: return "model";
+    case SL_FILE_SOLUTION: return "solution";
+    case SL_FILE_VALUES: return "values";
+    case SL_FILE_CHECKPOINT: return "checkpoint";
+    default: return "unknown";
+    }
+}
+
+static sl_status read_kind(sl_ctx *ctx, hid_t f, const char *path, sl_file_kind *kind)
+{
+    char fmt[64] = "";
+    *kind = SL_FILE_UNKNOWN;
+    if (H5Aexists(f, "sluice_format") <= 0)
+        return SL_ERR(ctx, SL_EDATA, "%s: not a sluice file (no /sluice_format attribute)", path);
+    sl_status st = sl_h5_attr_read_str(ctx, f, "sluice_format", fmt, sizeof(fmt), 1, path);
+    if (st != SL_OK) return st;
+    for (int k = SL_FILE_MODEL; k <= SL_FILE_CHECKPOINT; k++)
+        if (strcmp(fmt, kind_name((sl_file_kind)k)) == 0) *kind = (sl_file_kind)k;
+    if (*kind == SL_FILE_UNKNOWN)
+        return SL_ERR(ctx, SL_EDATA, "%s: unknown sluice file kind \"%s\"", path, fmt);
+    return SL_OK;
+}
+
+sl_status sl_store_kind(sl_ctx *ctx, const char *path, sl_file_kind *kind)
+{
+    hid_t f;
+    sl_status st = sl_h5_open(ctx, path, 0, &f);
+    if (st != SL_OK) return st;
+    st = sl_agree(ctx, read_kind(ctx, f, path, kind));
+    H5Fclose(f);
+    return st;
+}
+
+/* ---- write ------------------------------------------------------------------ */
+
+static sl_status write_labels(sl_ctx *ctx, hid_t f, const sl_meta *m, const char *path)
+{
+    sl_status st = SL_OK;
+    hid_t str = sl_h5_str_type(SL_NAME_MAX);
+    int root = ctx->rank == 0;
+    if (str < 0) return SL_ERR(ctx, SL_EINTERNAL, "%s: string type", path);
+    if (m->n_factors > 0) {
+        int32_t stage[SLUICE_MAX_FACTORS];
+        for (int i = 0; i < m->n_factors; i++) stage[i] = m->factor_stage[i];
+        int64_t nf = m->n_factors, c = root ? nf : 0;
+        SL_TRY(sl_h5_write_1d(ctx, f, "/labels/factor_name", str, str, nf, 0, c, m->factor_name, 0, path));
+        SL_TRY(sl_h5_write_1d(ctx, f, "/labels/factor_size", H5T_STD_I64LE, H5T_NATIVE_INT64, nf, 0, c,
+                              m->factor_size, 0, path));
+        SL_TRY(sl_h5_write_1d(ctx, f, "/labels/factor_stage", H5T_STD_I32LE, H5T_NATIVE_INT32, nf, 0, c,
+                              stage, 0, path));
+    }
+    if (m->n_action_names > 0)
+        SL_TRY(sl_h5_write_1d(ctx, f, "/labels/action_name", str, str, m->n_action_names, 0,
+                              root ? m->n_action_names : 0, m->action_name, 1, path));
+    if (m->generator[0] != '\0') {
+        hid_t g;
+        SL_TRY(sl_h5_group(ctx, f, "/generator", &g, path));
+        st = sl_h5_attr_write_str(ctx, g, "name", m->generator, path);
+        H5Gclose(g);
+        if (st != SL_OK) goto cleanup;
+        if (m->n_params > 0) {
+            int64_t np = m->n_params, c = root ? np : 0;
+            SL_TRY(sl_h5_write_1d(ctx, f, "/generator/param_name", str, str, np, 0, c, m->param_name, 0, path));
+            SL_TRY(sl_h5_write_1d(ctx, f, "/generator/param_unit", str, str, np, 0, c, m->param_unit, 0, path));
+            SL_TRY(sl_h5_write_1d(ctx, f, "/generator/param_value", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, np, 0,
+                                  c, m->param_value, 0, path));
+        }
+    }
+cleanup:
+    H5Tclose(str);
+    return st;
+}
+
+sl_status sl_store_model_write(sl_ctx *ctx, const char *path, const sl_meta *m,
+                               const sl_block *b)
+{
+    sl_status st = SL_OK;
+    sl_outfile of;
+    hid_t f = H5I_INVALID_HID;
+    uint32_t *t32 = NULL;
+    int64_t ns = sl_block_states(b), np = sl_block_pairs(b), nt = sl_block_trans(b);
+    int use32 = m->n_states <= (int64_t)UINT32_MAX;
+
+    SL_TRY(sl_outfile_begin(ctx, &of, path));
+    if (use32 && SL_ALLOC(ctx, t32, nt, "target buffer") == NULL) st = SL_ENOMEM;
+    st = sl_agree(ctx, st);
+    if (st != SL_OK) goto cleanup;
+    if (use32)
+        for (int64_t t = 0; t < nt; t++) t32[t] = (uint32_t)b->target[t];
+    SL_TRY(sl_h5_create(ctx, of.tmp_path, &f));
+
+    const char *p = path;
+    st = sl_h5_attr_write_str(ctx, f, "sluice_format", "model", p);
+    if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "format_version", SLUICE_FORMAT_VERSION, p);
+    if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "n_states", m->n_states, p);
+    if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "n_pairs", m->n_pairs, p);
+    if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "n_transitions", m->n_trans, p);
+    if (st == SL_OK) st = sl_h5_attr_write_f64(ctx, f, "discount", m->discount, p);
+    if (st == SL_OK) st = sl_h5_attr_write_str(ctx, f, "fingerprint", m->fingerprint, p);
+    if (st == SL_OK) st = sl_h5_attr_write_str(ctx, f, "objective", sl_objective_name(m->objective), p);
+    if (st == SL_OK) st = sl_h5_attr_write_str(ctx, f, "created_by", "sluice " SLUICE_VERSION, p);
+    if (st == SL_OK && m->source[0]) st = sl_h5_attr_write_str(ctx, f, "source", m->source, p);
+    SL_TRY(sl_agree(ctx, st));
+
+    /* index arrays: the last rank also writes the closing entry */
+    int last = ctx->rank == ctx->size - 1;
+    int64_t s_off = b->s_begin, p_off = b->p_begin;
+    SL_TRY(sl_h5_write_1d(ctx, f, "/state/first_pair", H5T_STD_I64LE, H5T_NATIVE_INT64, m->n_states + 1,
+                          s_off, ns + (last ? 1 : 0), b->first_pair, 1, p));
+    SL_TRY(sl_h5_write_1d(ctx, f, "/pair/action", H5T_STD_I32LE, H5T_NATIVE_INT32, m->n_pairs, p_off, np,
+                          b->action, 1, p));
+    SL_TRY(sl_h5_write_1d(ctx, f, "/pair/reward", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, m->n_pairs, p_off, np,
+                          b->reward, 1, p));
+    SL_TRY(sl_h5_write_1d(ctx, f, "/pair/first_transition", H5T_STD_I64LE, H5T_NATIVE_INT64,
+                          m->n_pairs + 1, p_off, np + (last ? 1 : 0), b->first_trans, 1, p));
+    if (use32)
+        SL_TRY(sl_h5_write_1d(ctx, f, "/transition/target", H5T_STD_U32LE, H5T_NATIVE_UINT32, m->n_trans,
+                              b->t_begin, nt, t32, 1, p));
+    else
+        SL_TRY(sl_h5_write_1d(ctx, f, "/transition/target", H5T_STD_I64LE, H5T_NATIVE_INT64, m->n_trans,
+                              b->t_begin, nt, b->target, 1, p));
+    SL_TRY(sl_h5_write_1d(ctx, f, "/transition/probability", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE,
+                          m->n_trans, b->t_begin, nt, b->prob, 1, p));
+    SL_TRY(write_labels(ctx, f, m, p));
+    st = sl_h5_close(ctx, &f, p);
+cleanup:
+    if (f >= 0) H5Fclose(f);
+    free(t32);
+    return sl_outfile_end(ctx, &of, st);
+}
+
+/* ---- read ------------------------------------------------------------------- */
+
+static sl_status read_labels(sl_ctx *ctx, hid_t f, sl_meta *m, const char *path)
+{
+    sl_status st = SL_OK;
+    hid_t str = sl_h5_str_type(SL_NAME_MAX);
+    if (str < 0) return SL_ERR(ctx, SL_EINTERNAL, "string type");
+    int64_t nf = sl_h5_length(f, "/labels/factor_name");
+    if (nf > 0) {
+        if (nf > SLUICE_MAX_FACTORS) SL_FAIL(SL_EDATA, "%s: too many factors (%lld)", path, (long long)nf);
+        int32_t stage[SLUICE_MAX_FACTORS] = {0};
+        m->n_factors = (int)nf;
+        SL_TRY(sl_h5_read_1d(ctx, f, "/labels/factor_name", str, nf, 0, nf, m->factor_name, path));
+        SL_TRY(sl_h5_read_1d(ctx, f, "/labels/factor_size", H5T_NATIVE_INT64, nf, 0, nf, m->factor_size, path));
+        SL_TRY(sl_h5_read_1d(ctx, f, "/labels/factor_stage", H5T_NATIVE_INT32, nf, 0, nf, stage, path));
+        int64_t prod = 1;
+        for (int i = 0; i < m->n_factors; i++) {
+            m->factor_name[i][SL_NAME_MAX - 1] = '\0';
+            m->factor_stage[i] = stage[i] != 0;
+            if (m->factor_size[i] < 1 || prod > INT64_MAX / m->factor_size[i])
+                SL_FAIL(SL_EDATA, "%s: factor %s has a bad size", path, m->factor_name[i]);
+            prod *= m->factor_size[i];
+        }
+        if (prod != m->n_states)
+            SL_FAIL(SL_EDATA, "%s: factor sizes multiply to %lld, not n_states %lld", path,
+                    (long long)prod, (long long)m->n_states);
+    }
+    int64_t na = sl_h5_length(f, "/labels/action_name");
+    if (na > 0) {
+        if (na > INT32_MAX) SL_FAIL(SL_EDATA, "%s: too many action names", path);
+        if (SL_ZALLOC(ctx, m->action_name, na, "action names") == NULL) SL_FAIL(SL_ENOMEM, "action names");
+        m->n_action_names = (int32_t)na;
+        SL_TRY(sl_h5_read_1d(ctx, f, "/labels/action_name", str, na, 0, na, m->action_name, path));
+        for (int64_t i = 0; i < na; i++) m->action_name[i][SL_NAME_MAX - 1] = '\0';
+    }
+    if (sl_h5_exists(f, "/generator")) {
+        hid_t g = H5Gopen2(f, "/generator", H5P_DEFAULT);
+        if (g < 0) SL_FAIL(SL_EDATA, "%s: cannot open /generator", path);
+        st = sl_h5_attr_read_str(ctx, g, "name", m->generator, sizeof(m->generator), 0, path);
+        H5Gclose(g);
+        if (st != SL_OK) goto cleanup;
+        int64_t np = sl_h5_length(f, "/generator/param_name");
+        if (np > 0) {
+            if (np > 4096) SL_FAIL(SL_EDATA, "%s: too many generator parameters", path);
+            if (SL_ZALLOC(ctx, m->param_name, np, "params") == NULL ||
+                SL_ZALLOC(ctx, m->param_unit, np, "params") == NULL ||
+                SL_ZALLOC(ctx, m->param_value, np, "params") == NULL)
+                SL_FAIL(SL_ENOMEM, "params");
+            m->n_params = (int)np;
+            SL_TRY(sl_h5_read_1d(ctx, f, "/generator/param_name", str, np, 0, np, m->param_name, path));
+            SL_TRY(sl_h5_read_1d(ctx, f, "/generator/param_unit", str, np, 0, np, m->param_unit, path));
+            SL_TRY(sl_h5_read_1d(ctx, f, "/generator/param_value", H5T_NATIVE_DOUBLE, np, 0, np,
+                                 m->param_value, path));
+            for (int64_t i = 0; i < np; i++) {
+                m->param_name[i][SL_NAME_MAX - 1] = '\0';
+                m->param_unit[i][SL_NAME_MAX - 1] = '\0';
+            }
+        }
+    }
+cleanup:
+    H5Tclose(str);
+    return st;
+}
+
+static sl_status read_meta_open(sl_ctx *ctx, hid_t f, const char *path, sl_meta *m)
+{
+    sl_file_kind kind;
+    int64_t ver = 0;
+    char obj[32] = "discounted";
+    memset(m, 0, sizeof(*m));
+    sl_status st = read_kind(ctx, f, path, &kind);
+    if (st != SL_OK) return st;
+    if (kind != SL_FILE_MODEL)
+        return SL_ERR(ctx, SL_EDATA, "%s: is a %s file, not a model file", path, kind_name(kind));
+    SL_TRY(sl_h5_attr_read_i64(ctx, f, "format_version", &ver, 1, path));
+    if (ver > SLUICE_FORMAT_VERSION || ver < 1)
+        SL_FAIL(SL_EDATA, "%s: format_version %lld is not supported (this sluice reads version %d%s)",
+                path, (long long)ver, SLUICE_FORMAT_VERSION,
+                ver > SLUICE_FORMAT_VERSION ? "; the file was written by a newer sluice" : "");
+    m->format_version = (int)ver;
+    SL_TRY(sl_h5_attr_read_i64(ctx, f, "n_states", &m->n_states, 1, path));
+    SL_TRY(sl_h5_attr_read_i64(ctx, f, "n_pairs", &m->n_pairs, 1, path));
+    SL_TRY(sl_h5_attr_read_i64(ctx, f, "n_transitions", &m->n_trans, 1, path));
+    SL_TRY(sl_h5_attr_read_f64(ctx, f, "discount", &m->discount, 1, path));
+    SL_TRY(sl_h5_attr_read_str(ctx, f, "fingerprint", m->fingerprint, sizeof(m->fingerprint), 1, path));
+    SL_TRY(sl_h5_attr_read_str(ctx, f, "objective", obj, sizeof(obj), 0, path));
+    SL_TRY(sl_h5_attr_read_str(ctx, f, "source", m->source, sizeof(m->source), 0, path));
+    int o;
+    if (!sl_objective_parse(obj, (sl_objective *)&o))
+        SL_FAIL(SL_EDATA, "%s: unknown objective \"%s\"", path, obj);
+    m->objective = (sl_objective)o;
+    if (m->n_states < 1 || m->n_pairs < m->n_states || m->n_trans < m->n_pairs)
+        SL_FAIL(SL_EDATA, "%s: inconsistent sizes (n_states %lld, n_pairs %lld, n_transitions %lld)",
+                path, (long long)m->n_states, (long long)m->n_pairs, (long long)m->n_trans);
+    if (sl_h5_length(f, "/state/first_pair") != m->n_states + 1 ||
+        sl_h5_length(f, "/pair/action") != m->n_pairs || sl_h5_length(f, "/pair/reward") != m->n_pairs ||
+        sl_h5_length(f, "/pair/first_transition") != m->n_pairs + 1 ||
+        sl_h5_length(f, "/transition/target") != m->n_trans ||
+        sl_h5_length(f, "/transition/probability") != m->n_trans)
+        SL_FAIL(SL_EDATA, "%s: dataset sizes do not match n_states/n_pairs/n_transitions", path);
+    if (!(m->discount >= 0.0 && m->discount <= 1.0))
+        SL_FAIL(SL_EDATA, "%s: discount %g is not in [0, 1]", path, m->discount);
+    SL_TRY(read_labels(ctx, f, m, path));
+cleanup:
+    if (st != SL_OK) sl_meta_free(m);
+    return st;
+}
+
+sl_status sl_store_model_meta(sl_ctx *ctx, const char *path, sl_meta *m)
+{
+    hid_t f;
+    memset(m, 0, sizeof(*m));
+    sl_status st = sl_h5_open(ctx, path, 0, &f);
+    if (st != SL_OK) return st;
+    /* every rank reads the same small metadata independently */
+    st = sl_agree(ctx, read_meta_open(ctx, f, path, m));
+    if (st != SL_OK) sl_meta_free(m);
+    H5Fclose(f);
+    return st;
+}
+
+sl_status sl_store_model_cumulative(sl_ctx *ctx, const char *path, int64_t s_begin,
+                                    int64_t s_end, int64_t **cum_out)
+{
+    sl_status st = SL_OK;
+    hid_t f;
+    int64_t *fp = NULL, *cum = NULL, n = s_end - s_begin;
+    *cum_out = NULL;
+    SL_TRY(sl_h5_open(ctx, path, 0, &f));
+    if (SL_ALLOC(ctx, fp, n + 1, "first_pair") == NULL || SL_ALLOC(ctx, cum, n + 1, "cumulative") == NULL)
+        st = SL_ENOMEM;
+    if (st == SL_OK) st = sl_h5_read_1d(ctx, f, "/state/first_pair", H5T_NATIVE_INT64, -1, s_begin, n + 1, fp, path);
+    if (st == SL_OK) {
+        /* first_transition at the pairs bounding each state: one contiguous
+         * read of the pair range, then pick */
+        int64_t p0 = fp[0], p1 = fp[n];
+        int64_t np = sl_h5_length(f, "/pair/first_transition");
+        if (p0 < 0 || p1 < p0 || p1 >= np) {
+            st = SL_ERR(ctx, SL_EDATA, "%s: /state/first_pair out of range near state %lld", path,
+                        (long long)s_begin);
+        } else {
+            int64_t *ft = NULL;
+            if (SL_ALLOC(ctx, ft, p1 - p0 + 1, "first_transition") == NULL) {
+                st = SL_ENOMEM;
+            } else {
+                st = sl_h5_read_1d(ctx, f, "/pair/first_transition", H5T_NATIVE_INT64, -1, p0, p1 - p0 + 1, ft,
+                                   path);
+                for (int64_t i = 0; st == SL_OK && i <= n; i++) {
+                    if (fp[i] < p0 || fp[i] > p1 || (i > 0 && fp[i] < fp[i - 1])) {
+                        st = SL_ERR(ctx, SL_EDATA, "%s: state %lld: /state/first_pair is not monotone",
+                                    path, (long long)(s_begin + i));
+                        break;
+                    }
+                    cum[i] = ft[fp[i] - p0];
+                }
+                free(ft);
+            }
+        }
+    }
+    st = sl_agree(ctx, st);
+    H5Fclose(f);
+cleanup:
+    free(fp);
+    if (st == SL_OK) *cum_out = cum;
+    else free(cum);
+    return st;
+}
+
+sl_status sl_store_model_read(sl_ctx *ctx, const char *path, const sl_meta *m, int64_t s_begin,
+                              int64_t s_end, sl_block *b)
+{
+    sl_status st = SL_OK;
+    hid_t f = H5I_INVALID_HID;
+    uint32_t *t32 = NULL;
+    int64_t ns = s_end - s_begin;
+    memset(b, 0, sizeof(*b));
+    b->s_begin = s_begin;
+    b->s_end = s_end;
+    SL_TRY(sl_h5_open(ctx, path, 0, &f));
+    if (SL_ALLOC(ctx, b->first_pair, ns + 1, "first_pair") == NULL) st = SL_ENOMEM;
+    if (st == SL_OK)
+        st = sl_h5_read_1d(ctx, f, "/state/first_pair", H5T_NATIVE_INT64, m->n_states + 1, s_begin, ns + 1,
+                           b->first_pair, path);
+    int64_t np = 0;
+    if (st == SL_OK) {
+        b->p_begin = b->first_pair[0];
+        b->p_end = b->first_pair[ns];
+        np = b->p_end - b->p_begin;
+        if (b->p_begin < 0 || np < 0 || b->p_end > m->n_pairs)
+            st = SL_ERR(ctx, SL_EDATA, "%s: /state/first_pair of states %lld..%lld is out of range", path,
+                        (long long)s_begin, (long long)s_end);
+    }
+    if (st == SL_OK && (SL_ALLOC(ctx, b->action, np, "actions") == NULL ||
+                        SL_ALLOC(ctx, b->reward, np, "rewards") == NULL ||
+                        SL_ALLOC(ctx, b->first_trans, np + 1, "first_transition") == NULL))
+        st = SL_ENOMEM;
+    if (st == SL_OK)
+        st = sl_h5_read_1d(ctx, f, "/pair/action", H5T_NATIVE_INT32, m->n_pairs, b->p_begin, np, b->action, path);
+    if (st == SL_OK)
+        st = sl_h5_read_1d(ctx, f, "/pair/reward", H5T_NATIVE_DOUBLE, m->n_pairs, b->p_begin, np, b->reward, path);
+    if (st == SL_OK)
+        st = sl_h5_read_1d(ctx, f, "/pair/first_transition", H5T_NATIVE_INT64, m->n_pairs + 1, b->p_begin,
+                           np + 1, b->first_trans, path);
+    int64_t nt = 0;
+    if (st == SL_OK) {
+        b->t_begin = b->first_trans[0];
+        b->t_end = b->first_trans[np];
+        nt = b->t_end - b->t_begin;
+        if (b->t_begin < 0 || nt < 0 || b->t_end > m->n_trans)
+            st = SL_ERR(ctx, SL_EDATA, "%s: /pair/first_transition of states %lld..%lld is out of range",
+                        path, (long long)s_begin, (long long)s_end);
+    }
+    int use32 = st == SL_OK && sl_h5_is_u32(f, "/transition/target");
+    if (st == SL_OK && (SL_ALLOC(ctx, b->target, nt, "targets") == NULL ||
+                        SL_ALLOC(ctx, b->prob, nt, "probabilities") == NULL ||
+                        (use32 && SL_ALLOC(ctx, t32, nt, "targets") == NULL)))
+        st = SL_ENOMEM;
+    if (st == SL_OK) {
+        if (use32) {
+            st = sl_h5_read_1d(ctx, f, "/transition/target", H5T_NATIVE_UINT32, m->n_trans, b->t_begin, nt, t32,
+                               path);
+            for (int64_t t = 0; st == SL_OK && t < nt; t++) b->target[t] = (int64_t)t32[t];
+        } else {
+            st = sl_h5_read_1d(ctx, f, "/transition/target", H5T_NATIVE_INT64, m->n_trans, b->t_begin, nt,
+                               b->target, path);
+        }
+    }
+    if (st == SL_OK)
+        st = sl_h5_read_1d(ctx, f, "/transition/probability", H5T_NATIVE_DOUBLE, m->n_trans, b->t_begin, nt,
+                           b->prob, path);
+    if (st == SL_OK) st = sl_block_validate(ctx, b, m, 1e-6, path);
+    st = sl_agree(ctx, st);
+cleanup:
+    if (f >= 0) H5Fclose(f);
+    free(t32);
+    if (st != SL_OK) sl_block_free(b);
+    return st;
+}

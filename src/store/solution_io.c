@@ -1,0 +1,156 @@
+/* solution_io.c - solution and values files (DESIGN.md contract). */
+#include <string.h>
+
+#include "store/h5.h"
+#include "store/store.h"
+
+void sl_history_free(sl_history *h)
+{
+    free(h->iteration);
+    free(h->sweeps);
+    free(h->seconds);
+    free(h->sup);
+    free(h->span);
+    free(h->value_error);
+    free(h->policy_loss);
+    memset(h, 0, sizeof(*h));
+}
+
+#define GROW(field, type)                                                                  \
+    do {                                                                                   \
+        type *q_ = realloc(h->field, (size_t)cap * sizeof(type));                          \
+        if (q_ == NULL) return SL_ERR(ctx, SL_ENOMEM, "out of memory growing the history"); \
+        h->field = q_;                                                                     \
+    } while (0)
+
+sl_status sl_history_push(sl_ctx *ctx, sl_history *h, int64_t iteration, int64_t sweeps, double seconds,
+                          double sup, double span, double value_error, double policy_loss)
+{
+    if (h->n == h->cap) {
+        int64_t cap = h->cap ? 2 * h->cap : 64;
+        GROW(iteration, int64_t);
+        GROW(sweeps, int64_t);
+        GROW(seconds, double);
+        GROW(sup, double);
+        GROW(span, double);
+        GROW(value_error, double);
+        GROW(policy_loss, double);
+        h->cap = cap;
+    }
+    int64_t i = h->n++;
+    h->iteration[i] = iteration;
+    h->sweeps[i] = sweeps;
+    h->seconds[i] = seconds;
+    h->sup[i] = sup;
+    h->span[i] = span;
+    h->value_error[i] = value_error;
+    h->policy_loss[i] = policy_loss;
+    return SL_OK;
+}
+
+static const char *kind_str(sl_file_kind k)
+{
+    return k == SL_FILE_VALUES ? "values" : k == SL_FILE_CHECKPOINT ? "checkpoint" : "solution";
+}
+
+sl_status sl_store_solution_write(sl_ctx *ctx, const char *path, sl_file_kind kind, int64_t n_states,
+                                  int64_t s_begin, int64_t n_local, const double *value,
+                                  const int32_t *actions, const sl_solution_info *in, const sl_history *hist)
+{
+    sl_status st = SL_OK;
+    sl_outfile of;
+    hid_t f = H5I_INVALID_HID;
+    SL_TRY(sl_outfile_begin(ctx, &of, path));
+    SL_TRY(sl_h5_create(ctx, of.tmp_path, &f));
+    const char *p = path;
+    st = sl_h5_attr_write_str(ctx, f, "sluice_format", kind_str(kind), p);
+    if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "format_version", SLUICE_FORMAT_VERSION, p);
+    if (st == SL_OK) st = sl_h5_attr_write_str(ctx, f, "model_fingerprint", in->model_fingerprint, p);
+    if (st == SL_OK) st = sl_h5_attr_write_str(ctx, f, "method", in->method, p);
+    if (st == SL_OK && in->order[0]) st = sl_h5_attr_write_str(ctx, f, "order", in->order, p);
+    if (st == SL_OK && in->evaluation[0]) st = sl_h5_attr_write_str(ctx, f, "evaluation", in->evaluation, p);
+    if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "converged", in->converged, p);
+    if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "iterations", in->iterations, p);
+    if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "sweeps", in->sweeps, p);
+    if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "n_states", n_states, p);
+    if (st == SL_OK) st = sl_h5_attr_write_f64(ctx, f, "seconds", in->seconds, p);
+    if (st == SL_OK) st = sl_h5_attr_write_f64(ctx, f, "tolerance", in->tolerance, p);
+    if (st == SL_OK) st = sl_h5_attr_write_f64(ctx, f, "discount", in->discount, p);
+    if (st == SL_OK) st = sl_h5_attr_write_f64(ctx, f, "residual_sup", in->residual_sup, p);
+    if (st == SL_OK) st = sl_h5_attr_write_f64(ctx, f, "residual_span", in->residual_span, p);
+    if (st == SL_OK) st = sl_h5_attr_write_f64(ctx, f, "residual_min", in->residual_min, p);
+    if (st == SL_OK) st = sl_h5_attr_write_f64(ctx, f, "residual_max", in->residual_max, p);
+    if (st == SL_OK && kind == SL_FILE_VALUES)
+        st = sl_h5_attr_write_f64(ctx, f, "error_bound", in->value_error_bound, p);
+    if (st == SL_OK) st = sl_h5_attr_write_f64(ctx, f, "value_error_bound", in->value_error_bound, p);
+    if (st == SL_OK && kind != SL_FILE_VALUES)
+        st = sl_h5_attr_write_f64(ctx, f, "policy_loss_bound", in->policy_loss_bound, p);
+    if (st == SL_OK) st = sl_h5_attr_write_str(ctx, f, "created_by", "sluice " SLUICE_VERSION, p);
+    SL_TRY(sl_agree(ctx, st));
+    SL_TRY(sl_h5_write_1d(ctx, f, "/value", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n_states, s_begin, n_local, value, 1, p));
+    if (actions)
+        SL_TRY(sl_h5_write_1d(ctx, f, "/policy", H5T_STD_I32LE, H5T_NATIVE_INT32, n_states, s_begin, n_local, actions,
+                              1, p));
+    if (hist && hist->n > 0) {
+        int64_t n = hist->n, c = ctx->rank == 0 ? n : 0;
+        SL_TRY(sl_h5_write_1d(ctx, f, "/history/iteration", H5T_STD_I64LE, H5T_NATIVE_INT64, n, 0, c, hist->iteration, 0, p));
+        SL_TRY(sl_h5_write_1d(ctx, f, "/history/sweeps", H5T_STD_I64LE, H5T_NATIVE_INT64, n, 0, c, hist->sweeps, 0, p));
+        SL_TRY(sl_h5_write_1d(ctx, f, "/history/seconds", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, 0, c, hist->seconds, 0, p));
+        SL_TRY(sl_h5_write_1d(ctx, f, "/history/sup", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, 0, c, hist->sup, 0, p));
+        SL_TRY(sl_h5_write_1d(ctx, f, "/history/span", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, 0, c, hist->span, 0, p));
+        SL_TRY(sl_h5_write_1d(ctx, f, "/history/value_error_bound", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, 0, c,
+                              hist->value_error, 0, p));
+        SL_TRY(sl_h5_write_1d(ctx, f, "/history/policy_loss_bound", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, 0, c,
+                              hist->policy_loss, 0, p));
+    }
+    st = sl_h5_close(ctx, &f, p);
+cleanup:
+    if (f >= 0) H5Fclose(f);
+    return sl_outfile_end(ctx, &of, st);
+}
+
+sl_status sl_store_solution_read(sl_ctx *ctx, const char *path, sl_file_kind kind, int64_t n_states,
+                                 int64_t s_begin, int64_t n_local, double *value, int32_t *actions,
+                                 sl_solution_info *in)
+{
+    sl_status st = SL_OK;
+    hid_t f = H5I_INVALID_HID;
+    char fmt[32] = "";
+    int64_t conv = 0;
+    memset(in, 0, sizeof(*in));
+    SL_TRY(sl_h5_open(ctx, path, 0, &f));
+    st = sl_h5_attr_read_str(ctx, f, "sluice_format", fmt, sizeof(fmt), 1, path);
+    if (st == SL_OK && strcmp(fmt, kind_str(kind)) != 0 &&
+        !(kind == SL_FILE_SOLUTION && strcmp(fmt, "values") == 0 && actions == NULL))
+        st = SL_ERR(ctx, SL_EDATA, "%s: is a %s file, not a %s file", path, fmt, kind_str(kind));
+    if (st == SL_OK) st = sl_h5_attr_read_str(ctx, f, "model_fingerprint", in->model_fingerprint,
+                                              sizeof(in->model_fingerprint), 1, path);
+    if (st == SL_OK) st = sl_h5_attr_read_str(ctx, f, "method", in->method, sizeof(in->method), 0, path);
+    if (st == SL_OK) st = sl_h5_attr_read_str(ctx, f, "order", in->order, sizeof(in->order), 0, path);
+    if (st == SL_OK) st = sl_h5_attr_read_i64(ctx, f, "converged", &conv, 0, path);
+    if (st == SL_OK) st = sl_h5_attr_read_i64(ctx, f, "iterations", &in->iterations, 0, path);
+    if (st == SL_OK) st = sl_h5_attr_read_i64(ctx, f, "sweeps", &in->sweeps, 0, path);
+    if (st == SL_OK) st = sl_h5_attr_read_f64(ctx, f, "seconds", &in->seconds, 0, path);
+    if (st == SL_OK) st = sl_h5_attr_read_f64(ctx, f, "tolerance", &in->tolerance, 0, path);
+    if (st == SL_OK) st = sl_h5_attr_read_f64(ctx, f, "discount", &in->discount, 0, path);
+    if (st == SL_OK) st = sl_h5_attr_read_f64(ctx, f, "residual_sup", &in->residual_sup, 0, path);
+    if (st == SL_OK) st = sl_h5_attr_read_f64(ctx, f, "residual_span", &in->residual_span, 0, path);
+    if (st == SL_OK) st = sl_h5_attr_read_f64(ctx, f, "residual_min", &in->residual_min, 0, path);
+    if (st == SL_OK) st = sl_h5_attr_read_f64(ctx, f, "residual_max", &in->residual_max, 0, path);
+    if (st == SL_OK) st = sl_h5_attr_read_f64(ctx, f, "value_error_bound", &in->value_error_bound, 0, path);
+    if (st == SL_OK) st = sl_h5_attr_read_f64(ctx, f, "policy_loss_bound", &in->policy_loss_bound, 0, path);
+    in->converged = conv != 0;
+    if (st == SL_OK && sl_h5_length(f, "/value") != n_states)
+        st = SL_ERR(ctx, SL_EDATA, "%s: /value has %lld entries but the model has %lld states", path,
+                    (long long)sl_h5_length(f, "/value"), (long long)n_states);
+    if (st == SL_OK && actions && sl_h5_length(f, "/policy") != n_states)
+        st = SL_ERR(ctx, SL_EDATA, "%s: /policy is missing or has the wrong length (model has %lld states)", path,
+                    (long long)n_states);
+    SL_TRY(sl_agree(ctx, st));
+    if (value) SL_TRY(sl_agree(ctx, sl_h5_read_1d(ctx, f, "/value", H5T_NATIVE_DOUBLE, n_states, s_begin, n_local, value, path)));
+    if (actions)
+        SL_TRY(sl_agree(ctx, sl_h5_read_1d(ctx, f, "/policy", H5T_NATIVE_INT32, n_states, s_begin, n_local, actions, path)));
+cleanup:
+    if (f >= 0) H5Fclose(f);
+    return st;
+}

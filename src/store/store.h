@@ -1,0 +1,118 @@
+/* store.h - HDF5 model, solution and checkpoint files (parallel HDF5). */
+#ifndef SL_STORE_H
+#define SL_STORE_H
+
+#include "model/model.h"
+
+/* Kinds of sluice file, from the /sluice_format attribute. */
+typedef enum sl_file_kind {
+    SL_FILE_UNKNOWN = 0,
+    SL_FILE_MODEL,
+    SL_FILE_SOLUTION,
+    SL_FILE_VALUES,
+    SL_FILE_CHECKPOINT
+} sl_file_kind;
+
+/* Open `path` and read its kind. Missing/unreadable -> SL_ENOINPUT; not an
+ * HDF5 file or no sluice attribute -> SL_EDATA. Collective. */
+sl_status sl_store_kind(sl_ctx *ctx, const char *path, sl_file_kind *kind);
+
+/* Write a model: every rank passes its block (ranks in state order,
+ * contiguous, possibly empty); meta->fingerprint must be set. The file is
+ * written to a temporary name and renamed into place when complete.
+ * Collective. */
+sl_status sl_store_model_write(sl_ctx *ctx, const char *path, const sl_meta *meta,
+                               const sl_block *block);
+
+/* Read model metadata only (all ranks). Checks kind and format_version. */
+sl_status sl_store_model_meta(sl_ctx *ctx, const char *path, sl_meta *meta);
+
+/* Read states [s_begin, s_end) of a model into `block` on this rank
+ * (collective: every rank passes its own range, possibly empty), then
+ * validate the rows. Errors name the file and the state. */
+sl_status sl_store_model_read(sl_ctx *ctx, const char *path, const sl_meta *meta,
+                              int64_t s_begin, int64_t s_end, sl_block *block);
+
+/* Read first_pair[s_begin .. s_end] and the first_transition entries at
+ * those pairs: cum[i] = first_transition[first_pair[s_begin + i]], i in
+ * [0, s_end - s_begin]. Used to partition by transitions. Collective. */
+sl_status sl_store_model_cumulative(sl_ctx *ctx, const char *path, int64_t s_begin,
+                                    int64_t s_end, int64_t **cum);
+
+#endif /* SL_STORE_H */
+
+/* ---- solutions ---------------------------------------------------------------- */
+
+/* Residual history: one record per synchronous check. */
+typedef struct sl_history {
+    int64_t n, cap;
+    int64_t *iteration, *sweeps;
+    double *seconds, *sup, *span, *value_error, *policy_loss;
+} sl_history;
+sl_status sl_history_push(sl_ctx *ctx, sl_history *h, int64_t iteration, int64_t sweeps, double seconds,
+                          double sup, double span, double value_error, double policy_loss);
+void sl_history_free(sl_history *h);
+
+/* Scalars of a solution (or values, or checkpoint) file. */
+typedef struct sl_solution_info {
+    char model_fingerprint[40];
+    char method[16];            /* gs, jacobi, mpi, pi; for values: direct/iterative */
+    char order[24];
+    char evaluation[16];        /* pi/evaluate: "direct" or "iterative" */
+    int converged;
+    int64_t iterations, sweeps;
+    double seconds;
+    double tolerance, discount;
+    double residual_sup, residual_span, residual_min, residual_max;
+    double value_error_bound, policy_loss_bound;
+} sl_solution_info;
+
+/* Write a solution (kind SL_FILE_SOLUTION; value + policy) or a values file
+ * (SL_FILE_VALUES; actions == NULL). Each rank writes its owned slice
+ * [s_begin, s_begin + n_local). Atomic. Collective. */
+sl_status sl_store_solution_write(sl_ctx *ctx, const char *path, sl_file_kind kind, int64_t n_states,
+                                  int64_t s_begin, int64_t n_local, const double *value,
+                                  const int32_t *actions, const sl_solution_info *info,
+                                  const sl_history *hist);
+/* Read a solution's scalars and (if not NULL) the slice of value/policy.
+ * Requires kind SL_FILE_SOLUTION (or SL_FILE_VALUES when `kind` says so) and
+ * n_states to match. Collective. */
+sl_status sl_store_solution_read(sl_ctx *ctx, const char *path, sl_file_kind kind, int64_t n_states,
+                                 int64_t s_begin, int64_t n_local, double *value, int32_t *actions,
+                                 sl_solution_info *info);
+
+/* ---- checkpoints ---------------------------------------------------------------- */
+
+/* Everything a solver needs to continue exactly where it stopped. */
+typedef struct sl_solver_state {
+    char method[16];
+    int64_t iteration;      /* outer iterations done */
+    int64_t sweeps;         /* sweeps done (all kinds) */
+    int64_t since_check;    /* GS: sweeps since the last check */
+    int64_t check_interval; /* GS: current check interval */
+    int64_t mpi_m;          /* MPI: current partial-evaluation sweeps */
+    int64_t pi_initialized; /* PI: initial policy chosen */
+    double eval_tol;        /* PI: iterative-evaluation tolerance in use */
+    double elapsed;         /* seconds of solving before this run */
+    double last_span;       /* span at the last check (for rates) */
+    int64_t last_check_sweeps;
+} sl_solver_state;
+
+/* Write a checkpoint into dir: temporary file in dir, complete mark last,
+ * flush, close, fsync, rename to ckpt-<seq>.h5, fsync dir, keep the newest
+ * two. value/actions: this rank's owned slice. Collective. */
+sl_status sl_ckpt_write(sl_ctx *ctx, const char *dir, const char *fingerprint, int64_t n_states,
+                        int64_t s_begin, int64_t n_local, const double *value, const int32_t *actions,
+                        const sl_solver_state *state, const sl_history *hist);
+
+/* Load the newest checkpoint of dir that validates (complete mark,
+ * checksums, fingerprint), falling back to the older with a warning.
+ * *found = 0 if dir has no checkpoint. A checkpoint of another model is
+ * refused (SL_EDATA). Collective. */
+sl_status sl_ckpt_load(sl_ctx *ctx, const char *dir, const char *fingerprint, int64_t n_states, int64_t s_begin,
+                       int64_t n_local, double *value, int32_t *actions, sl_solver_state *state,
+                       sl_history *hist, int *found);
+
+/* For `sluice info`: read a checkpoint's state and history. Collective. */
+sl_status sl_ckpt_info(sl_ctx *ctx, const char *path, char *fingerprint, int64_t *n_states,
+                       sl_solver_state *state, sl_history *hist, int *complete);

@@ -1,0 +1,50 @@
+# tests/tests.cmake - every test of the project, registered with CTest.
+# Included from the top-level CMakeLists.txt (paths relative to PROJECT_SOURCE_DIR).
+
+find_library(CMOCKA_LIBRARY cmocka)
+find_path(CMOCKA_INCLUDE_DIR cmocka.h)
+if(NOT CMOCKA_LIBRARY OR NOT CMOCKA_INCLUDE_DIR)
+  message(FATAL_ERROR "cmocka not found: install the Debian package libcmocka-dev")
+endif()
+
+find_program(SLUICE_MPIEXEC NAMES mpiexec mpirun)
+set(SLUICE_MPI_FLAGS --oversubscribe)
+set(SLUICE_TEST_ENV "OMPI_ALLOW_RUN_AS_ROOT=1;OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1;OMPI_MCA_rmaps_base_oversubscribe=1;SLUICE_CACHE=${PROJECT_BINARY_DIR}/test-cache")
+
+# unit tests: one executable per tests/unit/test_*.c
+file(GLOB SLUICE_UNIT_TESTS CONFIGURE_DEPENDS ${PROJECT_SOURCE_DIR}/tests/unit/test_*.c)
+foreach(src ${SLUICE_UNIT_TESTS})
+  get_filename_component(name ${src} NAME_WE)
+  add_executable(${name} ${src})
+  target_include_directories(${name} PRIVATE ${PROJECT_SOURCE_DIR}/src ${CMOCKA_INCLUDE_DIR})
+  target_compile_definitions(${name} PRIVATE _POSIX_C_SOURCE=200809L
+    SLUICE_SOURCE_DIR="${PROJECT_SOURCE_DIR}" SLUICE_BINARY_DIR="${PROJECT_BINARY_DIR}")
+  target_compile_options(${name} PRIVATE ${SLUICE_WARNINGS} -Wno-missing-prototypes)
+  target_link_libraries(${name} PRIVATE sluice_lib ${CMOCKA_LIBRARY} PkgConfig::HDF5P UMFPACK::UMFPACK m)
+  add_test(NAME unit_${name} COMMAND ${name})
+  set_tests_properties(unit_${name} PROPERTIES LABELS unit TIMEOUT 300 ENVIRONMENT "${SLUICE_TEST_ENV}")
+endforeach()
+
+# shell-driven CLI and MPI tests
+file(GLOB SLUICE_CLI_TESTS CONFIGURE_DEPENDS ${PROJECT_SOURCE_DIR}/tests/cli/*.sh)
+foreach(script ${SLUICE_CLI_TESTS})
+  get_filename_component(name ${script} NAME_WE)
+  add_test(NAME cli_${name} COMMAND bash ${script} $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/cli_${name}
+           ${PROJECT_SOURCE_DIR})
+  set_tests_properties(cli_${name} PROPERTIES LABELS cli TIMEOUT 600 SKIP_RETURN_CODE 77
+                       ENVIRONMENT "${SLUICE_TEST_ENV};SLUICE_MPIEXEC=${SLUICE_MPIEXEC};SLUICE_PYTHON=/usr/bin/python3")
+endforeach()
+file(GLOB SLUICE_MPI_TESTS CONFIGURE_DEPENDS ${PROJECT_SOURCE_DIR}/tests/mpi/*.sh)
+foreach(script ${SLUICE_MPI_TESTS})
+  get_filename_component(name ${script} NAME_WE)
+  add_test(NAME mpi_${name} COMMAND bash ${script} $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/mpi_${name}
+           ${PROJECT_SOURCE_DIR})
+  set_tests_properties(mpi_${name} PROPERTIES LABELS mpi TIMEOUT 900 SKIP_RETURN_CODE 77
+                       ENVIRONMENT "${SLUICE_TEST_ENV};SLUICE_MPIEXEC=${SLUICE_MPIEXEC};SLUICE_PYTHON=/usr/bin/python3")
+endforeach()
+
+foreach(frag tests/python/tests.cmake tests/jobs/tests.cmake)
+  if(EXISTS ${PROJECT_SOURCE_DIR}/${frag})
+    include(${PROJECT_SOURCE_DIR}/${frag})
+  endif()
+endforeach()
