@@ -14,6 +14,9 @@ typedef struct cli_args {
 
 /* Is argv[i] the option `name`? Consumes it. "--name=value" is split. */
 int cli_opt(cli_args *a, const char *name);
+/* Options every command accepts (--quiet, --debug, --help): 1 consumed,
+ * -1 help printed (the command should return 0), 0 not one of them. */
+int cli_common_opt(cli_args *a, const char *help);
 /* Value of the option just matched; prints a usage error and returns NULL if missing. */
 const char *cli_value(cli_args *a);
 /* Strict number parsing; print "sluice CMD: OPTION: ..." on error. */

@@ -4,16 +4,6 @@
 
 #include "cli/cli.h"
 
-/* Options every command accepts; returns 1 if consumed, -1 for --help. */
-static int common_opt(cli_args *a, const char *help)
-{
-    if (cli_opt(a, "--quiet") || cli_opt(a, "-q") || cli_opt(a, "--debug")) return 1;
-    if (cli_opt(a, "--help") || cli_opt(a, "-h")) {
-        if (sl_ctx_rank(a->ctx) == 0) fputs(help, stdout);
-        return -1;
-    }
-    return 0;
-}
 
 static int parse_objective(cli_args *a, sl_objective *obj)
 {
@@ -50,7 +40,7 @@ int cmd_build(cli_args *a)
     o.param_names = names;
     o.param_values = values;
     while (a->i < a->argc && rc == 0) {
-        int c = common_opt(a, build_help);
+        int c = cli_common_opt(a, build_help);
         const char *v;
         if (c < 0) return 0;
         if (c > 0) continue;
@@ -125,7 +115,7 @@ static int csv_command(cli_args *a, int estimate)
     int64_t states = 0, min_visits = 1;
     sl_objective obj = SL_OBJ_DISCOUNTED;
     while (a->i < a->argc && rc == 0) {
-        int c = common_opt(a, help);
+        int c = cli_common_opt(a, help);
         if (c < 0) return 0;
         if (c > 0) continue;
         if (cli_opt(a, "-o") || cli_opt(a, "--output")) {
@@ -186,7 +176,7 @@ int cmd_info(cli_args *a)
     int rc = 0;
     const char *v;
     while (a->i < a->argc && rc == 0) {
-        int c = common_opt(a, info_help);
+        int c = cli_common_opt(a, info_help);
         if (c < 0) return 0;
         if (c > 0) continue;
         if (cli_opt(a, "--json")) {

@@ -32,15 +32,6 @@ static void install_signals(sl_ctx *ctx)
     sl_ctx_set_signal_flag(ctx, &stop_flag);
 }
 
-static int common_opt(cli_args *a, const char *help)
-{
-    if (cli_opt(a, "--quiet") || cli_opt(a, "-q") || cli_opt(a, "--debug")) return 1;
-    if (cli_opt(a, "--help") || cli_opt(a, "-h")) {
-        if (sl_ctx_rank(a->ctx) == 0) fputs(help, stdout);
-        return -1;
-    }
-    return 0;
-}
 
 static int num_opt(cli_args *a, const char *name, double *out)
 {
@@ -85,7 +76,7 @@ int cmd_solve(cli_args *a)
     const char *v;
     int64_t iv;
     while (a->i < a->argc && rc == 0) {
-        int c = common_opt(a, solve_help);
+        int c = cli_common_opt(a, solve_help);
         if (c < 0) return 0;
         if (c > 0) continue;
         if (cli_opt(a, "-o") || cli_opt(a, "--output")) {
@@ -165,7 +156,7 @@ int cmd_evaluate(cli_args *a)
     memset(&o, 0, sizeof(o));
     int rc = 0;
     while (a->i < a->argc && rc == 0) {
-        int c = common_opt(a, evaluate_help);
+        int c = cli_common_opt(a, evaluate_help);
         if (c < 0) return 0;
         if (c > 0) continue;
         if (cli_opt(a, "-o") || cli_opt(a, "--output")) {
@@ -207,7 +198,7 @@ int cmd_verify(cli_args *a)
     o.out = stdout;
     int rc = 0;
     while (a->i < a->argc && rc == 0) {
-        int c = common_opt(a, verify_help);
+        int c = cli_common_opt(a, verify_help);
         if (c < 0) return 0;
         if (c > 0) continue;
         if (cli_opt(a, "--tolerance")) {
@@ -239,7 +230,7 @@ int cmd_export(cli_args *a)
     sl_export_opts o = {NULL, NULL, NULL};
     int rc = 0;
     while (a->i < a->argc && rc == 0) {
-        int c = common_opt(a, export_help);
+        int c = cli_common_opt(a, export_help);
         if (c < 0) return 0;
         if (c > 0) continue;
         if (cli_opt(a, "-o") || cli_opt(a, "--output")) {
@@ -277,7 +268,7 @@ int cmd_simulate(cli_args *a)
     int have_start = 0, rc = 0;
     int64_t seed = 1;
     while (a->i < a->argc && rc == 0) {
-        int c = common_opt(a, simulate_help);
+        int c = cli_common_opt(a, simulate_help);
         if (c < 0) return 0;
         if (c > 0) continue;
         if (cli_opt(a, "--start")) {

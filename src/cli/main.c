@@ -43,6 +43,16 @@ int cli_opt(cli_args *a, const char *name)
     return 0;
 }
 
+int cli_common_opt(cli_args *a, const char *help)
+{
+    if (cli_opt(a, "--quiet") || cli_opt(a, "-q") || cli_opt(a, "--debug")) return 1;
+    if (cli_opt(a, "--help") || cli_opt(a, "-h")) {
+        if (sl_ctx_rank(a->ctx) == 0) fputs(help, stdout);
+        return -1;
+    }
+    return 0;
+}
+
 const char *cli_value(cli_args *a)
 {
     if (a->i >= a->argc) {

@@ -306,9 +306,11 @@ sl_status sl_build(sl_ctx *ctx, const sl_build_opts *o)
 
     /* load: every rank (a shared file system is assumed for the cache) */
     if (strchr(so_path, '/') == NULL) {
-        char rel[4400];
-        snprintf(rel, sizeof(rel), "./%s", so_path);
-        snprintf(so_path, sizeof(so_path), "%s", rel);
+        size_t len = strlen(so_path);
+        if (len + 3 > sizeof(so_path)) SL_FAIL(SL_EUSAGE, "%s: path too long", so_path);
+        memmove(so_path + 2, so_path, len + 1);
+        so_path[0] = '.';
+        so_path[1] = '/';
     }
     dl = dlopen(so_path, RTLD_NOW | RTLD_LOCAL);
     if (dl == NULL) {
