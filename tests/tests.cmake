@@ -48,3 +48,13 @@ foreach(frag tests/python/tests.cmake tests/jobs/tests.cmake)
     include(${PROJECT_SOURCE_DIR}/${frag})
   endif()
 endforeach()
+
+# examples: build + twin cross-read + exact optimum + every method (1 rank here;
+# the rank-count comparisons live in tests/mpi)
+if(EXISTS ${PROJECT_SOURCE_DIR}/tests/python/test_examples.py)
+  add_test(NAME py_examples COMMAND /usr/bin/python3 ${PROJECT_SOURCE_DIR}/tests/python/test_examples.py
+           $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/py_examples)
+  add_test(NAME py_turbine_wear_twin COMMAND /usr/bin/python3 ${PROJECT_SOURCE_DIR}/tests/python/turbine_wear_twin.py)
+  set_tests_properties(py_examples py_turbine_wear_twin PROPERTIES LABELS python TIMEOUT 600
+                       ENVIRONMENT "${SLUICE_TEST_ENV}")
+endif()
