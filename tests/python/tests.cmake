@@ -1,0 +1,39 @@
+# tests/python/tests.cmake - Python cross-checks of sluice against outside sources
+# (scipy LP and sparse solvers, published worked examples). Included from the
+# top-level CMakeLists.txt; paths are relative to PROJECT_SOURCE_DIR.
+#
+# The interpreter must have numpy, scipy (with HiGHS linprog) and h5py; on
+# Debian that is /usr/bin/python3 with python3-numpy python3-scipy python3-h5py.
+# Override with -DSLUICE_TEST_PYTHON=/path/to/python3.
+
+set(SLUICE_TEST_PYTHON /usr/bin/python3 CACHE FILEPATH
+    "python3 with numpy, scipy and h5py for the tests/python cross-checks")
+
+execute_process(
+  COMMAND ${SLUICE_TEST_PYTHON} -c "import numpy, scipy.optimize, scipy.sparse.linalg, h5py"
+  RESULT_VARIABLE _sluice_py_ok OUTPUT_QUIET ERROR_QUIET)
+
+if(NOT _sluice_py_ok EQUAL 0)
+  message(WARNING "tests/python skipped: ${SLUICE_TEST_PYTHON} lacks numpy/scipy/h5py "
+                  "(Debian packages python3-numpy python3-scipy python3-h5py)")
+else()
+  set(_sluice_py_dir ${PROJECT_SOURCE_DIR}/tests/python)
+  foreach(_t lp evaluate published certificate)
+    add_test(NAME py_${_t}
+      COMMAND ${SLUICE_TEST_PYTHON} ${_sluice_py_dir}/test_${_t}.py
+              $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/py_${_t})
+    set_tests_properties(py_${_t} PROPERTIES LABELS python TIMEOUT 300)
+  endforeach()
+
+  # The LP and certificate checks again with 2 MPI ranks (every command that
+  # reads or writes a model uses all ranks under mpirun).
+  if(MPIEXEC_EXECUTABLE)
+    foreach(_t lp certificate)
+      add_test(NAME py_${_t}_np2
+        COMMAND ${SLUICE_TEST_PYTHON} ${_sluice_py_dir}/test_${_t}.py
+                $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/py_${_t}_np2)
+      set_tests_properties(py_${_t}_np2 PROPERTIES LABELS "python;mpi" TIMEOUT 600
+        ENVIRONMENT "SLUICE_LAUNCH=${MPIEXEC_EXECUTABLE} ${MPIEXEC_NUMPROC_FLAG} 2 --oversubscribe;OMPI_ALLOW_RUN_AS_ROOT=1;OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1")
+    endforeach()
+  endif()
+endif()
