@@ -247,11 +247,15 @@ sl_status sl_block_end_pair(sl_ctx *ctx, sl_block *b)
                                          : "; --renormalize rescales drift up to 1e-6");
         }
     }
-    for (int64_t i = lo; i < hi; i++)
+    for (int64_t i = lo; i < hi; i++) {
         if (b->prob[i] > 1.0 + b->prob_tolerance)
             return SL_ERR(ctx, SL_EDATA,
                           "%s: state %lld, action %d, next state %lld: merged probability %.17g > 1",
                           b->where, (long long)s, (int)a, (long long)b->target[i], b->prob[i]);
+        /* merged rows may exceed 1 by less than the tolerance: the file
+         * contract is p in [0, 1], so store 1 */
+        if (b->prob[i] > 1.0) b->prob[i] = 1.0;
+    }
     b->p_end++;
     b->first_trans[b->p_end - b->p_begin] = b->t_end;
     b->in_pair = 0;

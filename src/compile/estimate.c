@@ -1,0 +1,270 @@
+/* estimate.c - `sluice estimate`: a maximum-likelihood model from logged experience. */
+#include "compile/csv.h"
+
+#include <string.h>
+
+static const char *const exp_cols[] = {"state", "action", "reward", "next_state"};
+enum { E_STATE, E_ACTION, E_REWARD, E_NEXT, E_NCOLS };
+
+/* One logged step, 32 bytes; the text is never kept. Memory for N steps
+ * and S states: 32 N (10^8 steps: 3.2 GB), up to 16 N more while the array
+ * grows, 16 S for the in-place state sort, then the built block (at most
+ * 8 S + 20 per pair + 16 per distinct transition) while the steps are held. */
+typedef struct step {
+    int64_t state, next;
+    double reward;
+    int32_t action;
+    int32_t unused;
+} step;
+
+/* Full order (state, action, next, reward): the model, down to the order in
+ * which rewards are summed, does not depend on the order of the log. */
+static int cmp_step(const void *x, const void *y)
+{
+    const step *a = x, *b = y;
+    if (a->state != b->state) return a->state < b->state ? -1 : 1;
+    if (a->action != b->action) return a->action < b->action ? -1 : 1;
+    if (a->next != b->next) return a->next < b->next ? -1 : 1;
+    return (a->reward > b->reward) - (a->reward < b->reward);
+}
+
+/* End of the (state, action) group starting at i. */
+static size_t group_end(const step *v, size_t n, size_t i)
+{
+    size_t e = i + 1;
+    while (e < n && v[e].state == v[i].state && v[e].action == v[i].action) e++;
+    return e;
+}
+
+sl_status sl_csv_read_experience(sl_ctx *ctx, FILE *fp, const char *name,
+                                 const sl_estimate_opts *opts, sl_meta *m, sl_block *b,
+                                 int64_t *n_dropped, int64_t *n_absorbed)
+{
+    sl_status st = SL_OK;
+    sl_csv *c = NULL;
+    step *v = NULL;
+    size_t n = 0, cap = 0;
+    int sorted = 1;
+    int64_t max_index = -1, dropped = 0, absorbed = 0;
+    double t0 = sl_now();
+    memset(m, 0, sizeof(*m));
+    memset(b, 0, sizeof(*b));
+    if (n_dropped) *n_dropped = 0;
+    if (n_absorbed) *n_absorbed = 0;
+
+    if (opts->n_states < 0)
+        SL_FAIL(SL_EUSAGE, "number of states %lld is negative", (long long)opts->n_states);
+    if (opts->min_visits < 0)
+        SL_FAIL(SL_EUSAGE, "minimum visits %lld is negative", (long long)opts->min_visits);
+    SL_TRY(sl_csv_check_discount(ctx, opts->objective, opts->discount));
+    const int64_t min_visits = opts->min_visits > 0 ? opts->min_visits : 1;
+    const int64_t limit = opts->n_states > 0 ? opts->n_states : INT64_MAX;
+
+    SL_TRY(sl_csv_open(ctx, fp, name, &c));
+    SL_TRY(sl_csv_read_header(ctx, c, exp_cols, E_NCOLS));
+    for (;;) {
+        int more = 0;
+        SL_TRY(sl_csv_next(ctx, c, &more));
+        if (!more) break;
+        int64_t s, a, j;
+        double r;
+        SL_TRY(sl_csv_int(ctx, c, E_STATE, 0, INT64_MAX - 1, &s));
+        SL_TRY(sl_csv_int(ctx, c, E_ACTION, 0, INT32_MAX, &a));
+        SL_TRY(sl_csv_double(ctx, c, E_REWARD, &r));
+        SL_TRY(sl_csv_int(ctx, c, E_NEXT, 0, INT64_MAX - 1, &j));
+        if (s >= limit) {
+            st = sl_csv_error(ctx, c, E_STATE, SL_EDATA,
+                              "state %lld is out of range: the model has %lld states",
+                              (long long)s, (long long)limit);
+            goto cleanup;
+        }
+        if (j >= limit) {
+            st = sl_csv_error(ctx, c, E_NEXT, SL_EDATA,
+                              "next state %lld is out of range: the model has %lld states",
+                              (long long)j, (long long)limit);
+            goto cleanup;
+        }
+        if (n == cap) {
+            size_t ncap = cap ? cap + cap / 2 : 4096;
+            step *nv = ncap <= SIZE_MAX / sizeof(*nv) ? realloc(v, ncap * sizeof(*nv)) : NULL;
+            if (nv == NULL)
+                SL_FAIL(SL_ENOMEM, "%s:%lld: out of memory holding %zu steps (%zu bytes each)",
+                        name, (long long)sl_csv_line(c), n, sizeof(*v));
+            v = nv;
+            cap = ncap;
+        }
+        step *t = &v[n];
+        t->state = s;
+        t->next = j;
+        t->reward = r;
+        t->action = (int32_t)a;
+        t->unused = 0;
+        if (n > 0 && cmp_step(&t[-1], t) > 0) sorted = 0;
+        if (s > max_index) max_index = s;
+        if (j > max_index) max_index = j;
+        n++;
+    }
+    if (n == 0)
+        SL_FAIL(SL_EDATA, "%s:%lld: no data rows after the header", name,
+                (long long)sl_csv_line(c));
+    const int64_t n_states = opts->n_states > 0 ? opts->n_states : max_index + 1;
+    if (n_states > (int64_t)n && !opts->unseen_absorb) {
+        /* more states than steps: some state has no data; say so before
+         * allocating anything per state */
+        int64_t first = 0;
+        SL_TRY(sl_csv_first_absent_state(ctx, v, n, sizeof(*v), &first));
+        SL_FAIL(SL_EDATA,
+                "%s: state %lld has no data (it never occurs in the state column; %lld states, "
+                "but only %zu steps). Log more experience, or make unseen states absorbing",
+                name, (long long)first, (long long)n_states, n);
+    }
+    double t1 = sl_now();
+    if (!sorted) SL_TRY(sl_csv_sort_by_state(ctx, v, n, sizeof(*v), n_states, cmp_step));
+    double t2 = sl_now();
+
+    /* every state needs a pair that survives min_visits, unless unseen
+     * states are made absorbing: find the first without, and how many */
+    if (!opts->unseen_absorb) {
+        int64_t expect = 0, bad = 0, first_bad = -1, first_bad_visited = 0;
+        size_t i = 0;
+        while (i < n) {
+            int64_t s = v[i].state, kept = 0;
+            if (s > expect) {
+                if (first_bad < 0) first_bad = expect;
+                bad += s - expect;
+            }
+            while (i < n && v[i].state == s) {
+                size_t e = group_end(v, n, i);
+                if ((int64_t)(e - i) >= min_visits) kept++;
+                i = e;
+            }
+            if (kept == 0) {
+                if (first_bad < 0) {
+                    first_bad = s;
+                    first_bad_visited = 1;
+                }
+                bad++;
+            }
+            expect = s + 1;
+        }
+        if (expect < n_states) {
+            if (first_bad < 0) first_bad = expect;
+            bad += n_states - expect;
+        }
+        if (bad > 0)
+            SL_FAIL(SL_EDATA,
+                    "%s: state %lld has no data (%s); %lld of the %lld states have none. "
+                    "Log more experience, lower the minimum visits, or make unseen states "
+                    "absorbing",
+                    name, (long long)first_bad,
+                    first_bad_visited ? "every action there was seen fewer times than the "
+                                        "minimum visits"
+                                      : "it never occurs in the state column",
+                    (long long)bad, (long long)n_states);
+    }
+
+    SL_TRY(sl_block_init(ctx, b, 0, n_states, name));
+    size_t i = 0;
+    for (int64_t s = 0; s < n_states; s++) {
+        SL_TRY(sl_block_begin_state(ctx, b));
+        int64_t kept = 0;
+        while (i < n && v[i].state == s) {
+            size_t e = group_end(v, n, i);
+            const double visits = (double)(e - i);
+            if ((int64_t)(e - i) < min_visits) {
+                dropped++;
+                i = e;
+                continue;
+            }
+            SL_TRY(sl_block_begin_pair(ctx, b, v[i].action));
+            /* one transition per distinct next state: its frequency, and
+             * the mean reward of those steps, so that the builder's
+             * sum p*r is the mean reward of the pair */
+            while (i < e) {
+                size_t k = i;
+                double sum = 0.0;
+                for (; k < e && v[k].next == v[i].next; k++) sum += v[k].reward;
+                const double cnt = (double)(k - i);
+                SL_TRY(sl_block_add(ctx, b, v[i].next, cnt / visits, sum / cnt));
+                i = k;
+            }
+            SL_TRY(sl_block_end_pair(ctx, b));
+            kept++;
+        }
+        if (kept == 0) {
+            if (!opts->unseen_absorb)
+                SL_FAIL(SL_EINTERNAL, "%s: state %lld has no pair after the check", name,
+                        (long long)s);
+            SL_TRY(sl_block_begin_pair(ctx, b, 0));
+            SL_TRY(sl_block_add(ctx, b, s, 1.0, 0.0));
+            SL_TRY(sl_block_end_pair(ctx, b));
+            absorbed++;
+        }
+        SL_TRY(sl_block_end_state(ctx, b));
+    }
+
+    m->format_version = SLUICE_FORMAT_VERSION;
+    m->n_states = n_states;
+    m->n_pairs = sl_block_pairs(b);
+    m->n_trans = sl_block_trans(b);
+    m->discount = opts->discount;
+    m->objective = opts->objective;
+    snprintf(m->source, sizeof(m->source), "%s", name);
+    if (n_dropped) *n_dropped = dropped;
+    if (n_absorbed) *n_absorbed = absorbed;
+    double t3 = sl_now();
+    sl_log(ctx,
+           "%s: %zu steps read in %.2f s (%.3g rows/s); %lld states, %lld pairs, %lld "
+           "transitions (sort %.2f s, build %.2f s)",
+           name, n, t1 - t0, (double)n / (t1 - t0 > 1e-9 ? t1 - t0 : 1e-9),
+           (long long)m->n_states, (long long)m->n_pairs, (long long)m->n_trans, t2 - t1,
+           t3 - t2);
+
+cleanup:
+    if (st != SL_OK) {
+        sl_block_free(b);
+        sl_meta_free(m);
+        memset(m, 0, sizeof(*m));
+    }
+    free(v);
+    sl_csv_free(&c);
+    return st;
+}
+
+sl_status sl_estimate(sl_ctx *ctx, const sl_estimate_opts *opts)
+{
+    sl_status st = SL_OK;
+    FILE *fp = NULL;
+    const char *name = "<input>";
+    sl_meta m;
+    sl_block b;
+    memset(&m, 0, sizeof(m));
+    memset(&b, 0, sizeof(b));
+
+    /* the same checks on every rank, agreed inside sl_csv_write_model */
+    if (opts == NULL || opts->input == NULL || opts->output == NULL)
+        st = SL_ERR(ctx, SL_EUSAGE, "estimate needs an experience CSV and an output model file");
+    else {
+        name = strcmp(opts->input, "-") == 0 ? "<stdin>" : opts->input;
+        st = sl_csv_check_discount(ctx, opts->objective, opts->discount);
+    }
+    if (st == SL_OK && ctx->rank == 0) {
+        int64_t dropped = 0, absorbed = 0;
+        st = sl_csv_open_input(ctx, opts->input, &fp, &name);
+        if (st == SL_OK)
+            st = sl_csv_read_experience(ctx, fp, name, opts, &m, &b, &dropped, &absorbed);
+        sl_csv_close_input(&fp);
+        if (st == SL_OK) {
+            sl_log(ctx, "%s: %lld (state, action) pairs seen fewer than %lld times dropped",
+                   name, (long long)dropped,
+                   (long long)(opts->min_visits > 0 ? opts->min_visits : 1));
+            if (opts->unseen_absorb)
+                sl_log(ctx, "%s: %lld states without data made absorbing (reward 0)", name,
+                       (long long)absorbed);
+        }
+    }
+    st = sl_csv_write_model(ctx, st, opts ? opts->output : NULL, &m, &b, name);
+    sl_block_free(&b);
+    sl_meta_free(&m);
+    return st;
+}
