@@ -58,3 +58,8 @@ if(EXISTS ${PROJECT_SOURCE_DIR}/tests/python/test_examples.py)
   set_tests_properties(py_examples py_turbine_wear_twin PROPERTIES LABELS python TIMEOUT 600
                        ENVIRONMENT "${SLUICE_TEST_ENV}")
 endif()
+
+# a bounded libFuzzer run over the CSV readers (skipped without clang)
+add_test(NAME fuzz_csv COMMAND bash ${PROJECT_SOURCE_DIR}/tests/fuzz/run.sh ${PROJECT_SOURCE_DIR}
+         ${PROJECT_BINARY_DIR}/fuzz_csv 45)
+set_tests_properties(fuzz_csv PROPERTIES LABELS fuzz TIMEOUT 300 SKIP_RETURN_CODE 77)
