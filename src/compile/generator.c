@@ -25,7 +25,7 @@ extern const size_t sl_generator_header_len;
 static volatile sig_atomic_t crash_armed;
 static volatile int64_t crash_state;
 static volatile int32_t crash_action;
-static char crash_name[128];
+static char crash_name[512];
 
 static size_t fmt_i64(char *buf, int64_t v)
 {
@@ -44,11 +44,11 @@ static size_t fmt_i64(char *buf, int64_t v)
 static void crash_handler(int sig)
 {
     if (crash_armed) {
-        char msg[400];
+        char msg[512];
         size_t k = 0;
         const char *a = "sluice: generator ";
         for (const char *p = a; *p; p++) msg[k++] = *p;
-        for (const char *p = crash_name; *p && k < 200; p++) msg[k++] = *p;
+        for (const char *p = crash_name; *p && k < 300; p++) msg[k++] = *p;
         const char *b = " crashed (signal ";
         for (const char *p = b; *p; p++) msg[k++] = *p;
         k += fmt_i64(msg + k, sig);
@@ -356,23 +356,18 @@ sl_status sl_build(sl_ctx *ctx, const sl_build_opts *o)
                     err[0] ? err : "no message");
     SL_TRY(sl_agree(ctx, st));
 
-    /* shape checks */
-    if (shape.n_states <= 0)
-        st = SL_ERR(ctx, SL_EDATA, "%s: the generator declares %lld states: the model is empty", o->generator,
-                    (long long)shape.n_states);
-    else if (shape.n_states > SL_MAX_STATES)
-        st = SL_ERR(ctx, SL_EDATA, "%s: state count %lld overflows the supported range (at most 2^48)",
-                    o->generator, (long long)shape.n_states);
-    else if (shape.n_actions <= 0)
-        st = SL_ERR(ctx, SL_EDATA, "%s: the generator declares no actions", o->generator);
-    else if (shape.n_factors < 0 || shape.n_factors > SLUICE_MAX_FACTORS)
+    /* shape checks: factor sizes first, so an overflowing product is not
+     * mistaken for an empty model */
+    if (shape.n_factors < 0 || shape.n_factors > SLUICE_MAX_FACTORS)
         st = SL_ERR(ctx, SL_EDATA, "%s: %d factors (at most %d)", o->generator, shape.n_factors,
                     SLUICE_MAX_FACTORS);
     if (st == SL_OK && shape.n_factors > 0) {
         int64_t prod = 1;
         for (int f = 0; f < shape.n_factors && st == SL_OK; f++) {
             int64_t sz = shape.factors[f].size;
-            if (sz < 1 || prod > INT64_MAX / sz)
+            if (sz < 1)
+                st = SL_ERR(ctx, SL_EDATA, "%s: factor %d has size %lld", o->generator, f, (long long)sz);
+            else if (prod > INT64_MAX / sz)
                 st = SL_ERR(ctx, SL_EDATA, "%s: factor sizes overflow the state count (factor %d)", o->generator,
                             f);
             else prod *= sz;
@@ -381,6 +376,14 @@ sl_status sl_build(sl_ctx *ctx, const sl_build_opts *o)
             st = SL_ERR(ctx, SL_EDATA, "%s: factor sizes multiply to %lld but the generator declares %lld states",
                         o->generator, (long long)prod, (long long)shape.n_states);
     }
+    if (st == SL_OK && shape.n_states <= 0)
+        st = SL_ERR(ctx, SL_EDATA, "%s: the generator declares %lld states: the model is empty", o->generator,
+                    (long long)shape.n_states);
+    else if (st == SL_OK && shape.n_states > SL_MAX_STATES)
+        st = SL_ERR(ctx, SL_EDATA, "%s: state count %lld overflows the supported range (at most 2^48)",
+                    o->generator, (long long)shape.n_states);
+    else if (st == SL_OK && shape.n_actions <= 0)
+        st = SL_ERR(ctx, SL_EDATA, "%s: the generator declares no actions", o->generator);
     double gamma = o->have_discount ? o->discount : shape.discount;
     if (st == SL_OK && o->objective == SL_OBJ_DISCOUNTED && !(gamma >= 0.0 && gamma < 1.0))
         st = SL_ERR(ctx, SL_EUSAGE, "discount %g is not in [0, 1) (required for the discounted objective)", gamma);
@@ -394,7 +397,9 @@ sl_status sl_build(sl_ctx *ctx, const sl_build_opts *o)
     SL_TRY(sl_block_init(ctx, &blk, s0, n, o->generator));
     blk.prob_tolerance = o->prob_tolerance > 0 ? o->prob_tolerance : 1e-9;
     blk.renormalize = o->renormalize;
-    snprintf(crash_name, sizeof(crash_name), "%s", g->name ? g->name : "?");
+    if (snprintf(crash_name, sizeof(crash_name), "%s (%s)", g->name ? g->name : "?", o->generator) >=
+        (int)sizeof(crash_name))
+        crash_name[sizeof(crash_name) - 1] = '\0'; /* a shortened name is fine */
     memset(&sa, 0, sizeof(sa));
     sa.sa_handler = crash_handler;
     sigemptyset(&sa.sa_mask);

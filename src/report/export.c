@@ -42,7 +42,16 @@ sl_status sl_export(sl_ctx *ctx, const sl_export_opts *o)
     int32_t *a = NULL;
     sl_solution_info info;
     memset(&m, 0, sizeof(m));
-    SL_TRY(load_on_root(ctx, o->model, o->solution, &m, &b, &v, &a, &info, 0));
+    SL_TRY(load_on_root(ctx, o->model, o->solution, &m, &b, &v, &a, &info, 1));
+    /* every policy action must be one the model offers in that state */
+    for (int64_t s = 0; ctx->rank == 0 && s < m.n_states && st == SL_OK; s++) {
+        int found = 0;
+        for (int64_t q = b.first_pair[s]; q < b.first_pair[s + 1]; q++) found |= b.action[q] == a[s];
+        if (!found)
+            st = SL_ERR(ctx, SL_EDATA, "%s: state %lld: policy action %d is not available in %s", o->solution,
+                        (long long)s, (int)a[s], o->model);
+    }
+    SL_TRY(sl_agree(ctx, st));
     if (ctx->rank == 0) {
         int to_stdout = strcmp(o->output, "-") == 0;
         char tmp[4200];
@@ -77,6 +86,7 @@ sl_status sl_export(sl_ctx *ctx, const sl_export_opts *o)
 cleanup:
     free(v);
     free(a);
+    sl_block_free(&b);
     sl_meta_free(&m);
     return st;
 }

@@ -22,6 +22,7 @@ static sl_status scan_counts(sl_ctx *ctx, hid_t f, const sl_meta *m, model_stats
     int64_t *buf = NULL;
     int P = ctx->size, r = ctx->rank;
     int64_t lim[4] = {INT64_MAX, 0, INT64_MAX, 0};
+    int64_t bad[2] = {INT64_MAX, INT64_MAX}; /* first entry with a count below 1 */
     const int64_t CH = 1 << 20;
     if (SL_ALLOC(ctx, buf, CH + 1, "scan") == NULL) st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
@@ -38,6 +39,7 @@ static sl_status scan_counts(sl_ctx *ctx, hid_t f, const sl_meta *m, model_stats
             if (st != SL_OK) break;
             for (int64_t i = 0; i + 1 < cnt; i++) {
                 int64_t d = buf[i + 1] - buf[i];
+                if (d < 1 && a + i < bad[pass]) bad[pass] = a + i;
                 if (d < lim[2 * pass]) lim[2 * pass] = d;
                 if (d > lim[2 * pass + 1]) lim[2 * pass + 1] = d;
             }
@@ -45,6 +47,13 @@ static sl_status scan_counts(sl_ctx *ctx, hid_t f, const sl_meta *m, model_stats
         if (st != SL_OK) break;
     }
     SL_TRY(sl_agree(ctx, st));
+    MPI_Allreduce(MPI_IN_PLACE, bad, 2, MPI_INT64_T, MPI_MIN, ctx->comm);
+    if (bad[1] != INT64_MAX)
+        SL_FAIL(SL_EDATA, "%s: state %lld: /state/first_pair is not increasing (a state with no action)", path,
+                (long long)bad[1]);
+    if (bad[0] != INT64_MAX)
+        SL_FAIL(SL_EDATA, "%s: pair %lld: /pair/first_transition is not increasing (a pair with no successor)",
+                path, (long long)bad[0]);
     int64_t mins[2] = {lim[0], lim[2]}, maxs[2] = {lim[1], lim[3]}, gmin[2], gmax[2];
     MPI_Allreduce(mins, gmin, 2, MPI_INT64_T, MPI_MIN, ctx->comm);
     MPI_Allreduce(maxs, gmax, 2, MPI_INT64_T, MPI_MAX, ctx->comm);

@@ -143,6 +143,11 @@ static void check_loop(const sl_problem *p, const double *x, double *y, int32_t 
             policy[i] = ch;
         }
         double d = v - x[i];
+        if (!isfinite(d)) {
+            /* a non-finite value certifies nothing */
+            dmin = -INFINITY;
+            dmax = INFINITY;
+        }
         if (d < dmin) dmin = d;
         if (d > dmax) dmax = d;
         if (fabs(x[i]) > xmax) xmax = fabs(x[i]);

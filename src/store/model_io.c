@@ -289,7 +289,7 @@ sl_status sl_store_model_cumulative(sl_ctx *ctx, const char *path, int64_t s_beg
                 for (int64_t i = 0; st == SL_OK && i <= n; i++) {
                     if (fp[i] < p0 || fp[i] > p1 || (i > 0 && fp[i] < fp[i - 1])) {
                         st = SL_ERR(ctx, SL_EDATA, "%s: state %lld: /state/first_pair is not monotone",
-                                    path, (long long)(s_begin + i));
+                                    path, (long long)(s_begin + i - 1));
                         break;
                     }
                     cum[i] = ft[fp[i] - p0];

@@ -1,4 +1,5 @@
 /* solution_io.c - solution and values files (DESIGN.md contract). */
+#include <math.h>
 #include <string.h>
 
 #include "store/h5.h"
@@ -147,7 +148,15 @@ sl_status sl_store_solution_read(sl_ctx *ctx, const char *path, sl_file_kind kin
         st = SL_ERR(ctx, SL_EDATA, "%s: /policy is missing or has the wrong length (model has %lld states)", path,
                     (long long)n_states);
     SL_TRY(sl_agree(ctx, st));
-    if (value) SL_TRY(sl_agree(ctx, sl_h5_read_1d(ctx, f, "/value", H5T_NATIVE_DOUBLE, n_states, s_begin, n_local, value, path)));
+    if (value) {
+        SL_TRY(sl_agree(ctx, sl_h5_read_1d(ctx, f, "/value", H5T_NATIVE_DOUBLE, n_states, s_begin, n_local, value, path)));
+        for (int64_t i = 0; i < n_local; i++)
+            if (!isfinite(value[i])) {
+                st = SL_ERR(ctx, SL_EDATA, "%s: state %lld: value is not finite", path, (long long)(s_begin + i));
+                break;
+            }
+        SL_TRY(sl_agree(ctx, st));
+    }
     if (actions)
         SL_TRY(sl_agree(ctx, sl_h5_read_1d(ctx, f, "/policy", H5T_NATIVE_INT32, n_states, s_begin, n_local, actions, path)));
 cleanup:
