@@ -1,0 +1,293 @@
+#!/bin/bash
+# pbs_standin_test.sh SLUICE_BIN MODEL_FILE WORKDIR
+#
+# Runs jobs/pbs/sluice-solve.pbs outside PBS, in a stand-in for a PBS job:
+# PBS_* variables are set, a fake `qstat -f` reports the walltime limit and
+# used time, a fake `qsub` records follow-up submissions, and this driver
+# sends SIGTERM to every process of the job at the walltime (then SIGKILL),
+# as PBS does.  A follow-up job is emulated by running the script again with
+# the environment the script gave to qsub.  No real PBS server is involved.
+#
+# Scenarios
+#   reference  uninterrupted solve (sets the timing)
+#   chain      walltime of about 40% of the reference time: sluice must stop
+#              itself (SLUICE_WALLTIME) with 75, the script must submit a
+#              follow-up with depend=afterany and the restart count raised;
+#              the chain can only converge by resuming
+#   term       SIGTERM to all processes with no walltime known: 75, follow-up
+#   limit      SLUICE_MAX_RESTARTS=0: no follow-up
+#   errors     missing model: 66, no follow-up
+#
+# Exit 0 pass, 1 fail, 77 skip.  Settings as in standin_test.sh
+# (SLUICE_TEST_LAUNCHER mpirun|none, SLUICE_TEST_RANKS, SLUICE_TEST_TOLERANCE,
+# SLUICE_TEST_MIN_SECONDS, SLUICE_TEST_KILLWAIT), and SLUICE_JOB_SCRIPT.
+
+# shellcheck disable=SC2016,SC2034  # eval'd check expressions
+
+set -u
+
+if [ $# -ne 3 ]; then
+    echo "usage: $0 SLUICE_BIN MODEL_FILE WORKDIR" >&2
+    exit 64
+fi
+skip() { echo "SKIP: $*"; exit 77; }
+
+here=$(cd "$(dirname "$0")" && pwd)
+job_script="${SLUICE_JOB_SCRIPT:-$here/../../jobs/pbs/sluice-solve.pbs}"
+bin=$1
+model=$2
+W=$3
+case "$bin" in /*) ;; *) bin="$PWD/$bin" ;; esac
+case "$model" in /*) ;; *) model="$PWD/$model" ;; esac
+case "$job_script" in /*) ;; *) job_script="$PWD/$job_script" ;; esac
+
+[ -f "$job_script" ] || skip "job script not found: $job_script"
+[ -x "$bin" ] || skip "sluice binary not executable: $bin"
+[ -r "$model" ] || skip "model file not readable: $model"
+for tool in setsid ps awk; do
+    command -v "$tool" >/dev/null 2>&1 || skip "'$tool' is not installed"
+done
+[ -n "${EPOCHREALTIME:-}" ] || skip "bash 5 or newer is needed (EPOCHREALTIME)"
+case "$("$bin" solve --help 2>&1)" in
+    *--checkpoint*) ;;
+    *) skip "'sluice solve --help' does not mention --checkpoint: checkpoints not supported by this build" ;;
+esac
+py=""
+for cand in "${PYTHON:-}" python3 /usr/bin/python3; do
+    [ -n "$cand" ] || continue
+    if "$cand" -c 'import h5py' >/dev/null 2>&1; then py=$cand; break; fi
+done
+if [ -z "$py" ] && ! command -v h5dump >/dev/null 2>&1; then
+    skip "neither python3 with h5py nor h5dump is available to read solution files"
+fi
+
+launcher="${SLUICE_TEST_LAUNCHER:-}"
+if [ -z "$launcher" ]; then
+    if command -v mpirun >/dev/null 2>&1; then launcher=mpirun; else launcher=none; fi
+fi
+ranks="${SLUICE_TEST_RANKS:-2}"
+tol="${SLUICE_TEST_TOLERANCE:-1e-6}"
+min_secs="${SLUICE_TEST_MIN_SECONDS:-5}"
+killwait="${SLUICE_TEST_KILLWAIT:-10}"
+largs=""
+if [ "$launcher" = mpirun ] && mpirun --version 2>&1 | grep -q "Open MPI"; then
+    largs="--oversubscribe"
+    if [ "$(id -u)" = 0 ]; then export OMPI_ALLOW_RUN_AS_ROOT=1 OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1; fi
+fi
+
+mkdir -p "$W" || exit 1
+W=$(cd "$W" && pwd)
+rm -rf "$W/fakebin" "$W/runs"
+mkdir -p "$W/fakebin" "$W/runs"
+cat >"$W/fakebin/qstat" <<'EOF'
+#!/bin/sh
+# stand-in `qstat -f JOBID`
+echo "$*" >>"$PBS_TEST_QSTAT_LOG"
+echo "Job Id: $2"
+[ -z "${PBS_TEST_WALLTIME:-}" ] || echo "    Resource_List.walltime = $PBS_TEST_WALLTIME"
+[ -z "${PBS_TEST_USED:-}" ] || echo "    resources_used.walltime = $PBS_TEST_USED"
+EOF
+cat >"$W/fakebin/qsub" <<'EOF'
+#!/bin/sh
+# stand-in qsub: records the request and the restart count it carries
+n=$(($(wc -l <"$PBS_TEST_QSUB_LOG") + 1))
+echo "restart=${SLUICE_RESTART_COUNT:-} workdir=${SLUICE_WORKDIR:-} args=$*" >>"$PBS_TEST_QSUB_LOG"
+echo "$((1000 + n)).standin"
+EOF
+chmod +x "$W/fakebin/qstat" "$W/fakebin/qsub"
+export PATH="$W/fakebin:$PATH"
+export PBS_TEST_QSTAT_LOG="$W/qstat.log" PBS_TEST_QSUB_LOG="$W/qsub.log"
+: >"$PBS_TEST_QSTAT_LOG"
+unset SLUICE_RESTART_COUNT SLUICE_WALLTIME SLUICE_OUTPUT SLUICE_CHECKPOINT_DIR SLUICE_REPORT SLUICE_METHOD \
+    SLUICE_CHECKPOINT_EVERY SLUICE_SOLVE_ARGS SLUICE_MAX_RESTARTS SLUICE_WALLTIME_MARGIN SLUICE_QSUB_ARGS \
+    SLUICE_WORKDIR PBS_TEST_WALLTIME PBS_TEST_USED PBS_NODEFILE
+export PBS_JOBNAME=sluice-solve PBS_QUEUE=workq
+export SLUICE_BIN="$bin" SLUICE_MODEL="$model" SLUICE_LAUNCHER="$launcher" \
+    SLUICE_LAUNCHER_ARGS="$largs" SLUICE_RANKS="$ranks" SLUICE_TOLERANCE="$tol"
+
+passed=0
+failed=0
+pass() { passed=$((passed + 1)); echo "PASS: $*"; }
+fail() { failed=$((failed + 1)); echo "FAIL: $*"; }
+check() {
+    local what=$1
+    shift
+    if "$@"; then pass "$what"; else fail "$what"; fi
+}
+now_ms() { local t=${EPOCHREALTIME/[.,]/}; echo $((t / 1000)); }
+ms() { awk -v s="$1" 'BEGIN { printf "%d", s * 1000 }'; }
+tree() {
+    ps -e -o pid= -o ppid= | awk -v r="$1" '
+        { par[$1] = $2 }
+        END {
+            keep[r] = 1; more = 1
+            while (more) { more = 0; for (p in par) if (!(p in keep) && (par[p] in keep)) { keep[p] = 1; more = 1 } }
+            for (p in keep) print p
+        }'
+}
+signal_tree() { local p; for p in $(tree "$2"); do kill -s "$1" "$p" 2>/dev/null; done; }
+live_jobs=""
+cleanup() { local p; for p in $live_jobs; do kill -0 "$p" 2>/dev/null && signal_tree KILL "$p"; done; }
+trap cleanup EXIT
+wait_until() {
+    while kill -0 "$1" 2>/dev/null && [ "$(now_ms)" -lt "$2" ]; do sleep 0.05; done
+    ! kill -0 "$1" 2>/dev/null
+}
+
+# run_job NAME JOBID RESTARTS TERM_S: one run of the script; SIGTERM to all
+# processes TERM_S seconds after the start, SIGKILL $killwait s later.
+run_job() {
+    local name=$1 id=$2 restarts=$3 term=$4 t0 pid
+    RUN_LOG="$W/runs/$name.log"
+    RUN_TERMED=0 RUN_KILLED=0
+    t0=$(now_ms)
+    (
+        export PBS_JOBID=$id
+        if [ "$restarts" -gt 0 ]; then export SLUICE_RESTART_COUNT=$restarts; fi
+        exec setsid bash "$job_script"
+    ) >"$RUN_LOG" 2>&1 </dev/null &
+    pid=$!
+    live_jobs="$live_jobs $pid"
+    if ! wait_until "$pid" $((t0 + $(ms "$term"))); then
+        signal_tree TERM "$pid"
+        RUN_TERMED=1
+        if ! wait_until "$pid" $(($(now_ms) + killwait * 1000)); then
+            signal_tree KILL "$pid"
+            RUN_KILLED=1
+        fi
+    fi
+    wait "$pid"
+    RUN_RC=$?
+    echo "  run $name: exit $RUN_RC after $(($(now_ms) - t0)) ms (term=$RUN_TERMED kill=$RUN_KILLED)"
+}
+submissions() { wc -l <"$PBS_TEST_QSUB_LOG"; }
+last_submission() { tail -n 1 "$PBS_TEST_QSUB_LOG"; }
+log_has() { grep -q -- "$2" "$1"; }
+has_files() { [ -n "$(find "$1" -type f 2>/dev/null | head -n 1)" ]; }
+converged() {
+    [ -f "$1" ] || return 1
+    if [ -n "$py" ]; then
+        "$py" - "$1" <<'EOF'
+import sys, h5py
+with h5py.File(sys.argv[1], "r") as f:
+    sys.exit(0 if "converged" in f.attrs and bool(f.attrs["converged"]) else 1)
+EOF
+    else
+        h5dump -a /converged "$1" 2>/dev/null | grep -Eq '\(0\): *(1|TRUE)'
+    fi
+}
+scenario() {
+    echo "== $1"
+    export PBS_O_WORKDIR="$W/$1"
+    rm -rf "$PBS_O_WORKDIR"
+    mkdir -p "$PBS_O_WORKDIR"
+    : >"$PBS_TEST_QSUB_LOG"
+}
+
+echo "job script: $job_script"
+echo "sluice: $bin; model: $model; launcher: $launcher${largs:+ $largs}; ranks: $ranks"
+
+scenario reference
+ref_launch=()
+if [ "$launcher" = mpirun ]; then
+    ref_launch=(mpirun -np "$ranks")
+    [ -z "$largs" ] || ref_launch+=("$largs")
+fi
+t0=$(now_ms)
+"${ref_launch[@]}" "$bin" solve "$model" -o "$W/reference/solution.h5" --tolerance "$tol" \
+    --checkpoint "$W/reference/checkpoints" >"$W/runs/reference.log" 2>&1 </dev/null
+rc=$?
+ref_ms=$(($(now_ms) - t0))
+echo "  reference solve: exit $rc after $ref_ms ms"
+if [ "$rc" != 0 ] || ! converged "$W/reference/solution.h5"; then
+    tail -n 20 "$W/runs/reference.log"
+    fail "reference solve exits 0 with a converged solution"
+    echo "$passed passed, $failed failed"
+    exit 1
+fi
+pass "reference solve exits 0 with a converged solution"
+[ "$ref_ms" -ge "$(ms "$min_secs")" ] ||
+    skip "the model solves in ${ref_ms} ms, too fast to interrupt reliably (need >= ${min_secs} s)"
+
+# ---- chain --------------------------------------------------------------------------
+
+scenario chain
+export SLUICE_MAX_RESTARTS=8 SLUICE_WALLTIME_MARGIN=2
+budget=$(awk -v m="$ref_ms" 'BEGIN { b = int(m * 0.4 / 1000 + 0.999); if (b < 1) b = 1; print b }')
+export PBS_TEST_WALLTIME
+PBS_TEST_WALLTIME=$(printf '00:%02d:%02d' $(((budget + 2) / 60)) $(((budget + 2) % 60)))
+export PBS_TEST_USED=00:00:00
+id=1000.standin
+ok=1
+runs=0
+final=""
+for restart in $(seq 0 "$SLUICE_MAX_RESTARTS"); do
+    # PBS's own SIGTERM comes at the walltime: budget + margin seconds
+    run_job "chain-$restart" "$id" "$restart" $((budget + 2 + 5))
+    runs=$((runs + 1))
+    if [ "$RUN_RC" = 75 ]; then
+        sub=$(last_submission)
+        if [ "$RUN_TERMED" != 0 ] || [ "$(submissions)" != "$runs" ] ||
+            [[ "$sub" != "restart=$((restart + 1)) workdir=$W/chain args=-V -W depend=afterany:$id -q workq "* ]] ||
+            ! log_has "$RUN_LOG" "sluice will stop itself after ${budget}s" || ! has_files "$W/chain/checkpoints"; then
+            ok=0
+            echo "  submission: $sub"
+            tail -n 15 "$RUN_LOG"
+            break
+        fi
+        id="$((1000 + runs)).standin"
+        continue
+    fi
+    final=$RUN_RC
+    break
+done
+echo "  chain: $runs runs, $(submissions) follow-up submissions, final exit ${final:-none}"
+check "chain: each stopped run stopped itself before the walltime and submitted one follow-up (depend=afterany, restart+1)" \
+    test "$ok" = 1
+check "chain: the first run was stopped (75) and a later one converged (0)" \
+    eval '[ "$runs" -ge 2 ] && [ "${final:-x}" = 0 ]'
+check "chain: the final run submitted nothing" eval '[ "$(submissions)" = $((runs - 1)) ]'
+check "chain: solution has /converged set" converged "$W/chain/solution.h5"
+unset SLUICE_WALLTIME_MARGIN PBS_TEST_WALLTIME PBS_TEST_USED
+
+# ---- term ---------------------------------------------------------------------------
+
+scenario term
+# Direct launch (SIGTERM reaching mpirun kills the ranks); one rank runs at
+# another speed, so time it first.
+export SLUICE_LAUNCHER=none
+one_ms=$ref_ms
+if [ "$launcher" != none ]; then
+    t0=$(now_ms)
+    "$bin" solve "$model" -o "$W/term/one-rank.h5" --tolerance "$tol" \
+        --checkpoint "$W/term/one-rank-checkpoints" >"$W/runs/term-reference.log" 2>&1 </dev/null
+    one_ms=$(($(now_ms) - t0))
+    echo "  one-rank reference solve: ${one_ms} ms"
+fi
+# (not before 1 s: sluice must have installed its signal handlers)
+run_job term-0 2000.standin 0 "$(awk -v m="$one_ms" 'BEGIN { t = m * 0.3 / 1000; if (t < 1) t = 1; printf "%.3f", t }')"
+check "term: SIGTERM gives exit 75 and one follow-up submission" \
+    eval '[ "$RUN_RC" = 75 ] && [ "$RUN_KILLED" = 0 ] && [ "$(submissions)" = 1 ]'
+check "term: the log shows the walltime was unknown and SIGTERM arrived" \
+    eval 'log_has "$RUN_LOG" "walltime unknown" && log_has "$RUN_LOG" "received SIGTERM"'
+export SLUICE_LAUNCHER="$launcher"
+
+# ---- limit --------------------------------------------------------------------------
+
+scenario limit
+export SLUICE_MAX_RESTARTS=0 SLUICE_LAUNCHER=none
+run_job limit-0 3000.standin 0 "$(awk -v m="$one_ms" 'BEGIN { t = m * 0.3 / 1000; if (t < 1) t = 1; printf "%.3f", t }')"
+check "limit: with SLUICE_MAX_RESTARTS=0 a stop gives 75 and no follow-up" \
+    eval '[ "$RUN_RC" = 75 ] && [ "$(submissions)" = 0 ] && log_has "$RUN_LOG" "restart limit reached"'
+unset SLUICE_MAX_RESTARTS
+export SLUICE_LAUNCHER="$launcher"
+
+# ---- errors -------------------------------------------------------------------------
+
+scenario errors
+SLUICE_MODEL="$W/errors/none.h5" run_job errors-missing 4000.standin 0 60
+check "errors: missing model gives 66 and no follow-up" eval '[ "$RUN_RC" = 66 ] && [ "$(submissions)" = 0 ]'
+
+echo "logs: $W/runs"
+echo "$passed passed, $failed failed"
+[ "$failed" = 0 ]
