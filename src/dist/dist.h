@@ -32,8 +32,9 @@ typedef struct sl_halo {
     MPI_Request *reqs;          /* n_recv + n_send */
 } sl_halo;
 
-/* Build the halo of a block and rewrite its targets in place to local
- * column indices into [owned | halo]. Collective. */
+/* Build the halo of a block: b->col gets the local column of every
+ * transition in [owned | halo], and b->target (global ids) is freed.
+ * Collective. */
 sl_status sl_halo_build(sl_ctx *ctx, const int64_t *bounds, sl_block *b, sl_halo *h);
 /* Refresh the halo part of x from the owners. Collective. */
 sl_status sl_halo_exchange(sl_ctx *ctx, const sl_halo *h, double *x);

@@ -94,6 +94,7 @@ void sl_block_free(sl_block *b)
     free(b->first_trans);
     free(b->target);
     free(b->prob);
+    free(b->col);
     memset(b, 0, sizeof(*b));
 }
 

@@ -52,6 +52,8 @@ typedef struct sl_block {
     int64_t *first_trans;       /* [n_pairs_local + 1] */
     int64_t *target;            /* [n_trans_local] */
     double *prob;               /* [n_trans_local] */
+    uint32_t *col;              /* after sl_halo_build: local columns into
+                                 * [owned | halo]; `target` is then freed */
     /* builder state */
     size_t cap_states, cap_pairs, cap_ptrs, cap_trans;
     int in_pair;

@@ -49,7 +49,7 @@ sl_status sl_evaluate_direct(sl_ctx *ctx, const sl_problem *p, const int32_t *po
         int64_t k = b->first_pair[i] - b->p_begin + policy[i];
         int64_t t0 = b->first_trans[k] - b->t_begin, t1 = b->first_trans[k + 1] - b->t_begin, w0 = w;
         for (int64_t t = t0; t < t1; t++) {
-            int64_t g = global_col(p, b->target[t]);
+            int64_t g = global_col(p, b->col[t]);
             double q = b->prob[t];
             int64_t j = w - 1;
             while (j >= w0 && cols[j] > g) {

@@ -96,7 +96,7 @@ static inline double qval(const sl_block *b, int64_t k, const double *x, double 
 {
     int64_t t0 = b->first_trans[k] - b->t_begin, t1 = b->first_trans[k + 1] - b->t_begin;
     double acc = 0.0;
-    for (int64_t t = t0; t < t1; t++) acc += b->prob[t] * x[b->target[t]];
+    for (int64_t t = t0; t < t1; t++) acc += b->prob[t] * x[b->col[t]];
     return b->reward[k] + gamma * acc;
 }
 

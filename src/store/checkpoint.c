@@ -1,8 +1,27 @@
-/* checkpoint.c - solver checkpoints: written atomically, two kept, validated on load. */
+/* checkpoint.c - solver checkpoints: written atomically, two kept, validated on load.
+ *
+ * Writing: the ranks send their slices to rank 0, which alone writes the
+ * file: HDF5's core driver builds it in memory and writes it to a temporary
+ * file with plain write(2) calls when it is flushed and closed; then
+ * sl_outfile_end fsyncs it, renames it to ckpt-NNNNNN.h5 and fsyncs the
+ * directory. A full disk, a quota or an I/O error is thus a failed write on
+ * rank 0: the temporary is removed, the earlier checkpoints are untouched
+ * and the error is reported (74). (With the MPI-IO driver, a disk that
+ * fills during the final flush leaves a file HDF5 can neither close nor
+ * forget, and the library then crashes inside MPI_Finalize.) The cost is
+ * O(n_states) memory on rank 0 while writing: 12 bytes per state plus the
+ * compressed file.
+ *
+ * Loading: every rank reads its own slice with parallel HDF5. A newest file
+ * that does not validate is skipped with a warning and, once an older one
+ * has been loaded, renamed to ckpt-NNNNNN.h5.unusable, so that keeping the
+ * newest two never keeps it in place of a valid checkpoint. */
 #include <dirent.h>
 #include <errno.h>
+#include <signal.h>
 #include <string.h>
 #include <sys/stat.h>
+#include <sys/types.h>
 #include <unistd.h>
 
 #include "store/h5.h"
@@ -10,6 +29,9 @@
 
 #define CKPT_KEEP 2
 #define CKPT_MAX_LIST 64
+#define CKPT_UNUSABLE ".unusable"
+/* elements per point-to-point message when gathering slices on rank 0 */
+#define CKPT_PIECE ((int64_t)1 << 24)
 
 static uint64_t checksum_f64(sl_ctx *ctx, const double *v, int64_t off, int64_t n)
 {
@@ -31,17 +53,28 @@ static uint64_t checksum_i32(sl_ctx *ctx, const int32_t *v, int64_t off, int64_t
     return tot;
 }
 
-/* Sequence numbers of ckpt-NNNNNN.h5 in dir, newest first (rank 0). */
-static int list_ckpts(const char *dir, int64_t *seq, int max)
+/* Sequence numbers of ckpt-NNNNNN.h5 in dir, newest first (rank 0).
+ * *max_any (if not NULL) receives the largest sequence number of any
+ * ckpt-N.h5* name, including files moved aside as unusable, so that a new
+ * checkpoint never reuses a number. */
+static int list_ckpts(const char *dir, int64_t *seq, int max, int64_t *max_any)
 {
     DIR *d = opendir(dir);
     if (d == NULL) return -1;
     int n = 0;
     struct dirent *e;
+    if (max_any) *max_any = 0;
     while ((e = readdir(d)) != NULL) {
-        long long s;
-        char tail[8];
-        if (sscanf(e->d_name, "ckpt-%lld.h5%7s", &s, tail) == 1 && s >= 0) {
+        long long s = -1;
+        int end = 0;
+        char canon[40];
+        /* exactly the names ckpt_path() makes; others (ckpt-7.h5, ckpt-000007.tmp) are not checkpoints */
+        if (sscanf(e->d_name, "ckpt-%lld%n", &s, &end) != 1 || s < 0 || strncmp(e->d_name + end, ".h5", 3) != 0)
+            continue;
+        snprintf(canon, sizeof(canon), "ckpt-%06lld", s);
+        if ((size_t)end != strlen(canon) || strncmp(e->d_name, canon, (size_t)end) != 0) continue;
+        if (max_any && s > *max_any) *max_any = s;
+        if (e->d_name[end + 3] == '\0') {
             if (n < max) seq[n++] = s;
             else {
                 /* keep the largest */
@@ -67,9 +100,36 @@ static void ckpt_path(char *buf, size_t n, const char *dir, int64_t seq)
     snprintf(buf, n, "%s/ckpt-%06lld.h5", dir, (long long)seq);
 }
 
-/* Test hook: SLUICE_FAULT_CKPT=N makes the N-th checkpoint write of this
- * process fail after its temporary file has been partly written, as a full
- * disk would. Only read from the environment; nothing global is changed. */
+/* Remove temporaries .ckpt-NNNNNN.h5.<pid>.partial left in dir by processes
+ * that no longer run on this host (a run killed during a write leaves one).
+ * A temporary of a live process, or of this one, is kept. Rank 0; failures
+ * to remove are only reported. */
+static void remove_stale_partials(sl_ctx *ctx, const char *dir)
+{
+    DIR *d = opendir(dir);
+    if (d == NULL) return;
+    struct dirent *e;
+    while ((e = readdir(d)) != NULL) {
+        long long s, pid;
+        char tail[16] = "";
+        if (sscanf(e->d_name, ".ckpt-%lld.h5.%lld%15s", &s, &pid, tail) != 3 || strcmp(tail, ".partial") != 0)
+            continue;
+        if (pid <= 0 || (pid_t)pid == getpid()) continue;
+        if (kill((pid_t)pid, 0) == 0 || errno != ESRCH) continue; /* alive, or not ours to judge */
+        char p[4200];
+        snprintf(p, sizeof(p), "%s/%s", dir, e->d_name);
+        if (unlink(p) == 0)
+            sl_log(ctx, "checkpoint: removed %s, left by process %lld, which has ended", p, pid);
+        else
+            sl_warn(ctx, "checkpoint: cannot remove the stale temporary %s: %s", p, strerror(errno));
+    }
+    closedir(d);
+}
+
+/* Test hook: SLUICE_FAULT_CKPT=N makes the write of checkpoint sequence
+ * number N (ckpt-N.h5) fail after its temporary file has been partly
+ * written, as a full disk would. Only read from the environment; nothing
+ * global is changed. */
 static int fault_due(int64_t count)
 {
     const char *f = getenv("SLUICE_FAULT_CKPT");
@@ -109,24 +169,6 @@ static sl_status read_state(sl_ctx *ctx, hid_t f, sl_solver_state *s, const char
     return st;
 }
 
-static sl_status write_history(sl_ctx *ctx, hid_t f, const sl_history *h, const char *p)
-{
-    sl_status st = SL_OK;
-    int64_t n = h->n, c = ctx->rank == 0 ? n : 0;
-    if (n == 0) return SL_OK;
-    SL_TRY(sl_h5_write_1d(ctx, f, "/history/iteration", H5T_STD_I64LE, H5T_NATIVE_INT64, n, 0, c, h->iteration, 0, p));
-    SL_TRY(sl_h5_write_1d(ctx, f, "/history/sweeps", H5T_STD_I64LE, H5T_NATIVE_INT64, n, 0, c, h->sweeps, 0, p));
-    SL_TRY(sl_h5_write_1d(ctx, f, "/history/seconds", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, 0, c, h->seconds, 0, p));
-    SL_TRY(sl_h5_write_1d(ctx, f, "/history/sup", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, 0, c, h->sup, 0, p));
-    SL_TRY(sl_h5_write_1d(ctx, f, "/history/span", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, 0, c, h->span, 0, p));
-    SL_TRY(sl_h5_write_1d(ctx, f, "/history/value_error_bound", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, 0, c,
-                          h->value_error, 0, p));
-    SL_TRY(sl_h5_write_1d(ctx, f, "/history/policy_loss_bound", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, 0, c,
-                          h->policy_loss, 0, p));
-cleanup:
-    return st;
-}
-
 static sl_status read_history(sl_ctx *ctx, hid_t f, sl_history *h, const char *p)
 {
     sl_status st = SL_OK;
@@ -145,24 +187,156 @@ cleanup:
     return st;
 }
 
+/* One whole 1-D dataset into a file open in this process only (rank 0). */
+static sl_status put_1d(sl_ctx *ctx, hid_t f, const char *name, hid_t ftype, hid_t mtype, int64_t n,
+                        const void *buf, int compress, const char *path)
+{
+    sl_status st = SL_OK;
+    hsize_t dims = (hsize_t)n, chunk = dims < SL_H5_CHUNK ? dims : SL_H5_CHUNK;
+    hid_t space = H5I_INVALID_HID, dcpl = H5I_INVALID_HID, lcpl = H5I_INVALID_HID, dset = H5I_INVALID_HID;
+    if (chunk == 0) chunk = 1;
+    space = H5Screate_simple(1, &dims, NULL);
+    dcpl = H5Pcreate(H5P_DATASET_CREATE);
+    lcpl = H5Pcreate(H5P_LINK_CREATE);
+    if (space < 0 || dcpl < 0 || lcpl < 0 || H5Pset_create_intermediate_group(lcpl, 1) < 0 ||
+        H5Pset_fill_time(dcpl, H5D_FILL_TIME_NEVER) < 0 || (n > 0 && H5Pset_chunk(dcpl, 1, &chunk) < 0) ||
+        (n > 0 && compress && (H5Pset_shuffle(dcpl) < 0 || H5Pset_deflate(dcpl, 1) < 0)))
+        SL_TRY(SL_ERR(ctx, SL_EINTERNAL, "%s: HDF5 property setup failed for %s", path, name));
+    dset = H5Dcreate2(f, name, ftype, space, lcpl, dcpl, H5P_DEFAULT);
+    if (dset < 0) SL_TRY(SL_ERR(ctx, SL_ENOMEM, "%s: cannot create dataset %s in memory", path, name));
+    if (n > 0 && H5Dwrite(dset, mtype, H5S_ALL, H5S_ALL, H5P_DEFAULT, buf) < 0)
+        SL_TRY(SL_ERR(ctx, SL_ENOMEM, "%s: cannot write dataset %s in memory", path, name));
+cleanup:
+    if (dset >= 0) H5Dclose(dset);
+    if (lcpl >= 0) H5Pclose(lcpl);
+    if (dcpl >= 0) H5Pclose(dcpl);
+    if (space >= 0) H5Sclose(space);
+    return st;
+}
+
+static sl_status put_history(sl_ctx *ctx, hid_t f, const sl_history *h, const char *p)
+{
+    sl_status st = SL_OK;
+    int64_t n = h->n;
+    if (n == 0) return SL_OK;
+    SL_TRY(put_1d(ctx, f, "/history/iteration", H5T_STD_I64LE, H5T_NATIVE_INT64, n, h->iteration, 0, p));
+    SL_TRY(put_1d(ctx, f, "/history/sweeps", H5T_STD_I64LE, H5T_NATIVE_INT64, n, h->sweeps, 0, p));
+    SL_TRY(put_1d(ctx, f, "/history/seconds", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, h->seconds, 0, p));
+    SL_TRY(put_1d(ctx, f, "/history/sup", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, h->sup, 0, p));
+    SL_TRY(put_1d(ctx, f, "/history/span", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, h->span, 0, p));
+    SL_TRY(put_1d(ctx, f, "/history/value_error_bound", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, h->value_error, 0, p));
+    SL_TRY(put_1d(ctx, f, "/history/policy_loss_bound", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, h->policy_loss, 0, p));
+cleanup:
+    return st;
+}
+
+/* Collect every rank's slice [s_begin, s_begin + n_local) of elements of
+ * `size` bytes into `all` on rank 0 (n_states elements; NULL elsewhere).
+ * Point-to-point in pieces, so counts beyond INT_MAX are fine. Collective;
+ * the caller has agreed that rank 0's buffer exists. */
+static void gather_slices(sl_ctx *ctx, const void *mine, int64_t s_begin, int64_t n_local, size_t size, void *all)
+{
+    int64_t here[2] = {s_begin, n_local};
+    if (ctx->rank != 0) {
+        MPI_Send(here, 2, MPI_INT64_T, 0, 1, ctx->comm);
+        for (int64_t i = 0; i < n_local; i += CKPT_PIECE) {
+            int64_t m = n_local - i < CKPT_PIECE ? n_local - i : CKPT_PIECE;
+            MPI_Send((const char *)mine + (size_t)i * size, (int)((size_t)m * size), MPI_BYTE, 0, 2, ctx->comm);
+        }
+        return;
+    }
+    if (n_local > 0) memcpy((char *)all + (size_t)s_begin * size, mine, (size_t)n_local * size);
+    for (int r = 1; r < ctx->size; r++) {
+        int64_t there[2];
+        MPI_Recv(there, 2, MPI_INT64_T, r, 1, ctx->comm, MPI_STATUS_IGNORE);
+        for (int64_t i = 0; i < there[1]; i += CKPT_PIECE) {
+            int64_t m = there[1] - i < CKPT_PIECE ? there[1] - i : CKPT_PIECE;
+            MPI_Recv((char *)all + (size_t)(there[0] + i) * size, (int)((size_t)m * size), MPI_BYTE, r, 2,
+                     ctx->comm, MPI_STATUS_IGNORE);
+        }
+    }
+}
+
+/* Write the whole checkpoint file `tmp` from rank 0 alone: HDF5's core
+ * driver builds it in memory and writes it out with plain write(2) calls
+ * when the file is flushed and closed. With `fault` (test hook), the file is
+ * then cut to half its size and the write reported as failed. */
+static sl_status write_file(sl_ctx *ctx, const char *tmp, const char *path, const char *fingerprint,
+                            int64_t n_states, const double *value, const int32_t *actions, const char *cvs,
+                            const char *cps, const sl_solver_state *state, const sl_history *hist, int fault)
+{
+    sl_status st = SL_OK;
+    hid_t fapl = H5I_INVALID_HID, f = H5I_INVALID_HID;
+    /* grow the in-memory image in steps of about the raw size of the arrays;
+     * write tracking makes the driver write only the pages in use, so the
+     * disk never needs more than the file's own size (plus a page) */
+    size_t step = (size_t)n_states * 12 + ((size_t)1 << 20);
+    H5Eset_auto2(H5E_DEFAULT, NULL, NULL);
+    fapl = H5Pcreate(H5P_FILE_ACCESS);
+    if (fapl < 0 || H5Pset_fapl_core(fapl, step, 1) < 0 || H5Pset_core_write_tracking(fapl, 1, 4096) < 0 ||
+        H5Pset_libver_bounds(fapl, H5F_LIBVER_V18, H5F_LIBVER_V110) < 0)
+        SL_TRY(SL_ERR(ctx, SL_EINTERNAL, "%s: cannot set up HDF5 file access", path));
+    errno = 0;
+    f = H5Fcreate(tmp, H5F_ACC_TRUNC, H5P_DEFAULT, fapl);
+    if (f < 0)
+        SL_TRY(SL_ERR(ctx, SL_EIO, "%s: cannot create the temporary file %s%s%s", path, tmp, errno ? ": " : "",
+                      errno ? strerror(errno) : ""));
+    SL_TRY(sl_h5_attr_write_str(ctx, f, "sluice_format", "checkpoint", path));
+    SL_TRY(sl_h5_attr_write_i64(ctx, f, "format_version", SLUICE_FORMAT_VERSION, path));
+    SL_TRY(sl_h5_attr_write_str(ctx, f, "model_fingerprint", fingerprint, path));
+    SL_TRY(sl_h5_attr_write_str(ctx, f, "sluice_version", SLUICE_VERSION, path));
+    SL_TRY(sl_h5_attr_write_i64(ctx, f, "n_states", n_states, path));
+    SL_TRY(sl_h5_attr_write_i64(ctx, f, "ranks", ctx->size, path));
+    SL_TRY(sl_h5_attr_write_str(ctx, f, "value_checksum", cvs, path));
+    SL_TRY(sl_h5_attr_write_str(ctx, f, "policy_checksum", cps, path));
+    SL_TRY(write_state(ctx, f, state, path));
+    SL_TRY(put_1d(ctx, f, "/value", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n_states, value, 1, path));
+    SL_TRY(put_1d(ctx, f, "/policy", H5T_STD_I32LE, H5T_NATIVE_INT32, n_states, actions, 1, path));
+    SL_TRY(put_history(ctx, f, hist, path));
+    /* the complete mark goes last */
+    SL_TRY(sl_h5_attr_write_i64(ctx, f, "complete", 1, path));
+    errno = 0;
+    if (H5Fflush(f, H5F_SCOPE_GLOBAL) < 0)
+        SL_TRY(SL_ERR(ctx, SL_EIO, "%s: writing the checkpoint failed: %s", path,
+                      errno ? strerror(errno) : "HDF5 could not write the file (disk full?)"));
+cleanup:
+    /* with the core driver a failed close still releases the file */
+    errno = 0;
+    if (f >= 0 && H5Fclose(f) < 0 && st == SL_OK)
+        st = SL_ERR(ctx, SL_EIO, "%s: writing the checkpoint failed at close: %s", path,
+                    errno ? strerror(errno) : "HDF5 could not write the file (disk full?)");
+    if (fapl >= 0) H5Pclose(fapl);
+    if (st == SL_OK && fault) {
+        struct stat sb;
+        if (stat(tmp, &sb) == 0 && truncate(tmp, sb.st_size / 2) != 0)
+            sl_warn(ctx, "%s: test hook could not truncate %s: %s", path, tmp, strerror(errno));
+        st = SL_ERR(ctx, SL_EIO, "%s: injected write failure (SLUICE_FAULT_CKPT)", path);
+    }
+    return st;
+}
+
 sl_status sl_ckpt_write(sl_ctx *ctx, const char *dir, const char *fingerprint, int64_t n_states, int64_t s_begin,
                         int64_t n_local, const double *value, const int32_t *actions, const sl_solver_state *state,
                         const sl_history *hist)
 {
     sl_status st = SL_OK;
     int64_t seq[CKPT_MAX_LIST];
-    int64_t next = 1;
+    int64_t next = 1, max_any = 0;
     int nlist = 0;
     char path[4200];
     sl_outfile of;
-    hid_t f = H5I_INVALID_HID;
+    double *all_v = NULL;
+    int32_t *all_a = NULL;
     if (ctx->rank == 0) {
         if (mkdir(dir, 0755) != 0 && errno != EEXIST)
             st = SL_ERR(ctx, SL_ECANTCREAT, "%s: cannot create checkpoint directory: %s", dir, strerror(errno));
-        else if ((nlist = list_ckpts(dir, seq, CKPT_MAX_LIST)) < 0)
-            st = SL_ERR(ctx, SL_EIO, "%s: cannot list checkpoint directory: %s", dir, strerror(errno));
-        else if (nlist > 0)
-            next = seq[0] + 1;
+        else {
+            remove_stale_partials(ctx, dir);
+            if ((nlist = list_ckpts(dir, seq, CKPT_MAX_LIST, &max_any)) < 0)
+                st = SL_ERR(ctx, SL_EIO, "%s: cannot list checkpoint directory: %s", dir, strerror(errno));
+            else
+                next = max_any + 1;
+        }
     }
     SL_TRY(sl_agree(ctx, st));
     MPI_Bcast(&next, 1, MPI_INT64_T, 0, ctx->comm);
@@ -173,50 +347,37 @@ sl_status sl_ckpt_write(sl_ctx *ctx, const char *dir, const char *fingerprint, i
     snprintf(cvs, sizeof(cvs), "%016llx", (unsigned long long)cv);
     snprintf(cps, sizeof(cps), "%016llx", (unsigned long long)cp);
 
+    if (ctx->rank == 0 && (SL_ALLOC(ctx, all_v, n_states, "checkpoint values") == NULL ||
+                           SL_ALLOC(ctx, all_a, n_states, "checkpoint policy") == NULL))
+        st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    gather_slices(ctx, value, s_begin, n_local, sizeof(double), all_v);
+    gather_slices(ctx, actions, s_begin, n_local, sizeof(int32_t), all_a);
+
     SL_TRY(sl_outfile_begin(ctx, &of, path));
-    st = sl_h5_create(ctx, of.tmp_path, &f);
-    if (st == SL_OK) st = sl_h5_attr_write_str(ctx, f, "sluice_format", "checkpoint", path);
-    if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "format_version", SLUICE_FORMAT_VERSION, path);
-    if (st == SL_OK) st = sl_h5_attr_write_str(ctx, f, "model_fingerprint", fingerprint, path);
-    if (st == SL_OK) st = sl_h5_attr_write_str(ctx, f, "sluice_version", SLUICE_VERSION, path);
-    if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "n_states", n_states, path);
-    if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "ranks", ctx->size, path);
-    if (st == SL_OK) st = sl_h5_attr_write_str(ctx, f, "value_checksum", cvs, path);
-    if (st == SL_OK) st = sl_h5_attr_write_str(ctx, f, "policy_checksum", cps, path);
-    if (st == SL_OK) st = write_state(ctx, f, state, path);
-    st = sl_agree(ctx, st);
-    if (st == SL_OK)
-        st = sl_h5_write_1d(ctx, f, "/value", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n_states, s_begin, n_local, value, 1,
-                            path);
-    if (st == SL_OK && fault_due(next))
-        st = SL_ERR(ctx, SL_EIO, "%s: injected write failure (SLUICE_FAULT_CKPT)", path);
-    st = sl_agree(ctx, st);
-    if (st == SL_OK)
-        st = sl_h5_write_1d(ctx, f, "/policy", H5T_STD_I32LE, H5T_NATIVE_INT32, n_states, s_begin, n_local, actions, 1,
-                            path);
-    if (st == SL_OK) st = write_history(ctx, f, hist, path);
-    /* the complete mark goes last */
-    if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "complete", 1, path);
-    st = sl_agree(ctx, st);
-    if (f >= 0) {
-        sl_status cs = sl_h5_close(ctx, &f, path);
-        if (st == SL_OK) st = cs;
-    }
+    if (ctx->rank == 0)
+        st = write_file(ctx, of.tmp_path, path, fingerprint, n_states, all_v, all_a, cvs, cps, state, hist,
+                        fault_due(next));
+    /* agrees; on success fsync, rename, fsync the directory; else remove the temporary */
     st = sl_outfile_end(ctx, &of, st);
     if (st != SL_OK) {
         /* the previous checkpoints are untouched */
-        return SL_ERR(ctx, st == SL_ENOMEM ? SL_ENOMEM : SL_EIO, "%s", ctx->err);
+        st = SL_ERR(ctx, st == SL_ENOMEM ? SL_ENOMEM : SL_EIO, "%s", ctx->err);
+        goto cleanup;
     }
     /* keep the newest CKPT_KEEP */
     if (ctx->rank == 0) {
-        nlist = list_ckpts(dir, seq, CKPT_MAX_LIST);
+        nlist = list_ckpts(dir, seq, CKPT_MAX_LIST, NULL);
         for (int i = CKPT_KEEP; i < nlist; i++) {
             char old[4200];
             ckpt_path(old, sizeof(old), dir, seq[i]);
-            unlink(old);
+            if (unlink(old) != 0 && errno != ENOENT)
+                sl_warn(ctx, "checkpoint: cannot remove the old %s: %s", old, strerror(errno));
         }
     }
 cleanup:
+    free(all_v);
+    free(all_a);
     return st;
 }
 
@@ -265,6 +426,23 @@ cleanup:
     return st;
 }
 
+/* Rename the n newer checkpoints that did not validate to
+ * ckpt-NNNNNN.h5.unusable (rank 0): they stay for inspection but no longer
+ * count among the newest two kept, nor are they tried again. */
+static void set_aside(sl_ctx *ctx, const char *dir, const int64_t *seq, int n)
+{
+    if (ctx->rank != 0) return;
+    for (int i = 0; i < n; i++) {
+        char from[4200], to[4300];
+        ckpt_path(from, sizeof(from), dir, seq[i]);
+        snprintf(to, sizeof(to), "%s%s", from, CKPT_UNUSABLE);
+        if (rename(from, to) == 0)
+            sl_warn(ctx, "moved the unusable %s aside to %s", from, to);
+        else
+            sl_warn(ctx, "cannot move the unusable %s aside: %s", from, strerror(errno));
+    }
+}
+
 sl_status sl_ckpt_load(sl_ctx *ctx, const char *dir, const char *fingerprint, int64_t n_states, int64_t s_begin,
                        int64_t n_local, double *value, int32_t *actions, sl_solver_state *state, sl_history *hist,
                        int *found)
@@ -277,8 +455,10 @@ sl_status sl_ckpt_load(sl_ctx *ctx, const char *dir, const char *fingerprint, in
         struct stat sb;
         if (stat(dir, &sb) != 0) n = 0; /* no directory yet: fresh start */
         else if (!S_ISDIR(sb.st_mode)) st = SL_ERR(ctx, SL_EUSAGE, "%s: not a directory", dir);
-        else if ((n = list_ckpts(dir, seq, CKPT_MAX_LIST)) < 0)
+        else if ((n = list_ckpts(dir, seq, CKPT_MAX_LIST, NULL)) < 0)
             st = SL_ERR(ctx, SL_ENOINPUT, "%s: cannot list: %s", dir, strerror(errno));
+        else
+            remove_stale_partials(ctx, dir);
     }
     SL_TRY(sl_agree(ctx, st));
     MPI_Bcast(&n, 1, MPI_INT, 0, ctx->comm);
@@ -291,8 +471,10 @@ sl_status sl_ckpt_load(sl_ctx *ctx, const char *dir, const char *fingerprint, in
         ckpt_path(path, sizeof(path), dir, seq[i]);
         st = try_load(ctx, path, fingerprint, n_states, s_begin, n_local, value, actions, state, hist, &refuse);
         if (st == SL_OK) {
-            if (i > 0)
+            if (i > 0) {
                 sl_warn(ctx, "newest checkpoint is unusable (%s); resuming from the older %s", first_err, path);
+                set_aside(ctx, dir, seq, i);
+            }
             *found = 1;
             return SL_OK;
         }
@@ -301,7 +483,8 @@ sl_status sl_ckpt_load(sl_ctx *ctx, const char *dir, const char *fingerprint, in
         else sl_warn(ctx, "checkpoint unusable: %s", ctx->err);
         sl_error_clear(ctx);
     }
-    return SL_ERR(ctx, SL_EDATA, "%s: no usable checkpoint (%s); remove the directory to start afresh", dir, first_err);
+    return SL_ERR(ctx, SL_EDATA, "%s: no usable checkpoint (%s); to start afresh, move the directory aside", dir,
+                  first_err);
 cleanup:
     return st;
 }
