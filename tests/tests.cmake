@@ -27,6 +27,7 @@ endforeach()
 
 # shell-driven CLI and MPI tests
 file(GLOB SLUICE_CLI_TESTS CONFIGURE_DEPENDS ${PROJECT_SOURCE_DIR}/tests/cli/*.sh)
+list(FILTER SLUICE_CLI_TESTS EXCLUDE REGEX "/lib\\.sh$")  # shared helpers, not a test
 foreach(script ${SLUICE_CLI_TESTS})
   get_filename_component(name ${script} NAME_WE)
   add_test(NAME cli_${name} COMMAND bash ${script} $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/cli_${name}

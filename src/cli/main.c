@@ -113,10 +113,6 @@ int cli_int64(cli_args *a, const char *opt, const char *s, int64_t *out)
 int main(int argc, char **argv)
 {
     int provided = 0;
-    /* Started without a launcher: a one-rank run needs no daemon (Open MPI
-     * otherwise forks one for a singleton); saves a few tenths of a second. */
-    if (!getenv("OMPI_COMM_WORLD_SIZE") && !getenv("PMIX_RANK") && !getenv("PMI_RANK"))
-        setenv("OMPI_MCA_ess_singleton_isolated", "1", 0);
     if (MPI_Init_thread(&argc, &argv, MPI_THREAD_SINGLE, &provided) != MPI_SUCCESS) {
         fprintf(stderr, "sluice: MPI initialisation failed\n");
         return SL_EINTERNAL;

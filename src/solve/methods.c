@@ -17,7 +17,8 @@ typedef struct run {
     int32_t *actions;       /* scratch for writing */
     sl_history hist;
     sl_solver_state S;
-    double t0;              /* start of this process's solve */
+    double t0;              /* start of this process's solve (reset at each checkpoint) */
+    double wall0;           /* start of this process's solve, for --walltime */
     double tol;
     double last_ckpt, last_progress;
     sl_check last;
@@ -76,7 +77,12 @@ static int check(run *r, int32_t *pol)
                         r->last.value_error, r->last.policy_loss) != SL_OK)
         return -1;
     progress(r, &r->last, 0);
-    return r->last.value_error <= r->tol && r->last.policy_loss <= r->tol;
+    if (r->last.value_error <= r->tol && r->last.policy_loss <= r->tol) return 1;
+    /* The measured spread of d has reached the roundoff allowance: further
+     * sweeps cannot shrink the certificate below its floor. */
+    double fp = 0.5 * (r->last.span - (r->last.dmax - r->last.dmin));
+    if (r->last.dmax - r->last.dmin <= 2.0 * fp) return 3;
+    return 0;
 }
 
 /* ---- output ------------------------------------------------------------------- */
@@ -232,7 +238,7 @@ static int poll(run *r)
         /* stop with a margin for the final write: 5% or 10 s, whichever is more (common practice, no source) */
         double margin = fmax(10.0, 0.05 * r->o->walltime);
         if (r->o->walltime < 60) margin = fmin(margin, 0.2 * r->o->walltime);
-        if (now - r->t0 >= r->o->walltime - margin) want = POLL_STOP;
+        if (now - r->wall0 >= r->o->walltime - margin) want = POLL_STOP;
     }
     int agreed = 0;
     MPI_Allreduce(&want, &agreed, 1, MPI_INT, MPI_MAX, r->ctx->comm);
@@ -380,6 +386,7 @@ sl_status sl_solve(sl_ctx *ctx, const sl_solve_opts *o)
     r->ctx = ctx;
     r->o = o;
     r->t0 = sl_now();
+    r->wall0 = r->t0;
     r->last_ckpt = r->t0;
     r->last_progress = r->t0 - 1e9;
     r->tol = o->tolerance > 0 ? o->tolerance : 1e-6;
@@ -456,10 +463,14 @@ sl_status sl_solve(sl_ctx *ctx, const sl_solve_opts *o)
         st = sl_agree(ctx, st);
         if (st != SL_OK) goto cleanup;
         if (c < 0) SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_ENOMEM, "out of memory recording the history")));
-        if (c == 2) {
-            sl_warn(ctx, "policy iteration: the policy is stable but roundoff limits the certificate to %.3e",
-                    r->last.policy_loss);
-            outcome = SL_ESTOPPED;
+        if (c == 2 || c == 3) {
+            /* not 75: a requeued job could never do better */
+            sl_warn(ctx, "cannot certify the tolerance %.1e: floating-point roundoff limits this model's "
+                         "certificate to about %.3e (value) and %.3e (policy); the solution is written with "
+                         "converged=0; ask for a tolerance of at least %.1e",
+                    r->tol, r->last.value_error, r->last.policy_loss,
+                    fmax(r->last.value_error, r->last.policy_loss) * 2.0);
+            outcome = SL_EUSAGE;
             break;
         }
         if (c == 1) {
@@ -472,6 +483,9 @@ sl_status sl_solve(sl_ctx *ctx, const sl_solve_opts *o)
     SL_TRY(write_report(r, converged, outcome));
     summary(r, converged);
     st = outcome;
+    if (outcome == SL_EUSAGE)
+        st = SL_ERR(ctx, SL_EUSAGE, "tolerance %.1e is below the roundoff floor of this model (about %.1e)", r->tol,
+                    fmax(r->last.value_error, r->last.policy_loss));
 cleanup:
     sl_evaluate_direct_free(&r->lu);
     free(r->x);
