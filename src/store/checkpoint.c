@@ -176,13 +176,10 @@ static sl_status read_history(sl_ctx *ctx, hid_t f, sl_history *h, const char *p
     int64_t n = sl_h5_length(f, "/history/iteration");
     if (n <= 0) return SL_OK;
     for (int64_t i = 0; i < n; i++) SL_TRY(sl_history_push(ctx, h, 0, 0, 0, 0, 0, 0, 0));
-    SL_TRY(sl_h5_read_1d(ctx, f, "/history/iteration", H5T_NATIVE_INT64, n, 0, n, h->iteration, p));
-    SL_TRY(sl_h5_read_1d(ctx, f, "/history/sweeps", H5T_NATIVE_INT64, n, 0, n, h->sweeps, p));
-    SL_TRY(sl_h5_read_1d(ctx, f, "/history/seconds", H5T_NATIVE_DOUBLE, n, 0, n, h->seconds, p));
-    SL_TRY(sl_h5_read_1d(ctx, f, "/history/sup", H5T_NATIVE_DOUBLE, n, 0, n, h->sup, p));
-    SL_TRY(sl_h5_read_1d(ctx, f, "/history/span", H5T_NATIVE_DOUBLE, n, 0, n, h->span, p));
-    SL_TRY(sl_h5_read_1d(ctx, f, "/history/value_error_bound", H5T_NATIVE_DOUBLE, n, 0, n, h->value_error, p));
-    SL_TRY(sl_h5_read_1d(ctx, f, "/history/policy_loss_bound", H5T_NATIVE_DOUBLE, n, 0, n, h->policy_loss, p));
+    sl_history_column col[SL_HISTORY_COLUMNS];
+    sl_history_columns(h, col);
+    for (int k = 0; k < SL_HISTORY_COLUMNS; k++)
+        SL_TRY(sl_h5_read_1d(ctx, f, col[k].name, col[k].mtype, n, 0, n, col[k].data, p));
 cleanup:
     return st;
 }
@@ -219,13 +216,10 @@ static sl_status put_history(sl_ctx *ctx, hid_t f, const sl_history *h, const ch
     sl_status st = SL_OK;
     int64_t n = h->n;
     if (n == 0) return SL_OK;
-    SL_TRY(put_1d(ctx, f, "/history/iteration", H5T_STD_I64LE, H5T_NATIVE_INT64, n, h->iteration, 0, p));
-    SL_TRY(put_1d(ctx, f, "/history/sweeps", H5T_STD_I64LE, H5T_NATIVE_INT64, n, h->sweeps, 0, p));
-    SL_TRY(put_1d(ctx, f, "/history/seconds", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, h->seconds, 0, p));
-    SL_TRY(put_1d(ctx, f, "/history/sup", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, h->sup, 0, p));
-    SL_TRY(put_1d(ctx, f, "/history/span", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, h->span, 0, p));
-    SL_TRY(put_1d(ctx, f, "/history/value_error_bound", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, h->value_error, 0, p));
-    SL_TRY(put_1d(ctx, f, "/history/policy_loss_bound", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, h->policy_loss, 0, p));
+    sl_history_column col[SL_HISTORY_COLUMNS];
+    sl_history_columns(h, col);
+    for (int k = 0; k < SL_HISTORY_COLUMNS; k++)
+        SL_TRY(put_1d(ctx, f, col[k].name, col[k].ftype, col[k].mtype, n, col[k].data, 0, p));
 cleanup:
     return st;
 }

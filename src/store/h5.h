@@ -46,6 +46,17 @@ void sl_h5_sizes(hid_t file, const char *name, double *stored, double *raw);
 /* Is the on-disk integer type of `name` 32-bit unsigned? Local. */
 int sl_h5_is_u32(hid_t file, const char *name);
 
+/* The residual history as a table of 1-D columns, so every file kind that
+ * stores it writes and reads the same datasets. */
+#define SL_HISTORY_COLUMNS 7
+typedef struct sl_history_column {
+    const char *name;   /* dataset path, e.g. "/history/sup" */
+    hid_t ftype, mtype; /* file and memory types */
+    void *data;         /* the history's array */
+} sl_history_column;
+struct sl_history;
+void sl_history_columns(const struct sl_history *h, sl_history_column cols[SL_HISTORY_COLUMNS]);
+
 /* Fixed-length string type of n bytes (close with H5Tclose). */
 hid_t sl_h5_str_type(size_t n);
 

@@ -49,6 +49,20 @@ sl_status sl_history_push(sl_ctx *ctx, sl_history *h, int64_t iteration, int64_t
     return SL_OK;
 }
 
+void sl_history_columns(const sl_history *h, sl_history_column c[SL_HISTORY_COLUMNS])
+{
+    sl_history_column t[SL_HISTORY_COLUMNS] = {
+        {"/history/iteration", H5T_STD_I64LE, H5T_NATIVE_INT64, h->iteration},
+        {"/history/sweeps", H5T_STD_I64LE, H5T_NATIVE_INT64, h->sweeps},
+        {"/history/seconds", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, h->seconds},
+        {"/history/sup", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, h->sup},
+        {"/history/span", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, h->span},
+        {"/history/value_error_bound", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, h->value_error},
+        {"/history/policy_loss_bound", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, h->policy_loss},
+    };
+    memcpy(c, t, sizeof(t));
+}
+
 static const char *kind_str(sl_file_kind k)
 {
     return k == SL_FILE_VALUES ? "values" : k == SL_FILE_CHECKPOINT ? "checkpoint" : "solution";
@@ -94,15 +108,10 @@ sl_status sl_store_solution_write(sl_ctx *ctx, const char *path, sl_file_kind ki
                               1, p));
     if (hist && hist->n > 0) {
         int64_t n = hist->n, c = ctx->rank == 0 ? n : 0;
-        SL_TRY(sl_h5_write_1d(ctx, f, "/history/iteration", H5T_STD_I64LE, H5T_NATIVE_INT64, n, 0, c, hist->iteration, 0, p));
-        SL_TRY(sl_h5_write_1d(ctx, f, "/history/sweeps", H5T_STD_I64LE, H5T_NATIVE_INT64, n, 0, c, hist->sweeps, 0, p));
-        SL_TRY(sl_h5_write_1d(ctx, f, "/history/seconds", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, 0, c, hist->seconds, 0, p));
-        SL_TRY(sl_h5_write_1d(ctx, f, "/history/sup", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, 0, c, hist->sup, 0, p));
-        SL_TRY(sl_h5_write_1d(ctx, f, "/history/span", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, 0, c, hist->span, 0, p));
-        SL_TRY(sl_h5_write_1d(ctx, f, "/history/value_error_bound", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, 0, c,
-                              hist->value_error, 0, p));
-        SL_TRY(sl_h5_write_1d(ctx, f, "/history/policy_loss_bound", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, 0, c,
-                              hist->policy_loss, 0, p));
+        sl_history_column col[SL_HISTORY_COLUMNS];
+        sl_history_columns(hist, col);
+        for (int k = 0; k < SL_HISTORY_COLUMNS; k++)
+            SL_TRY(sl_h5_write_1d(ctx, f, col[k].name, col[k].ftype, col[k].mtype, n, 0, c, col[k].data, 0, p));
     }
     st = sl_h5_close(ctx, &f, p);
 cleanup:
