@@ -4,7 +4,7 @@
 #include <math.h>
 #include <string.h>
 
-#include "report/json.h"
+#include "core/json.h"
 #include "solve/solve.h"
 #include "store/store.h"
 

@@ -2,7 +2,7 @@
 #ifndef SL_SOLVE_H
 #define SL_SOLVE_H
 
-#include "dist/dist.h"
+#include "parallel/layout.h"
 
 /* A model loaded across ranks: each rank owns rows [s_begin, s_end) with
  * targets rewritten to local columns of x = [owned | halo]. */

@@ -215,7 +215,7 @@ expect "solve: a reward edited, fingerprint not updated" --code 65 --err "reward
 # report the damage (65, naming the file); with the fingerprint recomputed,
 # validation must, in its own words.
 expect "info: /state/first_pair not monotone" --code 65 --err "first_pair.h5" --err "first_pair" \
-    --bug "src/report/info.c (the index scan behind 'actions per state'): a decreasing /state/first_pair is printed as a negative action count with exit 0 instead of being reported (65)" \
+    --bug "src/cli/info.c (the index scan behind 'actions per state'): a decreasing /state/first_pair is printed as a negative action count with exit 0 instead of being reported (65)" \
     -- "$SLUICE" info "$W/first_pair.h5"
 expect "solve: /state/first_pair not monotone (fingerprint not updated)" --code 65 --err "first_pair.h5" \
     --gone "$S" -- "$SLUICE" solve -q "$W/first_pair.h5" -o "$S"

@@ -81,7 +81,7 @@ expect "evaluate: policy action not available" --code 65 --err "bad_action.h5" -
     --err "action 1" --gone "$O" -- "$SLUICE" evaluate -q "$A" --policy "$W/bad_action.h5" -o "$O"
 expect "export: policy action not available" --code 65 --err "bad_action.h5" --err "state 1" \
     --err "action 1" --gone "$C" \
-    --bug "src/report/export.c sl_export: loads the model without rows (need_rows=0), so a policy action the model lacks in that state is exported with exit 0" \
+    --bug "src/cli/export.c sl_export: loads the model without rows (need_rows=0), so a policy action the model lacks in that state is exported with exit 0" \
     -- "$SLUICE" export "$W/bad_action.h5" --model "$A" -o "$C"
 expect "verify: a model file given as the solution" --code 65 --err "a.h5" --err "not a solution" -- \
     "$SLUICE" verify -q "$A" "$A"

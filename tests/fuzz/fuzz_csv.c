@@ -3,7 +3,7 @@
  * Build with clang through the MPI compiler wrapper (OMPI_CC=clang mpicc),
  * flags -fsanitize=fuzzer,address,undefined, the include directories src/
  * and include/ and those of hdf5-openmpi, linking this file with the library
- * sources of src/core, src/model, src/compile (csv.c, import.c, estimate.c)
+ * sources of src/core, src/model, src/input (csv.c, import.c, estimate.c)
  * and src/store. Seeds: a selector byte (below) followed by the contents of
  * a tests/data/csv_*.csv file.
  *
@@ -19,7 +19,7 @@
 #include <stdlib.h>
 #include <string.h>
 
-#include "compile/csv.h"
+#include "input/csv.h"
 
 int LLVMFuzzerInitialize(int *argc, char ***argv);
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size);

@@ -12,7 +12,7 @@
 
 #include <cmocka.h>
 
-#include "compile/csv.h"
+#include "input/csv.h"
 #include "store/store.h"
 
 /* ---- helpers ------------------------------------------------------------- */

@@ -1,6 +1,6 @@
-/* dist.h - partition of states over ranks and the halo exchange of values. */
-#ifndef SL_DIST_H
-#define SL_DIST_H
+/* layout.h - partition of states over ranks and the halo exchange of values. */
+#ifndef SL_PARALLEL_LAYOUT_H
+#define SL_PARALLEL_LAYOUT_H
 
 #include "model/model.h"
 
@@ -47,4 +47,4 @@ double sl_min(sl_ctx *ctx, double v);
 int64_t sl_sum_i64(sl_ctx *ctx, int64_t v);
 int64_t sl_exscan_i64(sl_ctx *ctx, int64_t v);
 
-#endif /* SL_DIST_H */
+#endif /* SL_PARALLEL_LAYOUT_H */

@@ -10,7 +10,7 @@
 #include <sys/wait.h>
 #include <unistd.h>
 
-#include "dist/dist.h"
+#include "parallel/layout.h"
 #include "store/store.h"
 
 extern char **environ;

@@ -1,5 +1,5 @@
 /* dist.c - partition by transitions, halo plan and exchange, reductions. */
-#include "dist/dist.h"
+#include "parallel/layout.h"
 
 #include <string.h>
 

@@ -2,7 +2,7 @@
 #ifndef _POSIX_C_SOURCE
 #define _POSIX_C_SOURCE 200809L
 #endif
-#include "compile/csv.h"
+#include "input/csv.h"
 
 #include <errno.h>
 #include <float.h>

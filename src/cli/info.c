@@ -4,8 +4,8 @@
 #include <string.h>
 #include <sys/stat.h>
 
-#include "dist/dist.h"
-#include "report/json.h"
+#include "parallel/layout.h"
+#include "core/json.h"
 #include "store/h5.h"
 #include "store/store.h"
 

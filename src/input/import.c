@@ -1,5 +1,5 @@
 /* import.c - `sluice import`: a triplet CSV (one row per transition) to a model file. */
-#include "compile/csv.h"
+#include "input/csv.h"
 
 #include <string.h>
 

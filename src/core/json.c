@@ -1,5 +1,5 @@
 /* json.c - minimal streaming JSON writer. */
-#include "report/json.h"
+#include "core/json.h"
 
 #include <math.h>
 

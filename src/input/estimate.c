@@ -1,5 +1,5 @@
 /* estimate.c - `sluice estimate`: a maximum-likelihood model from logged experience. */
-#include "compile/csv.h"
+#include "input/csv.h"
 
 #include <string.h>
 
