@@ -149,8 +149,7 @@ sl_status sl_evaluate_iterative(sl_ctx *ctx, const sl_problem *p, const int32_t 
     *sweeps = 0;
     int64_t since = 0, interval = 1;
     for (;;) {
-        sl_halo_exchange(ctx, &p->halo, x);
-        sl_sweep_gs(p, x, pol, 1);
+        sl_sweep(ctx, p, x, pol, 1);
         (*sweeps)++;
         if (++since >= interval) {
             since = 0;
@@ -186,8 +185,7 @@ static sl_status load_with_policy(sl_ctx *ctx, const char *model, const char *so
         SL_ZALLOC(ctx, *value, nx, "values") == NULL)
         st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
-    SL_TRY(sl_store_solution_read(ctx, solution, SL_FILE_SOLUTION, p->meta.n_states, p->blk.s_begin, n, *value,
-                                  actions, info));
+    SL_TRY(sl_problem_solution_read(ctx, p, solution, SL_FILE_SOLUTION, *value, actions, info));
     if (strcmp(info->model_fingerprint, p->meta.fingerprint) != 0)
         SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EDATA,
                                     "%s was computed for a different model (fingerprint %s) than %s (fingerprint %s)",
@@ -255,8 +253,7 @@ sl_status sl_evaluate(sl_ctx *ctx, const sl_evaluate_opts *o)
     out.residual_min = c.dmin;
     out.residual_max = c.dmax;
     out.value_error_bound = c.value_error;
-    SL_TRY(sl_store_solution_write(ctx, o->output, SL_FILE_VALUES, P.meta.n_states, P.blk.s_begin, n, x, NULL, &out,
-                                   NULL));
+    SL_TRY(sl_problem_solution_write(ctx, &P, o->output, SL_FILE_VALUES, x, NULL, &out, NULL));
     sl_log(ctx, "evaluate: %s evaluation of the policy in %s: |value - v_policy| <= %.3e; wrote %s",
            direct ? "direct" : "iterative", o->policy, c.value_error, o->output);
 cleanup:

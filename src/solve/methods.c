@@ -125,8 +125,7 @@ static sl_status write_solution(run *r, int converged)
     in.residual_max = r->last.dmax;
     in.value_error_bound = r->last.value_error;
     in.policy_loss_bound = r->last.policy_loss;
-    st = sl_store_solution_write(ctx, r->o->output, SL_FILE_SOLUTION, r->P.meta.n_states, r->P.blk.s_begin, n, val,
-                                 r->actions, &in, &r->hist);
+    st = sl_problem_solution_write(ctx, &r->P, r->o->output, SL_FILE_SOLUTION, val, r->actions, &in, &r->hist);
 cleanup:
     free(pol2);
     free(val);
@@ -252,8 +251,7 @@ static sl_status checkpoint(run *r)
     r->S.elapsed = elapsed(r);
     r->t0 = sl_now();
     snprintf(r->S.method, sizeof(r->S.method), "%s", sl_method_name(r->o->method));
-    sl_status st = sl_ckpt_write(r->ctx, r->o->checkpoint_dir, r->P.meta.fingerprint, r->P.meta.n_states,
-                                 r->P.blk.s_begin, r->P.n_local, r->x, r->actions, &r->S, &r->hist);
+    sl_status st = sl_problem_ckpt_write(r->ctx, &r->P, r->o->checkpoint_dir, r->x, r->actions, &r->S, &r->hist);
     r->last_ckpt = sl_now();
     if (st == SL_OK) {
         r->n_ckpt++;
@@ -268,8 +266,7 @@ static sl_status checkpoint(run *r)
 /* One step of a method. Returns 1 converged, 0 continue, <0 error (st set). */
 static int step_gs(run *r)
 {
-    sl_halo_exchange(r->ctx, &r->P.halo, r->x);
-    double delta = sl_max(r->ctx, sl_sweep_gs(&r->P, r->x, r->pol, 0));
+    double delta = sl_max(r->ctx, sl_sweep(r->ctx, &r->P, r->x, r->pol, 0));
     r->S.sweeps++;
     r->S.since_check++;
     r->S.iteration++;
@@ -310,8 +307,7 @@ static int step_mpi(run *r)
     r->y = t;
     int64_t m = r->o->sweeps > 0 ? r->o->sweeps : r->S.mpi_m;
     for (int64_t j = 0; j < m; j++) {
-        sl_halo_exchange(r->ctx, &r->P.halo, r->x);
-        sl_sweep_gs(&r->P, r->x, r->pol, 1);
+        sl_sweep(r->ctx, &r->P, r->x, r->pol, 1);
         r->S.sweeps++;
     }
     /* adapt m: a stable policy deserves longer evaluation (Puterman & Shin 1978
@@ -412,8 +408,7 @@ sl_status sl_solve(sl_ctx *ctx, const sl_solve_opts *o)
     }
     if (o->resume && o->checkpoint_dir) {
         int found = 0;
-        SL_TRY(sl_ckpt_load(ctx, o->checkpoint_dir, r->P.meta.fingerprint, r->P.meta.n_states, r->P.blk.s_begin, n,
-                            r->x, r->actions, &r->S, &r->hist, &found));
+        SL_TRY(sl_problem_ckpt_load(ctx, &r->P, o->checkpoint_dir, r->x, r->actions, &r->S, &r->hist, &found));
         if (found) {
             SL_TRY(sl_agree(ctx, sl_policy_offsets(ctx, &r->P, r->actions, r->pol, o->checkpoint_dir)));
             if (strcmp(r->S.method, sl_method_name(o->method)) != 0) {

@@ -3,6 +3,7 @@
 #define SL_SOLVE_H
 
 #include "parallel/layout.h"
+#include "store/store.h"
 
 /* A model loaded across ranks: each rank owns rows [s_begin, s_end) with
  * targets rewritten to local columns of x = [owned | halo]. */
@@ -17,6 +18,11 @@ typedef struct sl_problem {
     int64_t *order;         /* [n_local] sweep order (local indices) */
     sl_order order_used;
     const char *path;
+    /* With a stage factor the model is renumbered internally (layout.h):
+     * blk, bounds and halo use internal ids, files use file ids. */
+    sl_stage_map stages;
+    sl_io_plan io;          /* internal <-> file order for I/O */
+    int staged;             /* sweeps run stage by stage on all ranks */
 } sl_problem;
 
 /* Load, partition by transitions, validate, check the fingerprint, build the
@@ -50,6 +56,31 @@ void sl_midpoint(const sl_problem *p, const double *y, const sl_check *c, double
  * policy != NULL and eval: sweep of the fixed policy. Returns the largest
  * change. Local. */
 double sl_sweep_gs(const sl_problem *p, double *x, int32_t *policy, int eval);
+
+/* The same sweep as a collective step: refresh the halo, then sweep. With
+ * the stage-interleaved layout and the stage-reverse order it sweeps one
+ * stage at a time on all ranks and refreshes that stage's halo entries
+ * before the next, so a state reads the values of the stages swept before
+ * it in this sweep, as on one rank: the iterates equal the one-rank
+ * iterates whenever no transition stays within a stage across ranks.
+ * Returns the local largest change (reduce it). Collective. */
+double sl_sweep(sl_ctx *ctx, const sl_problem *p, double *x, int32_t *policy, int eval);
+
+/* File id of owned local state i (for messages). Local. */
+int64_t sl_problem_file_state(const sl_problem *p, int64_t i);
+
+/* Solution, values and checkpoint files of a loaded problem: owned
+ * vectors in internal order are moved to (or from) file order and written
+ * (read) with the store functions. Collective. */
+sl_status sl_problem_solution_write(sl_ctx *ctx, const sl_problem *p, const char *path, sl_file_kind kind,
+                                    const double *value, const int32_t *actions, const sl_solution_info *info,
+                                    const sl_history *hist);
+sl_status sl_problem_solution_read(sl_ctx *ctx, const sl_problem *p, const char *path, sl_file_kind kind,
+                                   double *value, int32_t *actions, sl_solution_info *info);
+sl_status sl_problem_ckpt_write(sl_ctx *ctx, const sl_problem *p, const char *dir, const double *value,
+                                const int32_t *actions, const sl_solver_state *state, const sl_history *hist);
+sl_status sl_problem_ckpt_load(sl_ctx *ctx, const sl_problem *p, const char *dir, double *value, int32_t *actions,
+                               sl_solver_state *state, sl_history *hist, int *found);
 
 /* Exact value of a fixed policy: gather P_pi to rank 0, UMFPACK, scatter.
  * *used_direct = 0 (and x untouched) when the factorization would exceed

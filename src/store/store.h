@@ -39,7 +39,6 @@ sl_status sl_store_model_read(sl_ctx *ctx, const char *path, const sl_meta *meta
 sl_status sl_store_model_cumulative(sl_ctx *ctx, const char *path, int64_t s_begin,
                                     int64_t s_end, int64_t **cum);
 
-#endif /* SL_STORE_H */
 
 /* ---- solutions ---------------------------------------------------------------- */
 
@@ -116,3 +115,5 @@ sl_status sl_ckpt_load(sl_ctx *ctx, const char *dir, const char *fingerprint, in
 /* For `sluice info`: read a checkpoint's state and history. Collective. */
 sl_status sl_ckpt_info(sl_ctx *ctx, const char *path, char *fingerprint, int64_t *n_states,
                        sl_solver_state *state, sl_history *hist, int *complete);
+
+#endif /* SL_STORE_H */
