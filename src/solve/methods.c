@@ -223,6 +223,16 @@ enum { POLL_NONE = 0, POLL_CKPT = 1, POLL_STOP = 2 };
 
 /* Agree on what to do at this sweep boundary. Deterministic for the numbers:
  * only whether to write/stop depends on time or signals. Collective. */
+/* sl_now() time by which a --walltime run must stop (0: none): the margin
+ * is the one poll() uses */
+static double stop_deadline(const run *r)
+{
+    if (r->o->walltime <= 0) return 0;
+    double margin = fmax(10.0, 0.05 * r->o->walltime);
+    if (r->o->walltime < 60) margin = fmin(margin, 0.2 * r->o->walltime);
+    return r->wall0 + r->o->walltime - margin;
+}
+
 static int poll(run *r)
 {
     int want = 0;
@@ -333,8 +343,10 @@ static int step_pi(run *r, sl_status *st)
     int direct = 0;
     double est = 0;
     double limit = r->o->memory_limit > 0 ? r->o->memory_limit : 0.5 * sl_physical_memory();
-    *st = sl_evaluate_direct(ctx, &r->P, r->pol, limit, r->x, &direct, &est, &r->lu);
+    int abandoned = 0;
+    *st = sl_evaluate_direct(ctx, &r->P, r->pol, limit, stop_deadline(r), r->x, &direct, &abandoned, &est, &r->lu);
     if (*st != SL_OK) return -1;
+    if (abandoned) return 0; /* poll() acts on the stop request; x is as before */
     r->lu_estimate = est;
     if (!direct) {
         if (r->o->strict_memory) {
@@ -344,7 +356,7 @@ static int step_pi(run *r, sl_status *st)
                          est / 1e9, limit / 1e9);
             return -1;
         }
-        if (strcmp(r->evaluation, "iterative") != 0)
+        if (strcmp(r->evaluation, "iterative") != 0 && est > limit)
             sl_warn(ctx, "exact evaluation needs about %.2f GB (UMFPACK estimate), over the limit of %.2f GB: "
                          "evaluating iteratively",
                     est / 1e9, limit / 1e9);

@@ -84,10 +84,20 @@ sl_status sl_problem_ckpt_load(sl_ctx *ctx, const sl_problem *p, const char *dir
 
 /* Exact value of a fixed policy: gather P_pi to rank 0, UMFPACK, scatter.
  * *used_direct = 0 (and x untouched) when the factorization would exceed
- * memory_limit. Collective. */
+ * memory_limit or take longer than SL_DIRECT_TIME_LIMIT (or run past
+ * `deadline`, an sl_now() time; 0: none); once that has happened for this
+ * lu_cache, later calls return *used_direct = 0 at once. The numeric step
+ * runs in a child process of rank 0 that is killed when ctx's signal flag
+ * is set or the deadline passes: then *abandoned = 1, *used_direct = 0 and
+ * x is untouched. Collective. */
 sl_status sl_evaluate_direct(sl_ctx *ctx, const sl_problem *p, const int32_t *policy,
-                             double memory_limit, double *x, int *used_direct,
-                             double *estimate_bytes, void **lu_cache);
+                             double memory_limit, double deadline, double *x, int *used_direct,
+                             int *abandoned, double *estimate_bytes, void **lu_cache);
+/* Time guard of the direct solve (seconds): a factorization UMFPACK's flop
+ * estimate says will take longer is not started (rule of thumb, common
+ * practice, no source: a 10^6-state evaluation iterates to 1e-7 in about a
+ * minute here). */
+#define SL_DIRECT_TIME_LIMIT 120.0
 void sl_evaluate_direct_free(void **lu_cache);
 
 /* Iterative evaluation of a fixed policy to a certified sup error `tol`.
