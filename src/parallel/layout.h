@@ -39,7 +39,7 @@ typedef struct sl_halo {
 } sl_halo;
 
 /* Build the halo of a block: b->col gets the local column of every
- * transition in [owned | halo], and b->target (global ids) is freed.
+ * transition in [owned | halo]; b->target (global ids) is left as it is.
  * Collective. */
 sl_status sl_halo_build(sl_ctx *ctx, const int64_t *bounds, sl_block *b, sl_halo *h);
 /* Refresh the halo part of x from the owners. Collective. */
@@ -73,34 +73,37 @@ int64_t sl_stage_file(const sl_stage_map *m, int64_t i);
 /* The map of a model for nparts parts from the file's cumulative
  * transition counts cum[0..n_states] (all states). Local. */
 sl_status sl_stage_map_local(sl_ctx *ctx, const sl_meta *meta, const int64_t *cum, int nparts, sl_stage_map *m);
-/* The same, computed collectively for ctx->size parts without any rank
- * reading more than its share of the index. Collective. */
-sl_status sl_stage_map_dist(sl_ctx *ctx, const char *path, const sl_meta *meta, sl_stage_map *m);
+/* The map for ctx->size parts from the rows each rank holds (contiguous
+ * file ranges, global targets). Collective. */
+sl_status sl_stage_map_rows(sl_ctx *ctx, const sl_meta *meta, const sl_block *rows, sl_stage_map *m);
 /* Contiguous file ranges holding part r's states, ascending and merged:
  * runs[2k], runs[2k+1] = begin, end. *n_runs <= 2*S + 1. Local. */
 sl_status sl_stage_runs(sl_ctx *ctx, const sl_stage_map *m, int r, int64_t **runs, int64_t *n_runs);
-/* Read this rank's rows in internal order with targets as internal ids
- * (validated; fp_acc gets the fingerprint entries of the file rows).
- * block->s_begin = S*ub[rank]. Collective. */
-sl_status sl_stage_read(sl_ctx *ctx, const char *path, const sl_meta *meta, const sl_stage_map *m, sl_block *block,
-                        uint64_t fp_acc[2]);
+/* Move rows from their current layout (src: this rank's contiguous file
+ * range, src_bounds of all ranks, global file targets) to the
+ * stage-interleaved one: out gets this rank's states in internal order
+ * with targets as internal ids (out->target kept). Collective. */
+sl_status sl_stage_redistribute(sl_ctx *ctx, const sl_block *src, const int64_t *src_bounds, const sl_stage_map *m,
+                                sl_block *out);
 /* Per-stage exchange plan for a halo built on the stage-interleaved
  * bounds (bounds[r] = S*ub[r]). Local. */
 sl_status sl_halo_stage_plan(sl_ctx *ctx, const sl_stage_map *m, sl_halo *h);
 /* Refresh the halo entries of stage st only. Collective. */
 sl_status sl_halo_exchange_stage(sl_ctx *ctx, const sl_halo *h, double *x, int64_t st);
 
-/* Moving owned vectors between the internal layout and an even split of the
- * file order, for the solution, values and checkpoint files. Rank r's file
- * slice is [f_begin, f_begin + f_n). */
+/* Moving owned vectors between the internal layout and the model's layout
+ * (contiguous file ranges fbounds), for solutions and checkpoints. Rank r's
+ * file slice is [f_begin, f_begin + f_n) = [fbounds[r], fbounds[r + 1]). */
 typedef struct sl_io_plan {
     int64_t f_begin, f_n, n_local;
     int *scnt, *sdsp, *rcnt, *rdsp; /* [size] in elements */
     int64_t *spos;              /* [n_local] owned index at send slot k */
     int64_t *rpos;              /* [f_n] file-slice offset of receive slot k */
 } sl_io_plan;
-/* bounds: internal bounds of all ranks; file_of(i) via the map. Collective. */
-sl_status sl_io_plan_build(sl_ctx *ctx, const sl_stage_map *m, const int64_t *bounds, sl_io_plan *io);
+/* bounds: internal bounds of all ranks; file_of(i) via the map; fbounds:
+ * the destination layout. Collective. */
+sl_status sl_io_plan_build(sl_ctx *ctx, const sl_stage_map *m, const int64_t *bounds, const int64_t *fbounds,
+                           sl_io_plan *io);
 void sl_io_plan_free(sl_io_plan *io);
 /* owned (internal order) -> file slice, and back; elem bytes per entry.
  * Collective. */

@@ -1,11 +1,10 @@
 /* stages.c - stage-interleaved layout: internal renumbering of a model with
  * a stage factor so that every rank holds a share of every stage, the rows
- * read in that order, the per-stage halo exchange and the file-order I/O
- * redistribution. See layout.h for the numbering. */
+ * moved into that order, the per-stage halo exchange and the moves of
+ * vectors between the internal and the model's layout. See layout.h. */
 #include <string.h>
 
 #include "parallel/layout.h"
-#include "store/store.h"
 
 void sl_stage_map_free(sl_stage_map *m)
 {
@@ -80,19 +79,21 @@ sl_status sl_stage_map_local(sl_ctx *ctx, const sl_meta *meta, const int64_t *cu
     return SL_OK;
 }
 
-sl_status sl_stage_map_dist(sl_ctx *ctx, const char *path, const sl_meta *meta, sl_stage_map *m)
+sl_status sl_stage_map_rows(sl_ctx *ctx, const sl_meta *meta, const sl_block *rows, sl_stage_map *m)
 {
     sl_status st = map_shape(ctx, meta, ctx->size, m);
     st = sl_agree(ctx, st);
     if (st != SL_OK || !m->active) return st;
-    int64_t L = m->inner, S = m->n_stages, nu = L * m->outer, n = meta->n_states;
-    int64_t lo = n * ctx->rank / ctx->size, hi = n * (ctx->rank + 1) / ctx->size;
-    int64_t *cum = NULL, *cu = NULL;
-    st = sl_store_model_cumulative(ctx, path, lo, hi, &cum);
-    if (st == SL_OK && SL_ZALLOC(ctx, cu, nu + 1, "stage layout") == NULL) st = SL_ENOMEM;
+    int64_t L = m->inner, S = m->n_stages, nu = L * m->outer;
+    int64_t *cu = NULL;
+    if (SL_ZALLOC(ctx, cu, nu + 1, "stage layout") == NULL) st = SL_ENOMEM;
     st = sl_agree(ctx, st);
     if (st == SL_OK) {
-        for (int64_t s = lo; s < hi; s++) cu[1 + s % L + L * (s / (L * S))] += cum[s - lo + 1] - cum[s - lo];
+        for (int64_t i = 0; i < sl_block_states(rows); i++) {
+            int64_t s = rows->s_begin + i, p0 = rows->first_pair[i] - rows->p_begin;
+            int64_t p1 = rows->first_pair[i + 1] - rows->p_begin;
+            cu[1 + s % L + L * (s / (L * S))] += rows->first_trans[p1] - rows->first_trans[p0];
+        }
         /* in pieces: MPI counts are int */
         for (int64_t off = 1; off <= nu; off += 1 << 28) {
             int64_t c = nu + 1 - off < (1 << 28) ? nu + 1 - off : (1 << 28);
@@ -101,7 +102,6 @@ sl_status sl_stage_map_dist(sl_ctx *ctx, const char *path, const sl_meta *meta, 
         for (int64_t u = 0; u < nu; u++) cu[u + 1] += cu[u];
         sl_partition_split(cu, nu, ctx->size, m->ub);
     }
-    free(cum);
     free(cu);
     if (st != SL_OK) sl_stage_map_free(m);
     return st;
@@ -139,132 +139,161 @@ sl_status sl_stage_runs(sl_ctx *ctx, const sl_stage_map *m, int r, int64_t **run
     return SL_OK;
 }
 
-/* index of the run holding file state s (runs ascending, s inside one) */
-static int64_t find_run(const int64_t *runs, int64_t n, int64_t s)
-{
-    int64_t lo = 0, hi = n - 1;
-    while (lo < hi) {
-        int64_t mid = (lo + hi + 1) / 2;
-        if (runs[2 * mid] <= s) lo = mid;
-        else hi = mid - 1;
-    }
-    return lo;
-}
+static int fits_int(int64_t v) { return v >= 0 && v <= INT32_MAX; }
 
-sl_status sl_stage_read(sl_ctx *ctx, const char *path, const sl_meta *meta, const sl_stage_map *m, sl_block *out,
-                        uint64_t fp_acc[2])
+sl_status sl_stage_redistribute(sl_ctx *ctx, const sl_block *src, const int64_t *src_bounds, const sl_stage_map *m,
+                                sl_block *out)
 {
     sl_status st = SL_OK;
-    int r = ctx->rank;
-    int64_t *runs = NULL, nr = 0, maxr = 0;
-    sl_block *blk = NULL;
-    int32_t *src_run = NULL;
-    int64_t *src_idx = NULL;
+    int P = ctx->size, r = ctx->rank;
+    int64_t S = m->n_stages, a = m->ub[r], w = m->ub[r + 1] - a, ns = S * w;
+    int *qc = NULL, *qd = NULL, *ac = NULL, *ad = NULL, *pc = NULL, *pd = NULL, *rpc = NULL, *rpd = NULL;
+    int *tc = NULL, *td = NULL, *rtc = NULL, *rtd = NULL;
+    int64_t *req = NULL, *reqpos = NULL, *asked = NULL, *cur = NULL;
+    int64_t *snp = NULL, *rnp = NULL, *sntr = NULL, *rntr = NULL, *stg = NULL, *rtg = NULL;
+    int32_t *sact = NULL, *ract = NULL;
+    double *srew = NULL, *rrew = NULL, *spr = NULL, *rpr = NULL;
+    int64_t *poff = NULL, *toff = NULL;
     memset(out, 0, sizeof(*out));
-    st = sl_stage_runs(ctx, m, r, &runs, &nr);
-    if (st == SL_OK && SL_ZALLOC(ctx, blk, 2 * m->n_stages + 2, "stage runs") == NULL) st = SL_ENOMEM;
-    SL_TRY(sl_agree(ctx, st));
-    MPI_Allreduce(&nr, &maxr, 1, MPI_INT64_T, MPI_MAX, ctx->comm);
-    for (int64_t k = 0; k < maxr; k++) {
-        /* collective reads: ranks with fewer runs read empty ranges */
-        int64_t b0 = k < nr ? runs[2 * k] : 0, b1 = k < nr ? runs[2 * k + 1] : 0;
-        SL_TRY(sl_store_model_read(ctx, path, meta, b0, b1, &blk[k]));
-        if (k < nr) sl_fingerprint_local(&blk[k], fp_acc);
-    }
-    int64_t S = m->n_stages, L = m->inner, a = m->ub[r], w = m->ub[r + 1] - a, ns = S * w;
-    int64_t np = 0, nt = 0;
-    for (int64_t k = 0; k < nr; k++) {
-        np += sl_block_pairs(&blk[k]);
-        nt += sl_block_trans(&blk[k]);
-    }
-    int64_t p_begin = sl_exscan_i64(ctx, np), t_begin = sl_exscan_i64(ctx, nt);
-    if (nr == 1 && m->outer == 1) {
-        /* one file range already in internal order (one rank, stage factor
-         * slowest): keep it, renumber the targets in place */
-        *out = blk[0];
-        memset(&blk[0], 0, sizeof(blk[0]));
-        for (int64_t t = 0; t < nt; t++) out->target[t] = sl_stage_internal(m, out->target[t]);
-        sl_block_rebase(out, p_begin, t_begin);
-        out->s_begin = S * a;
-        out->s_end = S * a + ns;
-        goto cleanup;
-    }
-    /* general case: gather the rows into internal order one array at a
-     * time, freeing each source array as soon as it is copied */
-    if (SL_ALLOC(ctx, src_run, ns, "stage layout") == NULL || SL_ALLOC(ctx, src_idx, ns, "stage layout") == NULL ||
-        SL_ALLOC(ctx, out->first_pair, ns + 1, "first_pair") == NULL ||
-        SL_ALLOC(ctx, out->first_trans, np + 1, "first_transition") == NULL)
+    if (SL_ZALLOC(ctx, qc, P, "redistribution") == NULL || SL_ZALLOC(ctx, qd, P, "redistribution") == NULL ||
+        SL_ZALLOC(ctx, ac, P, "redistribution") == NULL || SL_ZALLOC(ctx, ad, P, "redistribution") == NULL ||
+        SL_ZALLOC(ctx, pc, P, "redistribution") == NULL || SL_ZALLOC(ctx, pd, P, "redistribution") == NULL ||
+        SL_ZALLOC(ctx, rpc, P, "redistribution") == NULL || SL_ZALLOC(ctx, rpd, P, "redistribution") == NULL ||
+        SL_ZALLOC(ctx, tc, P, "redistribution") == NULL || SL_ZALLOC(ctx, td, P, "redistribution") == NULL ||
+        SL_ZALLOC(ctx, rtc, P, "redistribution") == NULL || SL_ZALLOC(ctx, rtd, P, "redistribution") == NULL ||
+        SL_ZALLOC(ctx, cur, P, "redistribution") == NULL || SL_ALLOC(ctx, req, ns, "redistribution") == NULL ||
+        SL_ALLOC(ctx, reqpos, ns, "redistribution") == NULL)
         st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
+    /* 1. the file ids of this rank's internal states, grouped by the rank
+     * that holds their rows now */
+    for (int64_t j = 0; j < ns; j++) qc[sl_dist_owner(src_bounds, P, sl_stage_file(m, S * a + j))]++;
+    for (int q = 1; q < P; q++) qd[q] = qd[q - 1] + qc[q - 1];
+    for (int q = 0; q < P; q++) cur[q] = qd[q];
+    for (int64_t j = 0; j < ns; j++) {
+        int64_t f = sl_stage_file(m, S * a + j);
+        int64_t k = cur[sl_dist_owner(src_bounds, P, f)]++;
+        req[k] = f;
+        reqpos[j] = k;
+    }
+    MPI_Alltoall(qc, 1, MPI_INT, ac, 1, MPI_INT, ctx->comm);
+    int64_t na = 0;
+    for (int q = 0; q < P; q++) {
+        ad[q] = (int)na;
+        na += ac[q];
+    }
+    if (!fits_int(na)) st = SL_ERR(ctx, SL_EDATA, "rank %d: too many states to redistribute", r);
+    if (st == SL_OK && SL_ALLOC(ctx, asked, na, "redistribution") == NULL) st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    MPI_Alltoallv(req, qc, qd, MPI_INT64_T, asked, ac, ad, MPI_INT64_T, ctx->comm);
+    /* 2. answer in the order asked: pairs per state, then the pairs, then
+     * the transitions with targets renumbered */
+    int64_t sp = 0, stt = 0;
+    for (int q = 0; q < P; q++) {
+        int64_t cp = 0, ct = 0;
+        for (int64_t k = ad[q]; k < ad[q] + ac[q]; k++) {
+            int64_t i = asked[k] - src->s_begin;
+            if (i < 0 || i >= sl_block_states(src)) {
+                st = SL_ERR(ctx, SL_EINTERNAL, "redistribution: state %lld is not held here", (long long)asked[k]);
+                break;
+            }
+            int64_t p0 = src->first_pair[i] - src->p_begin, p1 = src->first_pair[i + 1] - src->p_begin;
+            cp += p1 - p0;
+            ct += src->first_trans[p1] - src->first_trans[p0];
+        }
+        if (!fits_int(cp) || !fits_int(ct) || !fits_int(sp + cp) || !fits_int(stt + ct))
+            st = SL_ERR(ctx, SL_EDATA, "rank %d: too many rows to redistribute (use more ranks)", r);
+        pc[q] = (int)cp;
+        tc[q] = (int)ct;
+        pd[q] = (int)sp;
+        td[q] = (int)stt;
+        sp += cp;
+        stt += ct;
+    }
+    if (st == SL_OK &&
+        (SL_ALLOC(ctx, snp, na, "redistribution") == NULL || SL_ALLOC(ctx, sact, sp, "redistribution") == NULL ||
+         SL_ALLOC(ctx, srew, sp, "redistribution") == NULL || SL_ALLOC(ctx, sntr, sp, "redistribution") == NULL ||
+         SL_ALLOC(ctx, stg, stt, "redistribution") == NULL || SL_ALLOC(ctx, spr, stt, "redistribution") == NULL))
+        st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    for (int64_t k = 0, kp = 0, kt = 0; k < na; k++) {
+        int64_t i = asked[k] - src->s_begin;
+        int64_t p0 = src->first_pair[i] - src->p_begin, p1 = src->first_pair[i + 1] - src->p_begin;
+        snp[k] = p1 - p0;
+        for (int64_t q = p0; q < p1; q++, kp++) {
+            sact[kp] = src->action[q];
+            srew[kp] = src->reward[q];
+            int64_t t0 = src->first_trans[q] - src->t_begin, t1 = src->first_trans[q + 1] - src->t_begin;
+            sntr[kp] = t1 - t0;
+            for (int64_t t = t0; t < t1; t++, kt++) {
+                stg[kt] = sl_stage_internal(m, src->target[t]);
+                spr[kt] = src->prob[t];
+            }
+        }
+    }
+    free(asked);
+    asked = NULL;
+    MPI_Alltoall(pc, 1, MPI_INT, rpc, 1, MPI_INT, ctx->comm);
+    MPI_Alltoall(tc, 1, MPI_INT, rtc, 1, MPI_INT, ctx->comm);
+    int64_t np = 0, nt = 0;
+    for (int q = 0; q < P; q++) {
+        rpd[q] = (int)np;
+        rtd[q] = (int)nt;
+        np += rpc[q];
+        nt += rtc[q];
+        if (!fits_int(np) || !fits_int(nt)) st = SL_ERR(ctx, SL_EDATA, "rank %d: too many rows to receive", r);
+    }
+    if (st == SL_OK &&
+        (SL_ALLOC(ctx, rnp, ns, "redistribution") == NULL || SL_ALLOC(ctx, ract, np, "redistribution") == NULL ||
+         SL_ALLOC(ctx, rrew, np, "redistribution") == NULL || SL_ALLOC(ctx, rntr, np, "redistribution") == NULL ||
+         SL_ALLOC(ctx, rtg, nt, "redistribution") == NULL || SL_ALLOC(ctx, rpr, nt, "redistribution") == NULL))
+        st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    MPI_Alltoallv(snp, ac, ad, MPI_INT64_T, rnp, qc, qd, MPI_INT64_T, ctx->comm);
+    MPI_Alltoallv(sact, pc, pd, MPI_INT32_T, ract, rpc, rpd, MPI_INT32_T, ctx->comm);
+    MPI_Alltoallv(srew, pc, pd, MPI_DOUBLE, rrew, rpc, rpd, MPI_DOUBLE, ctx->comm);
+    MPI_Alltoallv(sntr, pc, pd, MPI_INT64_T, rntr, rpc, rpd, MPI_INT64_T, ctx->comm);
+    MPI_Alltoallv(stg, tc, td, MPI_INT64_T, rtg, rtc, rtd, MPI_INT64_T, ctx->comm);
+    MPI_Alltoallv(spr, tc, td, MPI_DOUBLE, rpr, rtc, rtd, MPI_DOUBLE, ctx->comm);
+    /* 3. received records are in request order; put them in internal order */
+    if (SL_ALLOC(ctx, poff, ns + 1, "redistribution") == NULL || SL_ALLOC(ctx, toff, np + 1, "redistribution") == NULL ||
+        SL_ALLOC(ctx, out->first_pair, ns + 1, "first_pair") == NULL ||
+        SL_ALLOC(ctx, out->first_trans, np + 1, "first_transition") == NULL ||
+        SL_ALLOC(ctx, out->action, np, "actions") == NULL || SL_ALLOC(ctx, out->reward, np, "rewards") == NULL ||
+        SL_ALLOC(ctx, out->target, nt, "targets") == NULL || SL_ALLOC(ctx, out->prob, nt, "probabilities") == NULL)
+        st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    poff[0] = 0;
+    for (int64_t k = 0; k < ns; k++) poff[k + 1] = poff[k] + rnp[k];
+    toff[0] = 0;
+    for (int64_t q = 0; q < np; q++) toff[q + 1] = toff[q] + rntr[q];
+    int64_t p_begin = sl_exscan_i64(ctx, np), t_begin = sl_exscan_i64(ctx, nt);
     out->s_begin = S * a;
     out->s_end = S * a + ns;
     out->p_begin = p_begin;
     out->p_end = p_begin + np;
     out->t_begin = t_begin;
     out->t_end = t_begin + nt;
-    for (int64_t j = 0; j < ns; j++) {
-        int64_t stg = j / w, u = a + j % w, s = u % L + L * (stg + S * (u / L));
-        int64_t k = find_run(runs, nr, s);
-        src_run[j] = (int32_t)k;
-        src_idx[j] = s - runs[2 * k];
-    }
-    int64_t pp = 0, tt = 0;
     out->first_pair[0] = p_begin;
     out->first_trans[0] = t_begin;
-    for (int64_t j = 0; j < ns; j++) {
-        const sl_block *B = &blk[src_run[j]];
-        int64_t q0 = B->first_pair[src_idx[j]] - B->p_begin, q1 = B->first_pair[src_idx[j] + 1] - B->p_begin;
-        for (int64_t q = q0; q < q1; q++) {
-            tt += B->first_trans[q + 1] - B->first_trans[q];
-            out->first_trans[++pp] = t_begin + tt;
+    for (int64_t j = 0, pp = 0, tt = 0; j < ns; j++) {
+        int64_t k = reqpos[j];
+        for (int64_t q = poff[k]; q < poff[k + 1]; q++, pp++) {
+            out->action[pp] = ract[q];
+            out->reward[pp] = rrew[q];
+            int64_t n_t = toff[q + 1] - toff[q];
+            memcpy(out->target + tt, rtg + toff[q], (size_t)n_t * sizeof(int64_t));
+            memcpy(out->prob + tt, rpr + toff[q], (size_t)n_t * sizeof(double));
+            tt += n_t;
+            out->first_trans[pp + 1] = t_begin + tt;
         }
         out->first_pair[j + 1] = p_begin + pp;
     }
-    /* pair arrays */
-    if (SL_ALLOC(ctx, out->action, np, "actions") == NULL) st = SL_ENOMEM;
-    SL_TRY(sl_agree(ctx, st));
-    for (int64_t j = 0, pos = 0; j < ns; j++) {
-        const sl_block *B = &blk[src_run[j]];
-        int64_t q0 = B->first_pair[src_idx[j]] - B->p_begin, q1 = B->first_pair[src_idx[j] + 1] - B->p_begin;
-        memcpy(out->action + pos, B->action + q0, (size_t)(q1 - q0) * sizeof(int32_t));
-        pos += q1 - q0;
-    }
-    for (int64_t k = 0; k < nr; k++) free(blk[k].action), blk[k].action = NULL;
-    if (SL_ALLOC(ctx, out->reward, np, "rewards") == NULL) st = SL_ENOMEM;
-    SL_TRY(sl_agree(ctx, st));
-    for (int64_t j = 0, pos = 0; j < ns; j++) {
-        const sl_block *B = &blk[src_run[j]];
-        int64_t q0 = B->first_pair[src_idx[j]] - B->p_begin, q1 = B->first_pair[src_idx[j] + 1] - B->p_begin;
-        memcpy(out->reward + pos, B->reward + q0, (size_t)(q1 - q0) * sizeof(double));
-        pos += q1 - q0;
-    }
-    for (int64_t k = 0; k < nr; k++) free(blk[k].reward), blk[k].reward = NULL;
-    /* transition arrays (targets renumbered) */
-    if (SL_ALLOC(ctx, out->target, nt, "targets") == NULL) st = SL_ENOMEM;
-    SL_TRY(sl_agree(ctx, st));
-    for (int64_t j = 0, pos = 0; j < ns; j++) {
-        const sl_block *B = &blk[src_run[j]];
-        int64_t p0 = B->first_pair[src_idx[j]] - B->p_begin, p1 = B->first_pair[src_idx[j] + 1] - B->p_begin;
-        int64_t t0 = B->first_trans[p0] - B->t_begin, t1 = B->first_trans[p1] - B->t_begin;
-        for (int64_t t = t0; t < t1; t++) out->target[pos++] = sl_stage_internal(m, B->target[t]);
-    }
-    for (int64_t k = 0; k < nr; k++) free(blk[k].target), blk[k].target = NULL;
-    if (SL_ALLOC(ctx, out->prob, nt, "probabilities") == NULL) st = SL_ENOMEM;
-    SL_TRY(sl_agree(ctx, st));
-    for (int64_t j = 0, pos = 0; j < ns; j++) {
-        const sl_block *B = &blk[src_run[j]];
-        int64_t p0 = B->first_pair[src_idx[j]] - B->p_begin, p1 = B->first_pair[src_idx[j] + 1] - B->p_begin;
-        int64_t t0 = B->first_trans[p0] - B->t_begin, t1 = B->first_trans[p1] - B->t_begin;
-        memcpy(out->prob + pos, B->prob + t0, (size_t)(t1 - t0) * sizeof(double));
-        pos += t1 - t0;
-    }
 cleanup:
-    if (blk != NULL)
-        for (int64_t k = 0; k < maxr; k++) sl_block_free(&blk[k]);
-    free(blk);
-    free(runs);
-    free(src_run);
-    free(src_idx);
+    free(qc), free(qd), free(ac), free(ad), free(pc), free(pd), free(rpc), free(rpd);
+    free(tc), free(td), free(rtc), free(rtd), free(cur), free(req), free(reqpos), free(asked);
+    free(snp), free(rnp), free(sntr), free(rntr), free(stg), free(rtg), free(sact), free(ract);
+    free(srew), free(rrew), free(spr), free(rpr), free(poff), free(toff);
     if (st != SL_OK) sl_block_free(out);
     return st;
 }
@@ -335,26 +364,16 @@ void sl_io_plan_free(sl_io_plan *io)
     memset(io, 0, sizeof(*io));
 }
 
-static int even_owner(int64_t n, int P, int64_t s)
-{
-    int lo = 0, hi = P - 1;
-    while (lo < hi) {
-        int mid = (lo + hi + 1) / 2;
-        if (n * mid / P <= s) lo = mid;
-        else hi = mid - 1;
-    }
-    return lo;
-}
-
-sl_status sl_io_plan_build(sl_ctx *ctx, const sl_stage_map *m, const int64_t *bounds, sl_io_plan *io)
+sl_status sl_io_plan_build(sl_ctx *ctx, const sl_stage_map *m, const int64_t *bounds, const int64_t *fbounds,
+                           sl_io_plan *io)
 {
     sl_status st = SL_OK;
     int P = ctx->size, r = ctx->rank;
-    int64_t n = bounds[P], *ids = NULL, *rids = NULL, *cur = NULL;
+    int64_t *ids = NULL, *rids = NULL, *cur = NULL;
     memset(io, 0, sizeof(*io));
     io->n_local = bounds[r + 1] - bounds[r];
-    io->f_begin = n * r / P;
-    io->f_n = n * (r + 1) / P - io->f_begin;
+    io->f_begin = fbounds[r];
+    io->f_n = fbounds[r + 1] - fbounds[r];
     if (SL_ZALLOC(ctx, io->scnt, P, "io plan") == NULL || SL_ZALLOC(ctx, io->sdsp, P, "io plan") == NULL ||
         SL_ZALLOC(ctx, io->rcnt, P, "io plan") == NULL || SL_ZALLOC(ctx, io->rdsp, P, "io plan") == NULL ||
         SL_ALLOC(ctx, io->spos, io->n_local, "io plan") == NULL || SL_ALLOC(ctx, io->rpos, io->f_n, "io plan") == NULL ||
@@ -362,12 +381,12 @@ sl_status sl_io_plan_build(sl_ctx *ctx, const sl_stage_map *m, const int64_t *bo
         SL_ZALLOC(ctx, cur, P, "io plan") == NULL)
         st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
-    for (int64_t i = 0; i < io->n_local; i++) io->scnt[even_owner(n, P, sl_stage_file(m, bounds[r] + i))]++;
+    for (int64_t i = 0; i < io->n_local; i++) io->scnt[sl_dist_owner(fbounds, P, sl_stage_file(m, bounds[r] + i))]++;
     for (int p = 1; p < P; p++) io->sdsp[p] = io->sdsp[p - 1] + io->scnt[p - 1];
     for (int p = 0; p < P; p++) cur[p] = io->sdsp[p];
     for (int64_t i = 0; i < io->n_local; i++) {
         int64_t s = sl_stage_file(m, bounds[r] + i);
-        int64_t k = cur[even_owner(n, P, s)]++;
+        int64_t k = cur[sl_dist_owner(fbounds, P, s)]++;
         io->spos[k] = i;
         ids[k] = s;
     }

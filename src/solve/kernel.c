@@ -10,7 +10,8 @@ void sl_problem_free(sl_problem *p)
 {
     if (p == NULL) return;
     sl_meta_free(&p->meta);
-    sl_block_free(&p->blk);
+    if (p->owns_rows) sl_block_free(&p->blk);
+    else free(p->blk.col);      /* the other arrays belong to the model */
     sl_halo_free(&p->halo);
     free(p->bounds);
     free(p->order);
@@ -61,41 +62,42 @@ static sl_status build_order(sl_ctx *ctx, sl_problem *p, sl_order order)
     return SL_OK;
 }
 
-sl_status sl_problem_load(sl_ctx *ctx, const char *path, sl_order order, sl_problem *p)
+sl_status sl_problem_from_model(sl_ctx *ctx, const sl_model *m, sl_order order, int allow_any, sl_problem *p)
 {
     sl_status st = SL_OK;
-    char fp[40];
     memset(p, 0, sizeof(*p));
-    p->path = path;
-    SL_TRY(sl_store_model_meta(ctx, path, &p->meta));
-    if (p->meta.objective != SL_OBJ_DISCOUNTED)
+    SL_TRY(sl_agree(ctx, sl_model_check_ready(ctx, m, "solve")));
+    p->path = m->meta.source[0] ? m->meta.source : "model";
+    if (!allow_any && m->meta.objective != SL_OBJ_DISCOUNTED)
         st = SL_ERR(ctx, SL_EDATA,
-                    "%s: objective \"%s\" is recorded in the file, but this version of sluice solves "
-                    "only the discounted objective",
-                    path, sl_objective_name(p->meta.objective));
-    else if (!(p->meta.discount >= 0.0 && p->meta.discount < 1.0))
-        st = SL_ERR(ctx, SL_EDATA, "%s: discount %g is not in [0, 1) as the discounted objective requires",
-                    path, p->meta.discount);
+                    "%s: objective \"%s\" is recorded in the model, but this method solves only the "
+                    "discounted objective",
+                    p->path, sl_objective_name(m->meta.objective));
+    else if (!allow_any && !(m->meta.discount >= 0.0 && m->meta.discount < 1.0))
+        st = SL_ERR(ctx, SL_EDATA, "%s: discount %g is not in [0, 1) as the discounted objective requires", p->path,
+                    m->meta.discount);
     SL_TRY(sl_agree(ctx, st));
+    SL_TRY(sl_meta_copy(ctx, &p->meta, &m->meta));
     p->gamma = p->meta.discount;
     if (SL_ALLOC(ctx, p->bounds, ctx->size + 1, "partition") == NULL) st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
-    SL_TRY(sl_stage_map_dist(ctx, path, &p->meta, &p->stages));
-    if (p->stages.active) {
-        uint64_t acc[2] = {0, 0};
+    /* with a stage factor: every rank gets a share of every stage */
+    SL_TRY(sl_stage_map_rows(ctx, &m->meta, &m->blk, &p->stages));
+    /* on one rank with the stage factor slowest the internal numbering is
+     * the file's: keep the rows where they are */
+    int same = ctx->size == 1 && p->stages.outer == 1;
+    if (p->stages.active)
         for (int r = 0; r <= ctx->size; r++) p->bounds[r] = p->stages.n_stages * p->stages.ub[r];
-        SL_TRY(sl_stage_read(ctx, path, &p->meta, &p->stages, &p->blk, acc));
-        SL_TRY(sl_fingerprint_finish(ctx, &p->meta, acc, fp));
+    if (p->stages.active && !same) {
+        SL_TRY(sl_stage_redistribute(ctx, &m->blk, m->bounds, &p->stages, &p->blk));
+        p->owns_rows = 1;
     } else {
-        SL_TRY(sl_dist_partition(ctx, path, &p->meta, p->bounds));
-        SL_TRY(sl_store_model_read(ctx, path, &p->meta, p->bounds[ctx->rank], p->bounds[ctx->rank + 1], &p->blk));
-        SL_TRY(sl_fingerprint(ctx, &p->meta, &p->blk, fp));
+        /* borrow the rows; only the local columns are this problem's own */
+        p->blk = m->blk;
+        p->blk.col = NULL;
+        p->blk.cap_states = p->blk.cap_pairs = p->blk.cap_ptrs = p->blk.cap_trans = 0;
+        memcpy(p->bounds, m->bounds, (size_t)(ctx->size + 1) * sizeof(int64_t));
     }
-    if (strcmp(fp, p->meta.fingerprint) != 0)
-        SL_TRY(SL_ERR(ctx, SL_EDATA,
-                      "%s: contents do not match the file's fingerprint (%s recorded, %s computed): the file "
-                      "was altered or is corrupted",
-                      path, p->meta.fingerprint, fp));
     p->n_local = sl_block_states(&p->blk);
     double rmax = 0;
     for (int64_t k = 0; k < sl_block_pairs(&p->blk); k++)
@@ -103,7 +105,7 @@ sl_status sl_problem_load(sl_ctx *ctx, const char *path, sl_order order, sl_prob
     p->rmax_abs = sl_max(ctx, rmax);
     SL_TRY(sl_halo_build(ctx, p->bounds, &p->blk, &p->halo));
     if (p->stages.active) SL_TRY(sl_agree(ctx, sl_halo_stage_plan(ctx, &p->stages, &p->halo)));
-    SL_TRY(sl_io_plan_build(ctx, &p->stages, p->bounds, &p->io));
+    SL_TRY(sl_io_plan_build(ctx, &p->stages, p->bounds, m->bounds, &p->io));
     SL_TRY(sl_agree(ctx, build_order(ctx, p, order)));
 cleanup:
     if (st != SL_OK) sl_problem_free(p);
@@ -262,45 +264,6 @@ double sl_sweep(sl_ctx *ctx, const sl_problem *p, double *x, int32_t *policy, in
 }
 
 int64_t sl_problem_file_state(const sl_problem *p, int64_t i) { return sl_stage_file(&p->stages, p->blk.s_begin + i); }
-
-sl_status sl_problem_solution_write(sl_ctx *ctx, const sl_problem *p, const char *path, sl_file_kind kind,
-                                    const double *value, const int32_t *actions, const sl_solution_info *info,
-                                    const sl_history *hist)
-{
-    sl_status st = SL_OK;
-    double *fv = NULL;
-    int32_t *fa = NULL;
-    if (SL_ALLOC(ctx, fv, p->io.f_n, "values in file order") == NULL ||
-        (actions != NULL && SL_ALLOC(ctx, fa, p->io.f_n, "policy in file order") == NULL))
-        st = SL_ENOMEM;
-    SL_TRY(sl_agree(ctx, st));
-    SL_TRY(sl_io_to_file(ctx, &p->io, value, sizeof(double), fv));
-    if (actions != NULL) SL_TRY(sl_io_to_file(ctx, &p->io, actions, sizeof(int32_t), fa));
-    st = sl_store_solution_write(ctx, path, kind, p->meta.n_states, p->io.f_begin, p->io.f_n, fv, fa, info, hist);
-cleanup:
-    free(fv);
-    free(fa);
-    return st;
-}
-
-sl_status sl_problem_solution_read(sl_ctx *ctx, const sl_problem *p, const char *path, sl_file_kind kind,
-                                   double *value, int32_t *actions, sl_solution_info *info)
-{
-    sl_status st = SL_OK;
-    double *fv = NULL;
-    int32_t *fa = NULL;
-    if ((value != NULL && SL_ALLOC(ctx, fv, p->io.f_n, "values in file order") == NULL) ||
-        (actions != NULL && SL_ALLOC(ctx, fa, p->io.f_n, "policy in file order") == NULL))
-        st = SL_ENOMEM;
-    SL_TRY(sl_agree(ctx, st));
-    SL_TRY(sl_store_solution_read(ctx, path, kind, p->meta.n_states, p->io.f_begin, p->io.f_n, fv, fa, info));
-    if (value != NULL) SL_TRY(sl_io_from_file(ctx, &p->io, fv, sizeof(double), value));
-    if (actions != NULL) SL_TRY(sl_io_from_file(ctx, &p->io, fa, sizeof(int32_t), actions));
-cleanup:
-    free(fv);
-    free(fa);
-    return st;
-}
 
 sl_status sl_problem_ckpt_write(sl_ctx *ctx, const sl_problem *p, const char *dir, const double *value,
                                 const int32_t *actions, const sl_solver_state *state, const sl_history *hist)
