@@ -375,9 +375,10 @@ void sl_lu_note_numeric(sl_lu *lu, double seconds, double flops)
     /* calibrate the estimate, not the count: UMFPACK's symbolic flop
      * estimate is an upper bound that can exceed the flops done many times
      * over, so the rate that predicts time is estimate / seconds. Runs under
-     * a second are mostly overhead and say nothing about the rate. */
+     * a second or under 1e9 estimated flops are mostly overhead (start-up,
+     * page faults, a loaded machine) and say nothing about the rate. */
     (void)flops;
-    if (seconds >= 1.0 && lu->flops_estimate > 0) lu->flop_rate = lu->flops_estimate / seconds;
+    if (seconds >= 1.0 && lu->flops_estimate >= 1e9) lu->flop_rate = lu->flops_estimate / seconds;
 }
 
 sl_status sl_lu_solve(sl_ctx *ctx, sl_lu *lu, const double *b, double *x)

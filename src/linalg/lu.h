@@ -111,7 +111,7 @@ typedef struct sl_lu_stats {
 /* Time guard: sl_lu_factor does not factor (returns *fits = 0) when UMFPACK's
  * flop estimate after the symbolic step, divided by the rate of estimated
  * flops per second this handle's last numeric factorization of 1 s or more
- * achieved (SL_LU_ASSUMED_FLOP_RATE before any), exceeds `seconds`. 0 (the default) disables the guard. Local. */
+ * and 1e9 estimated flops or more achieved (SL_LU_ASSUMED_FLOP_RATE before any), exceeds `seconds`. 0 (the default) disables the guard. Local. */
 void sl_lu_set_time_limit(sl_lu *lu, double seconds);
 /* 1 if the last sl_lu_factor call was refused by the memory or time guard.
  * Accepts NULL (0). Local. */
