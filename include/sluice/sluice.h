@@ -160,6 +160,11 @@ typedef struct sl_solve_opts {
     int resume;
     const char *report;         /* JSON report path, or NULL */
     double progress_every;      /* seconds between progress lines; 0 -> 2/30 */
+    /* objectives other than discounted (docs/objectives.md) */
+    int64_t horizon;            /* finite: number of stages */
+    const char *terminal;       /* finite: solution file whose /value closes the
+                                 * horizon; NULL: the model's /terminal_value, else 0 */
+    double aperiodicity;        /* average: tau in (0, 1); 0 -> 0.5 */
 } sl_solve_opts;
 
 /* Solve a model; writes the solution file atomically. Returns SL_OK when the

@@ -66,6 +66,12 @@ static const char solve_help[] =
     "                        $SLUICE_WALLTIME, or $SLURM_JOB_END_TIME when set\n"
     "  --report FILE.json    machine-readable report\n"
     "  --progress-every S    seconds between progress lines (default 1 on a terminal, 30 otherwise)\n"
+    "objectives other than discounted (recorded in the model; docs/objectives.md):\n"
+    "  --horizon H           finite: number of stages (required)\n"
+    "  --terminal SOL.h5     finite: terminal values from another solution's /value\n"
+    "                        (default: the model's /terminal_value, else 0)\n"
+    "  --aperiodicity TAU    average: weight of staying put in the transform, in (0, 1)\n"
+    "                        (default 0.5); --tolerance bounds the gain\n"
     "signals: USR1 = checkpoint now and continue; TERM, INT, USR2 = checkpoint and exit 75.\n";
 
 int cmd_solve(cli_args *a)
@@ -118,6 +124,15 @@ int cmd_solve(cli_args *a)
             if ((o.report = cli_value(a)) == NULL) rc = SL_EUSAGE;
         } else if (cli_opt(a, "--progress-every")) {
             if (!num_opt(a, "--progress-every", &o.progress_every)) rc = SL_EUSAGE;
+        } else if (cli_opt(a, "--horizon")) {
+            if (!int_opt(a, "--horizon", &o.horizon)) rc = SL_EUSAGE;
+            else if (o.horizon < 1 || o.horizon > 100000000) rc = cli_usage_error(a, "--horizon must be in [1, 1e8]");
+        } else if (cli_opt(a, "--terminal")) {
+            if ((o.terminal = cli_value(a)) == NULL) rc = SL_EUSAGE;
+        } else if (cli_opt(a, "--aperiodicity")) {
+            if (!num_opt(a, "--aperiodicity", &o.aperiodicity)) rc = SL_EUSAGE;
+            else if (!(o.aperiodicity > 0 && o.aperiodicity < 1))
+                rc = cli_usage_error(a, "--aperiodicity must be in (0, 1)");
         } else if (a->argv[a->i][0] == '-') {
             rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
         } else if (o.model == NULL) {

@@ -4,6 +4,7 @@
 #include <string.h>
 
 #include "linalg/lu.h"
+#include "solve/objectives.h"
 #include "solve/solve.h"
 #include "store/store.h"
 
@@ -278,6 +279,9 @@ sl_status sl_verify(sl_ctx *ctx, const sl_verify_opts *o)
     double *x = NULL, *y = NULL, *ypi = NULL;
     sl_solution_info info;
     memset(&P, 0, sizeof(P));
+    sl_objective objective = SL_OBJ_DISCOUNTED;
+    SL_TRY(sl_obj_peek(ctx, o->model, &objective));
+    if (objective != SL_OBJ_DISCOUNTED) return sl_obj_command_verify(ctx, o);
     SL_TRY(load_with_policy(ctx, o->model, o->solution, &P, &pol, &x, &info));
     int64_t n = P.n_local, nx = n + P.halo.n_halo;
     if (SL_ALLOC(ctx, greedy, n, "policy") == NULL || SL_ZALLOC(ctx, y, nx, "values") == NULL ||

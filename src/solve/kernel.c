@@ -54,12 +54,19 @@ static sl_status build_order(sl_ctx *ctx, sl_problem *p, sl_order order)
 
 sl_status sl_problem_load(sl_ctx *ctx, const char *path, sl_order order, sl_problem *p)
 {
+    return sl_problem_load_ex(ctx, path, order, 0, p);
+}
+
+sl_status sl_problem_load_ex(sl_ctx *ctx, const char *path, sl_order order, int any_objective, sl_problem *p)
+{
     sl_status st = SL_OK;
     char fp[40];
     memset(p, 0, sizeof(*p));
     p->path = path;
     SL_TRY(sl_store_model_meta(ctx, path, &p->meta));
-    if (p->meta.objective != SL_OBJ_DISCOUNTED)
+    if (any_objective) {
+        /* the caller checks the discount for its objective */
+    } else if (p->meta.objective != SL_OBJ_DISCOUNTED)
         st = SL_ERR(ctx, SL_EDATA,
                     "%s: objective \"%s\" is recorded in the file, but this version of sluice solves "
                     "only the discounted objective",

@@ -5,6 +5,7 @@
 #include <string.h>
 
 #include "core/json.h"
+#include "solve/objectives.h"
 #include "solve/solve.h"
 #include "store/store.h"
 
@@ -392,6 +393,15 @@ sl_status sl_solve(sl_ctx *ctx, const sl_solve_opts *o)
     r->tol = o->tolerance > 0 ? o->tolerance : 1e-6;
     sl_status outcome = SL_OK;
     int converged = 0;
+
+    /* finite, total and average objectives: src/solve/objectives*.c */
+    sl_objective objective = SL_OBJ_DISCOUNTED;
+    SL_TRY(sl_obj_peek(ctx, o->model, &objective));
+    if (objective != SL_OBJ_DISCOUNTED) return sl_obj_command_solve(ctx, o);
+    if (o->horizon > 0 || o->terminal)
+        SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EUSAGE, "--horizon and --terminal apply to the finite objective; %s is "
+                                                    "discounted",
+                                    o->model)));
 
     SL_TRY(sl_problem_load(ctx, o->model, o->order, &r->P));
     int64_t n = r->P.n_local, nx = n + r->P.halo.n_halo;

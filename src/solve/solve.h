@@ -22,6 +22,9 @@ typedef struct sl_problem {
 /* Load, partition by transitions, validate, check the fingerprint, build the
  * halo and the sweep order. Collective. */
 sl_status sl_problem_load(sl_ctx *ctx, const char *path, sl_order order, sl_problem *p);
+/* Same, accepting every objective when any_objective != 0 (the discount is
+ * then not checked; see sl_problem_load_any). Collective. */
+sl_status sl_problem_load_ex(sl_ctx *ctx, const char *path, sl_order order, int any_objective, sl_problem *p);
 void sl_problem_free(sl_problem *p);
 
 /* One synchronous Bellman check: y = T x on owned states, greedy policy

@@ -39,7 +39,6 @@ sl_status sl_store_model_read(sl_ctx *ctx, const char *path, const sl_meta *meta
 sl_status sl_store_model_cumulative(sl_ctx *ctx, const char *path, int64_t s_begin,
                                     int64_t s_end, int64_t **cum);
 
-#endif /* SL_STORE_H */
 
 /* ---- solutions ---------------------------------------------------------------- */
 
@@ -74,6 +73,14 @@ sl_status sl_store_solution_write(sl_ctx *ctx, const char *path, sl_file_kind ki
                                   int64_t s_begin, int64_t n_local, const double *value,
                                   const int32_t *actions, const sl_solution_info *info,
                                   const sl_history *hist);
+/* Same, calling extra(ctx, file, path, extra_arg) on the open file (an HDF5
+ * hid_t) before it is closed, to add objective-specific attributes and
+ * datasets (src/store/objective_io.c). Collective. */
+typedef sl_status (*sl_store_extra_fn)(sl_ctx *ctx, int64_t file, const char *path, const void *arg);
+sl_status sl_store_solution_write_ex(sl_ctx *ctx, const char *path, sl_file_kind kind, int64_t n_states,
+                                     int64_t s_begin, int64_t n_local, const double *value,
+                                     const int32_t *actions, const sl_solution_info *info,
+                                     const sl_history *hist, sl_store_extra_fn extra, const void *extra_arg);
 /* Read a solution's scalars and (if not NULL) the slice of value/policy.
  * Requires kind SL_FILE_SOLUTION (or SL_FILE_VALUES when `kind` says so) and
  * n_states to match. Collective. */
@@ -116,3 +123,5 @@ sl_status sl_ckpt_load(sl_ctx *ctx, const char *dir, const char *fingerprint, in
 /* For `sluice info`: read a checkpoint's state and history. Collective. */
 sl_status sl_ckpt_info(sl_ctx *ctx, const char *path, char *fingerprint, int64_t *n_states,
                        sl_solver_state *state, sl_history *hist, int *complete);
+
+#endif /* SL_STORE_H */
