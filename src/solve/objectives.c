@@ -637,6 +637,7 @@ static sl_status solve_total(sl_ctx *ctx, const sl_problem *p, const sl_obj_opts
     int64_t interval = 1, since = 0;
     for (;;) {
         int pr = poll_stop(ctx, o, t0, &last_ckpt);
+        if (o->max_iterations > 0 && S.iteration >= o->max_iterations) pr = 2;
         if (pr >= 1 && o->checkpoint_dir) {
             sl_policy_actions(p, res->policy, acts);
             snprintf(S.method, sizeof(S.method), "total");
@@ -644,7 +645,7 @@ static sl_status solve_total(sl_ctx *ctx, const sl_problem *p, const sl_obj_opts
                                res->value, acts, &S, &hist);
             if (st != SL_OK) goto total_done;
         }
-        if (pr == 2 || (o->max_iterations > 0 && S.iteration >= o->max_iterations)) {
+        if (pr == 2) {
             st = SL_ESTOPPED;
             break;
         }
@@ -783,13 +784,14 @@ static sl_status solve_average(sl_ctx *ctx, const sl_problem *p, const sl_obj_op
     double t0 = sl_now(), last_ckpt = t0;
     for (;;) {
         int pr = poll_stop(ctx, o, t0, &last_ckpt);
+        if (o->max_iterations > 0 && S.iteration >= o->max_iterations) pr = 2;
         if (pr >= 1 && o->checkpoint_dir) {
             sl_policy_actions(p, res->policy, acts);
             snprintf(S.method, sizeof(S.method), "average");
             SL_TRY(sl_ckpt_write(ctx, o->checkpoint_dir, o->fingerprint, p->meta.n_states, p->blk.s_begin, n,
                                  res->value, acts, &S, &hist));
         }
-        if (pr == 2 || (o->max_iterations > 0 && S.iteration >= o->max_iterations)) {
+        if (pr == 2) {
             st = SL_ESTOPPED;
             break;
         }
