@@ -440,9 +440,10 @@ cleanup:
  * T1 w <= w holds with room for roundoff. Such a w bounds the expected
  * number of steps to absorption of EVERY policy: w >= 1 + P_pi w implies
  * w >= sum_{k<K} P_pi^k 1 + P_pi^K w >= E_pi[min(steps, K)] for all K. */
-static sl_status steps_bound(sl_ctx *ctx, const sl_problem *p, const char *absorbing, int64_t max_sweeps,
-                             double *w, int64_t *sweeps_out)
+static sl_status steps_bound(sl_ctx *ctx, const sl_problem *p, const sl_obj_opts *o, const char *absorbing,
+                             int64_t max_sweeps, double *w, int64_t *sweeps_out)
 {
+    double t0 = sl_now(), last_ckpt = t0;
     const sl_block *b = &p->blk;
     int64_t n = p->n_local, nx = n + p->halo.n_halo, m = max_successors(ctx, p), sweeps = 0;
     for (int64_t i = 0; i < nx; i++) w[i] = 0.0;
@@ -468,6 +469,19 @@ static sl_status steps_bound(sl_ctx *ctx, const sl_problem *p, const char *absor
         sweeps++;
         double wmax = sl_max(ctx, local_absmax(w, n));
         delta = sl_max(ctx, delta);
+        if (!(wmax <= 1e12)) {
+            /* a guard behind find_improper: expected steps this large (or
+             * growing without bound) mean absorption is not certain
+             * (threshold is common practice, no source) */
+            double loc = -1;
+            for (int64_t i = 0; i < n; i++)
+                if (fabs(w[i]) >= wmax || !isfinite(w[i])) loc = (double)(b->s_begin + i);
+            loc = sl_max(ctx, loc);
+            return SL_ERR(ctx, SL_EDATA,
+                          "%s: state %.0f: expected steps to absorption exceed 1e12 under some policy; treating "
+                          "the model as having improper policies",
+                          p->path, loc);
+        }
         if (delta <= 1e-9 * (1.0 + wmax) || (sweeps % 64) == 0) {
             /* try to certify: eta with T1((1+eta) w) <= (1+eta) w - fp */
             st = sl_halo_exchange(ctx, &p->halo, w);
@@ -495,6 +509,8 @@ static sl_status steps_bound(sl_ctx *ctx, const sl_problem *p, const char *absor
                 return SL_OK;
             }
         }
+        /* signals and --walltime stop this phase too (nothing to checkpoint yet) */
+        if ((sweeps % 64) == 0 && poll_stop(ctx, o, t0, &last_ckpt) == 2) max_sweeps = sweeps;
         if (max_sweeps > 0 && sweeps >= max_sweeps)
             return SL_ERR(ctx, SL_ESTOPPED,
                           "%s: the bound on the expected steps to absorption did not settle within %lld sweeps "
@@ -611,7 +627,7 @@ static sl_status solve_total(sl_ctx *ctx, const sl_problem *p, const sl_obj_opts
                                     "absorption: make those states leave, or use the discounted objective",
                                     p->path, (long long)nimp, (long long)s_imp, (int)a_imp)));
     int64_t wsweeps = 0;
-    SL_TRY(steps_bound(ctx, p, abs, o->max_iterations > 0 ? 64 * o->max_iterations : 0, res->steps, &wsweeps));
+    SL_TRY(steps_bound(ctx, p, o, abs, o->max_iterations > 0 ? 64 * o->max_iterations : 0, res->steps, &wsweeps));
     double wmax = sl_max(ctx, local_absmax(res->steps, n));
     sl_log(ctx, "solve: %lld absorbing states; every policy absorbs, expected steps <= %.4g (certified after %lld "
                 "sweeps)",

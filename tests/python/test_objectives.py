@@ -175,9 +175,18 @@ def check_finite(chk, binary, work):
         shutil.copy(sol, bad_sol)
         with h5py.File(bad_sol, "r+") as f:
             f["stage/value_000003"][5] += 1e-4
-        cp = mc.run_sluice(binary, ["verify", model, bad_sol], expect=(65,))
-        chk.check("NOT certified" in cp.stdout,
-                  "%s: verify rejects a tampered stage value" % tag)
+        cp = mc.run_sluice(binary, ["verify", model, bad_sol, "--json"],
+                           expect=(65,))
+        js = __import__("json").loads(cp.stdout)
+        # the change of 1e-4 at stage 3 is a stage-3 residual of 1e-4, worth
+        # g^3 1e-4 at stage 0: both bounds must account for it
+        need = gamma ** 3 * 1e-4 * 0.99
+        chk.check(not js["certified"] and js["value_error_bound"] >= need
+                  and js["policy_loss_bound"] >= need,
+                  "%s: verify rejects a tampered stage value; both bounds "
+                  "cover the change" % tag,
+                  "value %.3g policy %.3g need %.3g" % (
+                      js["value_error_bound"], js["policy_loss_bound"], need))
         # tampering the terminal stage is caught against the model's dataset
         shutil.copy(sol, bad_sol)
         with h5py.File(bad_sol, "r+") as f:
@@ -282,6 +291,26 @@ def check_total(chk, binary, work):
             chk.check("expected steps" in cp.stderr,
                       "total: verify rejects a shrunken steps bound",
                       cp.stderr.strip()[-200:])
+    # honesty of the bounds away from convergence: stopped early, the
+    # claimed bounds must still cover the true error (LP reference)
+    mdp = float_states(random_ssp(26, 80), 1.0)
+    model = imp(binary, mdp, work, "ssp26", "total")
+    lp = R.total_lp(mdp)
+    for it in (1, 2, 4):
+        sol = os.path.join(work, "ssp26_%d.h5" % it)
+        mc.run_sluice(binary, ["solve", model, "-o", sol, "--max-iterations",
+                               it], expect=(75,))
+        s = mc.read_solution(sol)
+        err = np.max(np.abs(s["value"] - lp))
+        pairs, _ = mdp.pairs_of_policy(s["policy"])
+        loss = np.max(lp - R.total_policy_value(mdp, pairs))
+        chk.check(err <= s["value_error_bound"] + 1e-9 and
+                  loss <= s["policy_loss_bound"] + 1e-9 and
+                  s["value_error_bound"] < 10 * err + 1e-6,
+                  "total after %d sweep(s): true error and loss (LP, spsolve) "
+                  "within the claimed bounds, bound not vacuous" % it,
+                  "err %.3g <= %.3g, loss %.3g <= %.3g" % (
+                      err, s["value_error_bound"], loss, s["policy_loss_bound"]))
     # improper policy: state 3 can loop on itself (action 7) forever
     st = random_ssp(24, 10)
     st[3] = st[3] + [(7, [(3, 1.0, -0.5)])]
@@ -369,6 +398,24 @@ def check_average(chk, binary, work):
                       "the certified loss" % (tag, tau),
                       "%.3g vs %.3g" % (g_lp - gpi, s["policy_loss_bound"]))
             mc.run_sluice(binary, ["verify", model, sol])
+    # honesty away from convergence: the exact gain inside the bounds
+    mdp = float_states(random_unichain(34, 70), 1.0)
+    model = imp(binary, mdp, work, "avg34", "average")
+    g_pi, _, _ = R.average_policy_iteration(mdp)
+    for it in (1, 3, 9):
+        sol = os.path.join(work, "avg34_%d.h5" % it)
+        mc.run_sluice(binary, ["solve", model, "-o", sol, "--max-iterations",
+                               it], expect=(75,))
+        s = mc.read_solution(sol)
+        pairs, _ = mdp.pairs_of_policy(s["policy"])
+        loss = g_pi - R.policy_gain(mdp, pairs)
+        chk.check(s["gain_lower"] <= g_pi <= s["gain_upper"] and
+                  loss <= s["policy_loss_bound"] + 1e-12,
+                  "average after %d iteration(s): exact gain inside the "
+                  "claimed bounds, policy loss within its bound" % it,
+                  "%r in [%r, %r]; loss %.3g <= %.3g" % (
+                      g_pi, s["gain_lower"], s["gain_upper"], loss,
+                      s["policy_loss_bound"]))
     # multichain: two closed classes with different rewards
     st = [[(0, [(0, 1.0, 1.0)]), (1, [(1, 1.0, 0.0)])],
           [(0, [(1, 1.0, 0.0)])],
