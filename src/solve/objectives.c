@@ -443,7 +443,7 @@ cleanup:
 static sl_status steps_bound(sl_ctx *ctx, const sl_problem *p, const sl_obj_opts *o, const char *absorbing,
                              int64_t max_sweeps, double *w, int64_t *sweeps_out)
 {
-    double t0 = sl_now(), last_ckpt = t0;
+    double start = sl_now(), last_ckpt = start;
     const sl_block *b = &p->blk;
     int64_t n = p->n_local, nx = n + p->halo.n_halo, m = max_successors(ctx, p), sweeps = 0;
     for (int64_t i = 0; i < nx; i++) w[i] = 0.0;
@@ -510,7 +510,7 @@ static sl_status steps_bound(sl_ctx *ctx, const sl_problem *p, const sl_obj_opts
             }
         }
         /* signals and --walltime stop this phase too (nothing to checkpoint yet) */
-        if ((sweeps % 64) == 0 && poll_stop(ctx, o, t0, &last_ckpt) == 2) max_sweeps = sweeps;
+        if ((sweeps % 64) == 0 && poll_stop(ctx, o, start, &last_ckpt) == 2) max_sweeps = sweeps;
         if (max_sweeps > 0 && sweeps >= max_sweeps)
             return SL_ERR(ctx, SL_ESTOPPED,
                           "%s: the bound on the expected steps to absorption did not settle within %lld sweeps "
