@@ -10,29 +10,25 @@
 
 /* ---- loading ------------------------------------------------------------------ */
 
-sl_status sl_problem_load_any(sl_ctx *ctx, const char *path, sl_order order, sl_problem *p)
+sl_status sl_problem_from_model_any(sl_ctx *ctx, const sl_model *m, const char *path, sl_order order,
+                                    sl_problem *p)
 {
     sl_status st = SL_OK;
-    sl_meta m;
-    memset(&m, 0, sizeof(m));
-    SL_TRY(sl_store_model_meta(ctx, path, &m));
-    if (m.objective == SL_OBJ_DISCOUNTED) {
-        sl_meta_free(&m);
-        return sl_problem_load(ctx, path, order, p);
-    }
-    if (m.objective == SL_OBJ_FINITE && !(m.discount > 0.0 && m.discount <= 1.0))
+    const sl_meta *mm = &m->meta;
+    memset(p, 0, sizeof(*p));
+    if (mm->objective == SL_OBJ_FINITE && !(mm->discount > 0.0 && mm->discount <= 1.0))
         st = SL_ERR(ctx, SL_EDATA, "%s: discount %g is not in (0, 1] as the finite-horizon objective requires", path,
-                    m.discount);
-    else if (m.objective == SL_OBJ_TOTAL && m.discount != 1.0)
+                    mm->discount);
+    else if (mm->objective == SL_OBJ_TOTAL && mm->discount != 1.0)
         st = SL_ERR(ctx, SL_EDATA,
-                    "%s: the total-reward objective sums rewards undiscounted, but the file records discount %g "
+                    "%s: the total-reward objective sums rewards undiscounted, but the model records discount %g "
                     "(rebuild with --discount 1, or use --objective discounted)",
-                    path, m.discount);
+                    path, mm->discount);
     SL_TRY(sl_agree(ctx, st));
-    SL_TRY(sl_problem_load_ex(ctx, path, order, 1, p));
-    p->gamma = m.objective == SL_OBJ_AVERAGE ? 1.0 : m.discount;
+    SL_TRY(sl_problem_from_model(ctx, m, order, 1, p));
+    p->path = path;
+    p->gamma = mm->objective == SL_OBJ_AVERAGE ? 1.0 : mm->discount;
 cleanup:
-    sl_meta_free(&m);
     return st;
 }
 
@@ -213,7 +209,7 @@ static sl_status solve_finite(sl_ctx *ctx, const sl_problem *p, const sl_obj_opt
         MPI_Bcast(&exists, 1, MPI_INT, 0, ctx->comm);
         if (exists) {
             sl_obj_file xf;
-            sl_solution_info info;
+            sl_solution_record info;
             memset(&xf, 0, sizeof(xf));
             st = sl_store_solution_read(ctx, ck, SL_FILE_SOLUTION, p->meta.n_states, p->blk.s_begin, n, NULL, NULL,
                                         &info);
@@ -259,7 +255,7 @@ static sl_status solve_finite(sl_ctx *ctx, const sl_problem *p, const sl_obj_opt
         if (o->max_iterations > 0 && res->cert.sweeps >= o->max_iterations && t > 0) pr = 2;
         if ((pr >= 1 || t == 0) && o->checkpoint_dir && !(t == 0 && pr == 0)) {
             sl_obj_file xf;
-            sl_solution_info info;
+            sl_solution_record info;
             memset(&xf, 0, sizeof(xf));
             memset(&info, 0, sizeof(info));
             int32_t *acts = NULL;

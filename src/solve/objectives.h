@@ -10,10 +10,11 @@
 #include "solve/solve.h"
 #include "store/store.h"
 
-/* Load a model of any objective (the discount is checked per objective:
- * finite (0, 1], total exactly 1, average ignored and taken as 1).
- * Collective. */
-sl_status sl_problem_load_any(sl_ctx *ctx, const char *path, sl_order order, sl_problem *p);
+/* Prepare an assembled model of any objective for solving; the discount is
+ * checked per objective: finite (0, 1], total exactly 1, average ignored
+ * and taken as 1. path names the model in messages. Collective. */
+sl_status sl_problem_from_model_any(sl_ctx *ctx, const sl_model *m, const char *path, sl_order order,
+                                    sl_problem *p);
 
 typedef struct sl_obj_opts {
     int64_t horizon;            /* finite: number of stages H >= 1 */
@@ -79,13 +80,6 @@ sl_status sl_obj_certify_total(sl_ctx *ctx, const sl_problem *p, double *v, doub
 sl_status sl_obj_certify_average(sl_ctx *ctx, const sl_problem *p, double *h, const int32_t *policy,
                                  sl_obj_cert *c);
 
-/* The `solve` and `verify` commands for non-discounted models (called by
- * sl_solve / sl_verify after peeking at the objective). Collective. */
-sl_status sl_obj_command_solve(sl_ctx *ctx, const sl_solve_opts *o);
-sl_status sl_obj_command_verify(sl_ctx *ctx, const sl_verify_opts *o);
-/* Objective recorded in a model file (reads the metadata only). Collective. */
-sl_status sl_obj_peek(sl_ctx *ctx, const char *model, sl_objective *obj);
-
 /* ---- files (src/store/objective_io.c) ------------------------------------ */
 
 /* The objective-specific part of a solution file. */
@@ -104,7 +98,7 @@ typedef struct sl_obj_file {
  * stage checkpoint) with the objective part. Atomic. Collective. */
 sl_status sl_store_objective_write(sl_ctx *ctx, const char *path, int64_t n_states, int64_t s_begin,
                                    int64_t n_local, const double *value, const int32_t *actions,
-                                   const sl_solution_info *info, const sl_obj_file *x);
+                                   const sl_solution_record *info, const sl_obj_file *x);
 /* Read the objective part (allocates the arrays; free with
  * sl_obj_file_free). A file without the objective attribute is
  * "discounted". Collective. */

@@ -7,22 +7,12 @@
 #include "core/json.h"
 #include "solve/objectives.h"
 
-sl_status sl_obj_peek(sl_ctx *ctx, const char *model, sl_objective *obj)
-{
-    sl_meta m;
-    memset(&m, 0, sizeof(m));
-    sl_status st = sl_store_model_meta(ctx, model, &m);
-    *obj = m.objective;
-    sl_meta_free(&m);
-    return st;
-}
-
 static const char *obj_method(sl_objective o)
 {
     return o == SL_OBJ_FINITE ? "backward" : o == SL_OBJ_TOTAL ? "gs-total" : "rvi";
 }
 
-static sl_status write_report(sl_ctx *ctx, const sl_solve_opts *o, const sl_problem *p, const sl_obj_result *r,
+static sl_status write_report(sl_ctx *ctx, const sl_objective_opts *o, const sl_problem *p, const sl_obj_result *r,
                               sl_status outcome, double seconds)
 {
     if (o->report == NULL) return SL_OK;
@@ -38,7 +28,7 @@ static sl_status write_report(sl_ctx *ctx, const sl_solve_opts *o, const sl_prob
             sl_json j;
             sl_json_begin(&j, f);
             sl_json_str(&j, "sluice_version", SLUICE_VERSION);
-            sl_json_str(&j, "model", o->model);
+            sl_json_str(&j, "model", o->model_path);
             sl_json_str(&j, "model_fingerprint", p->meta.fingerprint);
             sl_json_str(&j, "solution", o->output);
             sl_json_str(&j, "objective", sl_objective_name(r->objective));
@@ -86,13 +76,13 @@ static sl_status write_report(sl_ctx *ctx, const sl_solve_opts *o, const sl_prob
     return sl_agree(ctx, st);
 }
 
-static void summary(sl_ctx *ctx, const sl_solve_opts *o, const sl_problem *p, const sl_obj_result *r, double secs)
+static void summary(sl_ctx *ctx, const sl_objective_opts *o, const sl_problem *p, const sl_obj_result *r, double secs)
 {
     if (ctx->rank != 0 || ctx->verbosity < 1 || ctx->log == NULL) return;
     FILE *f = ctx->log;
     const sl_obj_cert *c = &r->cert;
     fprintf(f, "\nsluice solve summary\n");
-    fprintf(f, "  model        %s (%lld states, %lld transitions, objective %s)\n", o->model,
+    fprintf(f, "  model        %s (%lld states, %lld transitions, objective %s)\n", o->model_path,
             (long long)p->meta.n_states, (long long)p->meta.n_trans, sl_objective_name(r->objective));
     fprintf(f, "  method       %s on %d rank(s), %lld iterations, %.2f s\n", obj_method(r->objective), ctx->size,
             (long long)c->iterations, secs);
@@ -116,8 +106,10 @@ static void summary(sl_ctx *ctx, const sl_solve_opts *o, const sl_problem *p, co
                "               and local regulations.\n");
 }
 
-sl_status sl_obj_command_solve(sl_ctx *ctx, const sl_solve_opts *o)
+sl_status sl_objective_solve(const sl_model *m, const sl_objective_opts *o)
 {
+    if (m == NULL || o == NULL || o->output == NULL) return SL_EUSAGE;
+    sl_ctx *ctx = m->ctx;
     sl_status st = SL_OK, outcome = SL_OK;
     sl_problem P;
     sl_obj_result R;
@@ -126,30 +118,28 @@ sl_status sl_obj_command_solve(sl_ctx *ctx, const sl_solve_opts *o)
     memset(&P, 0, sizeof(P));
     memset(&R, 0, sizeof(R));
     double t0 = sl_now();
-    SL_TRY(sl_problem_load_any(ctx, o->model, o->order, &P));
+    const char *model = o->model_path ? o->model_path : "model";
+    SL_TRY(sl_problem_from_model_any(ctx, m, model, o->order, &P));
     int64_t n = P.n_local;
     sl_objective obj = P.meta.objective;
     if (obj != SL_OBJ_FINITE && (o->horizon > 0 || o->terminal))
         SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EUSAGE, "--horizon and --terminal apply to the finite objective; %s "
                                                     "records objective \"%s\"",
-                                    o->model, sl_objective_name(obj))));
+                                    model, sl_objective_name(obj))));
     if (obj == SL_OBJ_FINITE && o->horizon < 1)
-        SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EUSAGE, "%s: the finite-horizon objective needs --horizon H", o->model)));
-    if (o->method != SL_METHOD_GS)
-        sl_warn(ctx, "--method applies to the discounted objective; objective %s uses %s", sl_objective_name(obj),
-                obj_method(obj));
+        SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EUSAGE, "%s: the finite-horizon objective needs --horizon H", model)));
     char term_src[256] = "zero";
     if (obj == SL_OBJ_FINITE) {
         if (SL_ZALLOC(ctx, term, n + 1, "terminal values") == NULL) st = SL_ENOMEM;
         SL_TRY(sl_agree(ctx, st));
         if (o->terminal) {
-            sl_solution_info ti;
+            sl_solution_record ti;
             SL_TRY(sl_store_solution_read(ctx, o->terminal, SL_FILE_SOLUTION, P.meta.n_states, P.blk.s_begin, n, term,
                                           NULL, &ti));
             snprintf(term_src, sizeof(term_src), "%s", o->terminal);
         } else {
             int found = 0;
-            SL_TRY(sl_store_terminal_read(ctx, o->model, P.meta.n_states, P.blk.s_begin, n, term, &found));
+            SL_TRY(sl_store_terminal_read(ctx, model, P.meta.n_states, P.blk.s_begin, n, term, &found));
             if (found) snprintf(term_src, sizeof(term_src), "model /terminal_value");
         }
     }
@@ -165,7 +155,7 @@ sl_status sl_obj_command_solve(sl_ctx *ctx, const sl_solve_opts *o)
     oo.resume = o->resume;
     oo.walltime = o->walltime;
     oo.fingerprint = P.meta.fingerprint;
-    sl_log(ctx, "solve: %s, %lld states, objective %s, %d rank(s), tolerance %.1e", o->model,
+    sl_log(ctx, "solve: %s, %lld states, objective %s, %d rank(s), tolerance %.1e", model,
            (long long)P.meta.n_states, sl_objective_name(obj), ctx->size, oo.tolerance);
     outcome = sl_obj_solve(ctx, &P, &oo, &R);
     outcome = sl_agree(ctx, outcome);
@@ -203,7 +193,7 @@ sl_status sl_obj_command_solve(sl_ctx *ctx, const sl_solve_opts *o)
         xf.gain_upper = R.cert.gain_upper;
         xf.aperiodicity = R.cert.aperiodicity;
     }
-    sl_solution_info in;
+    sl_solution_record in;
     memset(&in, 0, sizeof(in));
     snprintf(in.model_fingerprint, sizeof(in.model_fingerprint), "%s", P.meta.fingerprint);
     snprintf(in.method, sizeof(in.method), "%s", obj_method(obj));
@@ -236,17 +226,26 @@ cleanup:
     return st;
 }
 
-sl_status sl_obj_command_verify(sl_ctx *ctx, const sl_verify_opts *o)
+sl_status sl_objective_verify(const sl_model *m, const char *model_path, const char *solution, double tolerance,
+                              int json, FILE *out_file)
 {
+    if (m == NULL || solution == NULL) return SL_EUSAGE;
+    sl_ctx *ctx = m->ctx;
+    struct {
+        const char *model, *solution;
+        double tolerance;
+        int json;
+        FILE *out;
+    } oo = {model_path ? model_path : "model", solution, tolerance, json, out_file}, *o = &oo;
     sl_status st = SL_OK;
     sl_problem P;
     sl_obj_file xf;
-    sl_solution_info info;
+    sl_solution_record info;
     double *v = NULL, *w = NULL;
     int32_t *acts = NULL, *pol = NULL;
     memset(&P, 0, sizeof(P));
     memset(&xf, 0, sizeof(xf));
-    SL_TRY(sl_problem_load_any(ctx, o->model, SL_ORDER_AUTO, &P));
+    SL_TRY(sl_problem_from_model_any(ctx, m, o->model, SL_ORDER_AUTO, &P));
     int64_t n = P.n_local, nx = n + P.halo.n_halo;
     sl_objective obj = P.meta.objective;
     if (SL_ZALLOC(ctx, v, nx, "values") == NULL || SL_ZALLOC(ctx, w, nx, "steps bound") == NULL ||

@@ -53,7 +53,7 @@ static sl_status write_extra(sl_ctx *ctx, int64_t file, const char *p, const voi
 
 sl_status sl_store_objective_write(sl_ctx *ctx, const char *path, int64_t n_states, int64_t s_begin,
                                    int64_t n_local, const double *value, const int32_t *actions,
-                                   const sl_solution_info *info, const sl_obj_file *x)
+                                   const sl_solution_record *info, const sl_obj_file *x)
 {
     extra_arg a = {x, n_states, s_begin, n_local};
     return sl_store_solution_write_ex(ctx, path, SL_FILE_SOLUTION, n_states, s_begin, n_local, value, actions, info,
