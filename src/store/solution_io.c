@@ -72,6 +72,15 @@ sl_status sl_store_solution_write(sl_ctx *ctx, const char *path, sl_file_kind ki
                                   int64_t s_begin, int64_t n_local, const double *value,
                                   const int32_t *actions, const sl_solution_record *in, const sl_history *hist)
 {
+    return sl_store_solution_write_ex(ctx, path, kind, n_states, s_begin, n_local, value, actions, in, hist, NULL,
+                                      NULL);
+}
+
+sl_status sl_store_solution_write_ex(sl_ctx *ctx, const char *path, sl_file_kind kind, int64_t n_states,
+                                     int64_t s_begin, int64_t n_local, const double *value,
+                                     const int32_t *actions, const sl_solution_record *in, const sl_history *hist,
+                                     sl_store_extra_fn extra, const void *extra_arg)
+{
     sl_status st = SL_OK;
     sl_outfile of;
     hid_t f = H5I_INVALID_HID;
@@ -114,6 +123,7 @@ sl_status sl_store_solution_write(sl_ctx *ctx, const char *path, sl_file_kind ki
         for (int k = 0; k < SL_HISTORY_COLUMNS; k++)
             SL_TRY(sl_h5_write_1d(ctx, f, col[k].name, col[k].ftype, col[k].mtype, n, 0, c, col[k].data, 0, p));
     }
+    if (extra) SL_TRY(sl_agree(ctx, extra(ctx, f, p, extra_arg)));
     st = sl_h5_close(ctx, &f, p);
 cleanup:
     if (f >= 0) H5Fclose(f);
