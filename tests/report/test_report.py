@@ -231,6 +231,39 @@ def main():
     no_leftovers(chk, work, "demo")
     no_leftovers(chk, figs, "demo figures")
 
+    # the same document from 2 MPI ranks (every command uses all ranks)
+    mpiexec = os.environ.get("SLUICE_MPIEXEC") or shutil.which("mpiexec")
+    if mpiexec:
+        data2 = os.path.join(work, "tamsel-data-np2.json")
+        cp = run([mpiexec, "-np", "2", "--oversubscribe", binary, "report", model, sol, "-o",
+                  os.path.join(work, "tamsel-np2.html"), "--data", data2], env=env)
+        chk.check(cp.returncode == 0, "demo: sluice report under 2 ranks exits 0", cp.stderr[-800:])
+        if cp.returncode == 0:
+            with open(data2) as f:
+                doc2 = json.load(f)
+            chk.check(doc2["verify"]["ranks"] == 2, "demo: the 2-rank verification says 2 ranks")
+            diffs = []
+
+            def same(a, b, where):
+                if isinstance(a, dict) and isinstance(b, dict) and a.keys() == b.keys():
+                    for k in a:
+                        if where + k not in ("created", "verify.ranks"):
+                            same(a[k], b[k], where + k + ".")
+                elif isinstance(a, list) and isinstance(b, list) and len(a) == len(b):
+                    for i, (x, y) in enumerate(zip(a, b)):
+                        same(x, y, where + str(i) + ".")
+                elif isinstance(a, float) or isinstance(b, float):
+                    if not (isinstance(a, (int, float)) and isinstance(b, (int, float))
+                            and abs(a - b) <= 1e-12 * max(abs(a), abs(b))):
+                        diffs.append(where)
+                elif a != b:
+                    diffs.append(where)
+            same(doc, doc2, "")
+            chk.check(diffs == [], "demo: 1 and 2 ranks give the same document (numbers within 1e-12 relative)",
+                      str(diffs[:5]))
+    else:
+        chk.note("no mpiexec: the 2-rank comparison was not run")
+
     # ---- 2. an imported model without factors ------------------------------------
     rnd = mc.random_mdp(20261202, 40, 0.9, actions=(1, 3), successors=(1, 3))
     imodel = mc.import_model(binary, rnd, work, "imported")

@@ -5,4 +5,4 @@
 add_test(NAME report_page
   COMMAND /usr/bin/python3 ${PROJECT_SOURCE_DIR}/tests/report/test_report.py
           $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/report_page ${PROJECT_SOURCE_DIR}/report)
-set_tests_properties(report_page PROPERTIES LABELS report TIMEOUT 900 ENVIRONMENT "${SLUICE_TEST_ENV}")
+set_tests_properties(report_page PROPERTIES LABELS report TIMEOUT 900 ENVIRONMENT "${SLUICE_TEST_ENV};SLUICE_MPIEXEC=${SLUICE_MPIEXEC}")
