@@ -151,6 +151,10 @@ function convergenceSpec(doc) {
   };
 }
 
+// An action is shown by its value (with the unit in the legend title) when
+// the model gives one, else by its name.
+const actionLabel = (a, id) => (a && typeof a.value === 'number' ? num(a.value) : a?.name ?? `action ${id}`);
+
 function ruleMapSpec(doc) {
   const r = doc.rule_map;
   const m = doc.model;
@@ -164,20 +168,24 @@ function ruleMapSpec(doc) {
         const k = (f * ny + y) * nx + x;
         const id = r.action[k];
         const a = acts.get(id);
-        const row = { x: String(r.x.labels[x]), y: String(r.y.labels[y]), action_id: id,
-          action: a?.name ?? `action ${id}` };
-        if (a && a.value !== null && a.value !== undefined) row.action_value = a.value;
+        const row = { x: String(r.x.labels[x]), y: String(r.y.labels[y]), action_id: id, action: actionLabel(a, id) };
+        if (a && typeof a.value === 'number') {
+          row.action_value = a.value;
+          row.action_name = a.name;
+        }
         if (r.facet) row.facet = String(r.facet.labels[f]);
         if (r.value) row.value = r.value[k];
         rows.push(row);
       }
-  const used = [...new Set(r.action)].sort((p, q) => p - q);
-  const domain = used.map((id) => acts.get(id)?.name ?? `action ${id}`);
+  // legend in the order of the actions' values when they have values, else of their ids
+  const key = (id) => { const v = acts.get(id)?.value; return typeof v === 'number' ? v : id; };
+  const used = [...new Set(r.action)].sort((p, q) => key(p) - key(q) || p - q);
+  const domain = used.map((id) => actionLabel(acts.get(id), id));
   const withUnit = (ax) => (ax.unit ? `${ax.factor} (${ax.unit})` : ax.factor);
   const tooltip = [{ field: 'x', title: withUnit(r.x) }, { field: 'y', title: withUnit(r.y) }];
   if (r.facet) tooltip.push({ field: 'facet', title: withUnit(r.facet) });
-  tooltip.push({ field: 'action', title: 'action' });
-  if (rows.some((w) => 'action_value' in w)) tooltip.push({ field: 'action_value', title: au ? `action (${au})` : 'action value' });
+  tooltip.push({ field: 'action', title: au ? `action (${au})` : 'action' });
+  if (rows.some((w) => 'action_value' in w)) tooltip.push({ field: 'action_name', title: 'action name' });
   if (r.value) tooltip.push({ field: 'value', format: '.6g', title: `value (${unitOf(m.reward_unit, 'reward units')})` });
   const cellW = Math.max(3, Math.min(14, Math.floor(260 / nx)));
   const cellH = Math.max(6, Math.min(16, Math.floor(200 / ny)));
@@ -186,7 +194,7 @@ function ruleMapSpec(doc) {
     width: cellW * nx, height: cellH * ny,
     encoding: {
       x: { field: 'x', type: 'ordinal', sort: r.x.labels.map(String), title: withUnit(r.x),
-        axis: { labelOverlap: 'parity', labelAngle: 0 } },
+        axis: { labelOverlap: 'parity', labelAngle: 0, labelExpr: "isValid(toNumber(datum.value)) ? format(toNumber(datum.value), '.4~g') : datum.value" } },
       y: { field: 'y', type: 'ordinal', sort: r.y.labels.map(String), title: withUnit(r.y) },
       color: { field: 'action', type: 'ordinal', scale: { domain, scheme: 'viridis' }, title: au ? `action (${au})` : 'action',
         legend: { columns: domain.length > 12 ? 2 : 1 } },
