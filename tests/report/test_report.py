@@ -125,6 +125,17 @@ def check_common(chk, label, page, sol_path, model_path):
     return attrs, value
 
 
+def factor_labels(f, name, size):
+    """How a factor's index is labelled (docs/formats.md, format 2): its label,
+    else its numeric value printed as %.6g, else the index; read with h5py."""
+    g = "factor/%s/" % name
+    if g + "label" in f:
+        return [x.decode() for x in f[g + "label"][...]]
+    if g + "value" in f:
+        return ["%.6g" % x for x in f[g + "value"][...]]
+    return [str(i) for i in range(size)]
+
+
 def bellman_residual(model_path, value):
     """sup |T v - v| recomputed in numpy/scipy from the model file (Puterman
     1994, Markov Decision Processes, section 6.6: the residual that the
@@ -161,7 +172,16 @@ def main():
     page = open_page(rdir, html, shot)
     attrs, value = check_common(chk, "demo", page, sol, model)
     chk.note("screenshot of the first screen: %s" % shot)
-    expected = {"convergence", "rule_map"}
+    with h5py.File(model, "r") as f:
+        numeric_storage = "factor/storage/value" in f
+        reward_unit = mc._attr(f, "reward_unit") or "reward units"
+        labels = {n: factor_labels(f, n, k) for n, k in (("storage", L), ("inflow", J), ("month", 12))}
+        storage_values = f["factor/storage/value"][...] if numeric_storage else None
+    chk.check(reward_unit in (page["certificate_text"] or ""),
+              "demo: the certificate is given in the model's reward unit (%s)" % reward_unit,
+              page["certificate_text"])
+    # water values need the numeric storage values of a format 2 model
+    expected = {"convergence", "rule_map"} | ({"water_values"} if numeric_storage else set())
     chk.check(set(page["figures"]) == expected and set(page["rendered"] or []) == expected,
               "demo: the convergence plot and the rule map are drawn", str(sorted(page["figures"])))
     for name in expected:
@@ -175,7 +195,7 @@ def main():
                   page["figures"]["rule_map"]["marks"]["rect"], L * 12 * J))
     chk.check(page.get("tooltip") and "storage" in page["tooltip"] and "action" in page["tooltip"],
               "demo: hovering a map cell shows its labels and action", repr(page.get("tooltip")))
-    for name in ("water_values", "outlook_factors", "outlook_quantities"):
+    for name in {"water_values", "outlook_factors", "outlook_quantities"} - expected:
         chk.check(name in page["omitted"] and len(page["omitted"][name]) > 20,
                   "demo: %s left out with a reason" % name, page["omitted"].get(name, "missing"))
 
@@ -223,11 +243,35 @@ def main():
         if name == "rule_map" and meta:
             bad = 0
             for r in meta["rows"]:
-                s = int(r["x"]) + L * (int(r["facet"]) + J * int(r["y"]))   # storage + L*(inflow + J*month)
-                bad += r["action"] != names[policy[s]] or abs(r["value"] - value[s]) > 0
+                i, j, k = (labels["storage"].index(r["x"]), labels["inflow"].index(r["facet"]),
+                           labels["month"].index(r["y"]))
+                s = i + L * (j + J * k)   # factor 0 fastest: storage + L*(inflow + J*month)
+                bad += r["action_id"] != policy[s] or abs(r["value"] - value[s]) > 0
+                if "action_name" in r:   # shown by value: the name travels beside it
+                    bad += r["action_name"] != names[policy[s]]
+                else:
+                    bad += r["action"] != names[policy[s]]
             chk.check(len(meta["rows"]) == L * J * 12 and bad == 0,
                       "demo: every rule_map.svg cell carries /policy and /value of its state (h5py)",
                       "%d rows, %d mismatches" % (len(meta["rows"]), bad))
+        if name == "water_values" and meta:
+            # central differences of /value along storage divided by the step
+            # of /factor/storage/value, one-sided at the ends, the inflow class
+            # fixed at the middle index (as the plot's subtitle says)
+            v = value.reshape(12, J, L)[:, J // 2, :]
+            S = storage_values
+            d = np.empty_like(v)
+            d[:, 1:-1] = (v[:, 2:] - v[:, :-2]) / (S[2:] - S[:-2])
+            d[:, 0] = (v[:, 1] - v[:, 0]) / (S[1] - S[0])
+            d[:, -1] = (v[:, -1] - v[:, -2]) / (S[-1] - S[-2])
+            worst, n = 0.0, 0
+            for r in meta["rows"]:
+                i, k = int(np.argmin(np.abs(S - r["x"]))), labels["month"].index(r["by"])
+                worst = max(worst, abs(r["marginal"] - d[k, i]) / max(1e-300, abs(d[k, i])))
+                n += 1
+            chk.check(n == 12 * L and worst <= 1e-12,
+                      "demo: water_values.svg carries the marginal values recomputed from /value (h5py, numpy)",
+                      "%d points, worst relative difference %.2e" % (n, worst))
     no_leftovers(chk, work, "demo")
     no_leftovers(chk, figs, "demo figures")
 
