@@ -28,6 +28,6 @@ typedef struct sl_report_data_opts {
  * belongs to another model or chooses an action the model does not offer,
  * SL_ENOINPUT when a file is missing. A solution whose certificate does not
  * hold is not an error: the document says so. Collective. */
-sl_status sl_report_data(sl_ctx *ctx, const sl_report_data_opts *opts);
+SLUICE_API sl_status sl_report_data(sl_ctx *ctx, const sl_report_data_opts *opts);
 
 #endif /* SLUICE_REPORT_H */

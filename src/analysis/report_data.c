@@ -14,174 +14,118 @@ static const char caution_text[] =
     "nothing the model leaves out. Its results support, and never replace, the judgement of licensed engineers "
     "and the rules and regulations that apply where the decision is made.";
 
-/* What rank 0 holds while it writes the document. */
+/* What the document is made of. The handles are distributed over the ranks;
+ * value, action and history are whole on rank 0. */
 typedef struct report_in {
-    sl_meta m;
+    sl_model *mh;
+    sl_solution *xh;
+    const sl_meta *m;           /* mh's metadata */
     sl_solution_info info;
-    double *value;
-    int32_t *action;            /* policy: action id per state */
-    int64_t *first_pair;        /* [n_states + 1] */
-    int32_t *pair_action;       /* [n_pairs] */
-    int64_t n_hist;
-    sl_history hist;
-    int64_t *avail;             /* states where each action id is available */
+    sl_certificate cert;
+    sl_history_view hist;       /* owned by xh, or a view of own_hist */
+    sl_history own_hist;        /* read from the file when the handle has none */
+    double *value;              /* [n_states] on rank 0 */
+    int32_t *action;            /* [n_states] on rank 0: the policy's action ids */
+    int64_t *avail;             /* states where each action id is available (all ranks) */
     int32_t n_actions;          /* 1 + largest action id */
+    int64_t aps_min, aps_max;   /* actions per state */
 } report_in;
 
 static void report_in_free(report_in *r)
 {
     free(r->value);
     free(r->action);
-    free(r->first_pair);
-    free(r->pair_action);
     free(r->avail);
-    sl_history_free(&r->hist);
-    sl_meta_free(&r->m);
+    sl_history_free(&r->own_hist);
+    sl_solution_free(&r->xh);
+    sl_model_free(&r->mh);
     memset(r, 0, sizeof(*r));
 }
 
-/* The solution's residual history (absent in old files: n_hist = 0). */
-static sl_status read_history(sl_ctx *ctx, hid_t f, const char *path, report_in *r)
-{
-    sl_status st = SL_OK;
-    int64_t n = sl_h5_length(f, "/history/sweeps");
-    if (n <= 0) return SL_OK;
-    sl_history *h = &r->hist;
-    for (int64_t i = 0; i < n && st == SL_OK; i++) st = sl_history_push(ctx, h, 0, 0, 0, 0, 0, 0, 0);
-    if (st != SL_OK) return st;
-    sl_history_column col[SL_HISTORY_COLUMNS];
-    sl_history_columns(h, col);
-    for (int k = 0; k < SL_HISTORY_COLUMNS && st == SL_OK; k++)
-        st = sl_h5_read_1d(ctx, f, col[k].name, col[k].mtype, n, 0, n, col[k].data, path);
-    r->n_hist = n;
-    return st;
-}
-
-/* Model meta, solution, pair index and history, whole, on rank 0. Collective. */
-static sl_status load(sl_ctx *ctx, const sl_report_data_opts *o, report_in *r)
+/* The residual history straight from the solution file (a loaded solution
+ * handle does not carry it). Absent in old files: n = 0. Collective. */
+static sl_status read_history(sl_ctx *ctx, const char *path, report_in *r)
 {
     sl_status st = SL_OK;
     hid_t f = H5I_INVALID_HID;
-    int root = ctx->rank == 0;
-    SL_TRY(sl_store_model_meta(ctx, o->model, &r->m));
-    const sl_meta *m = &r->m;
-    int64_t ns = root ? m->n_states : 0, np = root ? m->n_pairs : 0;
-    if (SL_ALLOC(ctx, r->value, ns, "values") == NULL || SL_ALLOC(ctx, r->action, ns, "policy") == NULL ||
-        SL_ALLOC(ctx, r->first_pair, ns + 1, "pair index") == NULL ||
-        SL_ALLOC(ctx, r->pair_action, np, "pair actions") == NULL)
-        st = SL_ENOMEM;
+    sl_history *h = &r->own_hist;
+    SL_TRY(sl_h5_open(ctx, path, 0, &f));
+    int64_t n = sl_h5_length(f, "/history/sweeps");
+    for (int64_t i = 0; i < n && st == SL_OK; i++) st = sl_history_push(ctx, h, 0, 0, 0, 0, 0, 0, 0);
     SL_TRY(sl_agree(ctx, st));
-    SL_TRY(sl_store_solution_read(ctx, o->solution, SL_FILE_SOLUTION, m->n_states, 0, ns, r->value, r->action,
-                                  &r->info));
-    if (strcmp(r->info.model_fingerprint, m->fingerprint) != 0)
-        SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EDATA,
-                                    "%s was computed for a different model (fingerprint %s) than %s (fingerprint %s)",
-                                    o->solution, r->info.model_fingerprint, o->model, m->fingerprint)));
-    SL_TRY(sl_h5_open(ctx, o->model, 0, &f));
-    st = sl_h5_read_1d(ctx, f, "/state/first_pair", H5T_NATIVE_INT64, m->n_states + 1, 0, root ? ns + 1 : 0,
-                       r->first_pair, o->model);
-    if (st == SL_OK)
-        st = sl_h5_read_1d(ctx, f, "/pair/action", H5T_NATIVE_INT32, m->n_pairs, 0, np, r->pair_action, o->model);
-    SL_TRY(sl_agree(ctx, st));
-    H5Fclose(f);
-    f = H5I_INVALID_HID;
-    /* The index must be sound and every chosen action offered where chosen. */
-    int32_t amax = m->n_action_names > 0 ? m->n_action_names - 1 : 0;
-    for (int64_t s = 0; root && s < ns && st == SL_OK; s++) {
-        int64_t a = r->first_pair[s], b = r->first_pair[s + 1];
-        if (a < 0 || b <= a || b > m->n_pairs) {
-            st = SL_ERR(ctx, SL_EDATA, "%s: state %lld: /state/first_pair is not increasing within the pairs",
-                        o->model, (long long)s);
-            break;
-        }
-        int found = 0;
-        for (int64_t q = a; q < b; q++) {
-            if (r->pair_action[q] < 0) {
-                st = SL_ERR(ctx, SL_EDATA, "%s: pair %lld: negative action id", o->model, (long long)q);
-                break;
-            }
-            if (r->pair_action[q] > amax) amax = r->pair_action[q];
-            found |= r->pair_action[q] == r->action[s];
-        }
-        if (st == SL_OK && !found)
-            st = SL_ERR(ctx, SL_EDATA, "%s: state %lld: the policy chooses action %d, which %s does not offer there",
-                        o->solution, (long long)s, (int)r->action[s], o->model);
-    }
-    if (root && st == SL_OK) {
-        r->n_actions = amax + 1;
-        if (SL_ZALLOC(ctx, r->avail, r->n_actions, "availability") == NULL) st = SL_ENOMEM;
-        for (int64_t q = 0; st == SL_OK && q < np; q++) r->avail[r->pair_action[q]]++;
-    }
-    SL_TRY(sl_agree(ctx, st));
-    /* history: small, every rank reads it (HDF5 opens are collective here) */
-    SL_TRY(sl_h5_open(ctx, o->solution, 0, &f));
-    SL_TRY(sl_agree(ctx, read_history(ctx, f, o->solution, r)));
+    sl_history_column col[SL_HISTORY_COLUMNS];
+    sl_history_columns(h, col);
+    for (int k = 0; k < SL_HISTORY_COLUMNS && n > 0; k++)
+        SL_TRY(sl_agree(ctx, sl_h5_read_1d(ctx, f, col[k].name, col[k].mtype, n, 0, n, col[k].data, path)));
+    r->hist = (sl_history_view){h->n, h->iteration, h->sweeps, h->seconds, h->sup, h->span, h->value_error,
+                                h->policy_loss};
 cleanup:
     if (f >= 0) H5Fclose(f);
     return st;
 }
 
-/* ---- the independent check: `sluice verify` run in-process ---------------- */
-
-typedef struct verify_out {
-    int ran, certified;
-    double residual_sup, residual_span, value_error_bound, policy_loss_bound, tolerance;
-} verify_out;
-
-static int json_number(const char *text, const char *key, double *out)
+/* Model and solution as handles (the solution must belong to the model and
+ * choose only offered actions: sl_solution_load checks both), availability
+ * counted over every rank's rows, value and policy gathered on rank 0.
+ * Collective. */
+static sl_status load(sl_ctx *ctx, const sl_report_data_opts *o, report_in *r)
 {
-    char pat[64];
-    snprintf(pat, sizeof(pat), "\"%s\":", key);
-    const char *p = strstr(text, pat);
-    if (p == NULL) return 0;
-    char *end = NULL;
-    *out = strtod(p + strlen(pat), &end);
-    return end != p + strlen(pat);
+    sl_status st = SL_OK;
+    SL_TRY(sl_model_load(ctx, o->model, &r->mh));
+    SL_TRY(sl_solution_load(ctx, o->solution, r->mh, &r->xh));
+    r->m = &r->mh->meta;
+    SL_TRY(sl_solution_get_info(r->xh, &r->info));
+    SL_TRY(sl_solution_get_certificate(r->xh, &r->cert));
+    SL_TRY(sl_solution_get_history(r->xh, &r->hist));
+    if (r->hist.n == 0) SL_TRY(read_history(ctx, o->solution, r));
+    if (!r->info.has_policy)
+        SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EDATA, "%s holds values only (from evaluate), no policy to report on",
+                                    o->solution)));
+    SL_TRY(sl_solution_gather(r->xh, 0, &r->value, &r->action));
+    const sl_block *b = &r->mh->blk;
+    int32_t amax = r->m->n_action_names > 0 ? r->m->n_action_names - 1 : 0;
+    int64_t lim[2] = {INT64_MAX, 0};
+    for (int64_t q = 0; q < sl_block_pairs(b); q++)
+        if (b->action[q] > amax) amax = b->action[q];
+    for (int64_t i = 0; i < sl_block_states(b); i++) {
+        int64_t c = b->first_pair[i + 1] - b->first_pair[i];
+        if (c < lim[0]) lim[0] = c;
+        if (c > lim[1]) lim[1] = c;
+    }
+    MPI_Allreduce(MPI_IN_PLACE, &amax, 1, MPI_INT32_T, MPI_MAX, ctx->comm);
+    MPI_Allreduce(MPI_IN_PLACE, &lim[0], 1, MPI_INT64_T, MPI_MIN, ctx->comm);
+    MPI_Allreduce(MPI_IN_PLACE, &lim[1], 1, MPI_INT64_T, MPI_MAX, ctx->comm);
+    r->aps_min = lim[0];
+    r->aps_max = lim[1];
+    r->n_actions = amax + 1;
+    if (SL_ZALLOC(ctx, r->avail, r->n_actions, "availability") == NULL) st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    for (int64_t q = 0; q < sl_block_pairs(b); q++) r->avail[b->action[q]]++;
+    MPI_Allreduce(MPI_IN_PLACE, r->avail, r->n_actions, MPI_INT64_T, MPI_SUM, ctx->comm);
+cleanup:
+    return st;
 }
 
-/* Run sl_verify (the `verify` command's code) with JSON output captured in
- * memory. A solution that fails its certificate is a result, not an error.
+/* ---- the independent check: the `verify` computation, in-process ---------- */
+
+typedef struct verify_out {
+    int ran;
+    sl_verification v;
+} verify_out;
+
+/* sl_verify recomputes the bounds from the model, the value and the policy
+ * alone. A solution that fails them is a result for the page, not an error.
  * Collective. */
-static sl_status run_verify(sl_ctx *ctx, const sl_report_data_opts *o, verify_out *v)
+static sl_status run_verify(sl_ctx *ctx, const report_in *r, verify_out *v)
 {
-    char *buf = NULL;
-    size_t len = 0;
     memset(v, 0, sizeof(*v));
-    FILE *mem = open_memstream(&buf, &len);
-    sl_status st = mem ? SL_OK : SL_ERR(ctx, SL_ENOMEM, "cannot capture the verification output");
-    st = sl_agree(ctx, st);
-    if (st != SL_OK) {
-        if (mem) fclose(mem);
-        free(buf);
-        return st;
-    }
-    sl_verify_opts vo;
-    memset(&vo, 0, sizeof(vo));
-    vo.model = o->model;
-    vo.solution = o->solution;
-    vo.json = 1;
-    vo.out = mem;
-    sl_status vs = sl_verify(ctx, &vo);
-    fclose(mem);
-    int parsed = 0;
-    if (ctx->rank == 0 && buf && len > 0) {
-        parsed = json_number(buf, "residual_sup", &v->residual_sup) && json_number(buf, "residual_span", &v->residual_span) &&
-                 json_number(buf, "value_error_bound", &v->value_error_bound) &&
-                 json_number(buf, "policy_loss_bound", &v->policy_loss_bound) && json_number(buf, "tolerance", &v->tolerance);
-        v->certified = strstr(buf, "\"certified\": true") != NULL;
-    }
-    int ok_parse = parsed;
-    MPI_Bcast(&ok_parse, 1, MPI_INT, 0, ctx->comm);
-    if (vs == SL_OK || (vs == SL_EDATA && ok_parse)) {
-        /* not certified is reported in the document, not as a failure */
+    sl_status st = sl_verify(r->mh, r->xh, 0, &v->v);
+    if (st == SL_OK || (st == SL_EDATA && !v->v.certified && v->v.tolerance > 0)) {
         sl_error_clear(ctx);
-        st = ok_parse ? SL_OK : SL_ERR(ctx, SL_EINTERNAL, "could not read the verification result");
         v->ran = 1;
-    } else {
-        st = vs;
+        st = SL_OK;
     }
-    free(buf);
-    return sl_agree(ctx, st);
+    return st;
 }
 
 /* ---- rule map ----------------------------------------------------------------- */
@@ -215,7 +159,7 @@ static void axis_json(sl_json *j, const char *key, const sl_meta *m, int f, cons
 
 static sl_status rule_map_json(sl_ctx *ctx, sl_json *j, const sl_report_data_opts *o, const report_in *r)
 {
-    const sl_meta *m = &r->m;
+    const sl_meta *m = r->m;
     if (m->n_factors < 2) {
         sl_json_obj_open(j, "rule_map");
         sl_json_str(j, "omitted", m->n_factors == 0
@@ -295,8 +239,8 @@ static sl_status rule_map_json(sl_ctx *ctx, sl_json *j, const sl_report_data_opt
 static void hist_array(sl_json *j, const char *key, const report_in *r, int k)
 {
     sl_json_arr_open(j, key);
-    for (int64_t i = 0; i < r->n_hist; i++) {
-        const sl_history *h = &r->hist;
+    for (int64_t i = 0; i < r->hist.n; i++) {
+        const sl_history_view *h = &r->hist;
         switch (k) {
         case 0: sl_json_int(j, NULL, h->iteration[i]); break;
         case 1: sl_json_int(j, NULL, h->sweeps[i]); break;
@@ -312,8 +256,9 @@ static void hist_array(sl_json *j, const char *key, const report_in *r, int k)
 
 static sl_status write_doc(sl_ctx *ctx, const sl_report_data_opts *o, const report_in *r, const verify_out *v)
 {
-    const sl_meta *m = &r->m;
+    const sl_meta *m = r->m;
     const sl_solution_info *in = &r->info;
+    const sl_certificate *c = &r->cert;
     sl_json jj, *j = &jj;
     sl_status st = SL_OK;
     FILE *out = o->out;
@@ -380,16 +325,10 @@ static sl_status write_doc(sl_ctx *ctx, const sl_report_data_opts *o, const repo
     sl_json_close_arr(j);
     sl_json_arr_open(j, "quantities");
     sl_json_close_arr(j);
-    int64_t amin = INT64_MAX, amaxs = 0;
-    for (int64_t s = 0; s < m->n_states; s++) {
-        int64_t c = r->first_pair[s + 1] - r->first_pair[s];
-        if (c < amin) amin = c;
-        if (c > amaxs) amaxs = c;
-    }
     sl_json_obj_open(j, "actions_per_state");
-    sl_json_int(j, "min", amin);
+    sl_json_int(j, "min", r->aps_min);
     sl_json_num(j, "mean", (double)m->n_pairs / (double)m->n_states);
-    sl_json_int(j, "max", amaxs);
+    sl_json_int(j, "max", r->aps_max);
     sl_json_close_obj(j);
     sl_json_close_obj(j);
 
@@ -405,9 +344,13 @@ static sl_status write_doc(sl_ctx *ctx, const sl_report_data_opts *o, const repo
     sl_json_str(j, "path", o->solution);
     sl_json_str(j, "method", in->method);
     sl_json_str(j, "order", in->order);
-    sl_json_key(j, "ranks"); /* not recorded in solution files of format 1 */
-    fputs("null", out);
-    sl_json_bool(j, "converged", in->converged);
+    if (in->ranks > 0) {
+        sl_json_int(j, "ranks", in->ranks);
+    } else { /* not recorded by older writers */
+        sl_json_key(j, "ranks");
+        fputs("null", out);
+    }
+    sl_json_bool(j, "converged", c->converged);
     sl_json_int(j, "iterations", in->iterations);
     sl_json_int(j, "sweeps", in->sweeps);
     sl_json_num(j, "seconds", in->seconds);
@@ -416,34 +359,33 @@ static sl_status write_doc(sl_ctx *ctx, const sl_report_data_opts *o, const repo
     sl_json_num(j, "value_min_abs", vabs);
     sl_json_close_obj(j);
     sl_json_obj_open(j, "certificate");
-    sl_json_num(j, "tolerance", in->tolerance);
-    sl_json_num(j, "value_error_bound", in->value_error_bound);
-    sl_json_num(j, "policy_loss_bound", in->policy_loss_bound);
-    sl_json_num(j, "residual_sup", in->residual_sup);
-    sl_json_num(j, "residual_span", in->residual_span);
-    sl_json_bool(j, "certified", in->converged && in->value_error_bound <= in->tolerance &&
-                                     in->policy_loss_bound <= in->tolerance);
+    sl_json_num(j, "tolerance", c->tolerance);
+    sl_json_num(j, "value_error_bound", c->value_error);
+    sl_json_num(j, "policy_loss_bound", c->policy_loss);
+    sl_json_num(j, "residual_sup", c->residual_sup);
+    sl_json_num(j, "residual_span", c->residual_span);
+    sl_json_bool(j, "certified", c->converged && c->value_error <= c->tolerance && c->policy_loss <= c->tolerance);
     /* relative to the smallest |value| (null when some value is 0) */
-    sl_json_num(j, "value_error_relative", vabs > 0 ? in->value_error_bound / vabs : NAN);
-    sl_json_num(j, "policy_loss_relative", vabs > 0 ? in->policy_loss_bound / vabs : NAN);
+    sl_json_num(j, "value_error_relative", vabs > 0 ? c->value_error / vabs : NAN);
+    sl_json_num(j, "policy_loss_relative", vabs > 0 ? c->policy_loss / vabs : NAN);
     sl_json_close_obj(j);
 
     sl_json_obj_open(j, "verify");
     if (!v->ran) {
         sl_json_str(j, "omitted", "the verification was skipped on request (--no-verify)");
     } else {
-        sl_json_bool(j, "certified", v->certified);
-        sl_json_num(j, "tolerance", v->tolerance);
-        sl_json_num(j, "residual_sup", v->residual_sup);
-        sl_json_num(j, "residual_span", v->residual_span);
-        sl_json_num(j, "value_error_bound", v->value_error_bound);
-        sl_json_num(j, "policy_loss_bound", v->policy_loss_bound);
+        sl_json_bool(j, "certified", v->v.certified);
+        sl_json_num(j, "tolerance", v->v.tolerance);
+        sl_json_num(j, "residual_sup", v->v.residual_sup);
+        sl_json_num(j, "residual_span", v->v.residual_span);
+        sl_json_num(j, "value_error_bound", v->v.value_error);
+        sl_json_num(j, "policy_loss_bound", v->v.policy_loss);
         sl_json_int(j, "ranks", ctx->size);
     }
     sl_json_close_obj(j);
 
     sl_json_obj_open(j, "history");
-    if (r->n_hist == 0) {
+    if (r->hist.n == 0) {
         sl_json_str(j, "omitted", "the solution file holds no residual history");
     } else {
         static const char *keys[] = {"iteration", "sweeps", "seconds", "sup", "span", "value_error_bound",
@@ -477,7 +419,7 @@ sl_status sl_report_data(sl_ctx *ctx, const sl_report_data_opts *o)
     if (o == NULL || o->model == NULL || o->solution == NULL || (ctx->rank == 0 && o->out == NULL))
         SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EUSAGE, "report data: model, solution and output are required")));
     SL_TRY(load(ctx, o, &r));
-    if (!o->skip_verify) SL_TRY(run_verify(ctx, o, &v));
+    if (!o->skip_verify) SL_TRY(run_verify(ctx, &r, &v));
     if (ctx->rank == 0) st = write_doc(ctx, o, &r, &v);
     st = sl_agree(ctx, st);
 cleanup:
