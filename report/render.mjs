@@ -283,7 +283,8 @@ function outlookQuantitiesSpec(doc) {
       facet: { row: { field: 'quantity', type: 'nominal', title: null } },
       resolve: { scale: { y: 'independent' } },
       spec: { width: 520, height: 120, mark: { type: 'line', point: { size: 10 } },
-        encoding: { x: { field: 'stage', type: 'quantitative' }, y: { field: 'mean', type: 'quantitative', title: 'expected' },
+        encoding: { x: { field: 'stage', type: 'quantitative', title: `stage (${o.period_unit || 'period'})` },
+          y: { field: 'mean', type: 'quantitative', title: null },
           tooltip: [{ field: 'quantity' }, { field: 'stage' }, { field: 'mean', format: '.4g', title: 'expected' }, { field: 'p_positive', format: '.3f', title: 'P(> 0)' }] } },
     },
   };

@@ -145,6 +145,55 @@ def bellman_residual(model_path, value):
     return float(np.max(np.abs(tv - value))), mdp
 
 
+def check_outlook(chk, model, mdp, policy, factor_rows, quantity_rows, L, J, stages=24):
+    """The outlook plots against an exact forward propagation done here with
+    scipy: mu_{t+1} = mu_t P_pi from the report's default start (storage and
+    inflow at their middle index, month 0), P_pi built from the model file
+    (h5py); storage mean and lower quantiles (smallest value whose cumulative
+    probability reaches p) by stage, and each quantity's expected value and
+    probability of being positive under mu_t."""
+    pairs, bad = mdp.pairs_of_policy(policy)
+    Ppi = mdp.P[pairs].tocsr()
+    n = mdp.n
+    with h5py.File(model, "r") as f:
+        S = f["factor/storage/value"][...]
+        qnames = [x.decode() for x in f["labels/quantity_name"][...]] if "labels/quantity_name" in f else []
+        qunit = {q: mc._attr(f["quantity/%s/mean" % q], "unit") for q in qnames}
+        qmean = {q: f["quantity/%s/mean" % q][...][pairs] for q in qnames}
+        qpos = {q: f["quantity/%s/p_positive" % q][...][pairs] for q in qnames}
+    mu = np.zeros(n)
+    mu[L // 2 + L * (J // 2)] = 1.0
+    level = np.arange(n) % L
+    worst, count = 0.0, 0
+    for t in range(stages + 1):
+        if factor_rows is not None:
+            w = np.bincount(level, weights=mu, minlength=L)
+            cdf = np.cumsum(w)
+            want = {"mean": float(mu @ S[level])}
+            for p, key in ((0.05, "p5"), (0.25, "p25"), (0.5, "p50"), (0.75, "p75"), (0.95, "p95")):
+                want[key] = float(S[int(np.argmax(cdf >= p - 1e-12))])
+            row = [r for r in factor_rows if r["stage"] == t and r["factor"] == "storage"]
+            for key, x in want.items():
+                got = row[0][key] if row else float("nan")
+                err = abs(got - x) / max(1.0, abs(x))
+                worst = max(worst, err) if err == err else float("inf")   # a missing row fails
+                count += 1
+        if quantity_rows is not None:
+            for q in qnames:
+                label = "%s (%s)" % (q, qunit[q]) if qunit[q] else q
+                row = [r for r in quantity_rows if r["stage"] == t and r["quantity"] == label]
+                for key, x in (("mean", float(mu @ qmean[q])), ("p_positive", float(mu @ qpos[q]))):
+                    got = row[0][key] if row else float("nan")
+                    err = abs(got - x) / max(1.0, abs(x))
+                    worst = max(worst, err) if err == err else float("inf")
+                    count += 1
+        mu = Ppi.T @ mu
+    what = "storage mean and quantiles" if factor_rows is not None else "expected quantities and P(> 0)"
+    chk.check(bad.size == 0 and count > 0 and worst <= 1e-9,
+              "demo: outlook plot carries the %s of an exact propagation recomputed with scipy" % what,
+              "%d numbers, worst relative difference %.2e" % (count, worst))
+
+
 def main():
     if len(sys.argv) != 4:
         sys.stderr.write("usage: test_report.py SLUICE WORKDIR REPORT_DIR\n")
@@ -180,8 +229,12 @@ def main():
     chk.check(reward_unit in (page["certificate_text"] or ""),
               "demo: the certificate is given in the model's reward unit (%s)" % reward_unit,
               page["certificate_text"])
-    # water values need the numeric storage values of a format 2 model
+    # water values need the numeric storage values of a format 2 model; the
+    # outlook plots, a sluice with the exact outlook and such a model
+    has_outlook = run([binary, "outlook", "--help"]).returncode == 0
     expected = {"convergence", "rule_map"} | ({"water_values"} if numeric_storage else set())
+    if has_outlook and numeric_storage:
+        expected |= {"outlook_factors", "outlook_quantities"}
     chk.check(set(page["figures"]) == expected and set(page["rendered"] or []) == expected,
               "demo: the convergence plot and the rule map are drawn", str(sorted(page["figures"])))
     for name in expected:
@@ -267,11 +320,16 @@ def main():
             worst, n = 0.0, 0
             for r in meta["rows"]:
                 i, k = int(np.argmin(np.abs(S - r["x"]))), labels["month"].index(r["by"])
-                worst = max(worst, abs(r["marginal"] - d[k, i]) / max(1e-300, abs(d[k, i])))
+                err = abs(r["marginal"] - d[k, i]) / max(1e-300, abs(d[k, i]))
+                worst = max(worst, err) if err == err else float("inf")
                 n += 1
             chk.check(n == 12 * L and worst <= 1e-12,
                       "demo: water_values.svg carries the marginal values recomputed from /value (h5py, numpy)",
                       "%d points, worst relative difference %.2e" % (n, worst))
+        if name == "outlook_factors" and meta:
+            check_outlook(chk, model, mdp, policy, meta["rows"], None, L, J)
+        if name == "outlook_quantities" and meta:
+            check_outlook(chk, model, mdp, policy, None, meta["rows"], L, J)
     no_leftovers(chk, work, "demo")
     no_leftovers(chk, figs, "demo figures")
 
