@@ -276,8 +276,6 @@ static int run_solve(cli_args *a, const solve_args *o)
             int wrc = cli_fail(a, sl_solution_save(x, o->output));
             if (wrc == 0) wrc = write_report(a, o, m, x, (int)st);
             if (wrc == 0) print_summary(a, o, m, x);
-            if (st == SL_ESTOPPED && sl_ctx_rank(ctx) == 0 && sl_ctx_verbosity(ctx) >= 1)
-                fprintf(stderr, "sluice solve: %s\n", sl_ctx_message(ctx));
             rc = wrc != 0 ? wrc : cli_fail(a, st);
         } else {
             rc = cli_fail(a, st);
