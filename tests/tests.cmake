@@ -44,7 +44,7 @@ foreach(script ${SLUICE_MPI_TESTS})
                        ENVIRONMENT "${SLUICE_TEST_ENV};SLUICE_MPIEXEC=${SLUICE_MPIEXEC};SLUICE_PYTHON=/usr/bin/python3")
 endforeach()
 
-foreach(frag tests/python/tests.cmake tests/jobs/tests.cmake)
+foreach(frag tests/python/tests.cmake tests/jobs/tests.cmake tests/report/tests.cmake)
   if(EXISTS ${PROJECT_SOURCE_DIR}/${frag})
     include(${PROJECT_SOURCE_DIR}/${frag})
   endif()

@@ -89,6 +89,9 @@ sl_status sl_store_solution_read(sl_ctx *ctx, const char *path, sl_file_kind kin
                                  int64_t s_begin, int64_t n_local, double *value, int32_t *actions,
                                  sl_solution_record *info);
 
+/* The residual history of a solution file (empty if it has none). Collective. */
+sl_status sl_store_solution_read_history(sl_ctx *ctx, const char *path, sl_history *h);
+
 /* ---- checkpoints ---------------------------------------------------------------- */
 
 /* Everything a solver needs to continue exactly where it stopped. */
