@@ -407,6 +407,11 @@ def main():
     cp = run([binary, "report", model, sol, "-o", os.path.join(bad, "no", "such", "dir", "r.html")], env=env)
     chk.check(cp.returncode == EX_CANTCREAT and "cannot create" in cp.stderr,
               "bad: an unwritable output exits 73 naming it", "%d %s" % (cp.returncode, cp.stderr[-300:]))
+    if has_outlook:   # a start outside the model
+        cp = run([binary, "report", model, sol, "-o", out, "--start", "storage@%d,inflow@0,month@0" % (L + 5)], env=env)
+        chk.check(cp.returncode == mc.EXIT_USAGE and "storage" in cp.stderr,
+                  "bad: an outlook start off the grid exits 64 naming the factor",
+                  "%d %s" % (cp.returncode, cp.stderr[-300:]))
     # a missing plotting package: a renderer directory without node_modules
     bare = os.path.join(work, "bare-renderer")
     os.makedirs(bare)
