@@ -224,6 +224,14 @@ static void test_monitor_save_verify(void **state)
     assert_string_equal(sl_model_factor_name(m2, 0), "gate");
     assert_string_equal(sl_model_action_name(m2, 1), "open");
     assert_int_equal(sl_solution_load(ctx, xp, m2, &y), SL_OK);
+    /* the history travels with the file */
+    sl_history_view h2;
+    assert_int_equal(sl_solution_get_history(y, &h2), SL_OK);
+    assert_int_equal(h2.n, h.n);
+    for (int64_t i = 0; i < h.n; i++) {
+        assert_true(h2.span[i] == h.span[i]);
+        assert_int_equal(h2.sweeps[i], h.sweeps[i]);
+    }
     double *va = NULL, *vb = NULL;
     int32_t *aa = NULL, *ab = NULL;
     assert_int_equal(sl_solution_gather(x, 0, &va, &aa), SL_OK);
