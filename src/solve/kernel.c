@@ -81,8 +81,10 @@ sl_status sl_problem_from_model(sl_ctx *ctx, const sl_model *m, sl_order order, 
     p->gamma = p->meta.discount;
     if (SL_ALLOC(ctx, p->bounds, ctx->size + 1, "partition") == NULL) st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
-    /* with a stage factor: every rank gets a share of every stage */
-    SL_TRY(sl_stage_map_rows(ctx, &m->meta, &m->blk, &p->stages));
+    /* with a stage factor: every rank gets a share of every stage (for the
+     * discounted methods; the other objectives (allow_any) keep the model's
+     * layout, which their file I/O assumes) */
+    if (!allow_any) SL_TRY(sl_stage_map_rows(ctx, &m->meta, &m->blk, &p->stages));
     /* on one rank with the stage factor slowest the internal numbering is
      * the file's: keep the rows where they are */
     int same = ctx->size == 1 && p->stages.outer == 1;

@@ -29,7 +29,9 @@ typedef struct sl_problem {
 } sl_problem;
 
 /* Prepare an assembled model for solving: local columns, halo and sweep
- * order; refuses objectives other than discounted unless allow_any.
+ * order; refuses objectives other than discounted unless allow_any. With
+ * a stage factor and !allow_any the rows are moved into the
+ * stage-interleaved layout (layout.h).
  * Collective. */
 sl_status sl_problem_from_model(sl_ctx *ctx, const sl_model *m, sl_order order, int allow_any, sl_problem *p);
 void sl_problem_free(sl_problem *p);
