@@ -278,9 +278,18 @@ static sl_status solve_finite(sl_ctx *ctx, const sl_problem *p, const sl_obj_opt
             sl_log(ctx, "solve: checkpoint of stages %lld..%lld written to %s", (long long)t, (long long)H, ck);
         }
         if (pr == 2 && t > 0) {
-            sl_log(ctx, "solve: stop requested at stage %lld", (long long)t);
             res->cert.converged = 0;
-            st = SL_ESTOPPED;
+            if (o->checkpoint_dir)
+                st = SL_ERR(ctx, SL_ESTOPPED,
+                            "stopped at stage %lld of %lld; stages %lld..%lld are in %s (continue with --resume); "
+                            "no solution file is written for an unfinished horizon",
+                            (long long)t, (long long)H, (long long)t, (long long)H, ck);
+            else
+                st = SL_ERR(ctx, SL_ESTOPPED,
+                            "stopped at stage %lld of %lld without --checkpoint: the computed stages are lost and "
+                            "no solution file is written",
+                            (long long)t, (long long)H);
+            sl_warn(ctx, "%s", ctx->err); /* the CLI prints nothing itself for exit 75 */
             goto cleanup;
         }
     }
