@@ -340,7 +340,7 @@ static sl_status find_improper(sl_ctx *ctx, const sl_problem *p, const char *abs
     for (int64_t i = 0; i < nx; i++) inE[i] = i < n ? (absorbing[i] ? 0.0 : 1.0) : 1.0;
     /* greatest fixpoint: shrink E (halo starts at 1: over-approximation is safe) */
     for (;;) {
-        int64_t changed_any = 0, changed;
+        int64_t changed;
         do {
             changed = 0;
             for (int64_t i = 0; i < n; i++) {
@@ -359,7 +359,6 @@ static sl_status find_improper(sl_ctx *ctx, const sl_problem *p, const char *abs
                     changed++;
                 }
             }
-            changed_any += changed;
         } while (changed);
         SL_TRY(sl_halo_exchange(ctx, &p->halo, inE));
         /* recheck with fresh halo: done when no rank changes */
@@ -378,7 +377,6 @@ static sl_status find_improper(sl_ctx *ctx, const sl_problem *p, const char *abs
             if (!keep) again = 1;
         }
         if (sl_sum_i64(ctx, again) == 0) break;
-        (void)changed_any;
     }
     /* least fixpoint: R = E plus states with a successor in R */
     for (int64_t i = 0; i < nx; i++) inR[i] = inE[i];
@@ -775,7 +773,7 @@ static sl_status solve_average(sl_ctx *ctx, const sl_problem *p, const sl_obj_op
 {
     sl_status st = SL_OK;
     int64_t n = p->n_local, nx = n + p->halo.n_halo;
-    double *y = NULL, *spans = NULL;
+    double *y = NULL;
     int32_t *acts = NULL;
     double tol = o->tolerance > 0 ? o->tolerance : 1e-6;
     double tau = o->aperiodicity > 0 ? o->aperiodicity : 0.5;
@@ -870,7 +868,6 @@ static sl_status solve_average(sl_ctx *ctx, const sl_problem *p, const sl_obj_op
     res->cert.sweeps = S.sweeps;
 cleanup:
     free(y);
-    free(spans);
     free(acts);
     sl_history_free(&hist);
     return st;
