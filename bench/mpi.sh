@@ -10,10 +10,10 @@
 # the same launcher cost as the 2-rank run. Per-sweep wall time comes from
 # sluice's report history; cpu/sweep is (CPU of the full run - CPU of a
 # 1-sweep run with the same rank count) / (sweeps - 1), summed over ranks.
-# Gauss-Seidel with 2 ranks is expected to need more sweeps: each rank sweeps
-# its own block in stage-reverse order, but values from the other block are
-# those of the previous sweep (halo exchange between sweeps), so the stage
-# order that makes one sweep contract by about gamma^12 is cut in two.
+# Gauss-Seidel on this staged model needs the 1-rank sweep count on 2 ranks
+# since the stage-interleaved layout (every rank holds a share of every
+# month; one stage at a time on all ranks, halo exchange after each stage).
+# Before it, each rank swept a block of months and the count nearly doubled.
 . "$(dirname "$0")/lib.sh"
 bench_init "$@"
 METHODS=${METHODS:-jacobi gs}

@@ -76,20 +76,29 @@ static sl_status partition_report(sl_ctx *ctx, const char *path, const sl_meta *
     int64_t *cum = NULL, *bounds = NULL, *fp = NULL, *ft = NULL, *tg = NULL;
     uint32_t *t32 = NULL;
     uint8_t *mark = NULL;
-    int64_t *halo = NULL, *nbr = NULL;
+    int64_t *halo = NULL, *nbr = NULL, *ptrans = NULL, *runs = NULL;
+    sl_stage_map sm;
     hid_t f = H5I_INVALID_HID;
+    memset(&sm, 0, sizeof(sm));
     int64_t ns = m->n_states;
     /* rank 0 reads; the others wait at the final agreement */
     SL_TRY(sl_store_model_cumulative(ctx, path, 0, ctx->rank == 0 ? ns : 0, &cum));
     if (ctx->rank == 0) {
         if (SL_ALLOC(ctx, bounds, N + 1, "partition") == NULL || SL_ZALLOC(ctx, mark, (ns + 7) / 8, "halo bitmap") == NULL ||
-            SL_ZALLOC(ctx, halo, N, "halo") == NULL || SL_ZALLOC(ctx, nbr, N, "halo") == NULL)
+            SL_ZALLOC(ctx, halo, N, "halo") == NULL || SL_ZALLOC(ctx, nbr, N, "halo") == NULL ||
+            SL_ZALLOC(ctx, ptrans, N, "partition") == NULL)
             st = SL_ENOMEM;
     }
     SL_TRY(sl_agree(ctx, st));
     SL_TRY(sl_h5_open(ctx, path, 0, &f));
     if (ctx->rank == 0) {
-        sl_partition_split(cum, ns, N, bounds);
+        /* the layout sl_problem_load uses: stage-interleaved with a stage
+         * factor (every part holds a share of every stage), else contiguous */
+        st = sl_stage_map_local(ctx, m, cum, N, &sm);
+        if (st == SL_OK && sm.active)
+            for (int k = 0; k <= N; k++) bounds[k] = sm.n_stages * sm.ub[k];
+        else
+            sl_partition_split(cum, ns, N, bounds);
         int use32 = sl_h5_is_u32(f, "/transition/target");
         const int64_t CH = 1 << 20;
         if (SL_ALLOC(ctx, tg, CH, "targets") == NULL || SL_ALLOC(ctx, t32, CH, "targets") == NULL) st = SL_ENOMEM;
@@ -97,8 +106,20 @@ static sl_status partition_report(sl_ctx *ctx, const char *path, const sl_meta *
         if (st == SL_OK && SL_ZALLOC(ctx, touched, N, "neighbours") == NULL) st = SL_ENOMEM;
         int64_t *distinct = NULL;
         for (int k = 0; k < N && st == SL_OK; k++) {
-            int64_t t0 = cum[bounds[k]], t1 = cum[bounds[k + 1]];
-            int64_t s0 = bounds[k], s1 = bounds[k + 1], nd = 0, cap = 0;
+            int64_t s0 = bounds[k], s1 = bounds[k + 1], nd = 0, cap = 0, nr = 1;
+            free(runs);
+            runs = NULL;
+            if (sm.active) {
+                st = sl_stage_runs(ctx, &sm, k, &runs, &nr);
+            } else if (SL_ALLOC(ctx, runs, 2, "partition") == NULL) {
+                st = SL_ENOMEM;
+            } else {
+                runs[0] = s0;
+                runs[1] = s1;
+            }
+            for (int64_t ri = 0; st == SL_OK && ri < nr; ri++) {
+            int64_t t0 = cum[runs[2 * ri]], t1 = cum[runs[2 * ri + 1]];
+            ptrans[k] += t1 - t0;
             for (int64_t a = t0; a < t1 && st == SL_OK; a += CH) {
                 int64_t c = a + CH < t1 ? CH : t1 - a;
                 if (use32) {
@@ -114,6 +135,7 @@ static sl_status partition_report(sl_ctx *ctx, const char *path, const sl_meta *
                                     (long long)(a + i), (long long)g);
                         break;
                     }
+                    g = sl_stage_internal(&sm, g);
                     if (g >= s0 && g < s1) continue;
                     if (mark[g >> 3] & (1u << (g & 7))) continue;
                     mark[g >> 3] |= (uint8_t)(1u << (g & 7));
@@ -128,6 +150,7 @@ static sl_status partition_report(sl_ctx *ctx, const char *path, const sl_meta *
                     }
                     distinct[nd++] = g;
                 }
+            }
             }
             halo[k] = nd;
             int nn = 0;
@@ -149,7 +172,7 @@ static sl_status partition_report(sl_ctx *ctx, const char *path, const sl_meta *
             for (int k = 0; k < N; k++) {
                 htot += halo[k];
                 if (halo[k] > hmax) hmax = halo[k];
-                int64_t t = cum[bounds[k + 1]] - cum[bounds[k]];
+                int64_t t = ptrans[k];
                 if (t > tmax) tmax = t;
             }
             if (json) {
@@ -159,6 +182,8 @@ static sl_status partition_report(sl_ctx *ctx, const char *path, const sl_meta *
                 sl_json_int(&j, "halo_total", htot);
                 sl_json_int(&j, "halo_max", hmax);
                 sl_json_num(&j, "bytes_exchanged_per_sweep", 8.0 * (double)htot);
+                sl_json_str(&j, "layout", sm.active ? "stage-interleaved" : "contiguous");
+                if (sm.active) sl_json_int(&j, "stages", sm.n_stages);
                 sl_json_num(&j, "transition_imbalance", (double)tmax * N / (double)(m->n_trans > 0 ? m->n_trans : 1));
                 sl_json_arr_open(&j, "parts");
                 for (int k = 0; k < N; k++) {
@@ -166,11 +191,11 @@ static sl_status partition_report(sl_ctx *ctx, const char *path, const sl_meta *
                     sl_json_int(&j, "rank", k);
                     sl_json_int(&j, "first_state", bounds[k]);
                     sl_json_int(&j, "states", bounds[k + 1] - bounds[k]);
-                    sl_json_int(&j, "transitions", cum[bounds[k + 1]] - cum[bounds[k]]);
+                    sl_json_int(&j, "transitions", ptrans[k]);
                     sl_json_int(&j, "halo", halo[k]);
                     sl_json_int(&j, "neighbours", nbr[k]);
                     sl_json_num(&j, "bytes_in_per_sweep", 8.0 * (double)halo[k]);
-                    double mem = 16.0 * (double)(cum[bounds[k + 1]] - cum[bounds[k]]) +
+                    double mem = 16.0 * (double)ptrans[k] +
                                  40.0 * (double)(bounds[k + 1] - bounds[k]) + 16.0 * (double)halo[k];
                     sl_json_num(&j, "memory_bytes_estimate", mem);
                     sl_json_close_obj(&j);
@@ -179,6 +204,11 @@ static sl_status partition_report(sl_ctx *ctx, const char *path, const sl_meta *
                 sl_json_end(&j);
             } else {
                 fprintf(out, "partition of %s over %d ranks (balanced by transitions)\n", path, N);
+                if (sm.active)
+                    fprintf(out, "layout: stage-interleaved - every rank holds a share of each of the %lld stages, "
+                                 "numbered stage by stage\n(first_state is the internal number); gs sweeps one stage "
+                                 "at a time on all ranks, so its sweep count does not grow with the ranks; it exchanges the\nhalo at the start of a sweep and each stage's part after that stage (up to twice the bytes below)\n",
+                            (long long)sm.n_stages);
                 fprintf(out, "%8s %14s %12s %14s %12s %6s %14s %12s\n", "rank", "first_state", "states", "transitions",
                         "halo", "nbrs", "bytes_in/sweep", "mem_est_MB");
                 int shown = 0;
@@ -188,7 +218,7 @@ static sl_status partition_report(sl_ctx *ctx, const char *path, const sl_meta *
                         shown = 1;
                         continue;
                     }
-                    int64_t t = cum[bounds[k + 1]] - cum[bounds[k]];
+                    int64_t t = ptrans[k];
                     double mem = 16.0 * (double)t + 40.0 * (double)(bounds[k + 1] - bounds[k]) + 16.0 * (double)halo[k];
                     fprintf(out, "%8d %14lld %12lld %14lld %12lld %6lld %14.0f %12.1f\n", k, (long long)bounds[k],
                             (long long)(bounds[k + 1] - bounds[k]), (long long)t, (long long)halo[k], (long long)nbr[k],
@@ -213,6 +243,9 @@ cleanup:
     free(t32);
     free(mark);
     free(halo);
+    free(ptrans);
+    free(runs);
+    sl_stage_map_free(&sm);
     free(nbr);
     return st;
 }

@@ -29,6 +29,10 @@ struct sl_lu {
     double ordering_used;    /* Info[UMFPACK_ORDERING_USED] of the analysis; < 0 none */
     double strategy_used;    /* Info[UMFPACK_STRATEGY_USED] */
     double umf_peak_estimate;/* Info[UMFPACK_PEAK_MEMORY_ESTIMATE] * unit size, bytes */
+    double flops_estimate;   /* Info[UMFPACK_FLOPS_ESTIMATE] of the analysis */
+    double time_limit;       /* seconds; 0: no time guard */
+    double flop_rate;        /* flop/s measured by the last numeric step; 0: none yet */
+    int declined;            /* a guard refused the last factorization */
     sl_lu_stats stats;
 };
 
@@ -215,12 +219,16 @@ static sl_status analyse(sl_ctx *ctx, sl_lu *lu, double info[UMFPACK_INFO])
     lu->ordering_used = info[UMFPACK_ORDERING_USED];
     lu->strategy_used = info[UMFPACK_STRATEGY_USED];
     lu->umf_peak_estimate = info[UMFPACK_PEAK_MEMORY_ESTIMATE] * info[UMFPACK_SIZE_OF_UNIT];
+    lu->flops_estimate = info[UMFPACK_FLOPS_ESTIMATE];
     return SL_OK;
 }
 
-sl_status sl_lu_factor(sl_ctx *ctx, sl_lu *lu, int64_t n, const int64_t *rowptr,
-                       const int64_t *col, const double *val, double memory_limit,
-                       int *fits, int *reused, double *estimate_bytes)
+void sl_lu_set_time_limit(sl_lu *lu, double seconds) { lu->time_limit = seconds > 0 ? seconds : 0; }
+
+int sl_lu_declined(const sl_lu *lu) { return lu != NULL && lu->declined; }
+
+sl_status sl_lu_prepare(sl_ctx *ctx, sl_lu *lu, int64_t n, const int64_t *rowptr, const int64_t *col,
+                        const double *val, double memory_limit, int *fits, int *reused, double *estimate_bytes)
 {
     sl_status st = SL_OK;
     double info[UMFPACK_INFO];
@@ -266,15 +274,39 @@ sl_status sl_lu_factor(sl_ctx *ctx, sl_lu *lu, int64_t n, const int64_t *rowptr,
     const double estimate = lu->umf_peak_estimate + own;
     lu->stats.peak_bytes = estimate;
     if (estimate_bytes != NULL) *estimate_bytes = estimate;
-    const int fit = !(memory_limit > 0.0) || estimate <= memory_limit;
+    /* time guard: UMFPACK's flop estimate from the symbolic step at the rate
+     * the last numeric step of this handle achieved, or at an assumed
+     * SL_LU_ASSUMED_FLOP_RATE before any (a rule of thumb for one core,
+     * common practice, no source) */
+    const double rate = lu->flop_rate > 0 ? lu->flop_rate : SL_LU_ASSUMED_FLOP_RATE;
+    lu->stats.flops_estimate = lu->flops_estimate;
+    lu->stats.seconds_estimate = lu->flops_estimate / rate;
+    lu->stats.flop_rate = rate;
+    const int fit_mem = !(memory_limit > 0.0) || estimate <= memory_limit;
+    const int fit_time = !(lu->time_limit > 0.0) || lu->stats.seconds_estimate <= lu->time_limit;
+    const int fit = fit_mem && fit_time;
+    lu->declined = !fit;
+    lu->stats.declined_for_time = fit_mem && !fit_time;
     if (ctx->verbosity >= 2)
         sl_log(ctx, "lu: n %lld, nnz %lld, ordering %s, symbolic %s %.3f s, "
                     "estimated peak %.3g GB%s",
                (long long)n, (long long)nnz, sl_lu_ordering(lu), reuse ? "reused" : "analysed",
                lu->stats.symbolic_seconds, estimate / 1e9,
-               fit ? "" : " (over the memory limit: not factored)");
-    if (!fit) goto cleanup;
+               fit ? "" : fit_mem ? " (over the time limit: not factored)" : " (over the memory limit: not factored)");
+    if (fits != NULL) *fits = fit;
 
+cleanup:
+    if (st != SL_OK && lu->symbolic == NULL) drop_analysis(lu);
+    return st;
+}
+
+sl_status sl_lu_numeric(sl_ctx *ctx, sl_lu *lu)
+{
+    sl_status st = SL_OK;
+    double info[UMFPACK_INFO];
+    const int64_t n = lu->n;
+    drop_numeric(lu);
+    if (lu->symbolic == NULL) return SL_ERR(ctx, SL_EINTERNAL, "LU numeric step without an analysis");
     const double t1 = sl_now();
     SuiteSparse_long s = umfpack_dl_numeric((const SuiteSparse_long *)lu->ap,
                                             (const SuiteSparse_long *)lu->ai, lu->ax,
@@ -307,7 +339,9 @@ sl_status sl_lu_factor(sl_ctx *ctx, sl_lu *lu, int64_t n, const int64_t *rowptr,
     lu->stats.lu_nnz = info[UMFPACK_LNZ] + info[UMFPACK_UNZ] - (double)n;
     lu->stats.umfpack_peak_bytes = info[UMFPACK_PEAK_MEMORY] * info[UMFPACK_SIZE_OF_UNIT];
     lu->stats.rcond = rcond;
-    if (fits != NULL) *fits = 1;
+    /* measured rate for the next time estimate (too short a run says little) */
+    lu->stats.flops = info[UMFPACK_FLOPS];
+    sl_lu_note_numeric(lu, lu->stats.numeric_seconds, info[UMFPACK_FLOPS]);
     if (ctx->verbosity >= 2)
         sl_log(ctx, "lu: numeric %.3f s, L+U %.4g entries, UMFPACK peak %.3g GB, rcond %.3g",
                lu->stats.numeric_seconds, lu->stats.lu_nnz, lu->stats.umfpack_peak_bytes / 1e9,
@@ -321,6 +355,30 @@ cleanup:
         if (lu->symbolic == NULL) drop_analysis(lu);
     }
     return st;
+}
+
+sl_status sl_lu_factor(sl_ctx *ctx, sl_lu *lu, int64_t n, const int64_t *rowptr,
+                       const int64_t *col, const double *val, double memory_limit,
+                       int *fits, int *reused, double *estimate_bytes)
+{
+    int fit = 0;
+    if (fits != NULL) *fits = 0;
+    sl_status st = sl_lu_prepare(ctx, lu, n, rowptr, col, val, memory_limit, &fit, reused, estimate_bytes);
+    if (st != SL_OK || !fit) return st;
+    st = sl_lu_numeric(ctx, lu);
+    if (st == SL_OK && fits != NULL) *fits = 1;
+    return st;
+}
+
+void sl_lu_note_numeric(sl_lu *lu, double seconds, double flops)
+{
+    /* calibrate the estimate, not the count: UMFPACK's symbolic flop
+     * estimate is an upper bound that can exceed the flops done many times
+     * over, so the rate that predicts time is estimate / seconds. Runs under
+     * a second or under 1e9 estimated flops are mostly overhead (start-up,
+     * page faults, a loaded machine) and say nothing about the rate. */
+    (void)flops;
+    if (seconds >= 1.0 && lu->flops_estimate >= 1e9) lu->flop_rate = lu->flops_estimate / seconds;
 }
 
 sl_status sl_lu_solve(sl_ctx *ctx, sl_lu *lu, const double *b, double *x)

@@ -64,6 +64,17 @@ sl_status sl_lu_factor(sl_ctx *ctx, sl_lu *lu, int64_t n, const int64_t *rowptr,
                        const int64_t *col, const double *val, double memory_limit,
                        int *fits, int *reused, double *estimate_bytes);
 
+/* sl_lu_factor in two steps, so that the numeric step can run where it can
+ * be abandoned (evaluate.c runs it in a child process): sl_lu_prepare does
+ * everything up to the guards and sets *fits; sl_lu_numeric then factors
+ * (same errors as sl_lu_factor). sl_lu_note_numeric records the time and
+ * flops of a numeric step done elsewhere (a child process) for the next
+ * time estimate. Local. */
+sl_status sl_lu_prepare(sl_ctx *ctx, sl_lu *lu, int64_t n, const int64_t *rowptr, const int64_t *col,
+                        const double *val, double memory_limit, int *fits, int *reused, double *estimate_bytes);
+sl_status sl_lu_numeric(sl_ctx *ctx, sl_lu *lu);
+void sl_lu_note_numeric(sl_lu *lu, double seconds, double flops);
+
 /* Solve A x = b with the last factorization (A as passed to sl_lu_factor, not
  * its transpose), with UMFPACK's iterative refinement. b and x have n entries
  * and must not overlap. Returns SL_OK; SL_EINTERNAL if there is no
@@ -86,7 +97,25 @@ typedef struct sl_lu_stats {
     int reused_symbolic;      /* 1 if the symbolic analysis was reused */
     double umfpack_peak_bytes;/* UMFPACK's measured peak after the numeric step (0 if not factored) */
     double rcond;             /* UMFPACK's reciprocal condition estimate min|u_ii|/max|u_ii| (0 if not factored) */
+    double flops_estimate;    /* UMFPACK's flop estimate after the symbolic step */
+    double seconds_estimate;  /* flops_estimate / flop_rate, compared with the time limit */
+    double flop_rate;         /* rate used (estimated flops per second): calibrated by this handle's last
+                               * numeric step of at least 1 s, else assumed */
+    int declined_for_time;    /* the time guard (not memory) refused the factorization */
+    double flops;             /* flops of the numeric step (0 if not factored) */
 } sl_lu_stats;
+
+/* Flop rate assumed before a handle has measured one (flop/s). */
+#define SL_LU_ASSUMED_FLOP_RATE 1e9
+
+/* Time guard: sl_lu_factor does not factor (returns *fits = 0) when UMFPACK's
+ * flop estimate after the symbolic step, divided by the rate of estimated
+ * flops per second this handle's last numeric factorization of 1 s or more
+ * and 1e9 estimated flops or more achieved (SL_LU_ASSUMED_FLOP_RATE before any), exceeds `seconds`. 0 (the default) disables the guard. Local. */
+void sl_lu_set_time_limit(sl_lu *lu, double seconds);
+/* 1 if the last sl_lu_factor call was refused by the memory or time guard.
+ * Accepts NULL (0). Local. */
+int sl_lu_declined(const sl_lu *lu);
 
 /* Copy the statistics of the last sl_lu_factor call (all zero before any). Local. */
 void sl_lu_get_stats(const sl_lu *lu, sl_lu_stats *stats);

@@ -369,9 +369,8 @@ static inline void acc_entry(uint64_t acc[2], uint64_t tag, int64_t pos, uint64_
     acc[1] += sl_mix64(h ^ 0x5851f42d4c957f2dULL);
 }
 
-sl_status sl_fingerprint(sl_ctx *ctx, const sl_meta *m, const sl_block *b, char out[40])
+void sl_fingerprint_local(const sl_block *b, uint64_t acc[2])
 {
-    uint64_t acc[2] = {0, 0}, tot[2] = {0, 0};
     int64_t ns = sl_block_states(b), np = sl_block_pairs(b), nt = sl_block_trans(b);
     for (int64_t i = 0; i < ns; i++)
         acc_entry(acc, 1, b->s_begin + i, (uint64_t)b->first_pair[i + 1]);
@@ -384,11 +383,23 @@ sl_status sl_fingerprint(sl_ctx *ctx, const sl_meta *m, const sl_block *b, char 
         acc_entry(acc, 5, b->t_begin + t, (uint64_t)b->target[t]);
         acc_entry(acc, 6, b->t_begin + t, dbits(b->prob[t]));
     }
-    MPI_Allreduce(acc, tot, 2, MPI_UINT64_T, MPI_SUM, ctx->comm);
+}
+
+sl_status sl_fingerprint_finish(sl_ctx *ctx, const sl_meta *m, const uint64_t acc[2], char out[40])
+{
+    uint64_t tot[2] = {0, 0}, mine[2] = {acc[0], acc[1]};
+    MPI_Allreduce(mine, tot, 2, MPI_UINT64_T, MPI_SUM, ctx->comm);
     uint64_t head = sl_mix64((uint64_t)m->n_states) ^ sl_mix64((uint64_t)m->n_pairs * 3u) ^
                     sl_mix64((uint64_t)m->n_trans * 7u) ^ sl_mix64(dbits(m->discount)) ^
                     sl_mix64((uint64_t)m->objective + 11u);
     uint64_t h0 = sl_mix64(tot[0] ^ head), h1 = sl_mix64(tot[1] + head);
     snprintf(out, 40, "%016llx%016llx", (unsigned long long)h0, (unsigned long long)h1);
     return SL_OK;
+}
+
+sl_status sl_fingerprint(sl_ctx *ctx, const sl_meta *m, const sl_block *b, char out[40])
+{
+    uint64_t acc[2] = {0, 0};
+    sl_fingerprint_local(b, acc);
+    return sl_fingerprint_finish(ctx, m, acc, out);
 }

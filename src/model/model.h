@@ -98,6 +98,11 @@ sl_status sl_block_validate(sl_ctx *ctx, const sl_block *b, const sl_meta *m,
  * (position, value) entries over the block, reduced over ranks, mixed with
  * sizes and discount. Same value for any partition. Collective. */
 sl_status sl_fingerprint(sl_ctx *ctx, const sl_meta *m, const sl_block *b, char out[40]);
+/* The same in two steps, for a rank that holds several blocks: add each
+ * block's entries into acc (start from {0, 0}; local), then reduce and mix
+ * (collective). */
+void sl_fingerprint_local(const sl_block *b, uint64_t acc[2]);
+sl_status sl_fingerprint_finish(sl_ctx *ctx, const sl_meta *m, const uint64_t acc[2], char out[40]);
 
 /* ---- the public model handle -------------------------------------------- */
 

@@ -119,6 +119,8 @@ void sl_halo_free(sl_halo *h)
     free(h->send_idx);
     free(h->send_buf);
     free(h->reqs);
+    free(h->recv_st_off);
+    free(h->send_st_off);
     memset(h, 0, sizeof(*h));
 }
 

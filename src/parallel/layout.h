@@ -33,6 +33,12 @@ typedef struct sl_halo {
     int64_t *send_idx;          /* local (owned) indices to send */
     double *send_buf;
     MPI_Request *reqs;          /* n_recv + n_send */
+    /* stage-interleaved layout only (sl_halo_stage_plan): the part of each
+     * neighbour's range that belongs to stage st is
+     * [off + st_off[i * (n_stages + 1) + st], off + st_off[i * (n_stages + 1) + st + 1]) */
+    int64_t n_stages;
+    int64_t *recv_st_off;       /* [n_recv * (n_stages + 1)], relative to recv_off[i] */
+    int64_t *send_st_off;       /* [n_send * (n_stages + 1)], relative to send_off[i] */
 } sl_halo;
 
 /* Build the halo of a block: b->col gets the local column of every
@@ -42,6 +48,70 @@ sl_status sl_halo_build(sl_ctx *ctx, const int64_t *bounds, sl_block *b, sl_halo
 /* Refresh the halo part of x from the owners. Collective. */
 sl_status sl_halo_exchange(sl_ctx *ctx, const sl_halo *h, double *x);
 void sl_halo_free(sl_halo *h);
+
+/* ---- stage-interleaved layout (stages.c) ----------------------------------
+ * A model with a stage factor is renumbered internally when it is loaded so
+ * that every rank holds a share of every stage. Write a file state as
+ * s = l + L*(st + S*h) (l: the factors below the stage factor, L states;
+ * st: the stage, S values; h: the factors above it) and its stage-free
+ * index u = l + L*h. The u range [0, L*H) is split into nparts contiguous
+ * ranges ub[r] .. ub[r+1] balanced by transitions; rank r owns every state
+ * whose u is in its range, numbered internally stage-major:
+ *     internal(s) = S*ub[r] + st*(ub[r+1] - ub[r]) + (u - ub[r]).
+ * So a rank's states of stage st are the contiguous local range
+ * [st*w, (st+1)*w), w = ub[r+1] - ub[r], and within a stage the local order
+ * is the file order. The file, its contract and its fingerprint are not
+ * changed; only the in-memory numbering is. */
+typedef struct sl_stage_map {
+    int active;                 /* 1: the model has a stage factor */
+    int64_t inner, n_stages, outer; /* L, S, H */
+    int nparts;
+    int64_t *ub;                /* [nparts + 1] split of u */
+} sl_stage_map;
+
+void sl_stage_map_free(sl_stage_map *m);
+/* Internal id of file state s, and back. Local and pure. */
+int64_t sl_stage_internal(const sl_stage_map *m, int64_t s);
+int64_t sl_stage_file(const sl_stage_map *m, int64_t i);
+/* The map of a model for nparts parts from the file's cumulative
+ * transition counts cum[0..n_states] (all states). Local. */
+sl_status sl_stage_map_local(sl_ctx *ctx, const sl_meta *meta, const int64_t *cum, int nparts, sl_stage_map *m);
+/* The map for ctx->size parts from the rows each rank holds (contiguous
+ * file ranges, global targets). Collective. */
+sl_status sl_stage_map_rows(sl_ctx *ctx, const sl_meta *meta, const sl_block *rows, sl_stage_map *m);
+/* Contiguous file ranges holding part r's states, ascending and merged:
+ * runs[2k], runs[2k+1] = begin, end. *n_runs <= 2*S + 1. Local. */
+sl_status sl_stage_runs(sl_ctx *ctx, const sl_stage_map *m, int r, int64_t **runs, int64_t *n_runs);
+/* Move rows from their current layout (src: this rank's contiguous file
+ * range, src_bounds of all ranks, global file targets) to the
+ * stage-interleaved one: out gets this rank's states in internal order
+ * with targets as internal ids (out->target kept). Collective. */
+sl_status sl_stage_redistribute(sl_ctx *ctx, const sl_block *src, const int64_t *src_bounds, const sl_stage_map *m,
+                                sl_block *out);
+/* Per-stage exchange plan for a halo built on the stage-interleaved
+ * bounds (bounds[r] = S*ub[r]). Local. */
+sl_status sl_halo_stage_plan(sl_ctx *ctx, const sl_stage_map *m, sl_halo *h);
+/* Refresh the halo entries of stage st only. Collective. */
+sl_status sl_halo_exchange_stage(sl_ctx *ctx, const sl_halo *h, double *x, int64_t st);
+
+/* Moving owned vectors between the internal layout and the model's layout
+ * (contiguous file ranges fbounds), for solutions and checkpoints. Rank r's
+ * file slice is [f_begin, f_begin + f_n) = [fbounds[r], fbounds[r + 1]). */
+typedef struct sl_io_plan {
+    int64_t f_begin, f_n, n_local;
+    int *scnt, *sdsp, *rcnt, *rdsp; /* [size] in elements */
+    int64_t *spos;              /* [n_local] owned index at send slot k */
+    int64_t *rpos;              /* [f_n] file-slice offset of receive slot k */
+} sl_io_plan;
+/* bounds: internal bounds of all ranks; file_of(i) via the map; fbounds:
+ * the destination layout. Collective. */
+sl_status sl_io_plan_build(sl_ctx *ctx, const sl_stage_map *m, const int64_t *bounds, const int64_t *fbounds,
+                           sl_io_plan *io);
+void sl_io_plan_free(sl_io_plan *io);
+/* owned (internal order) -> file slice, and back; elem bytes per entry.
+ * Collective. */
+sl_status sl_io_to_file(sl_ctx *ctx, const sl_io_plan *io, const void *owned, size_t elem, void *slice);
+sl_status sl_io_from_file(sl_ctx *ctx, const sl_io_plan *io, const void *slice, size_t elem, void *owned);
 
 /* Global reductions (collective). */
 double sl_sum(sl_ctx *ctx, double v);

@@ -1,7 +1,17 @@
 /* evaluate.c - value of a fixed policy: exact (UMFPACK on rank 0) or
  * iterative; the `evaluate` command. */
+/* MAP_ANONYMOUS */
+#ifndef _DEFAULT_SOURCE
+#define _DEFAULT_SOURCE
+#endif
+#include <errno.h>
 #include <math.h>
+#include <signal.h>
 #include <string.h>
+#include <sys/mman.h>
+#include <sys/wait.h>
+#include <time.h>
+#include <unistd.h>
 
 #include "linalg/lu.h"
 #include "solve/solve.h"
@@ -19,8 +29,108 @@ void sl_evaluate_direct_free(void **lu_cache)
     *lu_cache = NULL;
 }
 
+/* What the child process of a direct solve reports (in shared memory, in
+ * front of the solution vector). */
+typedef struct child_report {
+    int status;             /* sl_status; -1 until the child finishes */
+    double numeric_seconds, flops, lu_nnz, rcond, umf_peak;
+    char err[SL_MSG_MAX];
+} child_report;
+
+static int stop_wanted(const sl_ctx *ctx, double deadline)
+{
+    return (ctx->signal_flag != NULL && *ctx->signal_flag) || (deadline > 0 && sl_now() >= deadline);
+}
+
+/* Numeric factorization and solve of the prepared handle, in a child
+ * process that is killed when a stop is requested (signal flag) or the
+ * deadline passes, so a long factorization never delays a stop by more
+ * than the polling interval (20 ms). The parent's memory is not touched by
+ * the factorization; the child's goes with it. If the child cannot be
+ * started, the step runs here (and cannot be abandoned). Local (rank 0). */
+static sl_status numeric_abandonable(sl_ctx *ctx, sl_lu *lu, int64_t n, const double *b, double *v, double deadline,
+                                     int *abandoned)
+{
+    sl_status st = SL_OK;
+    size_t head = (sizeof(child_report) + 63) / 64 * 64, bytes = head + (size_t)n * sizeof(double);
+    *abandoned = 0;
+    void *shm = mmap(NULL, bytes, PROT_READ | PROT_WRITE, MAP_SHARED | MAP_ANONYMOUS, -1, 0);
+    pid_t pid = -1;
+    if (shm != MAP_FAILED) {
+        memset(shm, 0, head);
+        ((child_report *)shm)->status = -1;
+        pid = fork();
+    }
+    if (pid < 0) {
+        if (shm != MAP_FAILED) munmap(shm, bytes);
+        sl_log(ctx, "evaluate: cannot start a separate process for the factorization (%s); it runs here and "
+                    "cannot be interrupted", strerror(errno));
+        st = sl_lu_numeric(ctx, lu);
+        if (st == SL_OK) st = sl_lu_solve(ctx, lu, b, v);
+        return st;
+    }
+    child_report *rep = shm;
+    double *xv = (double *)((char *)shm + head);
+    if (pid == 0) {
+        /* child: factor, solve, report, leave without running exit handlers
+         * (the parent owns every other resource) */
+        sl_status cs = sl_lu_numeric(ctx, lu);
+        if (cs == SL_OK) cs = sl_lu_solve(ctx, lu, b, xv);
+        sl_lu_stats ls;
+        sl_lu_get_stats(lu, &ls);
+        rep->numeric_seconds = ls.numeric_seconds;
+        rep->flops = ls.flops;
+        rep->lu_nnz = ls.lu_nnz;
+        rep->rcond = ls.rcond;
+        rep->umf_peak = ls.umfpack_peak_bytes;
+        if (cs != SL_OK) snprintf(rep->err, sizeof(rep->err), "%s", ctx->err);
+        rep->status = (int)cs;
+        _exit(0);
+    }
+    double t0 = sl_now();
+    int wst = 0;
+    for (;;) {
+        pid_t w = waitpid(pid, &wst, WNOHANG);
+        if (w == pid) break;
+        if (w < 0 && errno != EINTR) {
+            st = SL_ERR(ctx, SL_EINTERNAL, "waiting for the factorization process: %s", strerror(errno));
+            kill(pid, SIGKILL);
+            while (waitpid(pid, &wst, 0) < 0 && errno == EINTR) continue;
+            goto done;
+        }
+        if (stop_wanted(ctx, deadline)) {
+            kill(pid, SIGKILL);
+            while (waitpid(pid, &wst, 0) < 0 && errno == EINTR) continue;
+            *abandoned = 1;
+            sl_log(ctx, "evaluate: direct solve abandoned after %.1f s: %s", sl_now() - t0,
+                   ctx->signal_flag != NULL && *ctx->signal_flag ? "stop or checkpoint requested by a signal"
+                                                                : "--walltime reached");
+            goto done;
+        }
+        struct timespec ts = {0, 20000000};
+        nanosleep(&ts, NULL);
+    }
+    if (!WIFEXITED(wst) || rep->status < 0) {
+        st = SL_ERR(ctx, SL_ENOMEM,
+                    "the factorization process ended abnormally (%s %d), e.g. killed for lack of memory; "
+                    "use --memory-limit or another method",
+                    WIFSIGNALED(wst) ? "signal" : "status", WIFSIGNALED(wst) ? WTERMSIG(wst) : WEXITSTATUS(wst));
+    } else if (rep->status != SL_OK) {
+        st = SL_ERR(ctx, (sl_status)rep->status, "%s", rep->err);
+    } else {
+        memcpy(v, xv, (size_t)n * sizeof(double));
+        sl_lu_note_numeric(lu, rep->numeric_seconds, rep->flops);
+        sl_log(ctx, "evaluate: UMFPACK numeric %.1f s, %.3g entries in L+U, %.3g flops, peak %.2f GB, rcond %.2g",
+               rep->numeric_seconds, rep->lu_nnz, rep->flops, rep->umf_peak / 1e9, rep->rcond);
+    }
+done:
+    munmap(shm, bytes);
+    return st;
+}
+
 sl_status sl_evaluate_direct(sl_ctx *ctx, const sl_problem *p, const int32_t *policy, double memory_limit,
-                             double *x, int *used_direct, double *estimate_bytes, void **lu_cache)
+                             double deadline, double *x, int *used_direct, int *abandoned, double *estimate_bytes,
+                             void **lu_cache)
 {
     sl_status st = SL_OK;
     const sl_block *b = &p->blk;
@@ -32,7 +142,19 @@ sl_status sl_evaluate_direct(sl_ctx *ctx, const sl_problem *p, const int32_t *po
     int64_t *arp = NULL, *acol = NULL;
     double *aval = NULL;
     *used_direct = 0;
+    *abandoned = 0;
     *estimate_bytes = 0;
+    /* once a guard has refused a factorization, stay iterative: no gather
+     * and no re-analysis for every later policy */
+    int skip = root && sl_lu_declined(*lu_cache);
+    MPI_Bcast(&skip, 1, MPI_INT, 0, ctx->comm);
+    if (skip) {
+        sl_lu_stats ls;
+        if (root) sl_lu_get_stats(*lu_cache, &ls);
+        MPI_Bcast(root ? &ls.peak_bytes : estimate_bytes, 1, MPI_DOUBLE, 0, ctx->comm);
+        if (root) *estimate_bytes = ls.peak_bytes;
+        return SL_OK;
+    }
 
     /* rows of P_pi with global columns, sorted within each row */
     int64_t nnz = 0;
@@ -104,18 +226,33 @@ sl_status sl_evaluate_direct(sl_ctx *ctx, const sl_problem *p, const int32_t *po
         if (st == SL_OK)
             st = sl_lu_build_evaluation_matrix(ctx, N, rowptr, all_cols, all_probs, p->gamma, &arp, &acol, &aval);
         int reused = 0;
-        if (st == SL_OK) st = sl_lu_factor(ctx, lu, N, arp, acol, aval, memory_limit, &fits, &reused, estimate_bytes);
-        if (st == SL_OK && fits) st = sl_lu_solve(ctx, lu, all_rew, v);
-        if (st == SL_OK && fits) {
-            sl_lu_stats ls;
+        /* time guard: the factorization should not take longer than
+         * SL_DIRECT_TIME_LIMIT nor run past the deadline */
+        double tlim = SL_DIRECT_TIME_LIMIT;
+        if (deadline > 0) tlim = fmax(1e-3, fmin(tlim, deadline - sl_now()));
+        if (st == SL_OK) sl_lu_set_time_limit(lu, tlim);
+        if (st == SL_OK) st = sl_lu_prepare(ctx, lu, N, arp, acol, aval, memory_limit, &fits, &reused, estimate_bytes);
+        sl_lu_stats ls;
+        if (st == SL_OK) {
             sl_lu_get_stats(lu, &ls);
-            sl_log(ctx, "evaluate: UMFPACK (%s ordering%s): %.3g entries in L+U, %.1f s numeric, peak estimate %.2f GB",
-                   sl_lu_ordering(lu), reused ? ", symbolic analysis reused" : "", ls.lu_nnz, ls.numeric_seconds,
+            sl_log(ctx, "evaluate: UMFPACK (%s ordering%s): estimated %.3g flops (about %.0f s at %.3g flop/s%s), "
+                        "peak %.2f GB",
+                   sl_lu_ordering(lu), reused ? ", symbolic analysis reused" : "", ls.flops_estimate,
+                   ls.seconds_estimate, ls.flop_rate, ls.flop_rate == SL_LU_ASSUMED_FLOP_RATE ? " assumed" : " measured",
                    ls.peak_bytes / 1e9);
+            if (!fits && ls.declined_for_time)
+                sl_warn(ctx, "exact evaluation would take about %.0f s (UMFPACK's flop estimate %.3g at %.3g flop/s), "
+                             "over the limit of %.0f s: evaluating iteratively from now on",
+                        ls.seconds_estimate, ls.flops_estimate, ls.flop_rate, tlim);
         }
+        int ab = 0;
+        if (st == SL_OK && fits) st = numeric_abandonable(ctx, lu, N, all_rew, v, deadline, &ab);
+        if (ab) fits = 0;
+        *abandoned = ab;
     }
     SL_TRY(sl_agree(ctx, st));
     MPI_Bcast(&fits, 1, MPI_INT, 0, ctx->comm);
+    MPI_Bcast(abandoned, 1, MPI_INT, 0, ctx->comm);
     MPI_Bcast(estimate_bytes, 1, MPI_DOUBLE, 0, ctx->comm);
     if (fits) {
         MPI_Scatterv(v, scnt, sdsp, MPI_DOUBLE, x, ni, MPI_DOUBLE, 0, ctx->comm);
@@ -149,8 +286,7 @@ sl_status sl_evaluate_iterative(sl_ctx *ctx, const sl_problem *p, const int32_t 
     *sweeps = 0;
     int64_t since = 0, interval = 1;
     for (;;) {
-        sl_halo_exchange(ctx, &p->halo, x);
-        sl_sweep_gs(p, x, pol, 1);
+        sl_sweep(ctx, p, x, pol, 1);
         (*sweeps)++;
         if (++since >= interval) {
             since = 0;
@@ -179,6 +315,7 @@ static sl_status prepare_with_policy(sl_ctx *ctx, const sl_model *m, const sl_so
                                      int32_t **policy, double **value, const char *what)
 {
     sl_status st = SL_OK;
+    int32_t *actions = NULL;
     *policy = NULL;
     *value = NULL;
     SL_TRY(sl_problem_from_model(ctx, m, SL_ORDER_AUTO, 0, p));
@@ -187,7 +324,7 @@ static sl_status prepare_with_policy(sl_ctx *ctx, const sl_model *m, const sl_so
     else if (strcmp(x->info.model_fingerprint, p->meta.fingerprint) != 0)
         st = SL_ERR(ctx, SL_EDATA, "%s: the solution was computed for a different model (fingerprint %s, model %s)",
                     what, x->info.model_fingerprint, p->meta.fingerprint);
-    else if (x->s_begin != p->blk.s_begin || x->n != p->n_local)
+    else if (x->s_begin != p->io.f_begin || x->n != p->io.f_n)
         st = SL_ERR(ctx, SL_EUSAGE, "%s: the solution is distributed differently from the model (load it with "
                                     "sl_solution_load for this model)", what);
     SL_TRY(sl_agree(ctx, st));
@@ -195,9 +332,14 @@ static sl_status prepare_with_policy(sl_ctx *ctx, const sl_model *m, const sl_so
     if (SL_ALLOC(ctx, *policy, n, "policy") == NULL || SL_ZALLOC(ctx, *value, nx, "values") == NULL)
         st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
-    memcpy(*value, x->value, (size_t)n * sizeof(double));
-    SL_TRY(sl_agree(ctx, sl_policy_offsets(ctx, p, x->action, *policy, what)));
+    /* the solution is in the model's layout, the problem may be renumbered */
+    if (SL_ALLOC(ctx, actions, n, "policy") == NULL) st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    SL_TRY(sl_io_from_file(ctx, &p->io, x->value, sizeof(double), *value));
+    SL_TRY(sl_io_from_file(ctx, &p->io, x->action, sizeof(int32_t), actions));
+    SL_TRY(sl_agree(ctx, sl_policy_offsets(ctx, p, actions, *policy, what)));
 cleanup:
+    free(actions);
     if (st != SL_OK) {
         free(*policy);
         free(*value);
@@ -231,8 +373,10 @@ sl_status sl_solver_evaluate(sl_solver *s, const sl_model *m, const sl_solution 
     double est = 0;
     double limit = s->memory_limit > 0 ? s->memory_limit : 0.5 * sl_physical_memory();
     int iterative_only = s->method != SL_METHOD_PI;
-    if (!iterative_only) SL_TRY(sl_evaluate_direct(ctx, &P, pol, limit, x, &direct, &est, &lu));
-    if (!iterative_only && !direct) {
+    int abandoned = 0;
+    if (!iterative_only) SL_TRY(sl_evaluate_direct(ctx, &P, pol, limit, 0, x, &direct, &abandoned, &est, &lu));
+    if (abandoned) SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_ESTOPPED, "evaluate: stopped by a signal during the direct solve")));
+    if (!iterative_only && !direct && est > limit) {
         if (s->strict_memory)
             SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EDATA,
                                         "exact evaluation needs about %.2f GB (UMFPACK estimate), over the memory "
@@ -255,8 +399,8 @@ sl_status sl_solver_evaluate(sl_solver *s, const sl_model *m, const sl_solution 
         for (int64_t i = 0; i < n; i++) x[i] = 0;
         SL_TRY(sl_evaluate_iterative(ctx, &P, pol, tol, 0, x, y, &c, &sweeps));
     }
-    SL_TRY(sl_agree(ctx, sl_solution_new(ctx, P.meta.n_states, P.blk.s_begin, n, 0, &res)));
-    memcpy(res->value, x, (size_t)n * sizeof(double));
+    SL_TRY(sl_agree(ctx, sl_solution_new(ctx, P.meta.n_states, P.io.f_begin, P.io.f_n, 0, &res)));
+    SL_TRY(sl_io_to_file(ctx, &P.io, x, sizeof(double), res->value));
     snprintf(res->info.model_fingerprint, sizeof(res->info.model_fingerprint), "%s", P.meta.fingerprint);
     snprintf(res->info.method, sizeof(res->info.method), "%s", direct ? "direct" : "iterative");
     snprintf(res->info.evaluation, sizeof(res->info.evaluation), "%s", direct ? "direct" : "iterative");

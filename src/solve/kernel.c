@@ -10,10 +10,13 @@ void sl_problem_free(sl_problem *p)
 {
     if (p == NULL) return;
     sl_meta_free(&p->meta);
-    free(p->blk.col);           /* the other arrays belong to the model */
+    if (p->owns_rows) sl_block_free(&p->blk);
+    else free(p->blk.col);      /* the other arrays belong to the model */
     sl_halo_free(&p->halo);
     free(p->bounds);
     free(p->order);
+    sl_stage_map_free(&p->stages);
+    sl_io_plan_free(&p->io);
     memset(p, 0, sizeof(*p));
 }
 
@@ -28,7 +31,14 @@ static sl_status build_order(sl_ctx *ctx, sl_problem *p, sl_order order)
     }
     p->order_used = order;
     if (SL_ALLOC(ctx, p->order, n, "sweep order") == NULL) return SL_ENOMEM;
-    if (order == SL_ORDER_NATURAL) {
+    if (order == SL_ORDER_STAGE_REVERSE && p->stages.active) {
+        /* internal numbering is stage-major: stages from last to first,
+         * each in file order */
+        int64_t S = p->stages.n_stages, w = n / S, j = 0;
+        for (int64_t s = S - 1; s >= 0; s--)
+            for (int64_t i = s * w; i < (s + 1) * w; i++) p->order[j++] = i;
+        p->staged = 1;
+    } else if (order == SL_ORDER_NATURAL) {
         for (int64_t i = 0; i < n; i++) p->order[i] = i;
     } else if (order == SL_ORDER_REVERSE) {
         for (int64_t i = 0; i < n; i++) p->order[i] = n - 1 - i;
@@ -69,19 +79,33 @@ sl_status sl_problem_from_model(sl_ctx *ctx, const sl_model *m, sl_order order, 
     SL_TRY(sl_agree(ctx, st));
     SL_TRY(sl_meta_copy(ctx, &p->meta, &m->meta));
     p->gamma = p->meta.discount;
-    /* borrow the rows; only the local columns are this problem's own */
-    p->blk = m->blk;
-    p->blk.col = NULL;
-    p->blk.cap_states = p->blk.cap_pairs = p->blk.cap_ptrs = p->blk.cap_trans = 0;
     if (SL_ALLOC(ctx, p->bounds, ctx->size + 1, "partition") == NULL) st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
-    memcpy(p->bounds, m->bounds, (size_t)(ctx->size + 1) * sizeof(int64_t));
+    /* with a stage factor: every rank gets a share of every stage */
+    SL_TRY(sl_stage_map_rows(ctx, &m->meta, &m->blk, &p->stages));
+    /* on one rank with the stage factor slowest the internal numbering is
+     * the file's: keep the rows where they are */
+    int same = ctx->size == 1 && p->stages.outer == 1;
+    if (p->stages.active)
+        for (int r = 0; r <= ctx->size; r++) p->bounds[r] = p->stages.n_stages * p->stages.ub[r];
+    if (p->stages.active && !same) {
+        SL_TRY(sl_stage_redistribute(ctx, &m->blk, m->bounds, &p->stages, &p->blk));
+        p->owns_rows = 1;
+    } else {
+        /* borrow the rows; only the local columns are this problem's own */
+        p->blk = m->blk;
+        p->blk.col = NULL;
+        p->blk.cap_states = p->blk.cap_pairs = p->blk.cap_ptrs = p->blk.cap_trans = 0;
+        memcpy(p->bounds, m->bounds, (size_t)(ctx->size + 1) * sizeof(int64_t));
+    }
     p->n_local = sl_block_states(&p->blk);
     double rmax = 0;
     for (int64_t k = 0; k < sl_block_pairs(&p->blk); k++)
         if (fabs(p->blk.reward[k]) > rmax) rmax = fabs(p->blk.reward[k]);
     p->rmax_abs = sl_max(ctx, rmax);
     SL_TRY(sl_halo_build(ctx, p->bounds, &p->blk, &p->halo));
+    if (p->stages.active) SL_TRY(sl_agree(ctx, sl_halo_stage_plan(ctx, &p->stages, &p->halo)));
+    SL_TRY(sl_io_plan_build(ctx, &p->stages, p->bounds, m->bounds, &p->io));
     SL_TRY(sl_agree(ctx, build_order(ctx, p, order)));
 cleanup:
     if (st != SL_OK) sl_problem_free(p);
@@ -197,11 +221,11 @@ void sl_midpoint(const sl_problem *p, const double *y, const sl_check *c, double
     for (int64_t i = 0; i < p->n_local; i++) out[i] = y[i] + shift;
 }
 
-double sl_sweep_gs(const sl_problem *p, double *x, int32_t *policy, int eval)
+static double sweep_part(const sl_problem *p, double *x, int32_t *policy, int eval, int64_t j0, int64_t j1)
 {
     const sl_block *b = &p->blk;
     double delta = 0;
-    for (int64_t j = 0; j < p->n_local; j++) {
+    for (int64_t j = j0; j < j1; j++) {
         int64_t i = p->order[j];
         double v;
         if (eval) {
@@ -216,6 +240,71 @@ double sl_sweep_gs(const sl_problem *p, double *x, int32_t *policy, int eval)
         x[i] = v;
     }
     return delta;
+}
+
+double sl_sweep_gs(const sl_problem *p, double *x, int32_t *policy, int eval)
+{
+    return sweep_part(p, x, policy, eval, 0, p->n_local);
+}
+
+double sl_sweep(sl_ctx *ctx, const sl_problem *p, double *x, int32_t *policy, int eval)
+{
+    sl_halo_exchange(ctx, &p->halo, x);
+    if (!p->staged) return sl_sweep_gs(p, x, policy, eval);
+    int64_t S = p->stages.n_stages, w = p->n_local / S;
+    double delta = 0;
+    for (int64_t k = 0; k < S; k++) {
+        double d = sweep_part(p, x, policy, eval, k * w, (k + 1) * w);
+        if (d > delta) delta = d;
+        /* order position k holds stage S-1-k; the next stage reads it (the
+         * last one's values are refreshed by the next sweep's exchange) */
+        if (k + 1 < S) sl_halo_exchange_stage(ctx, &p->halo, x, S - 1 - k);
+    }
+    return delta;
+}
+
+int64_t sl_problem_file_state(const sl_problem *p, int64_t i) { return sl_stage_file(&p->stages, p->blk.s_begin + i); }
+
+sl_status sl_problem_ckpt_write(sl_ctx *ctx, const sl_problem *p, const char *dir, const double *value,
+                                const int32_t *actions, const sl_solver_state *state, const sl_history *hist)
+{
+    sl_status st = SL_OK;
+    double *fv = NULL;
+    int32_t *fa = NULL;
+    if (SL_ALLOC(ctx, fv, p->io.f_n, "values in file order") == NULL ||
+        SL_ALLOC(ctx, fa, p->io.f_n, "policy in file order") == NULL)
+        st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    SL_TRY(sl_io_to_file(ctx, &p->io, value, sizeof(double), fv));
+    SL_TRY(sl_io_to_file(ctx, &p->io, actions, sizeof(int32_t), fa));
+    st = sl_ckpt_write(ctx, dir, p->meta.fingerprint, p->meta.n_states, p->io.f_begin, p->io.f_n, fv, fa, state, hist);
+cleanup:
+    free(fv);
+    free(fa);
+    return st;
+}
+
+sl_status sl_problem_ckpt_load(sl_ctx *ctx, const sl_problem *p, const char *dir, double *value, int32_t *actions,
+                               sl_solver_state *state, sl_history *hist, int *found)
+{
+    sl_status st = SL_OK;
+    double *fv = NULL;
+    int32_t *fa = NULL;
+    *found = 0;
+    if (SL_ALLOC(ctx, fv, p->io.f_n, "values in file order") == NULL ||
+        SL_ALLOC(ctx, fa, p->io.f_n, "policy in file order") == NULL)
+        st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    SL_TRY(sl_ckpt_load(ctx, dir, p->meta.fingerprint, p->meta.n_states, p->io.f_begin, p->io.f_n, fv, fa, state, hist,
+                        found));
+    if (*found) {
+        SL_TRY(sl_io_from_file(ctx, &p->io, fv, sizeof(double), value));
+        SL_TRY(sl_io_from_file(ctx, &p->io, fa, sizeof(int32_t), actions));
+    }
+cleanup:
+    free(fv);
+    free(fa);
+    return st;
 }
 
 void sl_policy_actions(const sl_problem *p, const int32_t *policy, int32_t *actions)
@@ -235,7 +324,7 @@ sl_status sl_policy_offsets(sl_ctx *ctx, const sl_problem *p, const int32_t *act
             if (b->action[k] == actions[i]) policy[i] = (int32_t)(k - p0);
         if (policy[i] < 0)
             return SL_ERR(ctx, SL_EDATA, "%s: state %lld: policy action %d is not available in the model", where,
-                          (long long)(b->s_begin + i), (int)actions[i]);
+                          (long long)sl_problem_file_state(p, i), (int)actions[i]);
     }
     return SL_OK;
 }

@@ -101,10 +101,12 @@ static sl_status form_solution(run *r, int converged)
     sl_status st = SL_OK;
     int64_t n = r->P.n_local;
     int32_t *pol2 = NULL;
+    double *val = NULL;
     sl_solution *x = NULL;
-    if (SL_ALLOC(ctx, pol2, n, "policy") == NULL) st = SL_ENOMEM;
+    if (SL_ALLOC(ctx, pol2, n, "policy") == NULL || SL_ALLOC(ctx, val, n, "values") == NULL) st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
-    SL_TRY(sl_agree(ctx, sl_solution_new(ctx, r->P.meta.n_states, r->P.blk.s_begin, n, 1, &x)));
+    /* the solution is in the model's layout (P.io), the iterates in P's */
+    SL_TRY(sl_agree(ctx, sl_solution_new(ctx, r->P.meta.n_states, r->P.io.f_begin, r->P.io.f_n, 1, &x)));
     memcpy(pol2, r->pol, (size_t)n * sizeof(int32_t));
     /* a fresh synchronous check at the current x defines value and bounds
      * (x itself is left untouched so a checkpoint stays exact) */
@@ -112,8 +114,10 @@ static sl_status form_solution(run *r, int converged)
         if (check(r, pol2) < 0) st = SL_ENOMEM;
         SL_TRY(sl_agree(ctx, st));
     }
-    sl_midpoint(&r->P, r->y, &r->last, x->value);
-    sl_policy_actions(&r->P, pol2, x->action);
+    sl_midpoint(&r->P, r->y, &r->last, val);
+    sl_policy_actions(&r->P, pol2, r->actions);
+    SL_TRY(sl_io_to_file(ctx, &r->P.io, val, sizeof(double), x->value));
+    SL_TRY(sl_io_to_file(ctx, &r->P.io, r->actions, sizeof(int32_t), x->action));
     snprintf(x->info.model_fingerprint, sizeof(x->info.model_fingerprint), "%s", r->P.meta.fingerprint);
     snprintf(x->info.method, sizeof(x->info.method), "%s", sl_method_name(r->o->method));
     snprintf(x->info.order, sizeof(x->info.order), "%s", sl_order_name(r->P.order_used));
@@ -139,6 +143,7 @@ static sl_status form_solution(run *r, int converged)
 cleanup:
     sl_solution_free(&x);
     free(pol2);
+    free(val);
     return st;
 }
 
@@ -148,6 +153,17 @@ enum { POLL_NONE = 0, POLL_CKPT = 1, POLL_STOP = 2 };
 
 /* Agree on what to do at this sweep boundary. Deterministic for the numbers:
  * only whether to write/stop depends on time or signals. Collective. */
+/* sl_now() time by which a --walltime run must stop (0: none): the margin
+ * is the one poll() uses */
+static double stop_deadline(const run *r)
+{
+    if (r->o->walltime <= 0) return 0;
+    double margin = fmax(10.0, 0.05 * r->o->walltime);
+    if (r->o->walltime < 60) margin = fmin(margin, 0.2 * r->o->walltime);
+    double origin = r->o->have_wall_origin ? r->o->wall_origin : r->wall0;
+    return origin + r->o->walltime - margin;
+}
+
 static int poll(run *r)
 {
     int want = 0;
@@ -177,8 +193,7 @@ static sl_status checkpoint(run *r)
     r->S.elapsed = elapsed(r);
     r->t0 = sl_now();
     snprintf(r->S.method, sizeof(r->S.method), "%s", sl_method_name(r->o->method));
-    sl_status st = sl_ckpt_write(r->ctx, r->o->checkpoint_dir, r->P.meta.fingerprint, r->P.meta.n_states,
-                                 r->P.blk.s_begin, r->P.n_local, r->x, r->actions, &r->S, &r->hist);
+    sl_status st = sl_problem_ckpt_write(r->ctx, &r->P, r->o->checkpoint_dir, r->x, r->actions, &r->S, &r->hist);
     r->last_ckpt = sl_now();
     if (st == SL_OK) {
         r->n_ckpt++;
@@ -192,8 +207,7 @@ static sl_status checkpoint(run *r)
 /* One step of a method. Returns 1 converged, 0 continue, <0 error (st set). */
 static int step_gs(run *r)
 {
-    sl_halo_exchange(r->ctx, &r->P.halo, r->x);
-    double delta = sl_max(r->ctx, sl_sweep_gs(&r->P, r->x, r->pol, 0));
+    double delta = sl_max(r->ctx, sl_sweep(r->ctx, &r->P, r->x, r->pol, 0));
     r->S.sweeps++;
     r->S.since_check++;
     r->S.iteration++;
@@ -234,8 +248,7 @@ static int step_mpi(run *r)
     r->y = t;
     int64_t m = r->o->sweeps > 0 ? r->o->sweeps : r->S.mpi_m;
     for (int64_t j = 0; j < m; j++) {
-        sl_halo_exchange(r->ctx, &r->P.halo, r->x);
-        sl_sweep_gs(&r->P, r->x, r->pol, 1);
+        sl_sweep(r->ctx, &r->P, r->x, r->pol, 1);
         r->S.sweeps++;
     }
     /* adapt m: a stable policy deserves longer evaluation (Puterman & Shin 1978
@@ -261,18 +274,20 @@ static int step_pi(run *r, sl_status *st)
     int direct = 0;
     double est = 0;
     double limit = r->o->memory_limit > 0 ? r->o->memory_limit : 0.5 * sl_physical_memory();
-    *st = sl_evaluate_direct(ctx, &r->P, r->pol, limit, r->x, &direct, &est, &r->lu);
+    int abandoned = 0;
+    *st = sl_evaluate_direct(ctx, &r->P, r->pol, limit, stop_deadline(r), r->x, &direct, &abandoned, &est, &r->lu);
     if (*st != SL_OK) return -1;
+    if (abandoned) return 0; /* poll() acts on the stop request; x is as before */
     r->lu_estimate = est;
     if (!direct) {
-        if (r->o->strict_memory) {
+        if (r->o->strict_memory && est > limit) {
             *st = SL_ERR(ctx, SL_EDATA,
                          "exact evaluation needs about %.2f GB (UMFPACK estimate), over the memory limit of %.2f GB; "
                          "use --memory-limit, another method, or drop --strict-memory to evaluate iteratively",
                          est / 1e9, limit / 1e9);
             return -1;
         }
-        if (strcmp(r->evaluation, "iterative") != 0)
+        if (strcmp(r->evaluation, "iterative") != 0 && est > limit)
             sl_warn(ctx, "exact evaluation needs about %.2f GB (UMFPACK estimate), over the limit of %.2f GB: "
                          "evaluating iteratively",
                     est / 1e9, limit / 1e9);
@@ -340,8 +355,7 @@ sl_status sl_solver_solve(sl_solver *o, const sl_model *m, sl_solution **xout)
     }
     if (o->resume && o->checkpoint_dir) {
         int found = 0;
-        SL_TRY(sl_ckpt_load(ctx, o->checkpoint_dir, r->P.meta.fingerprint, r->P.meta.n_states, r->P.blk.s_begin, n,
-                            r->x, r->actions, &r->S, &r->hist, &found));
+        SL_TRY(sl_problem_ckpt_load(ctx, &r->P, o->checkpoint_dir, r->x, r->actions, &r->S, &r->hist, &found));
         if (found) {
             SL_TRY(sl_agree(ctx, sl_policy_offsets(ctx, &r->P, r->actions, r->pol, o->checkpoint_dir)));
             if (strcmp(r->S.method, sl_method_name(o->method)) != 0) {

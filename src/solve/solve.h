@@ -19,6 +19,13 @@ typedef struct sl_problem {
     int64_t *order;         /* [n_local] sweep order (local indices) */
     sl_order order_used;
     const char *path;       /* for messages */
+    /* With a stage factor the rows are moved into the stage-interleaved
+     * layout (layout.h) and owned here: blk, bounds and halo then use
+     * internal ids; solutions and checkpoints use the model's layout. */
+    int owns_rows;
+    sl_stage_map stages;
+    sl_io_plan io;          /* internal order <-> the model's layout */
+    int staged;             /* sweeps run stage by stage on all ranks */
 } sl_problem;
 
 /* Prepare an assembled model for solving: local columns, halo and sweep
@@ -90,12 +97,42 @@ void sl_midpoint(const sl_problem *p, const double *y, const sl_check *c, double
  * change. Local. */
 double sl_sweep_gs(const sl_problem *p, double *x, int32_t *policy, int eval);
 
+/* The same sweep as a collective step: refresh the halo, then sweep. With
+ * the stage-interleaved layout and the stage-reverse order it sweeps one
+ * stage at a time on all ranks and refreshes that stage's halo entries
+ * before the next, so a state reads the values of the stages swept before
+ * it in this sweep, as on one rank: the iterates equal the one-rank
+ * iterates whenever no transition stays within a stage across ranks.
+ * Returns the local largest change (reduce it). Collective. */
+double sl_sweep(sl_ctx *ctx, const sl_problem *p, double *x, int32_t *policy, int eval);
+
+/* File id of owned local state i (for messages). Local. */
+int64_t sl_problem_file_state(const sl_problem *p, int64_t i);
+
+/* Checkpoints of a prepared problem: owned vectors in internal order are
+ * moved to (from) the model's layout and written (read) with sl_ckpt_*.
+ * Collective. */
+sl_status sl_problem_ckpt_write(sl_ctx *ctx, const sl_problem *p, const char *dir, const double *value,
+                                const int32_t *actions, const sl_solver_state *state, const sl_history *hist);
+sl_status sl_problem_ckpt_load(sl_ctx *ctx, const sl_problem *p, const char *dir, double *value, int32_t *actions,
+                               sl_solver_state *state, sl_history *hist, int *found);
+
 /* Exact value of a fixed policy: gather P_pi to rank 0, UMFPACK, scatter.
  * *used_direct = 0 (and x untouched) when the factorization would exceed
- * memory_limit. Collective. */
+ * memory_limit or take longer than SL_DIRECT_TIME_LIMIT (or run past
+ * `deadline`, an sl_now() time; 0: none); once that has happened for this
+ * lu_cache, later calls return *used_direct = 0 at once. The numeric step
+ * runs in a child process of rank 0 that is killed when ctx's signal flag
+ * is set or the deadline passes: then *abandoned = 1, *used_direct = 0 and
+ * x is untouched. Collective. */
 sl_status sl_evaluate_direct(sl_ctx *ctx, const sl_problem *p, const int32_t *policy,
-                             double memory_limit, double *x, int *used_direct,
-                             double *estimate_bytes, void **lu_cache);
+                             double memory_limit, double deadline, double *x, int *used_direct,
+                             int *abandoned, double *estimate_bytes, void **lu_cache);
+/* Time guard of the direct solve (seconds): a factorization UMFPACK's flop
+ * estimate says will take longer is not started (rule of thumb, common
+ * practice, no source: a 10^6-state evaluation iterates to 1e-7 in about a
+ * minute here). */
+#define SL_DIRECT_TIME_LIMIT 120.0
 void sl_evaluate_direct_free(void **lu_cache);
 
 /* Iterative evaluation of a fixed policy to a certified sup error `tol`.
