@@ -27,6 +27,15 @@ sl_status sl_problem_from_model_any(sl_ctx *ctx, const sl_model *m, const char *
     SL_TRY(sl_agree(ctx, st));
     SL_TRY(sl_problem_from_model(ctx, m, order, 1, p));
     p->path = path;
+    if (p->stages.active) {
+        /* the stage-interleaved layout renumbers states internally; the
+         * readers and writers of this file use file order directly */
+        int f = sl_meta_stage_factor(mm);
+        SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EDATA,
+                                    "%s: has a stage factor (\"%s\"); the %s objective does not yet support models "
+                                    "with a stage factor (rebuild without marking a stage factor)",
+                                    path, f >= 0 ? mm->factor_name[f] : "?", sl_objective_name(mm->objective))));
+    }
     p->gamma = mm->objective == SL_OBJ_AVERAGE ? 1.0 : mm->discount;
 cleanup:
     return st;
@@ -278,9 +287,18 @@ static sl_status solve_finite(sl_ctx *ctx, const sl_problem *p, const sl_obj_opt
             sl_log(ctx, "solve: checkpoint of stages %lld..%lld written to %s", (long long)t, (long long)H, ck);
         }
         if (pr == 2 && t > 0) {
-            sl_log(ctx, "solve: stop requested at stage %lld", (long long)t);
             res->cert.converged = 0;
-            st = SL_ESTOPPED;
+            if (o->checkpoint_dir)
+                st = SL_ERR(ctx, SL_ESTOPPED,
+                            "stopped at stage %lld of %lld; stages %lld..%lld are in %s (continue with --resume); "
+                            "no solution file is written for an unfinished horizon",
+                            (long long)t, (long long)H, (long long)t, (long long)H, ck);
+            else
+                st = SL_ERR(ctx, SL_ESTOPPED,
+                            "stopped at stage %lld of %lld without --checkpoint: the computed stages are lost and "
+                            "no solution file is written",
+                            (long long)t, (long long)H);
+            sl_warn(ctx, "%s", ctx->err); /* the CLI prints nothing itself for exit 75 */
             goto cleanup;
         }
     }
@@ -331,7 +349,7 @@ static sl_status find_improper(sl_ctx *ctx, const sl_problem *p, const char *abs
     for (int64_t i = 0; i < nx; i++) inE[i] = i < n ? (absorbing[i] ? 0.0 : 1.0) : 1.0;
     /* greatest fixpoint: shrink E (halo starts at 1: over-approximation is safe) */
     for (;;) {
-        int64_t changed_any = 0, changed;
+        int64_t changed;
         do {
             changed = 0;
             for (int64_t i = 0; i < n; i++) {
@@ -350,7 +368,6 @@ static sl_status find_improper(sl_ctx *ctx, const sl_problem *p, const char *abs
                     changed++;
                 }
             }
-            changed_any += changed;
         } while (changed);
         SL_TRY(sl_halo_exchange(ctx, &p->halo, inE));
         /* recheck with fresh halo: done when no rank changes */
@@ -369,7 +386,6 @@ static sl_status find_improper(sl_ctx *ctx, const sl_problem *p, const char *abs
             if (!keep) again = 1;
         }
         if (sl_sum_i64(ctx, again) == 0) break;
-        (void)changed_any;
     }
     /* least fixpoint: R = E plus states with a successor in R */
     for (int64_t i = 0; i < nx; i++) inR[i] = inE[i];
@@ -766,7 +782,7 @@ static sl_status solve_average(sl_ctx *ctx, const sl_problem *p, const sl_obj_op
 {
     sl_status st = SL_OK;
     int64_t n = p->n_local, nx = n + p->halo.n_halo;
-    double *y = NULL, *spans = NULL;
+    double *y = NULL;
     int32_t *acts = NULL;
     double tol = o->tolerance > 0 ? o->tolerance : 1e-6;
     double tau = o->aperiodicity > 0 ? o->aperiodicity : 0.5;
@@ -861,7 +877,6 @@ static sl_status solve_average(sl_ctx *ctx, const sl_problem *p, const sl_obj_op
     res->cert.sweeps = S.sweeps;
 cleanup:
     free(y);
-    free(spans);
     free(acts);
     sl_history_free(&hist);
     return st;

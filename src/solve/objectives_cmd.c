@@ -215,9 +215,12 @@ sl_status sl_objective_solve(const sl_model *m, const sl_objective_opts *o)
     st = outcome;
     if (outcome == SL_EUSAGE)
         st = SL_ERR(ctx, SL_EUSAGE, "tolerance %.1e is below the roundoff floor of this model", oo.tolerance);
-    else if (outcome == SL_ESTOPPED)
+    else if (outcome == SL_ESTOPPED) {
         st = SL_ERR(ctx, SL_ESTOPPED, "stopped before the tolerance was certified; the solution is written with "
-                                      "converged=0");
+                                      "converged=0%s",
+                    o->checkpoint_dir ? " and a checkpoint is kept" : "");
+        sl_warn(ctx, "%s", ctx->err);
+    }
 cleanup:
     free(term);
     free(acts);

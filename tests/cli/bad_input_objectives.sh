@@ -72,4 +72,9 @@ expect "verify: finite solution missing a stage" --code 65 --err "policy_000001"
 # verify: a finite solution against the average model (same states, another objective)
 expect "verify: solution of another objective" --code 65 --err "different model" -- \
     "$SLUICE" verify -q "$W/avg.h5" "$W/fin_sol.h5"
+# a stage factor (stage-interleaved layout) is refused, not written in the wrong order
+expect "setup: staged model with the finite objective" --code 0 -- \
+    "$SLUICE" build -q "$SRC/tests/data/staged_ferry.c" --objective finite --discount 1 -o "$W/ferry.h5"
+expect "finite: stage factor refused naming it" --code 65 --err "stage factor" --err "season" --gone "$O" -- \
+    "$SLUICE" solve -q "$W/ferry.h5" -o "$O" --horizon 3
 sl_finish
