@@ -27,15 +27,8 @@ sl_status sl_problem_from_model_any(sl_ctx *ctx, const sl_model *m, const char *
     SL_TRY(sl_agree(ctx, st));
     SL_TRY(sl_problem_from_model(ctx, m, order, 1, p));
     p->path = path;
-    if (p->stages.active) {
-        /* the stage-interleaved layout renumbers states internally; the
-         * readers and writers of this file use file order directly */
-        int f = sl_meta_stage_factor(mm);
-        SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EDATA,
-                                    "%s: has a stage factor (\"%s\"); the %s objective does not yet support models "
-                                    "with a stage factor (rebuild without marking a stage factor)",
-                                    path, f >= 0 ? mm->factor_name[f] : "?", sl_objective_name(mm->objective))));
-    }
+    /* sl_problem_from_model keeps the file layout when allow_any is set (no
+     * stage-interleaved renumbering), which the file I/O here assumes */
     p->gamma = mm->objective == SL_OBJ_AVERAGE ? 1.0 : mm->discount;
 cleanup:
     return st;
