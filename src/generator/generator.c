@@ -248,8 +248,131 @@ static int sink_emit(sluice_sink *sink, int64_t next, double p, double r)
 {
     sink_state *s = sink->opaque;
     if (s->st != SL_OK) return 1;
+    if (s->block->nq > 0) {
+        s->st = SL_ERR(s->ctx, SL_EDATA,
+                       "%s: state %lld, action %d: sluice_emit() without quantities, but the generator declares "
+                       "%d outcome quantities (use sluice_emit_outcome)",
+                       s->block->where, (long long)s->block->s_end,
+                       (int)s->block->action[s->block->p_end - s->block->p_begin], s->block->nq);
+        return 1;
+    }
     s->st = sl_block_add(s->ctx, s->block, next, p, r);
     return s->st != SL_OK;
+}
+
+static int sink_emit_outcome(sluice_sink *sink, int64_t next, double p, double r, const double *q)
+{
+    sink_state *s = sink->opaque;
+    if (s->st != SL_OK) return 1;
+    s->st = s->block->nq > 0 ? sl_block_add_outcome(s->ctx, s->block, next, p, r, q)
+                             : sl_block_add(s->ctx, s->block, next, p, r);
+    return s->st != SL_OK;
+}
+
+/* A name usable in a file path and on the command line. */
+static int is_identifier(const char *s)
+{
+    if (s == NULL || s[0] == '\0' || strlen(s) >= SL_NAME_MAX) return 0;
+    for (const char *p = s; *p; p++)
+        if (!((*p >= 'a' && *p <= 'z') || (*p >= 'A' && *p <= 'Z') || (*p >= '0' && *p <= '9') || *p == '_'))
+            return 0;
+    return 1;
+}
+
+static int short_text(const char *s) { return s == NULL || strlen(s) < SL_NAME_MAX; }
+
+static int cmp_label(const void *a, const void *b) { return strcmp(*(const char *const *)a, *(const char *const *)b); }
+
+/* Copy and check the ABI 2 annotations of `shape` into `meta` (rank-local;
+ * every rank runs the same init, so all reach the same verdict). */
+static sl_status take_annotations(sl_ctx *ctx, const sluice_shape *sh, sl_meta *meta, const char *gen)
+{
+    sl_status st = SL_OK;
+    const char **sorted = NULL;
+    for (int f = 0; f < sh->n_factors; f++) {
+        const sluice_factor_values *fv = &sh->factor_values[f];
+        int64_t n = sh->factors[f].size;
+        if (!fv->values && !fv->labels && !fv->unit) continue;
+        if (!is_identifier(sh->factors[f].name))
+            SL_FAIL(SL_EDATA, "%s: factor %d name \"%s\" must be an identifier (letters, digits, _) under %d chars",
+                    gen, f, sh->factors[f].name ? sh->factors[f].name : "", SL_NAME_MAX);
+        if (!short_text(fv->unit))
+            SL_FAIL(SL_EDATA, "%s: factor %s: unit longer than %d characters", gen, sh->factors[f].name,
+                    SL_NAME_MAX - 1);
+        snprintf(meta->factor_unit[f], SL_NAME_MAX, "%s", fv->unit ? fv->unit : "");
+        if (fv->values) {
+            if (n > INT32_MAX) SL_FAIL(SL_EDATA, "%s: factor %s: too many values", gen, sh->factors[f].name);
+            if (SL_ALLOC(ctx, meta->factor_value[f], n, "factor values") == NULL) SL_FAIL(SL_ENOMEM, "factor values");
+            for (int64_t i = 0; i < n; i++) {
+                if (!isfinite(fv->values[i]))
+                    SL_FAIL(SL_EDATA, "%s: factor %s: value of index %lld is not finite", gen, sh->factors[f].name,
+                            (long long)i);
+                meta->factor_value[f][i] = fv->values[i];
+            }
+        }
+        if (fv->labels) {
+            if (n > INT32_MAX / SL_NAME_MAX) SL_FAIL(SL_EDATA, "%s: factor %s: too many labels", gen,
+                                                     sh->factors[f].name);
+            if (SL_ZALLOC(ctx, meta->factor_label[f], n, "factor labels") == NULL ||
+                SL_ALLOC(ctx, sorted, n, "labels") == NULL)
+                SL_FAIL(SL_ENOMEM, "factor labels");
+            for (int64_t i = 0; i < n; i++) {
+                const char *l = fv->labels[i];
+                if (l == NULL || l[0] == '\0' || !short_text(l) || strpbrk(l, ",=@\"\n") != NULL)
+                    SL_FAIL(SL_EDATA,
+                            "%s: factor %s: label of index %lld is empty, longer than %d characters or holds one "
+                            "of , = @ \" or a newline",
+                            gen, sh->factors[f].name, (long long)i, SL_NAME_MAX - 1);
+                snprintf(meta->factor_label[f][i], SL_NAME_MAX, "%s", l);
+                sorted[i] = l;
+            }
+            qsort(sorted, (size_t)n, sizeof(*sorted), cmp_label);
+            for (int64_t i = 1; i < n; i++)
+                if (strcmp(sorted[i - 1], sorted[i]) == 0)
+                    SL_FAIL(SL_EDATA, "%s: factor %s: label \"%s\" is used twice", gen, sh->factors[f].name,
+                            sorted[i]);
+            free(sorted);
+            sorted = NULL;
+        }
+    }
+    if (sh->action_values) {
+        if (SL_ALLOC(ctx, meta->action_value, sh->n_actions, "action values") == NULL)
+            SL_FAIL(SL_ENOMEM, "action values");
+        meta->n_action_values = sh->n_actions;
+        for (int32_t a = 0; a < sh->n_actions; a++) {
+            if (!isfinite(sh->action_values[a]))
+                SL_FAIL(SL_EDATA, "%s: value of action %d is not finite", gen, (int)a);
+            meta->action_value[a] = sh->action_values[a];
+        }
+    }
+    if (!short_text(sh->action_unit) || !short_text(sh->reward_unit) || !short_text(sh->period_unit))
+        SL_FAIL(SL_EDATA, "%s: a unit (action, reward or period) is longer than %d characters", gen, SL_NAME_MAX - 1);
+    snprintf(meta->action_unit, SL_NAME_MAX, "%s", sh->action_unit ? sh->action_unit : "");
+    snprintf(meta->reward_unit, SL_NAME_MAX, "%s", sh->reward_unit ? sh->reward_unit : "");
+    snprintf(meta->period_unit, SL_NAME_MAX, "%s", sh->period_unit ? sh->period_unit : "");
+    if (sh->n_quantities < 0 || sh->n_quantities > SLUICE_MAX_QUANTITIES ||
+        (sh->n_quantities > 0 && sh->quantities == NULL))
+        SL_FAIL(SL_EDATA, "%s: %d outcome quantities (0 to %d, with a table)", gen, sh->n_quantities,
+                SLUICE_MAX_QUANTITIES);
+    for (int q = 0; q < sh->n_quantities; q++) {
+        const char *nm = sh->quantities[q].name;
+        if (!is_identifier(nm))
+            SL_FAIL(SL_EDATA, "%s: quantity %d name \"%s\" must be an identifier (letters, digits, _) under %d chars",
+                    gen, q, nm ? nm : "", SL_NAME_MAX);
+        if (strcmp(nm, "action") == 0 || strcmp(nm, "value") == 0 || strcmp(nm, "switch") == 0)
+            SL_FAIL(SL_EDATA, "%s: quantity name \"%s\" is reserved (a --show keyword)", gen, nm);
+        for (int r = 0; r < q; r++)
+            if (strcmp(nm, meta->quantity_name[r]) == 0)
+                SL_FAIL(SL_EDATA, "%s: quantity \"%s\" is declared twice", gen, nm);
+        if (!short_text(sh->quantities[q].unit))
+            SL_FAIL(SL_EDATA, "%s: quantity %s: unit longer than %d characters", gen, nm, SL_NAME_MAX - 1);
+        snprintf(meta->quantity_name[q], SL_NAME_MAX, "%s", nm);
+        snprintf(meta->quantity_unit[q], SL_NAME_MAX, "%s", sh->quantities[q].unit ? sh->quantities[q].unit : "");
+    }
+    meta->n_quantities = sh->n_quantities;
+cleanup:
+    free(sorted);
+    return st;
 }
 
 static int ends_with(const char *s, const char *suf)
@@ -319,8 +442,8 @@ sl_status sl_build(sl_ctx *ctx, const sl_build_opts *o)
         g = (const sluice_generator_def *)dlsym(dl, "sluice_generator");
         if (g == NULL)
             st = SL_ERR(ctx, SL_EDATA, "%s: no symbol 'sluice_generator' (see sluice/generator.h)", o->generator);
-        else if (g->abi_version != SLUICE_GENERATOR_ABI)
-            st = SL_ERR(ctx, SL_EDATA, "%s: generator ABI %d, this sluice implements ABI %d", o->generator,
+        else if (g->abi_version < 1 || g->abi_version > SLUICE_GENERATOR_ABI)
+            st = SL_ERR(ctx, SL_EDATA, "%s: generator ABI %d, this sluice implements ABIs 1 to %d", o->generator,
                         g->abi_version, SLUICE_GENERATOR_ABI);
         else if (g->init == NULL || g->transitions == NULL || g->n_params < 0 || (g->n_params > 0 && !g->params))
             st = SL_ERR(ctx, SL_EDATA, "%s: generator definition is incomplete (init/transitions missing)",
@@ -395,6 +518,11 @@ sl_status sl_build(sl_ctx *ctx, const sl_build_opts *o)
     int64_t n = shape.n_states;
     int64_t s0 = n * ctx->rank / ctx->size, s1 = n * (ctx->rank + 1) / ctx->size;
     SL_TRY(sl_block_init(ctx, &blk, s0, n, o->generator));
+    /* ABI 2 annotations: an ABI 1 object never writes the fields after
+     * `discount`, which stay zero from the memset above */
+    if (g->abi_version >= 2) st = take_annotations(ctx, &shape, &meta, o->generator);
+    if (st == SL_OK) st = sl_block_set_quantities(ctx, &blk, meta.n_quantities);
+    SL_TRY(sl_agree(ctx, st));
     blk.prob_tolerance = o->prob_tolerance > 0 ? o->prob_tolerance : 1e-9;
     blk.renormalize = o->renormalize;
     if (snprintf(crash_name, sizeof(crash_name), "%s (%s)", g->name ? g->name : "?", o->generator) >=
@@ -406,7 +534,7 @@ sl_status sl_build(sl_ctx *ctx, const sl_build_opts *o)
     for (int i = 0; i < 5; i++) sigaction(sigs[i], &sa, &old[i]);
     armed = 1;
     crash_armed = 1;
-    sink_state sk = {{sink_emit, NULL}, ctx, &blk, SL_OK};
+    sink_state sk = {{sink_emit, NULL, sink_emit_outcome}, ctx, &blk, SL_OK};
     sk.sink.opaque = &sk;
     double t0 = sl_now(), last = t0;
     for (int64_t s = s0; s < s1 && st == SL_OK; s++) {
@@ -437,7 +565,7 @@ sl_status sl_build(sl_ctx *ctx, const sl_build_opts *o)
 
     /* global offsets, metadata, fingerprint, write */
     sl_block_rebase(&blk, sl_exscan_i64(ctx, sl_block_pairs(&blk)), sl_exscan_i64(ctx, sl_block_trans(&blk)));
-    meta.format_version = SLUICE_FORMAT_VERSION;
+    meta.format_version = sl_meta_has_annotations(&meta) ? 2 : 1;
     meta.n_states = n;
     meta.n_pairs = sl_sum_i64(ctx, sl_block_pairs(&blk));
     meta.n_trans = sl_sum_i64(ctx, sl_block_trans(&blk));
