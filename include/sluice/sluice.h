@@ -218,4 +218,15 @@ typedef struct sl_simulate_opts {
  * Collective. */
 sl_status sl_simulate(sl_ctx *ctx, const sl_simulate_opts *opts);
 
+/* ==== results a planner can read (issue 9) ==============================
+ * Units, outcome quantities, tables and outlooks. Kept in one block at the
+ * end of the header so it merges independently of the rest. */
+
+/* Describe a generator before building: its parameters with defaults,
+ * units and help, and what init() reports with the defaults (factors with
+ * values, units and labels, actions, reward and period units, outcome
+ * quantities). `generator` is a .c (compiled into the cache) or .so file.
+ * Collective; rank 0 prints. */
+sl_status sl_generator_describe(sl_ctx *ctx, const char *generator, FILE *out);
+
 #endif /* SLUICE_SLUICE_H */

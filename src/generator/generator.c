@@ -398,39 +398,32 @@ static void progress(sl_ctx *ctx, double t0, double *last, int64_t done, int64_t
     fflush(ctx->log);
 }
 
-sl_status sl_build(sl_ctx *ctx, const sl_build_opts *o)
+/* Compile (rank 0, cached) and load a generator on every rank; check its
+ * ABI and definition. On success *dl and *gp are set (dlclose *dl). */
+static sl_status load_generator(sl_ctx *ctx, const sl_build_opts *o, char *so_path, size_t so_len, void **dlp,
+                                const sluice_generator_def **gp)
 {
     sl_status st = SL_OK;
-    char so_path[4400] = "";
-    void *dl = NULL, *inst = NULL;
+    void *dl = NULL;
     const sluice_generator_def *g = NULL;
-    double *pv = NULL;
-    sl_meta meta;
-    sl_block blk;
-    sluice_shape shape;
-    struct sigaction sa, old[5];
-    int sigs[5] = {SIGSEGV, SIGBUS, SIGFPE, SIGILL, SIGABRT}, armed = 0;
-    memset(&meta, 0, sizeof(meta));
-    memset(&blk, 0, sizeof(blk));
-    memset(&shape, 0, sizeof(shape));
-
+    (void)so_len;
     if (ctx->rank == 0) {
         if (access(o->generator, R_OK) != 0)
             st = SL_ERR(ctx, SL_ENOINPUT, "%s: %s", o->generator, strerror(errno));
         else if (ends_with(o->generator, ".so"))
-            snprintf(so_path, sizeof(so_path), "%s", o->generator);
+            snprintf(so_path, so_len, "%s", o->generator);
         else if (ends_with(o->generator, ".c"))
-            st = compile_generator(ctx, o, so_path, sizeof(so_path));
+            st = compile_generator(ctx, o, so_path, so_len);
         else
             st = SL_ERR(ctx, SL_EUSAGE, "%s: a generator is a .c source or a compiled .so", o->generator);
     }
     SL_TRY(sl_agree(ctx, st));
-    MPI_Bcast(so_path, (int)sizeof(so_path), MPI_CHAR, 0, ctx->comm);
+    MPI_Bcast(so_path, (int)so_len, MPI_CHAR, 0, ctx->comm);
 
     /* load: every rank (a shared file system is assumed for the cache) */
     if (strchr(so_path, '/') == NULL) {
         size_t len = strlen(so_path);
-        if (len + 3 > sizeof(so_path)) SL_FAIL(SL_EUSAGE, "%s: path too long", so_path);
+        if (len + 3 > so_len) SL_FAIL(SL_EUSAGE, "%s: path too long", so_path);
         memmove(so_path + 2, so_path, len + 1);
         so_path[0] = '.';
         so_path[1] = '/';
@@ -450,6 +443,34 @@ sl_status sl_build(sl_ctx *ctx, const sl_build_opts *o)
                         o->generator);
     }
     SL_TRY(sl_agree(ctx, st));
+
+cleanup:
+    if (st != SL_OK && dl) {
+        dlclose(dl);
+        dl = NULL;
+    }
+    *dlp = dl;
+    *gp = g;
+    return st;
+}
+
+sl_status sl_build(sl_ctx *ctx, const sl_build_opts *o)
+{
+    sl_status st = SL_OK;
+    char so_path[4400] = "";
+    void *dl = NULL, *inst = NULL;
+    const sluice_generator_def *g = NULL;
+    double *pv = NULL;
+    sl_meta meta;
+    sl_block blk;
+    sluice_shape shape;
+    struct sigaction sa, old[5];
+    int sigs[5] = {SIGSEGV, SIGBUS, SIGFPE, SIGILL, SIGABRT}, armed = 0;
+    memset(&meta, 0, sizeof(meta));
+    memset(&blk, 0, sizeof(blk));
+    memset(&shape, 0, sizeof(shape));
+
+    SL_TRY(load_generator(ctx, o, so_path, sizeof(so_path), &dl, &g));
 
     /* parameters */
     if (SL_ALLOC(ctx, pv, g->n_params, "parameters") == NULL) st = SL_ENOMEM;
@@ -608,5 +629,111 @@ cleanup:
     free(pv);
     sl_block_free(&blk);
     sl_meta_free(&meta);
+    return st;
+}
+
+/* ---- description (sluice info GENERATOR.c) ------------------------------------- */
+
+static void describe_values(FILE *out, const char *unit, const double *v, int64_t n)
+{
+    double lo = v[0], hi = v[0];
+    for (int64_t i = 1; i < n; i++) {
+        if (v[i] < lo) lo = v[i];
+        if (v[i] > hi) hi = v[i];
+    }
+    fprintf(out, "values %.6g .. %.6g%s%s", lo, hi, unit && unit[0] ? " " : "", unit ? unit : "");
+}
+
+static void describe_labels(FILE *out, const char *const *l, int64_t n)
+{
+    fprintf(out, "labels");
+    for (int64_t i = 0; i < n && i < 12; i++) fprintf(out, "%s %s", i ? "," : "", l[i] ? l[i] : "?");
+    if (n > 12) fprintf(out, ", ... (%lld)", (long long)n);
+}
+
+sl_status sl_generator_describe(sl_ctx *ctx, const char *generator, FILE *out)
+{
+    sl_status st = SL_OK;
+    char so_path[4400] = "";
+    void *dl = NULL, *inst = NULL;
+    const sluice_generator_def *g = NULL;
+    double *pv = NULL;
+    sluice_shape shape;
+    sl_build_opts o;
+    memset(&o, 0, sizeof(o));
+    memset(&shape, 0, sizeof(shape));
+    o.generator = generator;
+    SL_TRY(load_generator(ctx, &o, so_path, sizeof(so_path), &dl, &g));
+    if (SL_ALLOC(ctx, pv, g->n_params, "parameters") == NULL) st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    for (int i = 0; i < g->n_params; i++) pv[i] = g->params[i].default_value;
+    char err[512] = "";
+    int rc = ctx->rank == 0 ? g->init(pv, &shape, &inst, err, sizeof(err)) : 0;
+    if (rc != 0)
+        st = SL_ERR(ctx, SL_EDATA, "%s: generator init failed with the default parameters (code %d): %s", generator,
+                    rc, err[0] ? err : "no message");
+    if (st == SL_OK && ctx->rank == 0 &&
+        (shape.n_factors < 0 || shape.n_factors > SLUICE_MAX_FACTORS || shape.n_actions <= 0 ||
+         (g->abi_version >= 2 && (shape.n_quantities < 0 || shape.n_quantities > SLUICE_MAX_QUANTITIES ||
+                                  (shape.n_quantities > 0 && shape.quantities == NULL)))))
+        st = SL_ERR(ctx, SL_EDATA, "%s: the generator reports an impossible shape (factors %d, actions %d)",
+                    generator, shape.n_factors, (int)shape.n_actions);
+    SL_TRY(sl_agree(ctx, st));
+    if (ctx->rank == 0) {
+        fprintf(out, "%s: generator \"%s\" (ABI %d)\n  %s\n", generator, g->name ? g->name : "?", g->abi_version,
+                g->description ? g->description : "");
+        fprintf(out, "parameters (set with sluice build --param NAME=VALUE):\n");
+        fprintf(out, "  %-22s %12s  %-12s %s\n", "name", "default", "unit", "meaning");
+        for (int i = 0; i < g->n_params; i++)
+            fprintf(out, "  %-22s %12.6g  %-12s %s\n", g->params[i].name ? g->params[i].name : "?",
+                    g->params[i].default_value, g->params[i].unit ? g->params[i].unit : "",
+                    g->params[i].help ? g->params[i].help : "");
+        if (g->n_params == 0) fprintf(out, "  (none)\n");
+        fprintf(out, "with the defaults:\n  states       %lld", (long long)shape.n_states);
+        for (int f = 0; f < shape.n_factors; f++)
+            fprintf(out, "%s%s %lld", f ? " x " : " = ", shape.factors[f].name ? shape.factors[f].name : "?",
+                    (long long)shape.factors[f].size);
+        fprintf(out, "%s\n", shape.n_factors ? "  (first factor fastest)" : "");
+        for (int f = 0; f < shape.n_factors; f++) {
+            const sluice_factor_values *fv = g->abi_version >= 2 ? &shape.factor_values[f] : NULL;
+            fprintf(out, "  factor       %-12s %lld%s", shape.factors[f].name ? shape.factors[f].name : "?",
+                    (long long)shape.factors[f].size, shape.factors[f].stage ? ", stage" : "");
+            if (fv && fv->values && shape.factors[f].size > 0) {
+                fprintf(out, ", ");
+                describe_values(out, fv->unit, fv->values, shape.factors[f].size);
+            } else if (fv && fv->unit && fv->unit[0]) {
+                fprintf(out, ", unit %s", fv->unit);
+            }
+            if (fv && fv->labels && shape.factors[f].size > 0) {
+                fprintf(out, ", ");
+                describe_labels(out, fv->labels, shape.factors[f].size);
+            }
+            fprintf(out, "\n");
+        }
+        fprintf(out, "  actions      %d", (int)shape.n_actions);
+        if (g->abi_version >= 2 && shape.action_values) {
+            fprintf(out, ", ");
+            describe_values(out, shape.action_unit, shape.action_values, shape.n_actions);
+        }
+        fprintf(out, "\n  discount     %.10g", shape.discount);
+        if (g->abi_version >= 2 && shape.period_unit) fprintf(out, " per %s", shape.period_unit);
+        if (g->abi_version >= 2 && shape.reward_unit) fprintf(out, "\n  reward       %s", shape.reward_unit);
+        fprintf(out, "\n");
+        int nq = g->abi_version >= 2 ? shape.n_quantities : 0;
+        if (nq > 0) {
+            fprintf(out, "outcome quantities (per period, stored per state and action as expected value and "
+                         "probability of being positive):\n");
+            for (int q = 0; q < nq; q++)
+                fprintf(out, "  %-22s %-12s %s\n", shape.quantities[q].name ? shape.quantities[q].name : "?",
+                        shape.quantities[q].unit ? shape.quantities[q].unit : "",
+                        shape.quantities[q].help ? shape.quantities[q].help : "");
+        } else {
+            fprintf(out, "outcome quantities: none%s\n", g->abi_version < 2 ? " (an ABI 1 generator)" : "");
+        }
+    }
+cleanup:
+    if (inst && g && g->finish) g->finish(inst);
+    if (dl) dlclose(dl);
+    free(pv);
     return st;
 }
