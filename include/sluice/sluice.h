@@ -229,4 +229,64 @@ sl_status sl_simulate(sl_ctx *ctx, const sl_simulate_opts *opts);
  * Collective; rank 0 prints. */
 sl_status sl_generator_describe(sl_ctx *ctx, const char *generator, FILE *out);
 
+#define SL_LABEL_MAX 64
+
+/* What `sluice table` shows in its cells. */
+typedef enum sl_table_show {
+    SL_SHOW_ACTION = 0,     /* the policy's action: its value (and unit) or name */
+    SL_SHOW_VALUE = 1,      /* v, in reward units */
+    SL_SHOW_MARGINAL = 2,   /* dv/dx along a numeric factor, reward unit per factor unit */
+    SL_SHOW_QUANTITY = 3,   /* expected one-period outcome quantity under the policy */
+    SL_SHOW_SWITCH = 4      /* per column, the row values where the action changes */
+} sl_table_show;
+
+typedef struct sl_table_opts {
+    const char *solution;
+    const char *model;
+    const char *rows;           /* factor along the rows */
+    const char *cols;           /* factor along the columns */
+    int n_fix;
+    const char *const *fix;     /* every other factor: NAME=VALUE or NAME@INDEX */
+    const char *show;           /* action (NULL), value, marginal:FACTOR, QUANTITY, switch */
+} sl_table_opts;
+
+/* One change of the chosen action down a column (SL_SHOW_SWITCH). */
+typedef struct sl_table_switch {
+    int64_t col;                /* column index */
+    int64_t row;                /* first row index with the new action */
+    int32_t from, to;           /* action ids at row - 1 and at row */
+} sl_table_switch;
+
+/* A computed two-factor table. Owned by the caller; release with
+ * sl_table_free. */
+typedef struct sl_table {
+    sl_table_show show;
+    int64_t n_rows, n_cols;
+    char row_name[SL_LABEL_MAX], row_unit[SL_LABEL_MAX];
+    char col_name[SL_LABEL_MAX], col_unit[SL_LABEL_MAX];
+    char (*row_label)[SL_LABEL_MAX];    /* [n_rows] label, value as printed, or index */
+    char (*col_label)[SL_LABEL_MAX];    /* [n_cols] */
+    double *cell;                       /* [n_rows * n_cols], row-major: the number shown
+                                         * (SL_SHOW_ACTION: the action's value, or its id
+                                         * when actions have no values) */
+    int32_t *action;                    /* [n_rows * n_cols] the policy's action ids */
+    int32_t n_actions;
+    char (*action_label)[SL_LABEL_MAX]; /* [n_actions] action value as printed, or name */
+    char what[128];                     /* what the cells hold, e.g. "release" */
+    char unit[2 * SL_LABEL_MAX + 2];    /* unit of the cells, e.g. "kCU/hm3" ("" if none) */
+    char fixed[1024];                   /* the fixed factors, e.g. "inflow=140 hm3/month (index 2)" */
+    int64_t n_switches;
+    sl_table_switch *switches;          /* SL_SHOW_SWITCH only, by column then row */
+} sl_table;
+
+/* Compute a table of a solution over two factors of its model, the other
+ * factors fixed. marginal:FACTOR uses central differences of the value
+ * along FACTOR divided by the step of its values (one-sided at the ends).
+ * Errors (SL_EUSAGE / SL_EDATA) name the factor, quantity, value or file.
+ * Collective: each rank reads its slice of the solution and model; every
+ * rank gets the whole table. */
+sl_status sl_table_compute(sl_ctx *ctx, const sl_table_opts *o, sl_table *t);
+/* Release a table's arrays (accepts a zeroed table). Local. */
+void sl_table_free(sl_table *t);
+
 #endif /* SLUICE_SLUICE_H */

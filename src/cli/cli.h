@@ -36,5 +36,6 @@ int cmd_evaluate(cli_args *a);
 int cmd_verify(cli_args *a);
 int cmd_export(cli_args *a);
 int cmd_simulate(cli_args *a);
+int cmd_table(cli_args *a);
 
 #endif
