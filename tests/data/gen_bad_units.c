@@ -1,6 +1,7 @@
 /* gen_bad_units.c - a small ABI 2 generator with one injected fault in its
  * units, labels or outcome quantities per --param mode=N (0: none), for
- * tests/cli/abi2_build.sh. Invented: a two-level storage pond of a mill
+ * tests/cli/abi2_build.sh; mode 8 declares nothing of ABI 2 (a format 1
+ * model with two factors, for tests/cli/table_bad_input.sh). Invented: a two-level storage pond of a mill
  * stream; the numbers mean nothing. */
 #include <math.h>
 #include <stdint.h>
@@ -50,6 +51,14 @@ static int bad_init(const double *v, sluice_shape *sh, void **inst, char *err, s
     case 5: break; /* NaN quantity, below */
     case 6: sh->factor_values[0].values = nan_values; break;
     case 7: sh->quantities = dup_q; break;
+    case 8: /* no annotations at all: a format 1 model with two factors */
+        sh->factor_values[0] = (sluice_factor_values){NULL, NULL, NULL};
+        sh->factor_values[1] = (sluice_factor_values){NULL, NULL, NULL};
+        sh->action_values = NULL;
+        sh->action_unit = sh->reward_unit = sh->period_unit = NULL;
+        sh->n_quantities = 0;
+        sh->quantities = NULL;
+        break;
     default: break;
     }
     return 0;
