@@ -289,4 +289,44 @@ sl_status sl_table_compute(sl_ctx *ctx, const sl_table_opts *o, sl_table *t);
 /* Release a table's arrays (accepts a zeroed table). Local. */
 void sl_table_free(sl_table *t);
 
+typedef struct sl_outlook_opts {
+    const char *model;
+    const char *solution;
+    const char *start;              /* a state number or NAME=VALUE,... for every factor */
+    const char *start_distribution; /* or a CSV of start probabilities (docs/outlook.md) */
+    int64_t stages;                 /* N >= 0: stages 0..N are reported */
+} sl_outlook_opts;
+
+#define SL_OUTLOOK_NQ 6             /* factor statistics: mean, p5, p25, p50, p75, p95 */
+
+/* The exact forward distribution of the state under a solution's policy,
+ * mu_{t+1} = mu_t P_pi, summarised per stage. Owned by the caller. */
+typedef struct sl_outlook {
+    int64_t n_stages;                   /* N; arrays hold stages 0..N */
+    int n_factors;                      /* numeric factors summarised */
+    char (*factor_name)[SL_LABEL_MAX];
+    char (*factor_unit)[SL_LABEL_MAX];
+    int n_quantities;
+    char (*quantity_name)[SL_LABEL_MAX];
+    char (*quantity_unit)[SL_LABEL_MAX];
+    char reward_unit[SL_LABEL_MAX], period_unit[SL_LABEL_MAX];
+    double discount;
+    double *factor_stats;       /* [(N+1) * n_factors * SL_OUTLOOK_NQ] mean, p5, p25, p50, p75, p95 of
+                                 * the factor's value at the start of stage t */
+    double *quantity_stats;     /* [(N+1) * n_quantities * 2] expected value of the quantity over
+                                 * period t and the probability that it is positive */
+    double *discounted_reward;  /* [N+1] sum over periods tau < t of gamma^tau E[r_tau] */
+    double *mass;               /* [N+1] sum of mu_t (1 up to rounding) */
+    double start_value;         /* sum of mu_0(s) value(s), from the solution */
+} sl_outlook;
+
+/* Propagate the start distribution N stages under the policy, exactly (no
+ * sampling). Quantiles are lower quantiles of the factor's marginal
+ * distribution: the smallest value whose cumulative probability reaches p
+ * (within 1e-12). Collective: each rank owns a slice of states; mu_t is
+ * pushed along the policy rows and summed with MPI_Reduce_scatter. */
+sl_status sl_outlook_compute(sl_ctx *ctx, const sl_outlook_opts *o, sl_outlook *r);
+/* Release an outlook's arrays (accepts a zeroed one). Local. */
+void sl_outlook_free(sl_outlook *r);
+
 #endif /* SLUICE_SLUICE_H */

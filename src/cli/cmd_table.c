@@ -1,11 +1,10 @@
 /* cmd_table.c - `sluice table`: print a two-factor table of a solution
  * (computed by sl_table_compute) aligned on the terminal or as CSV. */
-#include <errno.h>
 #include <stdlib.h>
 #include <string.h>
-#include <unistd.h>
 
 #include "cli/cli.h"
+#include "cli/cli_out.h"
 
 static const char table_help[] =
     "usage: sluice table SOLUTION.h5 --model MODEL.h5 --rows FACTOR --cols FACTOR\n"
@@ -164,34 +163,7 @@ static void write_text(FILE *f, const sl_table *t, const char *solution, const c
     fprintf(f, "Results support, never replace, licensed engineering judgement and local regulations.\n");
 }
 
-/* Write the CSV to path atomically (temporary, fsync, rename). */
-static int write_file(const char *path, const sl_table *t)
-{
-    char tmp[4200];
-    const char *slash = strrchr(path, '/');
-    int dl = slash ? (int)(slash - path + 1) : 0;
-    if (snprintf(tmp, sizeof(tmp), "%.*s.%s.%ld.partial", dl, path, slash ? slash + 1 : path, (long)getpid()) >=
-        (int)sizeof(tmp)) {
-        fprintf(stderr, "sluice table: %s: path too long\n", path);
-        return SL_ECANTCREAT;
-    }
-    FILE *f = fopen(tmp, "w");
-    if (f == NULL) {
-        fprintf(stderr, "sluice table: %s: cannot create: %s\n", path, strerror(errno));
-        return SL_ECANTCREAT;
-    }
-    write_csv(f, t);
-    int bad = ferror(f) != 0;
-    bad |= fflush(f) != 0;
-    bad |= fsync(fileno(f)) != 0;
-    bad |= fclose(f) != 0;
-    if (bad || rename(tmp, path) != 0) {
-        fprintf(stderr, "sluice table: %s: cannot write: %s\n", path, strerror(errno));
-        unlink(tmp);
-        return SL_EIO;
-    }
-    return 0;
-}
+static void csv_cb(FILE *f, const void *t) { write_csv(f, (const sl_table *)t); }
 
 int cmd_table(cli_args *a)
 {
@@ -245,7 +217,7 @@ int cmd_table(cli_args *a)
     if (sl_ctx_rank(a->ctx) == 0) {
         if (out == NULL) write_text(stdout, &t, o.solution, o.model);
         else if (strcmp(out, "-") == 0) write_csv(stdout, &t);
-        else rc = write_file(out, &t);
+        else rc = cli_write_atomic("table", out, csv_cb, &t);
     }
     MPI_Bcast(&rc, 1, MPI_INT, 0, MPI_COMM_WORLD);
     sl_table_free(&t);
