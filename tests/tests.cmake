@@ -20,7 +20,7 @@ foreach(src ${SLUICE_UNIT_TESTS})
   target_compile_definitions(${name} PRIVATE _POSIX_C_SOURCE=200809L
     SLUICE_SOURCE_DIR="${PROJECT_SOURCE_DIR}" SLUICE_BINARY_DIR="${PROJECT_BINARY_DIR}")
   target_compile_options(${name} PRIVATE ${SLUICE_WARNINGS} -Wno-missing-prototypes)
-  target_link_libraries(${name} PRIVATE sluice_lib ${CMOCKA_LIBRARY} PkgConfig::HDF5P UMFPACK::UMFPACK m)
+  target_link_libraries(${name} PRIVATE sluice_obj ${CMOCKA_LIBRARY} PkgConfig::HDF5P UMFPACK::UMFPACK m)
   add_test(NAME unit_${name} COMMAND ${name})
   set_tests_properties(unit_${name} PROPERTIES LABELS unit TIMEOUT 300 ENVIRONMENT "${SLUICE_TEST_ENV}")
 endforeach()

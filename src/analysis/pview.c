@@ -42,7 +42,7 @@ sl_status sl_pview_load(sl_ctx *ctx, const char *model, const char *solution, in
                         sl_pview *pv)
 {
     sl_status st = SL_OK;
-    sl_solution_info info;
+    sl_solution_record info;
     sl_block blk;
     hid_t f = H5I_INVALID_HID;
     int64_t *fp = NULL, *chosen = NULL;

@@ -10,6 +10,8 @@ typedef struct cli_args {
     int i;              /* next argument */
     const char *cmd;
     sl_ctx *ctx;
+    double start_clock;     /* sl_clock() when the process started */
+    int stderr_tty;         /* progress lines go to a terminal */
 } cli_args;
 
 /* Is argv[i] the option `name`? Consumes it. "--name=value" is split. */

@@ -4,6 +4,7 @@
 #include <stdarg.h>
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
 #include "cli/cli.h"
 
@@ -115,6 +116,7 @@ int cli_int64(cli_args *a, const char *opt, const char *s, int64_t *out)
 
 int main(int argc, char **argv)
 {
+    double start_clock = sl_clock();
     int provided = 0;
     if (MPI_Init_thread(&argc, &argv, MPI_THREAD_SINGLE, &provided) != MPI_SUCCESS) {
         fprintf(stderr, "sluice: MPI initialisation failed\n");
@@ -164,7 +166,8 @@ int main(int argc, char **argv)
         MPI_Finalize();
         return SL_EINTERNAL;
     }
-    cli_args a = {argc, argv, 2, argv[1], ctx};
+    sl_ctx_set_log(ctx, stderr);
+    cli_args a = {argc, argv, 2, argv[1], ctx, start_clock, isatty(STDERR_FILENO)};
     rc = fn(&a);
     sl_ctx_free(&ctx);
     MPI_Finalize();

@@ -44,8 +44,8 @@ sl_status sl_ctx_new(MPI_Comm comm, int verbosity, sl_ctx **out)
     MPI_Comm_rank(ctx->comm, &ctx->rank);
     MPI_Comm_size(ctx->comm, &ctx->size);
     ctx->verbosity = verbosity;
-    ctx->log = stderr;
-    ctx->log_tty = isatty(STDERR_FILENO);
+    ctx->log = NULL;            /* the library prints nothing unless asked */
+    ctx->log_tty = 0;
     *out = ctx;
     return SL_OK;
 }
@@ -59,6 +59,7 @@ void sl_ctx_free(sl_ctx **pctx)
 }
 
 int sl_ctx_rank(const sl_ctx *ctx) { return ctx->rank; }
+int sl_ctx_verbosity(const sl_ctx *ctx) { return ctx->verbosity; }
 int sl_ctx_size(const sl_ctx *ctx) { return ctx->size; }
 const char *sl_ctx_message(const sl_ctx *ctx) { return ctx->err; }
 
@@ -76,7 +77,9 @@ void sl_ctx_set_signal_flag(sl_ctx *ctx, volatile sig_atomic_t *flag)
 sl_status sl_error_at(sl_ctx *ctx, sl_status st, const char *file, int line,
                       const char *fmt, ...)
 {
-    if (ctx == NULL || ctx->err_status != SL_OK) return st;
+    /* the message of the last failing call wins: a failure recorded earlier
+     * that an API call returned is overwritten by the next one */
+    if (ctx == NULL) return st;
     ctx->err_status = st;
     va_list ap;
     va_start(ap, fmt);

@@ -179,8 +179,6 @@ sl_status sl_halo_build(sl_ctx *ctx, const int64_t *bounds, sl_block *b, sl_halo
                 b->col[t] = (uint32_t)(h->n_local + lo);
             }
         }
-        free(b->target);
-        b->target = NULL;
     }
     if (SL_ZALLOC(ctx, cnt_recv, P, "halo") == NULL || SL_ZALLOC(ctx, cnt_send, P, "halo") == NULL ||
         SL_ZALLOC(ctx, displ_r, P, "halo") == NULL || SL_ZALLOC(ctx, displ_s, P, "halo") == NULL)

@@ -33,7 +33,7 @@ typedef struct sl_halo {
 } sl_halo;
 
 /* Build the halo of a block: b->col gets the local column of every
- * transition in [owned | halo], and b->target (global ids) is freed.
+ * transition in [owned | halo]; b->target (global ids) is left as it is.
  * Collective. */
 sl_status sl_halo_build(sl_ctx *ctx, const int64_t *bounds, sl_block *b, sl_halo *h);
 /* Refresh the halo part of x from the owners. Collective. */

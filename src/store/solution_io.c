@@ -70,7 +70,7 @@ static const char *kind_str(sl_file_kind k)
 
 sl_status sl_store_solution_write(sl_ctx *ctx, const char *path, sl_file_kind kind, int64_t n_states,
                                   int64_t s_begin, int64_t n_local, const double *value,
-                                  const int32_t *actions, const sl_solution_info *in, const sl_history *hist)
+                                  const int32_t *actions, const sl_solution_record *in, const sl_history *hist)
 {
     sl_status st = SL_OK;
     sl_outfile of;
@@ -87,6 +87,7 @@ sl_status sl_store_solution_write(sl_ctx *ctx, const char *path, sl_file_kind ki
     if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "converged", in->converged, p);
     if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "iterations", in->iterations, p);
     if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "sweeps", in->sweeps, p);
+    if (st == SL_OK && in->ranks > 0) st = sl_h5_attr_write_i64(ctx, f, "ranks", in->ranks, p);
     if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "n_states", n_states, p);
     if (st == SL_OK) st = sl_h5_attr_write_f64(ctx, f, "seconds", in->seconds, p);
     if (st == SL_OK) st = sl_h5_attr_write_f64(ctx, f, "tolerance", in->tolerance, p);
@@ -121,7 +122,7 @@ cleanup:
 
 sl_status sl_store_solution_read(sl_ctx *ctx, const char *path, sl_file_kind kind, int64_t n_states,
                                  int64_t s_begin, int64_t n_local, double *value, int32_t *actions,
-                                 sl_solution_info *in)
+                                 sl_solution_record *in)
 {
     sl_status st = SL_OK;
     hid_t f = H5I_INVALID_HID;
@@ -140,6 +141,7 @@ sl_status sl_store_solution_read(sl_ctx *ctx, const char *path, sl_file_kind kin
     if (st == SL_OK) st = sl_h5_attr_read_i64(ctx, f, "converged", &conv, 0, path);
     if (st == SL_OK) st = sl_h5_attr_read_i64(ctx, f, "iterations", &in->iterations, 0, path);
     if (st == SL_OK) st = sl_h5_attr_read_i64(ctx, f, "sweeps", &in->sweeps, 0, path);
+    if (st == SL_OK) st = sl_h5_attr_read_i64(ctx, f, "ranks", &in->ranks, 0, path);
     if (st == SL_OK) st = sl_h5_attr_read_f64(ctx, f, "seconds", &in->seconds, 0, path);
     if (st == SL_OK) st = sl_h5_attr_read_f64(ctx, f, "tolerance", &in->tolerance, 0, path);
     if (st == SL_OK) st = sl_h5_attr_read_f64(ctx, f, "discount", &in->discount, 0, path);
