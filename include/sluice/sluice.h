@@ -465,4 +465,26 @@ SLUICE_API sl_status sl_outlook_compute(sl_ctx *ctx, const sl_outlook_opts *o, s
 /* Release an outlook's arrays (accepts a zeroed one). Local. */
 SLUICE_API void sl_outlook_free(sl_outlook *r);
 
+/* Expected discounted totals of each outcome quantity under a policy. */
+typedef struct sl_totals {
+    int n_quantities;                   /* 0 for a model without quantities */
+    char (*name)[SL_LABEL_MAX];         /* [n_quantities] */
+    char (*unit)[SL_LABEL_MAX];         /* [n_quantities] unit of one period's quantity */
+    char period_unit[SL_LABEL_MAX];
+    char method[16];                    /* "direct" or "iterative" */
+    int64_t n_states, s_begin, n_local; /* this rank's states */
+    double *total;                      /* [n_quantities * n_local], quantity-major: the
+                                         * expected discounted total from each state */
+    double *error_bound;                /* [n_quantities] certified sup |total - exact| */
+} sl_totals;
+
+/* Policy evaluation with each quantity's per-pair mean as the reward, by the
+ * solver's settings (sl_solver_evaluate: same methods and certificate).
+ * `model_path` is the file `m` was loaded from (the quantities are read from
+ * it). Needs one extra copy of the model's rows. Collective. */
+SLUICE_API sl_status sl_quantity_totals(sl_solver *s, const sl_model *m, const sl_solution *policy,
+                                        const char *model_path, sl_totals *t);
+/* Release a totals result (accepts a zeroed one). Local. */
+SLUICE_API void sl_totals_free(sl_totals *t);
+
 #endif /* SLUICE_SLUICE_H */

@@ -7,6 +7,7 @@
 #include <time.h>
 
 #include "cli/cli.h"
+#include "cli/cmd_totals.h"
 #include "core/json.h"
 
 /* What `sluice solve` was asked for. */
@@ -369,10 +370,15 @@ static const char evaluate_help[] =
     "  --iterative           evaluate by sweeps instead of a direct UMFPACK solve\n"
     "  --tolerance EPS       iterative: certified error bound (default 1e-6)\n"
     "  --memory-limit BYTES  largest factorization to attempt (default half of RAM);\n"
-    "                        above it the evaluation is iterative\n";
+    "                        above it the evaluation is iterative\n"
+    "  For a model with outcome quantities it also prints each quantity's expected\n"
+    "  discounted total under the policy (policy evaluation with the quantity as reward):\n"
+    "  --totals FILE.csv     those totals per state, with units in the header\n"
+    "  --compare OTHER.h5    the same for the policy in OTHER.h5, and the difference\n";
 
 typedef struct evaluate_args {
     const char *model, *policy, *output;
+    const char *totals, *compare; /* outcome-quantity totals (cmd_totals.c) */
     double tolerance, memory_limit;
     int iterative;
 } evaluate_args;
@@ -394,6 +400,7 @@ static int run_evaluate(cli_args *a, const evaluate_args *o)
     }
     if (rc == 0) rc = cli_fail(a, sl_solver_evaluate(s, m, pol, &v));
     if (rc == 0) rc = cli_fail(a, sl_solution_save(v, o->output));
+    if (rc == 0) rc = cli_quantity_totals(a, s, m, pol, o->model, o->policy, o->compare, o->totals);
     if (rc == 0 && sl_ctx_rank(ctx) == 0 && sl_ctx_verbosity(ctx) >= 1) {
         sl_solution_info in;
         sl_certificate c;
@@ -424,6 +431,10 @@ int cmd_evaluate(cli_args *a)
             if ((o.policy = cli_value(a)) == NULL) rc = SL_EUSAGE;
         } else if (cli_opt(a, "--iterative")) {
             o.iterative = 1;
+        } else if (cli_opt(a, "--totals")) {
+            if ((o.totals = cli_value(a)) == NULL) rc = SL_EUSAGE;
+        } else if (cli_opt(a, "--compare")) {
+            if ((o.compare = cli_value(a)) == NULL) rc = SL_EUSAGE;
         } else if (cli_opt(a, "--tolerance")) {
             if (!num_opt(a, "--tolerance", &o.tolerance)) rc = SL_EUSAGE;
             else if (!(o.tolerance > 0)) rc = cli_usage_error(a, "--tolerance must be positive");
