@@ -487,4 +487,10 @@ SLUICE_API sl_status sl_quantity_totals(sl_solver *s, const sl_model *m, const s
 /* Release a totals result (accepts a zeroed one). Local. */
 SLUICE_API void sl_totals_free(sl_totals *t);
 
+/* Resolve a state given as a number or as NAME=VALUE / NAME@INDEX for every
+ * factor, comma-separated (labels or values as printed), against the model
+ * file's factors. `what` names the option in messages. Collective. */
+SLUICE_API sl_status sl_state_lookup(sl_ctx *ctx, const char *model_path, const char *text, const char *what,
+                                     int64_t *state);
+
 #endif /* SLUICE_SLUICE_H */

@@ -143,3 +143,14 @@ sl_status sl_state_parse(sl_ctx *ctx, const sl_meta *m, const char *text, const 
     *state = s;
     return SL_OK;
 }
+
+sl_status sl_state_lookup(sl_ctx *ctx, const char *model_path, const char *text, const char *what, int64_t *state)
+{
+    sl_meta m;
+    memset(&m, 0, sizeof(m));
+    sl_status st = sl_store_model_meta(ctx, model_path, &m);
+    if (st != SL_OK) return st;
+    st = sl_agree(ctx, sl_state_parse(ctx, &m, text, what, state));
+    sl_meta_free(&m);
+    return st;
+}

@@ -547,6 +547,7 @@ int cmd_verify(cli_args *a)
 
 static const char simulate_help[] =
     "usage: sluice simulate MODEL.h5 SOLUTION.h5 --start STATE --episodes N --seed S [options]\n"
+    "  STATE: a state number, or every factor as NAME=VALUE / NAME@INDEX, comma-separated\n"
     "  Monte Carlo rollouts of the solution's policy; prints the mean discounted\n"
     "  return with a 95% interval next to the solution's value.\n"
     "  --horizon T           steps per episode (default: until discount^T < 1e-6)\n"
@@ -559,13 +560,15 @@ int cmd_simulate(cli_args *a)
     o.out = stdout;
     o.episodes = 1000;
     int have_start = 0, rc = 0;
+    const char *start_text = NULL;
     int64_t seed = 1;
     while (a->i < a->argc && rc == 0) {
         int c = cli_common_opt(a, simulate_help);
         if (c < 0) return 0;
         if (c > 0) continue;
         if (cli_opt(a, "--start")) {
-            if (!int_opt(a, "--start", &o.start)) rc = SL_EUSAGE;
+            /* a state number, or NAME=VALUE,... resolved once the model is known */
+            if ((start_text = cli_value(a)) == NULL) rc = SL_EUSAGE;
             have_start = 1;
         } else if (cli_opt(a, "--episodes")) {
             if (!int_opt(a, "--episodes", &o.episodes)) rc = SL_EUSAGE;
@@ -590,6 +593,8 @@ int cmd_simulate(cli_args *a)
     if (rc) return rc;
     if (o.model == NULL || o.solution == NULL) return cli_usage_error(a, "need MODEL.h5 and SOLUTION.h5");
     if (!have_start) return cli_usage_error(a, "--start STATE is required");
+    rc = cli_fail(a, sl_state_lookup(a->ctx, o.model, start_text, "--start", &o.start));
+    if (rc) return rc;
     o.seed = (uint64_t)seed;
     return cli_fail(a, sl_simulate(a->ctx, &o));
 }
