@@ -299,7 +299,8 @@ static sl_status take_annotations(sl_ctx *ctx, const sluice_shape *sh, sl_meta *
         if (!short_text(fv->unit))
             SL_FAIL(SL_EDATA, "%s: factor %s: unit longer than %d characters", gen, sh->factors[f].name,
                     SL_NAME_MAX - 1);
-        snprintf(meta->factor_unit[f], SL_NAME_MAX, "%s", fv->unit ? fv->unit : "");
+        /* the file keeps a unit with the values only (attr of /factor/NAME/value) */
+        snprintf(meta->factor_unit[f], SL_NAME_MAX, "%s", fv->unit && fv->values ? fv->unit : "");
         if (fv->values) {
             if (n > INT32_MAX) SL_FAIL(SL_EDATA, "%s: factor %s: too many values", gen, sh->factors[f].name);
             if (SL_ALLOC(ctx, meta->factor_value[f], n, "factor values") == NULL) SL_FAIL(SL_ENOMEM, "factor values");
@@ -347,7 +348,7 @@ static sl_status take_annotations(sl_ctx *ctx, const sluice_shape *sh, sl_meta *
     }
     if (!short_text(sh->action_unit) || !short_text(sh->reward_unit) || !short_text(sh->period_unit))
         SL_FAIL(SL_EDATA, "%s: a unit (action, reward or period) is longer than %d characters", gen, SL_NAME_MAX - 1);
-    snprintf(meta->action_unit, SL_NAME_MAX, "%s", sh->action_unit ? sh->action_unit : "");
+    snprintf(meta->action_unit, SL_NAME_MAX, "%s", sh->action_unit && sh->action_values ? sh->action_unit : "");
     snprintf(meta->reward_unit, SL_NAME_MAX, "%s", sh->reward_unit ? sh->reward_unit : "");
     snprintf(meta->period_unit, SL_NAME_MAX, "%s", sh->period_unit ? sh->period_unit : "");
     if (sh->n_quantities < 0 || sh->n_quantities > SLUICE_MAX_QUANTITIES ||
