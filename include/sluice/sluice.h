@@ -454,6 +454,7 @@ typedef struct sl_outlook {
     double *discounted_reward;  /* [N+1] sum over periods tau < t of gamma^tau E[r_tau] */
     double *mass;               /* [N+1] sum of mu_t (1 up to rounding) */
     double start_value;         /* sum of mu_0(s) value(s), from the solution */
+    double seconds;             /* wall time of the stage loop (rank 0's clock, after loading) */
 } sl_outlook;
 
 /* Propagate the start distribution N stages under the policy, exactly (no

@@ -266,7 +266,7 @@ sl_status sl_outlook_compute(sl_ctx *ctx, const sl_outlook_opts *o, sl_outlook *
     MPI_Allreduce(MPI_IN_PLACE, &v0, 1, MPI_DOUBLE, MPI_SUM, ctx->comm);
     r->start_value = v0;
 
-    double disc = 1.0, acc = 0.0;
+    double disc = 1.0, acc = 0.0, t_start = MPI_Wtime();
     for (int64_t t = 0; t <= N; t++) {
         /* summaries of mu_t */
         memset(buf, 0, (size_t)nb * sizeof(*buf));
@@ -323,6 +323,7 @@ sl_status sl_outlook_compute(sl_ctx *ctx, const sl_outlook_opts *o, sl_outlook *
             st = SL_ERR(ctx, SL_EINTERNAL, "MPI_Reduce_scatter failed in the outlook");
         SL_TRY(sl_agree(ctx, st));
     }
+    r->seconds = MPI_Wtime() - t_start;
 cleanup:
     free(start_states);
     free(start_p);

@@ -27,7 +27,8 @@ static void write_json(FILE *f, const void *arg)
     const sl_outlook *r = arg;
     fprintf(f, "{\n  \"caution\": \"Results support, never replace, licensed engineering judgement and local "
                "regulations.\",\n");
-    fprintf(f, "  \"discount\": %.17g,\n  \"start_value\": %.17g,\n", r->discount, r->start_value);
+    fprintf(f, "  \"discount\": %.17g,\n  \"start_value\": %.17g,\n  \"seconds\": %.6g,\n", r->discount,
+            r->start_value, r->seconds);
     fprintf(f, "  \"units\": {\"reward\": \"%s\", \"period\": \"%s\", \"factors\": {", r->reward_unit, r->period_unit);
     for (int k = 0; k < r->n_factors; k++)
         fprintf(f, "%s\"%s\": \"%s\"", k ? ", " : "", r->factor_name[k], r->factor_unit[k]);
