@@ -44,7 +44,7 @@ foreach(script ${SLUICE_MPI_TESTS})
                        ENVIRONMENT "${SLUICE_TEST_ENV};SLUICE_MPIEXEC=${SLUICE_MPIEXEC};SLUICE_PYTHON=/usr/bin/python3")
 endforeach()
 
-foreach(frag tests/python/tests.cmake tests/jobs/tests.cmake)
+foreach(frag tests/python/tests.cmake tests/jobs/tests.cmake tests/report/tests.cmake)
   if(EXISTS ${PROJECT_SOURCE_DIR}/${frag})
     include(${PROJECT_SOURCE_DIR}/${frag})
   endif()
@@ -64,3 +64,10 @@ endif()
 add_test(NAME fuzz_csv COMMAND bash ${PROJECT_SOURCE_DIR}/tests/fuzz/run.sh ${PROJECT_SOURCE_DIR}
          ${PROJECT_BINARY_DIR}/fuzz_csv 45)
 set_tests_properties(fuzz_csv PROPERTIES LABELS fuzz TIMEOUT 300 SKIP_RETURN_CODE 77)
+
+# the library API on 2 and 3 ranks (rows on rank 0 only; solving spreads nothing:
+# the same numbers must come out)
+foreach(np 2 3)
+  add_test(NAME mpi_unit_handles_${np} COMMAND ${SLUICE_MPIEXEC} -np ${np} ${SLUICE_MPI_FLAGS} $<TARGET_FILE:test_handles>)
+  set_tests_properties(mpi_unit_handles_${np} PROPERTIES LABELS mpi TIMEOUT 300 ENVIRONMENT "${SLUICE_TEST_ENV}")
+endforeach()

@@ -351,6 +351,41 @@ typedef struct sl_simulate_opts {
 /* Monte Carlo rollouts of the solution's policy from one start state. */
 SLUICE_API sl_status sl_simulate(sl_ctx *ctx, const sl_simulate_opts *opts);
 
+/* ---- objectives other than discounted ------------------------------------------
+ * Finite horizon, total reward to absorption and average reward per period
+ * (docs/objectives.md). Interim file-level entry points, to be folded into
+ * sl_solver / sl_solution: they write the solution file (and report) and
+ * print progress, the summary and the verification through the context's
+ * log, like the command line does. */
+
+typedef struct sl_objective_opts {
+    const char *model_path;     /* for messages and the report */
+    const char *output;         /* solution file to write */
+    const char *report;         /* JSON report, or NULL */
+    sl_order order;
+    double tolerance;           /* total: value and policy; average: gain; <= 0 -> 1e-6 */
+    int64_t max_iterations;     /* total/average: iterations; finite: stages; 0: none */
+    double walltime;            /* seconds; 0: none */
+    const char *checkpoint_dir; /* NULL: none */
+    double checkpoint_every;    /* seconds; <= 0 -> 600 */
+    int resume;
+    int64_t horizon;            /* finite: number of stages */
+    const char *terminal;       /* finite: solution file whose /value closes the horizon;
+                                 * NULL: the model's /terminal_value, else 0 */
+    double aperiodicity;        /* average: tau in (0, 1); <= 0 -> 0.5 */
+} sl_objective_opts;
+
+/* Solve m (objective finite, total or average) and write o->output.
+ * Returns SL_OK certified, SL_ESTOPPED stopped early (solution written with
+ * converged = 0; finite: stages kept in the checkpoint only), SL_EDATA for
+ * models the objective cannot handle, naming a state. Collective. */
+SLUICE_API sl_status sl_objective_solve(const sl_model *m, const sl_objective_opts *o);
+/* Recompute the certificate of a solution file of such a model and print it
+ * to out on rank 0 (text or JSON). SL_OK if certified within tolerance (<= 0:
+ * the solution's own), SL_EDATA if not. Collective. */
+SLUICE_API sl_status sl_objective_verify(const sl_model *m, const char *model_path, const char *solution,
+                                         double tolerance, int json, FILE *out);
+
 /* Monotonic seconds (the clock the solver's walltime uses). Local. */
 SLUICE_API double sl_clock(void);
 

@@ -40,5 +40,6 @@ int cmd_export(cli_args *a);
 int cmd_simulate(cli_args *a);
 int cmd_table(cli_args *a);
 int cmd_outlook(cli_args *a);
+int cmd_report(cli_args *a);
 
 #endif

@@ -25,6 +25,9 @@ typedef struct solve_args {
     double checkpoint_every;
     int resume;
     double progress_every;
+    int64_t horizon;            /* finite */
+    const char *terminal;       /* finite */
+    double aperiodicity;        /* average */
 } solve_args;
 
 /* The CLI's one piece of process state: what the last signal asked for. */
@@ -87,6 +90,12 @@ static const char solve_help[] =
     "                        $SLUICE_WALLTIME, or $SLURM_JOB_END_TIME when set\n"
     "  --report FILE.json    machine-readable report\n"
     "  --progress-every S    seconds between progress lines (default 1 on a terminal, 30 otherwise)\n"
+    "objectives other than discounted (recorded in the model; docs/objectives.md):\n"
+    "  --horizon H           finite: number of stages (required)\n"
+    "  --terminal SOL.h5     finite: terminal values from another solution's /value\n"
+    "                        (default: the model's /terminal_value, else 0)\n"
+    "  --aperiodicity TAU    average: weight of staying put in the transform, in (0, 1)\n"
+    "                        (default 0.5); --tolerance bounds the gain\n"
     "signals: USR1 = checkpoint now and continue; TERM, INT, USR2 = checkpoint and exit 75.\n";
 
 /* ---- progress lines (rank 0) ------------------------------------------------------ */
@@ -254,6 +263,35 @@ static int run_solve(cli_args *a, const solve_args *o)
     monitor_state ms = {a, o, 0, -1e300};
     ms.every = o->progress_every > 0 ? o->progress_every : (a->stderr_tty ? 1.0 : 30.0);
     int rc = cli_fail(a, sl_model_load(ctx, o->model, &m));
+    if (rc == 0 && sl_model_objective(m) != SL_OBJ_DISCOUNTED) {
+        /* finite, total, average: docs/objectives.md */
+        sl_objective_opts oo;
+        memset(&oo, 0, sizeof(oo));
+        oo.model_path = o->model;
+        oo.output = o->output;
+        oo.report = o->report;
+        oo.order = o->order;
+        oo.tolerance = o->tolerance;
+        oo.max_iterations = o->max_iterations;
+        oo.walltime = o->walltime;
+        oo.checkpoint_dir = o->checkpoint_dir;
+        oo.checkpoint_every = o->checkpoint_every;
+        oo.resume = o->resume;
+        oo.horizon = o->horizon;
+        oo.terminal = o->terminal;
+        oo.aperiodicity = o->aperiodicity;
+        if (o->method != SL_METHOD_GS && sl_ctx_rank(ctx) == 0)
+            fprintf(stderr, "sluice solve: warning: --method applies to the discounted objective; ignored for "
+                            "objective %s\n",
+                    sl_objective_name(sl_model_objective(m)));
+        rc = cli_fail(a, sl_objective_solve(m, &oo));
+        sl_model_free(&m);
+        return rc;
+    }
+    if (rc == 0 && (o->horizon > 0 || o->terminal || o->aperiodicity > 0))
+        rc = cli_usage_error(a, "--horizon, --terminal and --aperiodicity apply to the finite and average "
+                                "objectives; %s is discounted",
+                             o->model);
     if (rc == 0) rc = cli_fail(a, sl_solver_create(ctx, &s));
     if (rc == 0) {
         sl_status st = sl_solver_set_method(s, o->method);
@@ -277,8 +315,6 @@ static int run_solve(cli_args *a, const solve_args *o)
             int wrc = cli_fail(a, sl_solution_save(x, o->output));
             if (wrc == 0) wrc = write_report(a, o, m, x, (int)st);
             if (wrc == 0) print_summary(a, o, m, x);
-            if (st == SL_ESTOPPED && sl_ctx_rank(ctx) == 0 && sl_ctx_verbosity(ctx) >= 1)
-                fprintf(stderr, "sluice solve: %s\n", sl_ctx_message(ctx));
             rc = wrc != 0 ? wrc : cli_fail(a, st);
         } else {
             rc = cli_fail(a, st);
@@ -340,6 +376,15 @@ int cmd_solve(cli_args *a)
             if ((o.report = cli_value(a)) == NULL) rc = SL_EUSAGE;
         } else if (cli_opt(a, "--progress-every")) {
             if (!num_opt(a, "--progress-every", &o.progress_every)) rc = SL_EUSAGE;
+        } else if (cli_opt(a, "--horizon")) {
+            if (!int_opt(a, "--horizon", &o.horizon)) rc = SL_EUSAGE;
+            else if (o.horizon < 1 || o.horizon > 100000000) rc = cli_usage_error(a, "--horizon must be in [1, 1e8]");
+        } else if (cli_opt(a, "--terminal")) {
+            if ((o.terminal = cli_value(a)) == NULL) rc = SL_EUSAGE;
+        } else if (cli_opt(a, "--aperiodicity")) {
+            if (!num_opt(a, "--aperiodicity", &o.aperiodicity)) rc = SL_EUSAGE;
+            else if (!(o.aperiodicity > 0 && o.aperiodicity < 1))
+                rc = cli_usage_error(a, "--aperiodicity must be in (0, 1)");
         } else if (a->argv[a->i][0] == '-') {
             rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
         } else if (o.model == NULL) {
@@ -475,6 +520,11 @@ static int run_verify(cli_args *a, const verify_args *o)
     sl_verification r;
     memset(&r, 0, sizeof(r));
     int rc = cli_fail(a, sl_model_load(ctx, o->model, &m));
+    if (rc == 0 && sl_model_objective(m) != SL_OBJ_DISCOUNTED) {
+        rc = cli_fail(a, sl_objective_verify(m, o->model, o->solution, o->tolerance, o->json, stdout));
+        sl_model_free(&m);
+        return rc;
+    }
     if (rc == 0) rc = cli_fail(a, sl_solution_load(ctx, o->solution, m, &x));
     if (rc == 0) {
         sl_status st = sl_verify(m, x, o->tolerance, &r);

@@ -24,6 +24,7 @@ static const char usage_text[] =
     "  table SOLUTION.h5 --model MODEL.h5 --rows F --cols F [--fix NAME=VALUE]... [--show WHAT]\n"
     "                                                           release rule, water values, quantities\n"
     "  outlook MODEL.h5 SOLUTION.h5 --start S --stages N [--json]  exact forward distribution under the policy\n"
+    "  report MODEL.h5 SOLUTION.h5 -o REPORT.html [--figures DIR]   one HTML page for a reviewer\n"
     "\n"
     "Run 'sluice COMMAND --help' for the options of one command. Under 'mpirun -np N'\n"
     "every command that reads or writes a model uses all N ranks.\n"
@@ -144,7 +145,8 @@ int main(int argc, char **argv)
     } cmds[] = {{"build", cmd_build},       {"import", cmd_import}, {"estimate", cmd_estimate},
                 {"info", cmd_info},         {"solve", cmd_solve},   {"evaluate", cmd_evaluate},
                 {"verify", cmd_verify},     {"export", cmd_export}, {"simulate", cmd_simulate},
-                {"table", cmd_table},       {"outlook", cmd_outlook}};
+                {"table", cmd_table},       {"outlook", cmd_outlook},
+                {"report", cmd_report}};
     int (*fn)(cli_args *) = NULL;
     for (size_t k = 0; k < sizeof(cmds) / sizeof(cmds[0]); k++)
         if (strcmp(argv[1], cmds[k].name) == 0) fn = cmds[k].fn;

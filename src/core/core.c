@@ -81,12 +81,16 @@ sl_status sl_error_at(sl_ctx *ctx, sl_status st, const char *file, int line,
      * that an API call returned is overwritten by the next one */
     if (ctx == NULL) return st;
     ctx->err_status = st;
+    /* format into a scratch buffer first: the arguments may point into
+     * ctx->err itself (re-raising the current message) */
+    char buf[SL_MSG_MAX];
     va_list ap;
     va_start(ap, fmt);
-    int n = vsnprintf(ctx->err, sizeof(ctx->err), fmt, ap);
+    int n = vsnprintf(buf, sizeof(buf), fmt, ap);
     va_end(ap);
-    if (ctx->verbosity >= 2 && n >= 0 && (size_t)n < sizeof(ctx->err))
-        snprintf(ctx->err + n, sizeof(ctx->err) - (size_t)n, " [%s:%d]", file, line);
+    if (ctx->verbosity >= 2 && n >= 0 && (size_t)n < sizeof(buf))
+        snprintf(buf + n, sizeof(buf) - (size_t)n, " [%s:%d]", file, line);
+    memcpy(ctx->err, buf, sizeof(buf));
     return st;
 }
 

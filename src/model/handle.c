@@ -66,6 +66,7 @@ sl_status sl_model_create(sl_ctx *ctx, int64_t n_states, double discount, sl_mod
     m->meta.discount = discount;
     m->meta.objective = SL_OBJ_DISCOUNTED;
     snprintf(m->meta.source, sizeof(m->meta.source), "%s", "library");
+    snprintf(m->name, sizeof(m->name), "%s", "model built in memory");
     *out = m;
     m = NULL;
 cleanup:
@@ -258,6 +259,7 @@ sl_status sl_model_adopt(sl_ctx *ctx, sl_meta *meta, sl_block *blk, sl_model **o
     memset(meta, 0, sizeof(*meta));
     memset(blk, 0, sizeof(*blk));
     m->have_rows = 1;
+    snprintf(m->name, sizeof(m->name), "%s", m->meta.source[0] ? m->meta.source : "model");
     SL_TRY(gather_bounds(ctx, m));
     m->assembled = 1;
     *out = m;
@@ -290,7 +292,16 @@ sl_status sl_model_load(sl_ctx *ctx, const char *path, sl_model **out)
     SL_TRY(sl_store_model_meta(ctx, path, &meta));
     if (SL_ALLOC(ctx, bounds, ctx->size + 1, "partition") == NULL) st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
-    SL_TRY(sl_dist_partition(ctx, path, &meta, bounds));
+    {
+        /* each rank reads an even share of the cumulative counts; the
+         * parallel layer turns them into ranges balanced by transitions */
+        int64_t lo = meta.n_states * ctx->rank / ctx->size, hi = meta.n_states * (ctx->rank + 1) / ctx->size;
+        int64_t *cum = NULL;
+        SL_TRY(sl_store_model_cumulative(ctx, path, lo, hi, &cum));
+        st = sl_partition_from_counts(ctx, meta.n_states, meta.n_trans, cum, bounds);
+        free(cum);
+        SL_TRY(st);
+    }
     SL_TRY(sl_store_model_read(ctx, path, &meta, bounds[ctx->rank], bounds[ctx->rank + 1], &blk));
     SL_TRY(sl_fingerprint(ctx, &meta, &blk, fp));
     if (strcmp(fp, meta.fingerprint) != 0)
@@ -299,6 +310,7 @@ sl_status sl_model_load(sl_ctx *ctx, const char *path, sl_model **out)
                       "was altered or is corrupted",
                       path, meta.fingerprint, fp));
     st = sl_model_adopt(ctx, &meta, &blk, out);
+    if (st == SL_OK) snprintf((*out)->name, sizeof((*out)->name), "%s", path);
 cleanup:
     free(bounds);
     sl_meta_free(&meta);

@@ -82,10 +82,14 @@ sl_status sl_meta_copy(sl_ctx *ctx, sl_meta *dst, const sl_meta *src)
     }
     if (src->n_action_values > 0)
         memcpy(dst->action_value, src->action_value, (size_t)src->n_action_values * sizeof(double));
-    memcpy(dst->action_name, src->action_name, (size_t)src->n_action_names * SL_NAME_MAX);
-    memcpy(dst->param_name, src->param_name, (size_t)src->n_params * SL_NAME_MAX);
-    memcpy(dst->param_unit, src->param_unit, (size_t)src->n_params * SL_NAME_MAX);
-    memcpy(dst->param_value, src->param_value, (size_t)src->n_params * sizeof(double));
+    /* empty arrays may be NULL in src: memcpy from NULL is undefined even for 0 bytes */
+    if (src->n_action_names > 0)
+        memcpy(dst->action_name, src->action_name, (size_t)src->n_action_names * SL_NAME_MAX);
+    if (src->n_params > 0) {
+        memcpy(dst->param_name, src->param_name, (size_t)src->n_params * SL_NAME_MAX);
+        memcpy(dst->param_unit, src->param_unit, (size_t)src->n_params * SL_NAME_MAX);
+        memcpy(dst->param_value, src->param_value, (size_t)src->n_params * sizeof(double));
+    }
     return SL_OK;
 }
 

@@ -146,6 +146,7 @@ struct sl_model {
     sl_meta meta;
     sl_block blk;
     int64_t *bounds;            /* [size + 1] state ranges of all ranks */
+    char name[4096];            /* for messages: the file it was loaded from or its source */
     int have_rows;              /* sl_model_set_rows was called on this rank */
     int assembled;
 };

@@ -57,7 +57,7 @@ sl_status sl_problem_from_model(sl_ctx *ctx, const sl_model *m, sl_order order, 
     sl_status st = SL_OK;
     memset(p, 0, sizeof(*p));
     SL_TRY(sl_agree(ctx, sl_model_check_ready(ctx, m, "solve")));
-    p->path = m->meta.source[0] ? m->meta.source : "model";
+    p->path = m->name;
     if (!allow_any && m->meta.objective != SL_OBJ_DISCOUNTED)
         st = SL_ERR(ctx, SL_EDATA,
                     "%s: objective \"%s\" is recorded in the model, but this method solves only the "

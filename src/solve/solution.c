@@ -188,11 +188,12 @@ sl_status sl_solution_load(sl_ctx *ctx, const char *path, const sl_model *m, sl_
     SL_TRY(sl_store_solution_read(ctx, path, kind, m->meta.n_states, x->s_begin, x->n, x->value, x->action, &r));
     from_record(x, &r);
     x->info.has_policy = with_actions;
+    SL_TRY(sl_store_solution_read_history(ctx, path, &x->hist));
     if (strcmp(r.model_fingerprint, m->meta.fingerprint) != 0)
         SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EDATA,
                                     "%s was computed for a different model (fingerprint %s) than the one given "
                                     "(%s, fingerprint %s)",
-                                    path, r.model_fingerprint, m->meta.source, m->meta.fingerprint)));
+                                    path, r.model_fingerprint, m->name, m->meta.fingerprint)));
     /* every action must be one the model offers in its state */
     for (int64_t i = 0; with_actions && i < x->n && st == SL_OK; i++) {
         const sl_block *b = &m->blk;

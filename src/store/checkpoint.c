@@ -169,21 +169,6 @@ static sl_status read_state(sl_ctx *ctx, hid_t f, sl_solver_state *s, const char
     return st;
 }
 
-static sl_status read_history(sl_ctx *ctx, hid_t f, sl_history *h, const char *p)
-{
-    sl_status st = SL_OK;
-    sl_history_free(h);
-    int64_t n = sl_h5_length(f, "/history/iteration");
-    if (n <= 0) return SL_OK;
-    for (int64_t i = 0; i < n; i++) SL_TRY(sl_history_push(ctx, h, 0, 0, 0, 0, 0, 0, 0));
-    sl_history_column col[SL_HISTORY_COLUMNS];
-    sl_history_columns(h, col);
-    for (int k = 0; k < SL_HISTORY_COLUMNS; k++)
-        SL_TRY(sl_h5_read_1d(ctx, f, col[k].name, col[k].mtype, n, 0, n, col[k].data, p));
-cleanup:
-    return st;
-}
-
 /* One whole 1-D dataset into a file open in this process only (rank 0). */
 static sl_status put_1d(sl_ctx *ctx, hid_t f, const char *name, hid_t ftype, hid_t mtype, int64_t n,
                         const void *buf, int compress, const char *path)
@@ -404,7 +389,7 @@ static sl_status try_load(sl_ctx *ctx, const char *path, const char *fingerprint
     if (st == SL_OK) st = read_state(ctx, f, state, path);
     if (st == SL_OK) st = sl_h5_read_1d(ctx, f, "/value", H5T_NATIVE_DOUBLE, n_states, s_begin, n_local, value, path);
     if (st == SL_OK) st = sl_h5_read_1d(ctx, f, "/policy", H5T_NATIVE_INT32, n_states, s_begin, n_local, actions, path);
-    if (st == SL_OK) st = read_history(ctx, f, hist, path);
+    if (st == SL_OK) st = sl_history_read(ctx, f, hist, path);
     st = sl_agree(ctx, st);
     MPI_Allreduce(MPI_IN_PLACE, refuse, 1, MPI_INT, MPI_MAX, ctx->comm);
     if (st == SL_OK) {
@@ -494,7 +479,7 @@ sl_status sl_ckpt_info(sl_ctx *ctx, const char *path, char *fingerprint, int64_t
     if (st == SL_OK) st = sl_h5_attr_read_i64(ctx, f, "n_states", n_states, 1, path);
     if (st == SL_OK) st = sl_h5_attr_read_i64(ctx, f, "complete", &c, 0, path);
     if (st == SL_OK) st = read_state(ctx, f, state, path);
-    if (st == SL_OK) st = read_history(ctx, f, hist, path);
+    if (st == SL_OK) st = sl_history_read(ctx, f, hist, path);
     *complete = c == 1;
     st = sl_agree(ctx, st);
 cleanup:

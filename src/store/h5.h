@@ -56,6 +56,8 @@ typedef struct sl_history_column {
 } sl_history_column;
 struct sl_history;
 void sl_history_columns(const struct sl_history *h, sl_history_column cols[SL_HISTORY_COLUMNS]);
+/* Read the /history datasets of an open file into h (empty if absent). Local. */
+sl_status sl_history_read(sl_ctx *ctx, hid_t f, struct sl_history *h, const char *path);
 
 /* Fixed-length string type of n bytes (close with H5Tclose). */
 hid_t sl_h5_str_type(size_t n);

@@ -63,6 +63,33 @@ void sl_history_columns(const sl_history *h, sl_history_column c[SL_HISTORY_COLU
     memcpy(c, t, sizeof(t));
 }
 
+sl_status sl_history_read(sl_ctx *ctx, hid_t f, sl_history *h, const char *p)
+{
+    sl_status st = SL_OK;
+    sl_history_free(h);
+    int64_t n = sl_h5_length(f, "/history/iteration");
+    if (n <= 0) return SL_OK;
+    for (int64_t i = 0; i < n; i++) SL_TRY(sl_history_push(ctx, h, 0, 0, 0, 0, 0, 0, 0));
+    sl_history_column col[SL_HISTORY_COLUMNS];
+    sl_history_columns(h, col);
+    for (int k = 0; k < SL_HISTORY_COLUMNS; k++)
+        SL_TRY(sl_h5_read_1d(ctx, f, col[k].name, col[k].mtype, n, 0, n, col[k].data, p));
+cleanup:
+    if (st != SL_OK) sl_history_free(h);
+    return st;
+}
+
+sl_status sl_store_solution_read_history(sl_ctx *ctx, const char *path, sl_history *h)
+{
+    sl_status st = SL_OK;
+    hid_t f = H5I_INVALID_HID;
+    SL_TRY(sl_h5_open(ctx, path, 0, &f));
+    st = sl_agree(ctx, sl_history_read(ctx, f, h, path));
+cleanup:
+    if (f >= 0) H5Fclose(f);
+    return st;
+}
+
 static const char *kind_str(sl_file_kind k)
 {
     return k == SL_FILE_VALUES ? "values" : k == SL_FILE_CHECKPOINT ? "checkpoint" : "solution";
@@ -71,6 +98,15 @@ static const char *kind_str(sl_file_kind k)
 sl_status sl_store_solution_write(sl_ctx *ctx, const char *path, sl_file_kind kind, int64_t n_states,
                                   int64_t s_begin, int64_t n_local, const double *value,
                                   const int32_t *actions, const sl_solution_record *in, const sl_history *hist)
+{
+    return sl_store_solution_write_ex(ctx, path, kind, n_states, s_begin, n_local, value, actions, in, hist, NULL,
+                                      NULL);
+}
+
+sl_status sl_store_solution_write_ex(sl_ctx *ctx, const char *path, sl_file_kind kind, int64_t n_states,
+                                     int64_t s_begin, int64_t n_local, const double *value,
+                                     const int32_t *actions, const sl_solution_record *in, const sl_history *hist,
+                                     sl_store_extra_fn extra, const void *extra_arg)
 {
     sl_status st = SL_OK;
     sl_outfile of;
@@ -114,6 +150,7 @@ sl_status sl_store_solution_write(sl_ctx *ctx, const char *path, sl_file_kind ki
         for (int k = 0; k < SL_HISTORY_COLUMNS; k++)
             SL_TRY(sl_h5_write_1d(ctx, f, col[k].name, col[k].ftype, col[k].mtype, n, 0, c, col[k].data, 0, p));
     }
+    if (extra) SL_TRY(sl_agree(ctx, extra(ctx, f, p, extra_arg)));
     st = sl_h5_close(ctx, &f, p);
 cleanup:
     if (f >= 0) H5Fclose(f);

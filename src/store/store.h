@@ -80,12 +80,23 @@ sl_status sl_store_solution_write(sl_ctx *ctx, const char *path, sl_file_kind ki
                                   int64_t s_begin, int64_t n_local, const double *value,
                                   const int32_t *actions, const sl_solution_record *info,
                                   const sl_history *hist);
+/* Same, calling extra(ctx, file, path, extra_arg) on the open file (an HDF5
+ * hid_t) before it is closed, to add objective-specific attributes and
+ * datasets (src/store/objective_io.c). Collective. */
+typedef sl_status (*sl_store_extra_fn)(sl_ctx *ctx, int64_t file, const char *path, const void *arg);
+sl_status sl_store_solution_write_ex(sl_ctx *ctx, const char *path, sl_file_kind kind, int64_t n_states,
+                                     int64_t s_begin, int64_t n_local, const double *value,
+                                     const int32_t *actions, const sl_solution_record *info,
+                                     const sl_history *hist, sl_store_extra_fn extra, const void *extra_arg);
 /* Read a solution's scalars and (if not NULL) the slice of value/policy.
  * Requires kind SL_FILE_SOLUTION (or SL_FILE_VALUES when `kind` says so) and
  * n_states to match. Collective. */
 sl_status sl_store_solution_read(sl_ctx *ctx, const char *path, sl_file_kind kind, int64_t n_states,
                                  int64_t s_begin, int64_t n_local, double *value, int32_t *actions,
                                  sl_solution_record *info);
+
+/* The residual history of a solution file (empty if it has none). Collective. */
+sl_status sl_store_solution_read_history(sl_ctx *ctx, const char *path, sl_history *h);
 
 /* ---- checkpoints ---------------------------------------------------------------- */
 

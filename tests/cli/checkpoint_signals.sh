@@ -34,7 +34,7 @@ start() {
     shift 2
     "$SLUICE" "${SOLVE[@]}" --checkpoint "$dir" "$@" >"$log" 2>&1 &
     pid=$!
-    if ! ck_wait_grep "^solve: m.h5, " "$log" 30 "$pid"; then
+    if ! ck_wait_grep "solve: m.h5, " "$log" 30 "$pid"; then
         echo "# $log: no header line within 30 s"
         ck_mpi_startup_note "$log"
     fi
