@@ -7,6 +7,7 @@
 #include <unistd.h>
 
 #include "cli/cli.h"
+#include "sluice/generator.h"
 
 static const char usage_text[] =
     "usage: sluice COMMAND [options]\n"
@@ -134,8 +135,8 @@ int main(int argc, char **argv)
         return rc;
     }
     if (strcmp(argv[1], "--version") == 0) {
-        if (rank == 0) printf("sluice %s (model format %d, generator ABI %d)\n", SLUICE_VERSION,
-                              SLUICE_FORMAT_VERSION, 1);
+        if (rank == 0) printf("sluice %s (model formats 1-2, generator ABIs 1-%d)\n", SLUICE_VERSION,
+                              SLUICE_GENERATOR_ABI);
         MPI_Finalize();
         return 0;
     }
