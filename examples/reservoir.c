@@ -41,6 +41,17 @@
  *
  * The discount factor 0.99 per month is an invented default.
  *
+ * Generator ABI 2: storage levels carry S_i (hm3), inflow classes the
+ * annual-mean inflow of the class (hm3/month, i.e. Q(j, m) without the
+ * seasonal factor), months the labels Jan..Dec; actions carry R_a
+ * (hm3/month); the reward is in kCU per month. Outcome quantities reported
+ * with every successor, per month (docs/reservoir.md, "Outcome quantities"):
+ * energy (MWh), revenue (kCU, energy sales before penalties), release,
+ * spill, shortfall (below min_flow), inflow, evaporation (all hm3) and
+ * rounding (hm3: the storage grid rounding S_{i'} - S', so that
+ *   S_{i'} - S_i = inflow - evaporation - release - spill + rounding
+ * holds for every transition).
+ *
  * Floating-point note: every quantity is computed with the operation order
  * written in docs/reservoir.md, using only +, -, *, /, sqrt, floor (exactly
  * rounded in IEEE 754) on values from small tables; cos and exp are used only
@@ -114,6 +125,23 @@ static const sluice_param res_params[P_COUNT] = {
     {"discount", 0.99, "1/month", "discount factor per month, in (0, 1]"},
 };
 
+static const char *const res_month_names[RES_MONTHS] = {
+    "Jan", "Feb", "Mar", "Apr", "May", "Jun", "Jul", "Aug", "Sep", "Oct", "Nov", "Dec"};
+
+/* Outcome quantities; keep in the order of res_quantities[]. */
+enum { Q_ENERGY, Q_REVENUE, Q_RELEASE, Q_SPILL, Q_SHORTFALL, Q_INFLOW, Q_EVAPORATION, Q_ROUNDING, Q_COUNT };
+
+static const sluice_quantity res_quantities[Q_COUNT] = {
+    {"energy", "MWh", "energy generated in the month"},
+    {"revenue", "kCU", "value of the energy at the month's price, before penalties"},
+    {"release", "hm3", "water released through the turbines"},
+    {"spill", "hm3", "water spilled because the reservoir is full"},
+    {"shortfall", "hm3", "downstream flow missing to reach min_flow"},
+    {"inflow", "hm3", "inflow of the month"},
+    {"evaporation", "hm3", "evaporation from the lake"},
+    {"rounding", "hm3", "storage grid rounding: next level's storage minus the exact end storage"},
+};
+
 typedef struct res_model {
     int64_t L, J;             /* storage levels, inflow classes */
     int32_t N;                /* release levels */
@@ -125,6 +153,7 @@ typedef struct res_model {
     double *storage;          /* [L]    S_i */
     double *area;             /* [L]    surface area A_i (km2) */
     double *release;          /* [N]    R_a */
+    double *class_inflow;     /* [J]    annual-mean inflow of class j */
     double *inflow;           /* [12*J] Q(j, m) at m*J + j */
     double evap[RES_MONTHS];  /* e_m (m/month) */
     double price[RES_MONTHS]; /* price_m (CU/MWh) */
@@ -153,6 +182,7 @@ static void res_free(void *instance)
     free(md->storage);
     free(md->area);
     free(md->release);
+    free(md->class_inflow);
     free(md->inflow);
     free(md->next_lo);
     free(md->next_n);
@@ -252,12 +282,13 @@ static int res_init(const double *v, sluice_shape *shape, void **instance,
     md->storage = malloc(L * sizeof *md->storage);
     md->area = malloc(L * sizeof *md->area);
     md->release = malloc(N * sizeof *md->release);
+    md->class_inflow = malloc(J * sizeof *md->class_inflow);
     md->inflow = malloc(MJ * sizeof *md->inflow);
     md->next_lo = malloc(MJ * sizeof *md->next_lo);
     md->next_n = malloc(MJ * sizeof *md->next_n);
     md->next_prob = malloc(MJ * (size_t)width * sizeof *md->next_prob);
     md->names = calloc(N, sizeof *md->names);
-    if (md->storage == NULL || md->area == NULL || md->release == NULL ||
+    if (md->storage == NULL || md->area == NULL || md->release == NULL || md->class_inflow == NULL ||
         md->inflow == NULL || md->next_lo == NULL || md->next_n == NULL || md->next_prob == NULL ||
         md->names == NULL) {
         res_free(md);
@@ -286,6 +317,10 @@ static int res_init(const double *v, sluice_shape *shape, void **instance,
     const double cls_scale = sqrt(3.0) * v[P_INFLOW_CV];
     const double mid = (double)(md->J - 1) / 2.0;
     const double sigma = v[P_INFLOW_SPREAD];
+    for (int64_t j = 0; j < md->J; j++) {
+        double z = md->J > 1 ? 2.0 * (double)j / (double)(md->J - 1) - 1.0 : 0.0;
+        md->class_inflow[j] = v[P_MEAN_INFLOW] * (1.0 + cls_scale * z);
+    }
     for (int m = 0; m < RES_MONTHS; m++) {
         double mu = v[P_MEAN_INFLOW] * (1.0 + v[P_INFLOW_SEASONALITY] * res_season(m, 4));
         md->evap[m] = v[P_EVAP_DEPTH] * (0.55 + 0.45 * res_season(m, 6));
@@ -333,6 +368,15 @@ static int res_init(const double *v, sluice_shape *shape, void **instance,
     shape->n_actions = md->N;
     shape->action_names = (const char *const *)md->names;
     shape->discount = v[P_DISCOUNT];
+    shape->factor_values[0] = (sluice_factor_values){"hm3", md->storage, NULL};
+    shape->factor_values[1] = (sluice_factor_values){"hm3/month", md->class_inflow, NULL};
+    shape->factor_values[2] = (sluice_factor_values){NULL, NULL, res_month_names};
+    shape->action_values = md->release;
+    shape->action_unit = "hm3/month";
+    shape->reward_unit = "kCU";
+    shape->period_unit = "month";
+    shape->n_quantities = Q_COUNT;
+    shape->quantities = res_quantities;
     *instance = md;
     return 0;
 }
@@ -376,7 +420,11 @@ static int res_transitions(const void *instance, int64_t state, int32_t action,
         return 1;
     size_t mj = (size_t)m * (size_t)md->J + (size_t)j;
     double R = md->release[action];
-    double W = res_water(md, i, m, mj);
+    double SQ = md->storage[i] + md->inflow[mj];
+    double E = md->evap[m] * md->area[i];
+    if (E > SQ)
+        E = SQ;
+    double W = SQ - E; /* as res_water() */
     if (!(R <= W))
         return 1; /* not available: the caller should not have asked */
 
@@ -397,11 +445,21 @@ static int res_transitions(const void *instance, int64_t state, int32_t action,
                     - md->shortfall_penalty * shortfall
                     - md->flood_penalty * excess;         /* kCU */
 
+    double q[Q_COUNT];
+    q[Q_ENERGY] = energy;
+    q[Q_REVENUE] = md->price[m] * energy / 1000.0;
+    q[Q_RELEASE] = R;
+    q[Q_SPILL] = spill;
+    q[Q_SHORTFALL] = shortfall;
+    q[Q_INFLOW] = md->inflow[mj];
+    q[Q_EVAPORATION] = E;
+    q[Q_ROUNDING] = md->storage[i_next] - s_end;
+
     int m_next = (m + 1) % RES_MONTHS;
     int64_t base = i_next + md->L * (md->next_lo[mj] + md->J * (int64_t)m_next);
     const double *p = md->next_prob + mj * (size_t)md->band_width;
     for (int t = 0; t < md->next_n[mj]; t++) {
-        int rc = sluice_emit(sink, base + md->L * (int64_t)t, p[t], reward);
+        int rc = sluice_emit_outcome(sink, base + md->L * (int64_t)t, p[t], reward, q);
         if (rc != 0)
             return rc;
     }

@@ -389,4 +389,144 @@ SLUICE_API sl_status sl_objective_verify(const sl_model *m, const char *model_pa
 /* Monotonic seconds (the clock the solver's walltime uses). Local. */
 SLUICE_API double sl_clock(void);
 
+/* ==== results a planner can read (issue 9) ==============================
+ * Units, outcome quantities, tables and outlooks. Kept in one block at the
+ * end of the header so it merges independently of the rest. */
+
+/* Describe a generator before building: its parameters with defaults,
+ * units and help, and what init() reports with the defaults (factors with
+ * values, units and labels, actions, reward and period units, outcome
+ * quantities). `generator` is a .c (compiled into the cache) or .so file.
+ * Collective; rank 0 prints. */
+SLUICE_API sl_status sl_generator_describe(sl_ctx *ctx, const char *generator, FILE *out);
+
+#define SL_LABEL_MAX 64
+
+/* What `sluice table` shows in its cells. */
+typedef enum sl_table_show {
+    SL_SHOW_ACTION = 0,     /* the policy's action: its value (and unit) or name */
+    SL_SHOW_VALUE = 1,      /* v, in reward units */
+    SL_SHOW_MARGINAL = 2,   /* dv/dx along a numeric factor, reward unit per factor unit */
+    SL_SHOW_QUANTITY = 3,   /* expected one-period outcome quantity under the policy */
+    SL_SHOW_SWITCH = 4      /* per column, the row values where the action changes */
+} sl_table_show;
+
+typedef struct sl_table_opts {
+    const char *solution;
+    const char *model;
+    const char *rows;           /* factor along the rows */
+    const char *cols;           /* factor along the columns */
+    int n_fix;
+    const char *const *fix;     /* every other factor: NAME=VALUE or NAME@INDEX */
+    const char *show;           /* action (NULL), value, marginal:FACTOR, QUANTITY, switch */
+} sl_table_opts;
+
+/* One change of the chosen action down a column (SL_SHOW_SWITCH). */
+typedef struct sl_table_switch {
+    int64_t col;                /* column index */
+    int64_t row;                /* first row index with the new action */
+    int32_t from, to;           /* action ids at row - 1 and at row */
+} sl_table_switch;
+
+/* A computed two-factor table. Owned by the caller; release with
+ * sl_table_free. */
+typedef struct sl_table {
+    sl_table_show show;
+    int64_t n_rows, n_cols;
+    char row_name[SL_LABEL_MAX], row_unit[SL_LABEL_MAX];
+    char col_name[SL_LABEL_MAX], col_unit[SL_LABEL_MAX];
+    char (*row_label)[SL_LABEL_MAX];    /* [n_rows] label, value as printed, or index */
+    char (*col_label)[SL_LABEL_MAX];    /* [n_cols] */
+    double *cell;                       /* [n_rows * n_cols], row-major: the number shown
+                                         * (SL_SHOW_ACTION: the action's value, or its id
+                                         * when actions have no values) */
+    int32_t *action;                    /* [n_rows * n_cols] the policy's action ids */
+    int32_t n_actions;
+    char (*action_label)[SL_LABEL_MAX]; /* [n_actions] action value as printed, or name */
+    char what[128];                     /* what the cells hold, e.g. "release" */
+    char unit[2 * SL_LABEL_MAX + 2];    /* unit of the cells, e.g. "kCU/hm3" ("" if none) */
+    char fixed[1024];                   /* the fixed factors, e.g. "inflow=140 hm3/month (index 2)" */
+    int64_t n_switches;
+    sl_table_switch *switches;          /* SL_SHOW_SWITCH only, by column then row */
+} sl_table;
+
+/* Compute a table of a solution over two factors of its model, the other
+ * factors fixed. marginal:FACTOR uses central differences of the value
+ * along FACTOR divided by the step of its values (one-sided at the ends).
+ * Errors (SL_EUSAGE / SL_EDATA) name the factor, quantity, value or file.
+ * Collective: each rank reads its slice of the solution and model; every
+ * rank gets the whole table. */
+SLUICE_API sl_status sl_table_compute(sl_ctx *ctx, const sl_table_opts *o, sl_table *t);
+/* Release a table's arrays (accepts a zeroed table). Local. */
+SLUICE_API void sl_table_free(sl_table *t);
+
+typedef struct sl_outlook_opts {
+    const char *model;
+    const char *solution;
+    const char *start;              /* a state number or NAME=VALUE,... for every factor */
+    const char *start_distribution; /* or a CSV of start probabilities (docs/outlook.md) */
+    int64_t stages;                 /* N >= 0: stages 0..N are reported */
+} sl_outlook_opts;
+
+#define SL_OUTLOOK_NQ 6             /* factor statistics: mean, p5, p25, p50, p75, p95 */
+
+/* The exact forward distribution of the state under a solution's policy,
+ * mu_{t+1} = mu_t P_pi, summarised per stage. Owned by the caller. */
+typedef struct sl_outlook {
+    int64_t n_stages;                   /* N; arrays hold stages 0..N */
+    int n_factors;                      /* numeric factors summarised */
+    char (*factor_name)[SL_LABEL_MAX];
+    char (*factor_unit)[SL_LABEL_MAX];
+    int n_quantities;
+    char (*quantity_name)[SL_LABEL_MAX];
+    char (*quantity_unit)[SL_LABEL_MAX];
+    char reward_unit[SL_LABEL_MAX], period_unit[SL_LABEL_MAX];
+    double discount;
+    double *factor_stats;       /* [(N+1) * n_factors * SL_OUTLOOK_NQ] mean, p5, p25, p50, p75, p95 of
+                                 * the factor's value at the start of stage t */
+    double *quantity_stats;     /* [(N+1) * n_quantities * 2] expected value of the quantity over
+                                 * period t and the probability that it is positive */
+    double *discounted_reward;  /* [N+1] sum over periods tau < t of gamma^tau E[r_tau] */
+    double *mass;               /* [N+1] sum of mu_t (1 up to rounding) */
+    double start_value;         /* sum of mu_0(s) value(s), from the solution */
+    double seconds;             /* wall time of the stage loop (rank 0's clock, after loading) */
+} sl_outlook;
+
+/* Propagate the start distribution N stages under the policy, exactly (no
+ * sampling). Quantiles are lower quantiles of the factor's marginal
+ * distribution: the smallest value whose cumulative probability reaches p
+ * (within 1e-12). Collective: each rank owns a slice of states; mu_t is
+ * pushed along the policy rows and summed with MPI_Reduce_scatter. */
+SLUICE_API sl_status sl_outlook_compute(sl_ctx *ctx, const sl_outlook_opts *o, sl_outlook *r);
+/* Release an outlook's arrays (accepts a zeroed one). Local. */
+SLUICE_API void sl_outlook_free(sl_outlook *r);
+
+/* Expected discounted totals of each outcome quantity under a policy. */
+typedef struct sl_totals {
+    int n_quantities;                   /* 0 for a model without quantities */
+    char (*name)[SL_LABEL_MAX];         /* [n_quantities] */
+    char (*unit)[SL_LABEL_MAX];         /* [n_quantities] unit of one period's quantity */
+    char period_unit[SL_LABEL_MAX];
+    char method[16];                    /* "direct" or "iterative" */
+    int64_t n_states, s_begin, n_local; /* this rank's states */
+    double *total;                      /* [n_quantities * n_local], quantity-major: the
+                                         * expected discounted total from each state */
+    double *error_bound;                /* [n_quantities] certified sup |total - exact| */
+} sl_totals;
+
+/* Policy evaluation with each quantity's per-pair mean as the reward, by the
+ * solver's settings (sl_solver_evaluate: same methods and certificate).
+ * `model_path` is the file `m` was loaded from (the quantities are read from
+ * it). Needs one extra copy of the model's rows. Collective. */
+SLUICE_API sl_status sl_quantity_totals(sl_solver *s, const sl_model *m, const sl_solution *policy,
+                                        const char *model_path, sl_totals *t);
+/* Release a totals result (accepts a zeroed one). Local. */
+SLUICE_API void sl_totals_free(sl_totals *t);
+
+/* Resolve a state given as a number or as NAME=VALUE / NAME@INDEX for every
+ * factor, comma-separated (labels or values as printed), against the model
+ * file's factors. `what` names the option in messages. Collective. */
+SLUICE_API sl_status sl_state_lookup(sl_ctx *ctx, const char *model_path, const char *text, const char *what,
+                                     int64_t *state);
+
 #endif /* SLUICE_SLUICE_H */

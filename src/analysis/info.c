@@ -311,6 +311,18 @@ static sl_status model_info(sl_ctx *ctx, const sl_info_opts *o)
             sl_json_arr_open(&j, "actions");
             for (int32_t a = 0; a < m.n_action_names; a++) sl_json_str(&j, NULL, m.action_name[a]);
             sl_json_close_arr(&j);
+            if (m.format_version >= 2) { /* format 2 annotations */
+                sl_json_str(&j, "reward_unit", m.reward_unit);
+                sl_json_str(&j, "period_unit", m.period_unit);
+                sl_json_str(&j, "action_unit", m.action_unit);
+                sl_json_obj_open(&j, "factor_units");
+                for (int i = 0; i < m.n_factors; i++)
+                    if (m.factor_value[i]) sl_json_str(&j, m.factor_name[i], m.factor_unit[i]);
+                sl_json_close_obj(&j);
+                sl_json_obj_open(&j, "quantities");
+                for (int q = 0; q < m.n_quantities; q++) sl_json_str(&j, m.quantity_name[q], m.quantity_unit[q]);
+                sl_json_close_obj(&j);
+            }
             if (m.generator[0]) {
                 sl_json_obj_open(&j, "generator");
                 sl_json_str(&j, "name", m.generator);
@@ -340,6 +352,26 @@ static sl_status model_info(sl_ctx *ctx, const sl_info_opts *o)
                     fprintf(out, " %s(%lld%s)", m.factor_name[i], (long long)m.factor_size[i],
                             m.factor_stage[i] ? ", stage" : "");
                 fprintf(out, "  [state = factor 0 fastest]\n");
+            }
+            for (int i = 0; i < m.n_factors; i++) {
+                int64_t n = m.factor_size[i];
+                if (m.factor_value[i])
+                    fprintf(out, "    %-12s values %.6g .. %.6g %s\n", m.factor_name[i], m.factor_value[i][0],
+                            m.factor_value[i][n - 1], m.factor_unit[i]);
+                if (m.factor_label[i])
+                    fprintf(out, "    %-12s labels %s .. %s\n", m.factor_name[i], m.factor_label[i][0],
+                            m.factor_label[i][n - 1]);
+            }
+            if (m.n_action_values > 0)
+                fprintf(out, "  action values %.6g .. %.6g %s\n", m.action_value[0],
+                        m.action_value[m.n_action_values - 1], m.action_unit);
+            if (m.reward_unit[0] || m.period_unit[0])
+                fprintf(out, "  reward        in %s per %s\n", m.reward_unit[0] ? m.reward_unit : "(no unit)",
+                        m.period_unit[0] ? m.period_unit : "period");
+            if (m.n_quantities > 0) {
+                fprintf(out, "  quantities   ");
+                for (int q = 0; q < m.n_quantities; q++) fprintf(out, " %s [%s]", m.quantity_name[q], m.quantity_unit[q]);
+                fprintf(out, "\n");
             }
             if (m.n_action_names > 0) {
                 fprintf(out, "  actions      ");

@@ -38,6 +38,8 @@ int cmd_evaluate(cli_args *a);
 int cmd_verify(cli_args *a);
 int cmd_export(cli_args *a);
 int cmd_simulate(cli_args *a);
+int cmd_table(cli_args *a);
+int cmd_outlook(cli_args *a);
 int cmd_report(cli_args *a);
 
 #endif

@@ -189,7 +189,10 @@ int cmd_estimate(cli_args *a) { return csv_command(a, 1); }
 
 static const char info_help[] =
     "usage: sluice info FILE.h5 [--json] [--partition N]\n"
-    "  describe a model, solution, values or checkpoint file.\n"
+    "       sluice info GENERATOR.c|GENERATOR.so\n"
+    "  describe a model, solution, values or checkpoint file; or, before building,\n"
+    "  a generator: its parameters with defaults, units and help, its factors,\n"
+    "  actions and outcome quantities with the defaults.\n"
     "  --json          machine-readable output\n"
     "  --partition N   for a model: predicted rows, transitions, halo entries and\n"
     "                  bytes exchanged per sweep for each of N ranks\n";
@@ -220,5 +223,10 @@ int cmd_info(cli_args *a)
     }
     if (rc) return rc;
     if (o.path == NULL) return cli_usage_error(a, "no file given");
+    size_t len = strlen(o.path);
+    if ((len > 2 && strcmp(o.path + len - 2, ".c") == 0) || (len > 3 && strcmp(o.path + len - 3, ".so") == 0)) {
+        if (o.json || o.partition) return cli_usage_error(a, "--json and --partition apply to .h5 files only");
+        return cli_fail(a, sl_generator_describe(a->ctx, o.path, stdout));
+    }
     return cli_fail(a, sl_info(a->ctx, &o));
 }

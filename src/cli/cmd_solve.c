@@ -7,6 +7,7 @@
 #include <time.h>
 
 #include "cli/cli.h"
+#include "cli/cmd_totals.h"
 #include "core/json.h"
 
 /* What `sluice solve` was asked for. */
@@ -414,10 +415,15 @@ static const char evaluate_help[] =
     "  --iterative           evaluate by sweeps instead of a direct UMFPACK solve\n"
     "  --tolerance EPS       iterative: certified error bound (default 1e-6)\n"
     "  --memory-limit BYTES  largest factorization to attempt (default half of RAM);\n"
-    "                        above it the evaluation is iterative\n";
+    "                        above it the evaluation is iterative\n"
+    "  For a model with outcome quantities it also prints each quantity's expected\n"
+    "  discounted total under the policy (policy evaluation with the quantity as reward):\n"
+    "  --totals FILE.csv     those totals per state, with units in the header\n"
+    "  --compare OTHER.h5    the same for the policy in OTHER.h5, and the difference\n";
 
 typedef struct evaluate_args {
     const char *model, *policy, *output;
+    const char *totals, *compare; /* outcome-quantity totals (cmd_totals.c) */
     double tolerance, memory_limit;
     int iterative;
 } evaluate_args;
@@ -439,6 +445,7 @@ static int run_evaluate(cli_args *a, const evaluate_args *o)
     }
     if (rc == 0) rc = cli_fail(a, sl_solver_evaluate(s, m, pol, &v));
     if (rc == 0) rc = cli_fail(a, sl_solution_save(v, o->output));
+    if (rc == 0) rc = cli_quantity_totals(a, s, m, pol, o->model, o->policy, o->compare, o->totals);
     if (rc == 0 && sl_ctx_rank(ctx) == 0 && sl_ctx_verbosity(ctx) >= 1) {
         sl_solution_info in;
         sl_certificate c;
@@ -469,6 +476,10 @@ int cmd_evaluate(cli_args *a)
             if ((o.policy = cli_value(a)) == NULL) rc = SL_EUSAGE;
         } else if (cli_opt(a, "--iterative")) {
             o.iterative = 1;
+        } else if (cli_opt(a, "--totals")) {
+            if ((o.totals = cli_value(a)) == NULL) rc = SL_EUSAGE;
+        } else if (cli_opt(a, "--compare")) {
+            if ((o.compare = cli_value(a)) == NULL) rc = SL_EUSAGE;
         } else if (cli_opt(a, "--tolerance")) {
             if (!num_opt(a, "--tolerance", &o.tolerance)) rc = SL_EUSAGE;
             else if (!(o.tolerance > 0)) rc = cli_usage_error(a, "--tolerance must be positive");
@@ -586,6 +597,7 @@ int cmd_verify(cli_args *a)
 
 static const char simulate_help[] =
     "usage: sluice simulate MODEL.h5 SOLUTION.h5 --start STATE --episodes N --seed S [options]\n"
+    "  STATE: a state number, or every factor as NAME=VALUE / NAME@INDEX, comma-separated\n"
     "  Monte Carlo rollouts of the solution's policy; prints the mean discounted\n"
     "  return with a 95% interval next to the solution's value.\n"
     "  --horizon T           steps per episode (default: until discount^T < 1e-6)\n"
@@ -598,13 +610,15 @@ int cmd_simulate(cli_args *a)
     o.out = stdout;
     o.episodes = 1000;
     int have_start = 0, rc = 0;
+    const char *start_text = NULL;
     int64_t seed = 1;
     while (a->i < a->argc && rc == 0) {
         int c = cli_common_opt(a, simulate_help);
         if (c < 0) return 0;
         if (c > 0) continue;
         if (cli_opt(a, "--start")) {
-            if (!int_opt(a, "--start", &o.start)) rc = SL_EUSAGE;
+            /* a state number, or NAME=VALUE,... resolved once the model is known */
+            if ((start_text = cli_value(a)) == NULL) rc = SL_EUSAGE;
             have_start = 1;
         } else if (cli_opt(a, "--episodes")) {
             if (!int_opt(a, "--episodes", &o.episodes)) rc = SL_EUSAGE;
@@ -629,6 +643,8 @@ int cmd_simulate(cli_args *a)
     if (rc) return rc;
     if (o.model == NULL || o.solution == NULL) return cli_usage_error(a, "need MODEL.h5 and SOLUTION.h5");
     if (!have_start) return cli_usage_error(a, "--start STATE is required");
+    rc = cli_fail(a, sl_state_lookup(a->ctx, o.model, start_text, "--start", &o.start));
+    if (rc) return rc;
     o.seed = (uint64_t)seed;
     return cli_fail(a, sl_simulate(a->ctx, &o));
 }

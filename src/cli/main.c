@@ -7,6 +7,7 @@
 #include <unistd.h>
 
 #include "cli/cli.h"
+#include "sluice/generator.h"
 
 static const char usage_text[] =
     "usage: sluice COMMAND [options]\n"
@@ -21,6 +22,9 @@ static const char usage_text[] =
     "  verify MODEL.h5 SOLUTION.h5 [--tolerance EPS]            recompute and check a solution's certificate\n"
     "  export SOLUTION.h5 --model MODEL.h5 -o FILE.csv          policy and values as CSV\n"
     "  simulate MODEL.h5 SOLUTION.h5 --start S --episodes N --seed K\n"
+    "  table SOLUTION.h5 --model MODEL.h5 --rows F --cols F [--fix NAME=VALUE]... [--show WHAT]\n"
+    "                                                           release rule, water values, quantities\n"
+    "  outlook MODEL.h5 SOLUTION.h5 --start S --stages N [--json]  exact forward distribution under the policy\n"
     "  report MODEL.h5 SOLUTION.h5 -o REPORT.html [--figures DIR]   one HTML page for a reviewer\n"
     "\n"
     "Run 'sluice COMMAND --help' for the options of one command. Under 'mpirun -np N'\n"
@@ -131,8 +135,8 @@ int main(int argc, char **argv)
         return rc;
     }
     if (strcmp(argv[1], "--version") == 0) {
-        if (rank == 0) printf("sluice %s (model format %d, generator ABI %d)\n", SLUICE_VERSION,
-                              SLUICE_FORMAT_VERSION, 1);
+        if (rank == 0) printf("sluice %s (model formats 1-2, generator ABIs 1-%d)\n", SLUICE_VERSION,
+                              SLUICE_GENERATOR_ABI);
         MPI_Finalize();
         return 0;
     }
@@ -142,6 +146,7 @@ int main(int argc, char **argv)
     } cmds[] = {{"build", cmd_build},       {"import", cmd_import}, {"estimate", cmd_estimate},
                 {"info", cmd_info},         {"solve", cmd_solve},   {"evaluate", cmd_evaluate},
                 {"verify", cmd_verify},     {"export", cmd_export}, {"simulate", cmd_simulate},
+                {"table", cmd_table},       {"outlook", cmd_outlook},
                 {"report", cmd_report}};
     int (*fn)(cli_args *) = NULL;
     for (size_t k = 0; k < sizeof(cmds) / sizeof(cmds[0]); k++)

@@ -248,8 +248,132 @@ static int sink_emit(sluice_sink *sink, int64_t next, double p, double r)
 {
     sink_state *s = sink->opaque;
     if (s->st != SL_OK) return 1;
+    if (s->block->nq > 0) {
+        s->st = SL_ERR(s->ctx, SL_EDATA,
+                       "%s: state %lld, action %d: sluice_emit() without quantities, but the generator declares "
+                       "%d outcome quantities (use sluice_emit_outcome)",
+                       s->block->where, (long long)s->block->s_end,
+                       (int)s->block->action[s->block->p_end - s->block->p_begin], s->block->nq);
+        return 1;
+    }
     s->st = sl_block_add(s->ctx, s->block, next, p, r);
     return s->st != SL_OK;
+}
+
+static int sink_emit_outcome(sluice_sink *sink, int64_t next, double p, double r, const double *q)
+{
+    sink_state *s = sink->opaque;
+    if (s->st != SL_OK) return 1;
+    s->st = s->block->nq > 0 ? sl_block_add_outcome(s->ctx, s->block, next, p, r, q)
+                             : sl_block_add(s->ctx, s->block, next, p, r);
+    return s->st != SL_OK;
+}
+
+/* A name usable in a file path and on the command line. */
+static int is_identifier(const char *s)
+{
+    if (s == NULL || s[0] == '\0' || strlen(s) >= SL_NAME_MAX) return 0;
+    for (const char *p = s; *p; p++)
+        if (!((*p >= 'a' && *p <= 'z') || (*p >= 'A' && *p <= 'Z') || (*p >= '0' && *p <= '9') || *p == '_'))
+            return 0;
+    return 1;
+}
+
+static int short_text(const char *s) { return s == NULL || strlen(s) < SL_NAME_MAX; }
+
+static int cmp_label(const void *a, const void *b) { return strcmp(*(const char *const *)a, *(const char *const *)b); }
+
+/* Copy and check the ABI 2 annotations of `shape` into `meta` (rank-local;
+ * every rank runs the same init, so all reach the same verdict). */
+static sl_status take_annotations(sl_ctx *ctx, const sluice_shape *sh, sl_meta *meta, const char *gen)
+{
+    sl_status st = SL_OK;
+    const char **sorted = NULL;
+    for (int f = 0; f < sh->n_factors; f++) {
+        const sluice_factor_values *fv = &sh->factor_values[f];
+        int64_t n = sh->factors[f].size;
+        if (!fv->values && !fv->labels && !fv->unit) continue;
+        if (!is_identifier(sh->factors[f].name))
+            SL_FAIL(SL_EDATA, "%s: factor %d name \"%s\" must be an identifier (letters, digits, _) under %d chars",
+                    gen, f, sh->factors[f].name ? sh->factors[f].name : "", SL_NAME_MAX);
+        if (!short_text(fv->unit))
+            SL_FAIL(SL_EDATA, "%s: factor %s: unit longer than %d characters", gen, sh->factors[f].name,
+                    SL_NAME_MAX - 1);
+        /* the file keeps a unit with the values only (attr of /factor/NAME/value) */
+        snprintf(meta->factor_unit[f], SL_NAME_MAX, "%s", fv->unit && fv->values ? fv->unit : "");
+        if (fv->values) {
+            if (n > INT32_MAX) SL_FAIL(SL_EDATA, "%s: factor %s: too many values", gen, sh->factors[f].name);
+            if (SL_ALLOC(ctx, meta->factor_value[f], n, "factor values") == NULL) SL_FAIL(SL_ENOMEM, "factor values");
+            for (int64_t i = 0; i < n; i++) {
+                if (!isfinite(fv->values[i]))
+                    SL_FAIL(SL_EDATA, "%s: factor %s: value of index %lld is not finite", gen, sh->factors[f].name,
+                            (long long)i);
+                meta->factor_value[f][i] = fv->values[i];
+            }
+        }
+        if (fv->labels) {
+            if (n > INT32_MAX / SL_NAME_MAX) SL_FAIL(SL_EDATA, "%s: factor %s: too many labels", gen,
+                                                     sh->factors[f].name);
+            if (SL_ZALLOC(ctx, meta->factor_label[f], n, "factor labels") == NULL ||
+                SL_ALLOC(ctx, sorted, n, "labels") == NULL)
+                SL_FAIL(SL_ENOMEM, "factor labels");
+            for (int64_t i = 0; i < n; i++) {
+                const char *l = fv->labels[i];
+                if (l == NULL || l[0] == '\0' || !short_text(l) || strpbrk(l, ",=@\"\n") != NULL)
+                    SL_FAIL(SL_EDATA,
+                            "%s: factor %s: label of index %lld is empty, longer than %d characters or holds one "
+                            "of , = @ \" or a newline",
+                            gen, sh->factors[f].name, (long long)i, SL_NAME_MAX - 1);
+                snprintf(meta->factor_label[f][i], SL_NAME_MAX, "%s", l);
+                sorted[i] = l;
+            }
+            qsort(sorted, (size_t)n, sizeof(*sorted), cmp_label);
+            for (int64_t i = 1; i < n; i++)
+                if (strcmp(sorted[i - 1], sorted[i]) == 0)
+                    SL_FAIL(SL_EDATA, "%s: factor %s: label \"%s\" is used twice", gen, sh->factors[f].name,
+                            sorted[i]);
+            free(sorted);
+            sorted = NULL;
+        }
+    }
+    if (sh->action_values) {
+        if (SL_ALLOC(ctx, meta->action_value, sh->n_actions, "action values") == NULL)
+            SL_FAIL(SL_ENOMEM, "action values");
+        meta->n_action_values = sh->n_actions;
+        for (int32_t a = 0; a < sh->n_actions; a++) {
+            if (!isfinite(sh->action_values[a]))
+                SL_FAIL(SL_EDATA, "%s: value of action %d is not finite", gen, (int)a);
+            meta->action_value[a] = sh->action_values[a];
+        }
+    }
+    if (!short_text(sh->action_unit) || !short_text(sh->reward_unit) || !short_text(sh->period_unit))
+        SL_FAIL(SL_EDATA, "%s: a unit (action, reward or period) is longer than %d characters", gen, SL_NAME_MAX - 1);
+    snprintf(meta->action_unit, SL_NAME_MAX, "%s", sh->action_unit && sh->action_values ? sh->action_unit : "");
+    snprintf(meta->reward_unit, SL_NAME_MAX, "%s", sh->reward_unit ? sh->reward_unit : "");
+    snprintf(meta->period_unit, SL_NAME_MAX, "%s", sh->period_unit ? sh->period_unit : "");
+    if (sh->n_quantities < 0 || sh->n_quantities > SLUICE_MAX_QUANTITIES ||
+        (sh->n_quantities > 0 && sh->quantities == NULL))
+        SL_FAIL(SL_EDATA, "%s: %d outcome quantities (0 to %d, with a table)", gen, sh->n_quantities,
+                SLUICE_MAX_QUANTITIES);
+    for (int q = 0; q < sh->n_quantities; q++) {
+        const char *nm = sh->quantities[q].name;
+        if (!is_identifier(nm))
+            SL_FAIL(SL_EDATA, "%s: quantity %d name \"%s\" must be an identifier (letters, digits, _) under %d chars",
+                    gen, q, nm ? nm : "", SL_NAME_MAX);
+        if (strcmp(nm, "action") == 0 || strcmp(nm, "value") == 0 || strcmp(nm, "switch") == 0)
+            SL_FAIL(SL_EDATA, "%s: quantity name \"%s\" is reserved (a --show keyword)", gen, nm);
+        for (int r = 0; r < q; r++)
+            if (strcmp(nm, meta->quantity_name[r]) == 0)
+                SL_FAIL(SL_EDATA, "%s: quantity \"%s\" is declared twice", gen, nm);
+        if (!short_text(sh->quantities[q].unit))
+            SL_FAIL(SL_EDATA, "%s: quantity %s: unit longer than %d characters", gen, nm, SL_NAME_MAX - 1);
+        snprintf(meta->quantity_name[q], SL_NAME_MAX, "%s", nm);
+        snprintf(meta->quantity_unit[q], SL_NAME_MAX, "%s", sh->quantities[q].unit ? sh->quantities[q].unit : "");
+    }
+    meta->n_quantities = sh->n_quantities;
+cleanup:
+    free(sorted);
+    return st;
 }
 
 static int ends_with(const char *s, const char *suf)
@@ -275,6 +399,62 @@ static void progress(sl_ctx *ctx, double t0, double *last, int64_t done, int64_t
     fflush(ctx->log);
 }
 
+/* Compile (rank 0, cached) and load a generator on every rank; check its
+ * ABI and definition. On success *dl and *gp are set (dlclose *dl). */
+static sl_status load_generator(sl_ctx *ctx, const sl_build_opts *o, char *so_path, size_t so_len, void **dlp,
+                                const sluice_generator_def **gp)
+{
+    sl_status st = SL_OK;
+    void *dl = NULL;
+    const sluice_generator_def *g = NULL;
+    (void)so_len;
+    if (ctx->rank == 0) {
+        if (access(o->generator, R_OK) != 0)
+            st = SL_ERR(ctx, SL_ENOINPUT, "%s: %s", o->generator, strerror(errno));
+        else if (ends_with(o->generator, ".so"))
+            snprintf(so_path, so_len, "%s", o->generator);
+        else if (ends_with(o->generator, ".c"))
+            st = compile_generator(ctx, o, so_path, so_len);
+        else
+            st = SL_ERR(ctx, SL_EUSAGE, "%s: a generator is a .c source or a compiled .so", o->generator);
+    }
+    SL_TRY(sl_agree(ctx, st));
+    MPI_Bcast(so_path, (int)so_len, MPI_CHAR, 0, ctx->comm);
+
+    /* load: every rank (a shared file system is assumed for the cache) */
+    if (strchr(so_path, '/') == NULL) {
+        size_t len = strlen(so_path);
+        if (len + 3 > so_len) SL_FAIL(SL_EUSAGE, "%s: path too long", so_path);
+        memmove(so_path + 2, so_path, len + 1);
+        so_path[0] = '.';
+        so_path[1] = '/';
+    }
+    dl = dlopen(so_path, RTLD_NOW | RTLD_LOCAL);
+    if (dl == NULL) {
+        st = SL_ERR(ctx, SL_EDATA, "%s: cannot load generator: %s", o->generator, dlerror());
+    } else {
+        g = (const sluice_generator_def *)dlsym(dl, "sluice_generator");
+        if (g == NULL)
+            st = SL_ERR(ctx, SL_EDATA, "%s: no symbol 'sluice_generator' (see sluice/generator.h)", o->generator);
+        else if (g->abi_version < 1 || g->abi_version > SLUICE_GENERATOR_ABI)
+            st = SL_ERR(ctx, SL_EDATA, "%s: generator ABI %d, this sluice implements ABIs 1 to %d", o->generator,
+                        g->abi_version, SLUICE_GENERATOR_ABI);
+        else if (g->init == NULL || g->transitions == NULL || g->n_params < 0 || (g->n_params > 0 && !g->params))
+            st = SL_ERR(ctx, SL_EDATA, "%s: generator definition is incomplete (init/transitions missing)",
+                        o->generator);
+    }
+    SL_TRY(sl_agree(ctx, st));
+
+cleanup:
+    if (st != SL_OK && dl) {
+        dlclose(dl);
+        dl = NULL;
+    }
+    *dlp = dl;
+    *gp = g;
+    return st;
+}
+
 sl_status sl_model_from_generator_opts(sl_ctx *ctx, const sl_build_opts *o, sl_model **out)
 {
     sl_status st = SL_OK;
@@ -294,42 +474,7 @@ sl_status sl_model_from_generator_opts(sl_ctx *ctx, const sl_build_opts *o, sl_m
     *out = NULL;
     if (o == NULL || o->generator == NULL) return SL_ERR(ctx, SL_EUSAGE, "sl_model_from_generator: no generator given");
 
-    if (ctx->rank == 0) {
-        if (access(o->generator, R_OK) != 0)
-            st = SL_ERR(ctx, SL_ENOINPUT, "%s: %s", o->generator, strerror(errno));
-        else if (ends_with(o->generator, ".so"))
-            snprintf(so_path, sizeof(so_path), "%s", o->generator);
-        else if (ends_with(o->generator, ".c"))
-            st = compile_generator(ctx, o, so_path, sizeof(so_path));
-        else
-            st = SL_ERR(ctx, SL_EUSAGE, "%s: a generator is a .c source or a compiled .so", o->generator);
-    }
-    SL_TRY(sl_agree(ctx, st));
-    MPI_Bcast(so_path, (int)sizeof(so_path), MPI_CHAR, 0, ctx->comm);
-
-    /* load: every rank (a shared file system is assumed for the cache) */
-    if (strchr(so_path, '/') == NULL) {
-        size_t len = strlen(so_path);
-        if (len + 3 > sizeof(so_path)) SL_FAIL(SL_EUSAGE, "%s: path too long", so_path);
-        memmove(so_path + 2, so_path, len + 1);
-        so_path[0] = '.';
-        so_path[1] = '/';
-    }
-    dl = dlopen(so_path, RTLD_NOW | RTLD_LOCAL);
-    if (dl == NULL) {
-        st = SL_ERR(ctx, SL_EDATA, "%s: cannot load generator: %s", o->generator, dlerror());
-    } else {
-        g = (const sluice_generator_def *)dlsym(dl, "sluice_generator");
-        if (g == NULL)
-            st = SL_ERR(ctx, SL_EDATA, "%s: no symbol 'sluice_generator' (see sluice/generator.h)", o->generator);
-        else if (g->abi_version != SLUICE_GENERATOR_ABI)
-            st = SL_ERR(ctx, SL_EDATA, "%s: generator ABI %d, this sluice implements ABI %d", o->generator,
-                        g->abi_version, SLUICE_GENERATOR_ABI);
-        else if (g->init == NULL || g->transitions == NULL || g->n_params < 0 || (g->n_params > 0 && !g->params))
-            st = SL_ERR(ctx, SL_EDATA, "%s: generator definition is incomplete (init/transitions missing)",
-                        o->generator);
-    }
-    SL_TRY(sl_agree(ctx, st));
+    SL_TRY(load_generator(ctx, o, so_path, sizeof(so_path), &dl, &g));
 
     /* parameters */
     if (SL_ALLOC(ctx, pv, g->n_params, "parameters") == NULL) st = SL_ENOMEM;
@@ -398,6 +543,11 @@ sl_status sl_model_from_generator_opts(sl_ctx *ctx, const sl_build_opts *o, sl_m
     int64_t n = shape.n_states;
     int64_t s0 = n * ctx->rank / ctx->size, s1 = n * (ctx->rank + 1) / ctx->size;
     SL_TRY(sl_block_init(ctx, &blk, s0, n, o->generator));
+    /* ABI 2 annotations: an ABI 1 object never writes the fields after
+     * `discount`, which stay zero from the memset above */
+    if (g->abi_version >= 2) st = take_annotations(ctx, &shape, &meta, o->generator);
+    if (st == SL_OK) st = sl_block_set_quantities(ctx, &blk, meta.n_quantities);
+    SL_TRY(sl_agree(ctx, st));
     blk.prob_tolerance = o->prob_tolerance > 0 ? o->prob_tolerance : 1e-9;
     blk.renormalize = o->renormalize;
     if (snprintf(crash_name, sizeof(crash_name), "%s (%s)", g->name ? g->name : "?", o->generator) >=
@@ -409,7 +559,7 @@ sl_status sl_model_from_generator_opts(sl_ctx *ctx, const sl_build_opts *o, sl_m
     for (int i = 0; i < 5; i++) sigaction(sigs[i], &sa, &old[i]);
     armed = 1;
     crash_armed = 1;
-    sink_state sk = {{sink_emit, NULL}, ctx, &blk, SL_OK};
+    sink_state sk = {{sink_emit, NULL, sink_emit_outcome}, ctx, &blk, SL_OK};
     sk.sink.opaque = &sk;
     double t0 = sl_now(), last = t0;
     for (int64_t s = s0; s < s1 && st == SL_OK; s++) {
@@ -440,7 +590,7 @@ sl_status sl_model_from_generator_opts(sl_ctx *ctx, const sl_build_opts *o, sl_m
 
     /* global offsets, metadata, fingerprint, write */
     sl_block_rebase(&blk, sl_exscan_i64(ctx, sl_block_pairs(&blk)), sl_exscan_i64(ctx, sl_block_trans(&blk)));
-    meta.format_version = SLUICE_FORMAT_VERSION;
+    meta.format_version = sl_meta_has_annotations(&meta) ? 2 : 1;
     meta.n_states = n;
     meta.n_pairs = sl_sum_i64(ctx, sl_block_pairs(&blk));
     meta.n_trans = sl_sum_i64(ctx, sl_block_trans(&blk));
@@ -483,6 +633,112 @@ cleanup:
     free(pv);
     sl_block_free(&blk);
     sl_meta_free(&meta);
+    return st;
+}
+
+/* ---- description (sluice info GENERATOR.c) ------------------------------------- */
+
+static void describe_values(FILE *out, const char *unit, const double *v, int64_t n)
+{
+    double lo = v[0], hi = v[0];
+    for (int64_t i = 1; i < n; i++) {
+        if (v[i] < lo) lo = v[i];
+        if (v[i] > hi) hi = v[i];
+    }
+    fprintf(out, "values %.6g .. %.6g%s%s", lo, hi, unit && unit[0] ? " " : "", unit ? unit : "");
+}
+
+static void describe_labels(FILE *out, const char *const *l, int64_t n)
+{
+    fprintf(out, "labels");
+    for (int64_t i = 0; i < n && i < 12; i++) fprintf(out, "%s %s", i ? "," : "", l[i] ? l[i] : "?");
+    if (n > 12) fprintf(out, ", ... (%lld)", (long long)n);
+}
+
+sl_status sl_generator_describe(sl_ctx *ctx, const char *generator, FILE *out)
+{
+    sl_status st = SL_OK;
+    char so_path[4400] = "";
+    void *dl = NULL, *inst = NULL;
+    const sluice_generator_def *g = NULL;
+    double *pv = NULL;
+    sluice_shape shape;
+    sl_build_opts o;
+    memset(&o, 0, sizeof(o));
+    memset(&shape, 0, sizeof(shape));
+    o.generator = generator;
+    SL_TRY(load_generator(ctx, &o, so_path, sizeof(so_path), &dl, &g));
+    if (SL_ALLOC(ctx, pv, g->n_params, "parameters") == NULL) st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    for (int i = 0; i < g->n_params; i++) pv[i] = g->params[i].default_value;
+    char err[512] = "";
+    int rc = ctx->rank == 0 ? g->init(pv, &shape, &inst, err, sizeof(err)) : 0;
+    if (rc != 0)
+        st = SL_ERR(ctx, SL_EDATA, "%s: generator init failed with the default parameters (code %d): %s", generator,
+                    rc, err[0] ? err : "no message");
+    if (st == SL_OK && ctx->rank == 0 &&
+        (shape.n_factors < 0 || shape.n_factors > SLUICE_MAX_FACTORS || shape.n_actions <= 0 ||
+         (g->abi_version >= 2 && (shape.n_quantities < 0 || shape.n_quantities > SLUICE_MAX_QUANTITIES ||
+                                  (shape.n_quantities > 0 && shape.quantities == NULL)))))
+        st = SL_ERR(ctx, SL_EDATA, "%s: the generator reports an impossible shape (factors %d, actions %d)",
+                    generator, shape.n_factors, (int)shape.n_actions);
+    SL_TRY(sl_agree(ctx, st));
+    if (ctx->rank == 0) {
+        fprintf(out, "%s: generator \"%s\" (ABI %d)\n  %s\n", generator, g->name ? g->name : "?", g->abi_version,
+                g->description ? g->description : "");
+        fprintf(out, "parameters (set with sluice build --param NAME=VALUE):\n");
+        fprintf(out, "  %-22s %12s  %-12s %s\n", "name", "default", "unit", "meaning");
+        for (int i = 0; i < g->n_params; i++)
+            fprintf(out, "  %-22s %12.6g  %-12s %s\n", g->params[i].name ? g->params[i].name : "?",
+                    g->params[i].default_value, g->params[i].unit ? g->params[i].unit : "",
+                    g->params[i].help ? g->params[i].help : "");
+        if (g->n_params == 0) fprintf(out, "  (none)\n");
+        fprintf(out, "with the defaults:\n  states       %lld", (long long)shape.n_states);
+        for (int f = 0; f < shape.n_factors; f++)
+            fprintf(out, "%s%s %lld", f ? " x " : " = ", shape.factors[f].name ? shape.factors[f].name : "?",
+                    (long long)shape.factors[f].size);
+        fprintf(out, "%s\n", shape.n_factors ? "  (first factor fastest)" : "");
+        for (int f = 0; f < shape.n_factors; f++) {
+            const sluice_factor_values *fv = g->abi_version >= 2 ? &shape.factor_values[f] : NULL;
+            fprintf(out, "  factor       %-12s %lld%s", shape.factors[f].name ? shape.factors[f].name : "?",
+                    (long long)shape.factors[f].size, shape.factors[f].stage ? ", stage" : "");
+            if (fv && fv->values && shape.factors[f].size > 0) {
+                fprintf(out, ", ");
+                describe_values(out, fv->unit, fv->values, shape.factors[f].size);
+            } else if (fv && fv->unit && fv->unit[0]) {
+                fprintf(out, ", unit %s", fv->unit);
+            }
+            if (fv && fv->labels && shape.factors[f].size > 0) {
+                fprintf(out, ", ");
+                describe_labels(out, fv->labels, shape.factors[f].size);
+            }
+            fprintf(out, "\n");
+        }
+        fprintf(out, "  actions      %d", (int)shape.n_actions);
+        if (g->abi_version >= 2 && shape.action_values) {
+            fprintf(out, ", ");
+            describe_values(out, shape.action_unit, shape.action_values, shape.n_actions);
+        }
+        fprintf(out, "\n  discount     %.10g", shape.discount);
+        if (g->abi_version >= 2 && shape.period_unit) fprintf(out, " per %s", shape.period_unit);
+        if (g->abi_version >= 2 && shape.reward_unit) fprintf(out, "\n  reward       %s", shape.reward_unit);
+        fprintf(out, "\n");
+        int nq = g->abi_version >= 2 ? shape.n_quantities : 0;
+        if (nq > 0) {
+            fprintf(out, "outcome quantities (per period, stored per state and action as expected value and "
+                         "probability of being positive):\n");
+            for (int q = 0; q < nq; q++)
+                fprintf(out, "  %-22s %-12s %s\n", shape.quantities[q].name ? shape.quantities[q].name : "?",
+                        shape.quantities[q].unit ? shape.quantities[q].unit : "",
+                        shape.quantities[q].help ? shape.quantities[q].help : "");
+        } else {
+            fprintf(out, "outcome quantities: none%s\n", g->abi_version < 2 ? " (an ABI 1 generator)" : "");
+        }
+    }
+cleanup:
+    if (inst && g && g->finish) g->finish(inst);
+    if (dl) dlclose(dl);
+    free(pv);
     return st;
 }
 

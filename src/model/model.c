@@ -9,6 +9,15 @@
 void sl_meta_free(sl_meta *m)
 {
     if (m == NULL) return;
+    for (int f = 0; f < SLUICE_MAX_FACTORS; f++) {
+        free(m->factor_value[f]);
+        free(m->factor_label[f]);
+        m->factor_value[f] = NULL;
+        m->factor_label[f] = NULL;
+    }
+    free(m->action_value);
+    m->action_value = NULL;
+    m->n_action_values = 0;
     free(m->action_name);
     free(m->param_name);
     free(m->param_value);
@@ -21,13 +30,27 @@ void sl_meta_free(sl_meta *m)
     m->n_params = 0;
 }
 
-static sl_status meta_alloc_arrays(sl_ctx *ctx, sl_meta *m)
+/* Allocate the arrays of a meta whose scalars were copied from another;
+ * `has_value`/`has_label` say which factor arrays the source holds. */
+static sl_status meta_alloc_arrays(sl_ctx *ctx, sl_meta *m, const int *has_value, const int *has_label)
 {
+    int bad = 0;
     m->action_name = NULL;
     m->param_name = NULL;
     m->param_value = NULL;
     m->param_unit = NULL;
-    if (SL_ZALLOC(ctx, m->action_name, m->n_action_names, "action names") == NULL ||
+    m->action_value = NULL;
+    for (int f = 0; f < SLUICE_MAX_FACTORS; f++) {
+        m->factor_value[f] = NULL;
+        m->factor_label[f] = NULL;
+    }
+    for (int f = 0; f < m->n_factors && f < SLUICE_MAX_FACTORS; f++) {
+        if (has_value[f] && SL_ZALLOC(ctx, m->factor_value[f], m->factor_size[f], "factor values") == NULL) bad = 1;
+        if (has_label[f] && SL_ZALLOC(ctx, m->factor_label[f], m->factor_size[f], "factor labels") == NULL) bad = 1;
+    }
+    if (m->n_action_values > 0 && SL_ZALLOC(ctx, m->action_value, m->n_action_values, "action values") == NULL)
+        bad = 1;
+    if (bad || SL_ZALLOC(ctx, m->action_name, m->n_action_names, "action names") == NULL ||
         SL_ZALLOC(ctx, m->param_name, m->n_params, "parameter names") == NULL ||
         SL_ZALLOC(ctx, m->param_value, m->n_params, "parameter values") == NULL ||
         SL_ZALLOC(ctx, m->param_unit, m->n_params, "parameter units") == NULL) {
@@ -37,13 +60,29 @@ static sl_status meta_alloc_arrays(sl_ctx *ctx, sl_meta *m)
     return SL_OK;
 }
 
+static void meta_which(const sl_meta *m, int *has_value, int *has_label)
+{
+    for (int f = 0; f < SLUICE_MAX_FACTORS; f++) {
+        has_value[f] = f < m->n_factors && m->factor_value[f] != NULL;
+        has_label[f] = f < m->n_factors && m->factor_label[f] != NULL;
+    }
+}
+
 sl_status sl_meta_copy(sl_ctx *ctx, sl_meta *dst, const sl_meta *src)
 {
+    int hv[SLUICE_MAX_FACTORS], hl[SLUICE_MAX_FACTORS];
+    meta_which(src, hv, hl);
     *dst = *src;
-    sl_status st = meta_alloc_arrays(ctx, dst);
+    sl_status st = meta_alloc_arrays(ctx, dst, hv, hl);
     if (st != SL_OK) return st;
-    /* memcpy from NULL is undefined even for 0 bytes (UBSan): models without
-     * action names or parameters have NULL arrays */
+    for (int f = 0; f < src->n_factors; f++) {
+        size_t n = (size_t)src->factor_size[f];
+        if (hv[f]) memcpy(dst->factor_value[f], src->factor_value[f], n * sizeof(double));
+        if (hl[f]) memcpy(dst->factor_label[f], src->factor_label[f], n * SL_NAME_MAX);
+    }
+    if (src->n_action_values > 0)
+        memcpy(dst->action_value, src->action_value, (size_t)src->n_action_values * sizeof(double));
+    /* empty arrays may be NULL in src: memcpy from NULL is undefined even for 0 bytes */
     if (src->n_action_names > 0)
         memcpy(dst->action_name, src->action_name, (size_t)src->n_action_names * SL_NAME_MAX);
     if (src->n_params > 0) {
@@ -57,11 +96,14 @@ sl_status sl_meta_copy(sl_ctx *ctx, sl_meta *dst, const sl_meta *src)
 sl_status sl_meta_bcast(sl_ctx *ctx, sl_meta *m)
 {
     sl_meta copy = *m;
+    int which[2 * SLUICE_MAX_FACTORS];
+    meta_which(m, which, which + SLUICE_MAX_FACTORS);
     MPI_Bcast(&copy, (int)sizeof(copy), MPI_BYTE, 0, ctx->comm);
+    MPI_Bcast(which, 2 * SLUICE_MAX_FACTORS, MPI_INT, 0, ctx->comm);
     sl_status st = SL_OK;
     if (ctx->rank != 0) {
         *m = copy;
-        st = meta_alloc_arrays(ctx, m);
+        st = meta_alloc_arrays(ctx, m, which, which + SLUICE_MAX_FACTORS);
     }
     st = sl_agree(ctx, st);
     if (st != SL_OK) return st;
@@ -69,7 +111,39 @@ sl_status sl_meta_bcast(sl_ctx *ctx, sl_meta *m)
     MPI_Bcast(m->param_name, m->n_params * SL_NAME_MAX, MPI_CHAR, 0, ctx->comm);
     MPI_Bcast(m->param_unit, m->n_params * SL_NAME_MAX, MPI_CHAR, 0, ctx->comm);
     MPI_Bcast(m->param_value, m->n_params, MPI_DOUBLE, 0, ctx->comm);
+    for (int f = 0; f < m->n_factors; f++) {
+        /* factor sizes are bounded by the writer (sl_meta_has_annotations
+         * users check them against INT_MAX / SL_NAME_MAX) */
+        if (which[f]) MPI_Bcast(m->factor_value[f], (int)m->factor_size[f], MPI_DOUBLE, 0, ctx->comm);
+        if (which[SLUICE_MAX_FACTORS + f])
+            MPI_Bcast(m->factor_label[f], (int)m->factor_size[f] * SL_NAME_MAX, MPI_CHAR, 0, ctx->comm);
+    }
+    if (m->n_action_values > 0) MPI_Bcast(m->action_value, m->n_action_values, MPI_DOUBLE, 0, ctx->comm);
     return SL_OK;
+}
+
+int sl_meta_has_annotations(const sl_meta *m)
+{
+    if (m->n_action_values > 0 || m->action_unit[0] || m->reward_unit[0] || m->period_unit[0] ||
+        m->n_quantities > 0)
+        return 1;
+    for (int f = 0; f < m->n_factors; f++)
+        if (m->factor_value[f] || m->factor_label[f] || m->factor_unit[f][0]) return 1;
+    return 0;
+}
+
+int sl_meta_factor_index(const sl_meta *m, const char *name)
+{
+    for (int f = 0; f < m->n_factors; f++)
+        if (strcmp(m->factor_name[f], name) == 0) return f;
+    return -1;
+}
+
+int sl_meta_quantity_index(const sl_meta *m, const char *name)
+{
+    for (int q = 0; q < m->n_quantities; q++)
+        if (strcmp(m->quantity_name[q], name) == 0) return q;
+    return -1;
 }
 
 void sl_meta_decode(const sl_meta *m, int64_t state, int64_t *values)
@@ -100,6 +174,8 @@ void sl_block_free(sl_block *b)
     free(b->target);
     free(b->prob);
     free(b->col);
+    free(b->qmean);
+    free(b->qpos);
     memset(b, 0, sizeof(*b));
 }
 
@@ -164,6 +240,17 @@ sl_status sl_block_begin_pair(sl_ctx *ctx, sl_block *b, int32_t action)
                   "pair index");
     if (st != SL_OK) return st;
     b->cap_pairs = cap_a < cap_r ? cap_a : cap_r;
+    if (b->nq > 0) {
+        size_t need_q = ((size_t)np + 1) * (size_t)b->nq, cap_m = b->cap_q, cap_p = b->cap_q;
+        st = grow(ctx, (void **)&b->qmean, &cap_m, need_q, sizeof(double), "pair quantities");
+        if (st == SL_OK) st = grow(ctx, (void **)&b->qpos, &cap_p, need_q, sizeof(double), "pair quantities");
+        if (st != SL_OK) return st;
+        b->cap_q = cap_m < cap_p ? cap_m : cap_p;
+        for (int q = 0; q < b->nq; q++) {
+            b->qmean[(size_t)np * (size_t)b->nq + (size_t)q] = 0.0;
+            b->qpos[(size_t)np * (size_t)b->nq + (size_t)q] = 0.0;
+        }
+    }
     b->action[np] = action;
     b->reward[np] = 0.0;
     b->in_pair = 1;
@@ -199,6 +286,36 @@ sl_status sl_block_add(sl_ctx *ctx, sl_block *b, int64_t target, double prob, do
     /* reward accumulated as sum p*r; merged targets keep the sum */
     b->reward[b->p_end - b->p_begin] += prob * reward;
     b->t_end++;
+    return SL_OK;
+}
+
+sl_status sl_block_set_quantities(sl_ctx *ctx, sl_block *b, int nq)
+{
+    if (nq < 0 || nq > SLUICE_MAX_QUANTITIES || b->p_end != b->p_begin)
+        return SL_ERR(ctx, SL_EINTERNAL, "%s: cannot set %d quantities here", b->where, nq);
+    b->nq = nq;
+    return SL_OK;
+}
+
+sl_status sl_block_add_outcome(sl_ctx *ctx, sl_block *b, int64_t target, double prob, double reward,
+                               const double *q)
+{
+    int64_t k = b->p_end - b->p_begin;
+    if (b->nq > 0 && q == NULL)
+        return SL_ERR(ctx, SL_EDATA, "%s: state %lld, action %d: a successor without its %d quantities",
+                      b->where, (long long)b->s_end, (int)b->action[k], b->nq);
+    for (int i = 0; i < b->nq; i++)
+        if (!isfinite(q[i]))
+            return SL_ERR(ctx, SL_EDATA,
+                          "%s: state %lld, action %d, next state %lld: quantity %d is %g, not finite",
+                          b->where, (long long)b->s_end, (int)b->action[k], (long long)target, i, q[i]);
+    sl_status st = sl_block_add(ctx, b, target, prob, reward);
+    if (st != SL_OK) return st;
+    double *mean = b->qmean + (size_t)k * (size_t)b->nq, *pos = b->qpos + (size_t)k * (size_t)b->nq;
+    for (int i = 0; i < b->nq; i++) {
+        mean[i] += prob * q[i];
+        if (q[i] > 0.0) pos[i] += prob;
+    }
     return SL_OK;
 }
 
@@ -243,6 +360,10 @@ sl_status sl_block_end_pair(sl_ctx *ctx, sl_block *b)
         if (b->renormalize && drift <= 1e-6) {
             for (int64_t i = lo; i < hi; i++) b->prob[i] /= sum;
             b->reward[k] /= sum;
+            for (int i = 0; i < b->nq; i++) {
+                b->qmean[(size_t)k * (size_t)b->nq + (size_t)i] /= sum;
+                b->qpos[(size_t)k * (size_t)b->nq + (size_t)i] /= sum;
+            }
             b->n_renormalized++;
         } else {
             return SL_ERR(ctx, SL_EDATA,
@@ -261,6 +382,10 @@ sl_status sl_block_end_pair(sl_ctx *ctx, sl_block *b)
         /* merged rows may exceed 1 by less than the tolerance: the file
          * contract is p in [0, 1], so store 1 */
         if (b->prob[i] > 1.0) b->prob[i] = 1.0;
+    }
+    for (int i = 0; i < b->nq; i++) { /* same rule for a probability of being positive */
+        double *pp = &b->qpos[(size_t)k * (size_t)b->nq + (size_t)i];
+        if (*pp > 1.0) *pp = 1.0;
     }
     b->p_end++;
     b->first_trans[b->p_end - b->p_begin] = b->t_end;
@@ -369,8 +494,50 @@ static inline void acc_entry(uint64_t acc[2], uint64_t tag, int64_t pos, uint64_
     acc[1] += sl_mix64(h ^ 0x5851f42d4c957f2dULL);
 }
 
-void sl_fingerprint_local(const sl_block *b, uint64_t acc[2])
+void sl_fingerprint_quantity(uint64_t acc[2], int q, int64_t p0, int64_t n, const double *mean,
+                             const double *pos, int stride)
 {
+    uint64_t tm = 7u + 2u * (uint64_t)q, tp = 8u + 2u * (uint64_t)q;
+    for (int64_t k = 0; k < n; k++) {
+        acc_entry(acc, tm, p0 + k, dbits(mean[k * stride]));
+        acc_entry(acc, tp, p0 + k, dbits(pos[k * stride]));
+    }
+}
+
+static uint64_t hash_str(uint64_t h, const char *s)
+{
+    for (; *s; s++) h = sl_mix64(h ^ (unsigned char)*s);
+    return sl_mix64(h ^ 0xffu);
+}
+
+/* Format 2 annotations (units, factor and action values, labels, quantity
+ * names): identical on every rank, hashed in sequence. */
+static uint64_t annotation_hash(const sl_meta *m)
+{
+    uint64_t h = 0x243f6a8885a308d3ULL;
+    for (int f = 0; f < m->n_factors; f++) {
+        h = hash_str(h, m->factor_unit[f]);
+        if (m->factor_value[f])
+            for (int64_t i = 0; i < m->factor_size[f]; i++) h = sl_mix64(h ^ dbits(m->factor_value[f][i]));
+        h = sl_mix64(h ^ (m->factor_value[f] ? 1u : 2u));
+        if (m->factor_label[f])
+            for (int64_t i = 0; i < m->factor_size[f]; i++) h = hash_str(h, m->factor_label[f][i]);
+        h = sl_mix64(h ^ (m->factor_label[f] ? 3u : 4u));
+    }
+    for (int32_t a = 0; a < m->n_action_values; a++) h = sl_mix64(h ^ dbits(m->action_value[a]));
+    h = hash_str(h, m->action_unit);
+    h = hash_str(h, m->reward_unit);
+    h = hash_str(h, m->period_unit);
+    for (int q = 0; q < m->n_quantities; q++) {
+        h = hash_str(h, m->quantity_name[q]);
+        h = hash_str(h, m->quantity_unit[q]);
+    }
+    return sl_mix64(h ^ (uint64_t)m->n_quantities);
+}
+
+sl_status sl_fingerprint(sl_ctx *ctx, const sl_meta *m, const sl_block *b, char out[40])
+{
+    uint64_t acc[2] = {0, 0}, tot[2] = {0, 0};
     int64_t ns = sl_block_states(b), np = sl_block_pairs(b), nt = sl_block_trans(b);
     for (int64_t i = 0; i < ns; i++)
         acc_entry(acc, 1, b->s_begin + i, (uint64_t)b->first_pair[i + 1]);
@@ -383,23 +550,20 @@ void sl_fingerprint_local(const sl_block *b, uint64_t acc[2])
         acc_entry(acc, 5, b->t_begin + t, (uint64_t)b->target[t]);
         acc_entry(acc, 6, b->t_begin + t, dbits(b->prob[t]));
     }
-}
-
-sl_status sl_fingerprint_finish(sl_ctx *ctx, const sl_meta *m, const uint64_t acc[2], char out[40])
-{
-    uint64_t tot[2] = {0, 0}, mine[2] = {acc[0], acc[1]};
-    MPI_Allreduce(mine, tot, 2, MPI_UINT64_T, MPI_SUM, ctx->comm);
+    if (b->nq > 0 && b->qmean != NULL) {
+        for (int q = 0; q < b->nq; q++)
+            sl_fingerprint_quantity(acc, q, b->p_begin, np, b->qmean + q, b->qpos + q, b->nq);
+    } else {
+        acc[0] += b->qacc[0];
+        acc[1] += b->qacc[1];
+    }
+    MPI_Allreduce(acc, tot, 2, MPI_UINT64_T, MPI_SUM, ctx->comm);
     uint64_t head = sl_mix64((uint64_t)m->n_states) ^ sl_mix64((uint64_t)m->n_pairs * 3u) ^
                     sl_mix64((uint64_t)m->n_trans * 7u) ^ sl_mix64(dbits(m->discount)) ^
                     sl_mix64((uint64_t)m->objective + 11u);
+    if (m->format_version >= 2) head ^= sl_mix64(annotation_hash(m) + 13u);
     uint64_t h0 = sl_mix64(tot[0] ^ head), h1 = sl_mix64(tot[1] + head);
     snprintf(out, 40, "%016llx%016llx", (unsigned long long)h0, (unsigned long long)h1);
     return SL_OK;
 }
 
-sl_status sl_fingerprint(sl_ctx *ctx, const sl_meta *m, const sl_block *b, char out[40])
-{
-    uint64_t acc[2] = {0, 0};
-    sl_fingerprint_local(b, acc);
-    return sl_fingerprint_finish(ctx, m, acc, out);
-}

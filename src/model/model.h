@@ -27,7 +27,29 @@ typedef struct sl_meta {
     char (*param_name)[SL_NAME_MAX];
     double *param_value;
     char (*param_unit)[SL_NAME_MAX];
+    /* format 2 annotations (docs/formats.md); all optional. Arrays are
+     * owned by the meta and freed by sl_meta_free. */
+    char factor_unit[SLUICE_MAX_FACTORS][SL_NAME_MAX];
+    double *factor_value[SLUICE_MAX_FACTORS];               /* [factor_size] or NULL */
+    char (*factor_label[SLUICE_MAX_FACTORS])[SL_NAME_MAX];  /* [factor_size] or NULL */
+    int32_t n_action_values;                                /* 0: none */
+    double *action_value;                                   /* [n_action_values] */
+    char action_unit[SL_NAME_MAX];
+    char reward_unit[SL_NAME_MAX];
+    char period_unit[SL_NAME_MAX];
+    int n_quantities;
+    char quantity_name[SLUICE_MAX_QUANTITIES][SL_NAME_MAX];
+    char quantity_unit[SLUICE_MAX_QUANTITIES][SL_NAME_MAX];
 } sl_meta;
+
+/* Largest model format version this build reads and writes. A model is
+ * written as version 2 only when it carries format 2 annotations. */
+#define SL_MODEL_FORMAT_MAX 2
+/* Does the meta carry any format 2 annotation? Local. */
+int sl_meta_has_annotations(const sl_meta *m);
+/* Index of factor / quantity `name`, or -1. Local. */
+int sl_meta_factor_index(const sl_meta *m, const char *name);
+int sl_meta_quantity_index(const sl_meta *m, const char *name);
 
 void sl_meta_free(sl_meta *m);
 /* Deep copy (allocates the name arrays). Local. */
@@ -52,10 +74,15 @@ typedef struct sl_block {
     int64_t *first_trans;       /* [n_pairs_local + 1] */
     int64_t *target;            /* [n_trans_local] */
     double *prob;               /* [n_trans_local] */
+    int nq;                     /* outcome quantities per pair (0: none) */
+    double *qmean;              /* [n_pairs_local * nq], pair-major: E[q | s,a] */
+    double *qpos;               /* [n_pairs_local * nq]: P(q > 0 | s,a) */
+    uint64_t qacc[2];           /* fingerprint sum of the quantity entries when
+                                 * a reader hashed them without keeping them */
     uint32_t *col;              /* after sl_halo_build: local columns into
                                  * [owned | halo]; `target` is then freed */
     /* builder state */
-    size_t cap_states, cap_pairs, cap_ptrs, cap_trans;
+    size_t cap_states, cap_pairs, cap_ptrs, cap_trans, cap_q;
     int in_pair;
     double prob_tolerance;      /* |sum - 1| allowed */
     int renormalize;            /* fix |sum - 1| <= 1e-6 by rescaling */
@@ -82,6 +109,12 @@ sl_status sl_block_init(sl_ctx *ctx, sl_block *b, int64_t s_begin, int64_t n_sta
 sl_status sl_block_begin_state(sl_ctx *ctx, sl_block *b);
 sl_status sl_block_begin_pair(sl_ctx *ctx, sl_block *b, int32_t action);
 sl_status sl_block_add(sl_ctx *ctx, sl_block *b, int64_t target, double prob, double reward);
+/* Start collecting `nq` quantities per pair (call right after init). */
+sl_status sl_block_set_quantities(sl_ctx *ctx, sl_block *b, int nq);
+/* As sl_block_add, with the value of every quantity on this transition:
+ * the pair keeps sum p*q and sum of p over transitions with q > 0. */
+sl_status sl_block_add_outcome(sl_ctx *ctx, sl_block *b, int64_t target, double prob, double reward,
+                               const double *q);
 sl_status sl_block_end_pair(sl_ctx *ctx, sl_block *b);
 sl_status sl_block_end_state(sl_ctx *ctx, sl_block *b);
 /* Shift the global pair/transition offsets (after an exclusive scan). */
@@ -98,11 +131,11 @@ sl_status sl_block_validate(sl_ctx *ctx, const sl_block *b, const sl_meta *m,
  * (position, value) entries over the block, reduced over ranks, mixed with
  * sizes and discount. Same value for any partition. Collective. */
 sl_status sl_fingerprint(sl_ctx *ctx, const sl_meta *m, const sl_block *b, char out[40]);
-/* The same in two steps, for a rank that holds several blocks: add each
- * block's entries into acc (start from {0, 0}; local), then reduce and mix
- * (collective). */
-void sl_fingerprint_local(const sl_block *b, uint64_t acc[2]);
-sl_status sl_fingerprint_finish(sl_ctx *ctx, const sl_meta *m, const uint64_t acc[2], char out[40]);
+/* Add the entries of quantity q for pairs [p0, p0+n) (global numbers) to a
+ * fingerprint accumulator; mean[k*stride], pos[k*stride] belong to pair
+ * p0+k. Used by the in-memory fingerprint and by streaming readers. Local. */
+void sl_fingerprint_quantity(uint64_t acc[2], int q, int64_t p0, int64_t n, const double *mean,
+                             const double *pos, int stride);
 
 /* ---- the public model handle -------------------------------------------- */
 

@@ -228,8 +228,10 @@ static sl_status ensure_parent(sl_ctx *ctx, hid_t file, const char *name, const 
     char parent[256];
     snprintf(parent, sizeof(parent), "%.*s", (int)(slash - name), name);
     if (sl_h5_exists(file, parent)) return SL_OK;
+    sl_status st = ensure_parent(ctx, file, parent, path); /* grandparents first */
+    if (st != SL_OK) return st;
     hid_t g;
-    sl_status st = sl_h5_group(ctx, file, parent, &g, path);
+    st = sl_h5_group(ctx, file, parent, &g, path);
     if (st == SL_OK) H5Gclose(g);
     return st;
 }

@@ -1,5 +1,6 @@
 /* model_io.c - the model file (DESIGN.md contract), written and read in parallel. */
 #include <inttypes.h>
+#include <math.h>
 #include <string.h>
 
 #include "store/h5.h"
@@ -81,6 +82,74 @@ cleanup:
     return st;
 }
 
+/* Write a string attribute `unit` on the existing dataset `name`. Collective. */
+static sl_status write_unit(sl_ctx *ctx, hid_t f, const char *name, const char *unit, const char *path)
+{
+    hid_t d = H5Dopen2(f, name, H5P_DEFAULT);
+    if (d < 0) return SL_ERR(ctx, SL_EIO, "%s: cannot open %s to set its unit", path, name);
+    sl_status st = sl_h5_attr_write_str(ctx, d, "unit", unit, path);
+    H5Dclose(d);
+    return st;
+}
+
+/* Format 2 annotations: factor values and labels, action values, units,
+ * and the per-pair quantity datasets (each rank writes its pairs). */
+static sl_status write_annotations(sl_ctx *ctx, hid_t f, const sl_meta *m, const sl_block *b, const char *path)
+{
+    sl_status st = SL_OK;
+    hid_t str = sl_h5_str_type(SL_NAME_MAX);
+    double *buf = NULL;
+    int root = ctx->rank == 0;
+    char name[3 * SL_NAME_MAX];
+    int64_t np = sl_block_pairs(b);
+    if (str < 0) return SL_ERR(ctx, SL_EINTERNAL, "%s: string type", path);
+    SL_TRY(sl_h5_attr_write_str(ctx, f, "reward_unit", m->reward_unit, path));
+    SL_TRY(sl_h5_attr_write_str(ctx, f, "period_unit", m->period_unit, path));
+    for (int i = 0; i < m->n_factors; i++) {
+        int64_t n = m->factor_size[i], c = root ? n : 0;
+        if (m->factor_value[i]) {
+            snprintf(name, sizeof(name), "/factor/%s/value", m->factor_name[i]);
+            SL_TRY(sl_h5_write_1d(ctx, f, name, H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n, 0, c, m->factor_value[i], 1,
+                                  path));
+            SL_TRY(write_unit(ctx, f, name, m->factor_unit[i], path));
+        }
+        if (m->factor_label[i]) {
+            snprintf(name, sizeof(name), "/factor/%s/label", m->factor_name[i]);
+            SL_TRY(sl_h5_write_1d(ctx, f, name, str, str, n, 0, c, m->factor_label[i], 1, path));
+        }
+    }
+    if (m->n_action_names > 0)
+        SL_TRY(sl_h5_write_1d(ctx, f, "/action/name", str, str, m->n_action_names, 0, root ? m->n_action_names : 0,
+                              m->action_name, 1, path));
+    if (m->n_action_values > 0) {
+        SL_TRY(sl_h5_write_1d(ctx, f, "/action/value", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, m->n_action_values, 0,
+                              root ? m->n_action_values : 0, m->action_value, 1, path));
+        SL_TRY(write_unit(ctx, f, "/action/value", m->action_unit, path));
+    }
+    if (m->n_quantities > 0) {
+        if (b->nq != m->n_quantities || (np > 0 && (b->qmean == NULL || b->qpos == NULL)))
+            SL_FAIL(SL_EINTERNAL, "%s: %d quantities declared but the rows hold %d", path, m->n_quantities, b->nq);
+        SL_TRY(sl_h5_write_1d(ctx, f, "/labels/quantity_name", str, str, m->n_quantities, 0,
+                              root ? m->n_quantities : 0, m->quantity_name, 0, path));
+        if (SL_ALLOC(ctx, buf, np, "quantity buffer") == NULL) st = SL_ENOMEM;
+        SL_TRY(sl_agree(ctx, st));
+        for (int q = 0; q < m->n_quantities; q++) {
+            for (int part = 0; part < 2; part++) {
+                const double *src = part == 0 ? b->qmean : b->qpos;
+                for (int64_t k = 0; k < np; k++) buf[k] = src[k * b->nq + q];
+                snprintf(name, sizeof(name), "/quantity/%s/%s", m->quantity_name[q], part == 0 ? "mean" : "p_positive");
+                SL_TRY(sl_h5_write_1d(ctx, f, name, H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, m->n_pairs, b->p_begin, np,
+                                      buf, 1, path));
+                SL_TRY(write_unit(ctx, f, name, part == 0 ? m->quantity_unit[q] : "1", path));
+            }
+        }
+    }
+cleanup:
+    free(buf);
+    H5Tclose(str);
+    return st;
+}
+
 sl_status sl_store_model_write(sl_ctx *ctx, const char *path, const sl_meta *m,
                                const sl_block *b)
 {
@@ -101,7 +170,7 @@ sl_status sl_store_model_write(sl_ctx *ctx, const char *path, const sl_meta *m,
 
     const char *p = path;
     st = sl_h5_attr_write_str(ctx, f, "sluice_format", "model", p);
-    if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "format_version", SLUICE_FORMAT_VERSION, p);
+    if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "format_version", m->format_version >= 2 ? 2 : 1, p);
     if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "n_states", m->n_states, p);
     if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "n_pairs", m->n_pairs, p);
     if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "n_transitions", m->n_trans, p);
@@ -132,6 +201,7 @@ sl_status sl_store_model_write(sl_ctx *ctx, const char *path, const sl_meta *m,
     SL_TRY(sl_h5_write_1d(ctx, f, "/transition/probability", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE,
                           m->n_trans, b->t_begin, nt, b->prob, 1, p));
     SL_TRY(write_labels(ctx, f, m, p));
+    if (m->format_version >= 2) SL_TRY(write_annotations(ctx, f, m, b, p));
     st = sl_h5_close(ctx, &f, p);
 cleanup:
     if (f >= 0) H5Fclose(f);
@@ -203,6 +273,78 @@ cleanup:
     return st;
 }
 
+/* Read the string attribute `unit` of dataset `name` (empty if absent). Local. */
+static sl_status read_unit(sl_ctx *ctx, hid_t f, const char *name, char *unit, const char *path)
+{
+    unit[0] = '\0';
+    hid_t d = H5Dopen2(f, name, H5P_DEFAULT);
+    if (d < 0) return SL_ERR(ctx, SL_EDATA, "%s: cannot open %s", path, name);
+    sl_status st = sl_h5_attr_read_str(ctx, d, "unit", unit, SL_NAME_MAX, 0, path);
+    H5Dclose(d);
+    return st;
+}
+
+/* Format 2 annotations into the meta (every rank reads them). Local. */
+static sl_status read_annotations(sl_ctx *ctx, hid_t f, sl_meta *m, const char *path)
+{
+    sl_status st = SL_OK;
+    char name[3 * SL_NAME_MAX];
+    hid_t str = sl_h5_str_type(SL_NAME_MAX);
+    if (str < 0) return SL_ERR(ctx, SL_EINTERNAL, "string type");
+    SL_TRY(sl_h5_attr_read_str(ctx, f, "reward_unit", m->reward_unit, SL_NAME_MAX, 0, path));
+    SL_TRY(sl_h5_attr_read_str(ctx, f, "period_unit", m->period_unit, SL_NAME_MAX, 0, path));
+    for (int i = 0; i < m->n_factors; i++) {
+        int64_t n = m->factor_size[i];
+        snprintf(name, sizeof(name), "/factor/%s/value", m->factor_name[i]);
+        if (sl_h5_exists(f, name)) {
+            if (n > INT32_MAX) SL_FAIL(SL_EDATA, "%s: factor %s is too large for values", path, m->factor_name[i]);
+            if (SL_ALLOC(ctx, m->factor_value[i], n, "factor values") == NULL) SL_FAIL(SL_ENOMEM, "factor values");
+            SL_TRY(sl_h5_read_1d(ctx, f, name, H5T_NATIVE_DOUBLE, n, 0, n, m->factor_value[i], path));
+            SL_TRY(read_unit(ctx, f, name, m->factor_unit[i], path));
+            for (int64_t k = 0; k < n; k++)
+                if (!isfinite(m->factor_value[i][k]))
+                    SL_FAIL(SL_EDATA, "%s: %s[%lld] is not finite", path, name, (long long)k);
+        }
+        snprintf(name, sizeof(name), "/factor/%s/label", m->factor_name[i]);
+        if (sl_h5_exists(f, name)) {
+            if (n > INT32_MAX / SL_NAME_MAX)
+                SL_FAIL(SL_EDATA, "%s: factor %s is too large for labels", path, m->factor_name[i]);
+            if (SL_ZALLOC(ctx, m->factor_label[i], n, "factor labels") == NULL) SL_FAIL(SL_ENOMEM, "factor labels");
+            SL_TRY(sl_h5_read_1d(ctx, f, name, str, n, 0, n, m->factor_label[i], path));
+            for (int64_t k = 0; k < n; k++) m->factor_label[i][k][SL_NAME_MAX - 1] = '\0';
+        }
+    }
+    int64_t na = sl_h5_length(f, "/action/value");
+    if (na > 0) {
+        if (na > INT32_MAX) SL_FAIL(SL_EDATA, "%s: too many action values", path);
+        if (SL_ALLOC(ctx, m->action_value, na, "action values") == NULL) SL_FAIL(SL_ENOMEM, "action values");
+        m->n_action_values = (int32_t)na;
+        SL_TRY(sl_h5_read_1d(ctx, f, "/action/value", H5T_NATIVE_DOUBLE, na, 0, na, m->action_value, path));
+        SL_TRY(read_unit(ctx, f, "/action/value", m->action_unit, path));
+    }
+    int64_t nq = sl_h5_length(f, "/labels/quantity_name");
+    if (nq > 0) {
+        if (nq > SLUICE_MAX_QUANTITIES) SL_FAIL(SL_EDATA, "%s: %lld quantities (at most %d)", path, (long long)nq,
+                                                SLUICE_MAX_QUANTITIES);
+        m->n_quantities = (int)nq;
+        SL_TRY(sl_h5_read_1d(ctx, f, "/labels/quantity_name", str, nq, 0, nq, m->quantity_name, path));
+        for (int q = 0; q < m->n_quantities; q++) {
+            m->quantity_name[q][SL_NAME_MAX - 1] = '\0';
+            for (int part = 0; part < 2; part++) {
+                snprintf(name, sizeof(name), "/quantity/%s/%s", m->quantity_name[q], part ? "p_positive" : "mean");
+                if (sl_h5_length(f, name) != m->n_pairs)
+                    SL_FAIL(SL_EDATA, "%s: quantity %s: dataset %s is missing or does not hold n_pairs entries",
+                            path, m->quantity_name[q], name);
+            }
+            snprintf(name, sizeof(name), "/quantity/%s/mean", m->quantity_name[q]);
+            SL_TRY(read_unit(ctx, f, name, m->quantity_unit[q], path));
+        }
+    }
+cleanup:
+    H5Tclose(str);
+    return st;
+}
+
 static sl_status read_meta_open(sl_ctx *ctx, hid_t f, const char *path, sl_meta *m)
 {
     sl_file_kind kind;
@@ -214,10 +356,10 @@ static sl_status read_meta_open(sl_ctx *ctx, hid_t f, const char *path, sl_meta 
     if (kind != SL_FILE_MODEL)
         return SL_ERR(ctx, SL_EDATA, "%s: is a %s file, not a model file", path, kind_name(kind));
     SL_TRY(sl_h5_attr_read_i64(ctx, f, "format_version", &ver, 1, path));
-    if (ver > SLUICE_FORMAT_VERSION || ver < 1)
-        SL_FAIL(SL_EDATA, "%s: format_version %lld is not supported (this sluice reads version %d%s)",
-                path, (long long)ver, SLUICE_FORMAT_VERSION,
-                ver > SLUICE_FORMAT_VERSION ? "; the file was written by a newer sluice" : "");
+    if (ver > SL_MODEL_FORMAT_MAX || ver < 1)
+        SL_FAIL(SL_EDATA, "%s: format_version %lld is not supported (this sluice reads versions 1 to %d%s)",
+                path, (long long)ver, SL_MODEL_FORMAT_MAX,
+                ver > SL_MODEL_FORMAT_MAX ? "; the file was written by a newer sluice" : "");
     m->format_version = (int)ver;
     SL_TRY(sl_h5_attr_read_i64(ctx, f, "n_states", &m->n_states, 1, path));
     SL_TRY(sl_h5_attr_read_i64(ctx, f, "n_pairs", &m->n_pairs, 1, path));
@@ -242,6 +384,7 @@ static sl_status read_meta_open(sl_ctx *ctx, hid_t f, const char *path, sl_meta 
     if (!(m->discount >= 0.0 && m->discount <= 1.0))
         SL_FAIL(SL_EDATA, "%s: discount %g is not in [0, 1]", path, m->discount);
     SL_TRY(read_labels(ctx, f, m, path));
+    if (m->format_version >= 2) SL_TRY(read_annotations(ctx, f, m, path));
 cleanup:
     if (st != SL_OK) sl_meta_free(m);
     return st;
@@ -307,6 +450,9 @@ cleanup:
     return st;
 }
 
+static sl_status quantity_read(sl_ctx *ctx, hid_t f, const sl_meta *m, int q, int64_t p_begin, int64_t n,
+                               double *mean, double *pos, const char *path);
+
 sl_status sl_store_model_read(sl_ctx *ctx, const char *path, const sl_meta *m, int64_t s_begin,
                               int64_t s_end, sl_block *b)
 {
@@ -370,10 +516,54 @@ sl_status sl_store_model_read(sl_ctx *ctx, const char *path, const sl_meta *m, i
         st = sl_h5_read_1d(ctx, f, "/transition/probability", H5T_NATIVE_DOUBLE, m->n_trans, b->t_begin, nt,
                            b->prob, path);
     if (st == SL_OK) st = sl_block_validate(ctx, b, m, 1e-6, path);
+    /* quantities are hashed for the fingerprint, not kept */
+    for (int q = 0; st == SL_OK && q < m->n_quantities; q++) {
+        const int64_t CH = SL_H5_CHUNK;
+        double *mean = NULL, *pos = NULL;
+        if (SL_ALLOC(ctx, mean, CH, "quantities") == NULL || SL_ALLOC(ctx, pos, CH, "quantities") == NULL)
+            st = SL_ENOMEM;
+        for (int64_t a = b->p_begin; st == SL_OK && a < b->p_end; a += CH) {
+            int64_t c = b->p_end - a < CH ? b->p_end - a : CH;
+            st = quantity_read(ctx, f, m, q, a, c, mean, pos, path);
+            if (st == SL_OK) sl_fingerprint_quantity(b->qacc, q, a, c, mean, pos, 1);
+        }
+        free(mean);
+        free(pos);
+    }
     st = sl_agree(ctx, st);
 cleanup:
     if (f >= 0) H5Fclose(f);
     free(t32);
     if (st != SL_OK) sl_block_free(b);
+    return st;
+}
+
+sl_status sl_store_quantity_read(sl_ctx *ctx, const char *path, const sl_meta *m, int q, int64_t p_begin,
+                                 int64_t n, double *mean, double *pos)
+{
+    hid_t f;
+    sl_status st = sl_h5_open(ctx, path, 0, &f);
+    if (st != SL_OK) return st;
+    st = quantity_read(ctx, f, m, q, p_begin, n, mean, pos, path);
+    st = sl_agree(ctx, st);
+    H5Fclose(f);
+    return st;
+}
+
+static sl_status quantity_read(sl_ctx *ctx, hid_t f, const sl_meta *m, int q, int64_t p_begin, int64_t n,
+                               double *mean, double *pos, const char *path)
+{
+    char name[3 * SL_NAME_MAX];
+    sl_status st = SL_OK;
+    if (q < 0 || q >= m->n_quantities) return SL_ERR(ctx, SL_EINTERNAL, "quantity %d out of range", q);
+    for (int part = 0; part < 2 && st == SL_OK; part++) {
+        double *dst = part ? pos : mean;
+        snprintf(name, sizeof(name), "/quantity/%s/%s", m->quantity_name[q], part ? "p_positive" : "mean");
+        st = sl_h5_read_1d(ctx, f, name, H5T_NATIVE_DOUBLE, m->n_pairs, p_begin, n, dst, path);
+        for (int64_t k = 0; st == SL_OK && k < n; k++)
+            if (!isfinite(dst[k]) || (part && !(dst[k] >= 0.0 && dst[k] <= 1.0)))
+                st = SL_ERR(ctx, SL_EDATA, "%s: %s[%lld] = %g is %s", path, name, (long long)(p_begin + k), dst[k],
+                            part ? "not a probability" : "not finite");
+    }
     return st;
 }

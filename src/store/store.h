@@ -33,6 +33,12 @@ sl_status sl_store_model_meta(sl_ctx *ctx, const char *path, sl_meta *meta);
 sl_status sl_store_model_read(sl_ctx *ctx, const char *path, const sl_meta *meta,
                               int64_t s_begin, int64_t s_end, sl_block *block);
 
+/* Read quantity q of pairs [p_begin, p_begin + n) (each rank its own
+ * range, possibly empty): expected value and probability of being
+ * positive, checked (finite; a probability). Collective (opens the file). */
+sl_status sl_store_quantity_read(sl_ctx *ctx, const char *path, const sl_meta *m, int q, int64_t p_begin,
+                                 int64_t n, double *mean, double *pos);
+
 /* Read first_pair[s_begin .. s_end] and the first_transition entries at
  * those pairs: cum[i] = first_transition[first_pair[s_begin + i]], i in
  * [0, s_end - s_begin]. Used to partition by transitions. Collective. */

@@ -95,6 +95,41 @@ def fingerprint(f):
     m = lambda v: int(mix(np.uint64(v & M64)))
     head = (m(int(a["n_states"])) ^ m(int(a["n_pairs"]) * 3) ^ m(int(a["n_transitions"]) * 7)
             ^ m(int(dbits([float(a["discount"])])[0])) ^ m(obj + 11))
+    if int(a["format_version"]) >= 2:
+        # format 2 (docs/formats.md): quantity entries (tags 7+2q, 8+2q) and the
+        # annotations hashed in sequence into the header
+        qn = [text(x) for x in f["labels/quantity_name"][...]] if "labels/quantity_name" in f else []
+        for q, name in enumerate(qn):
+            entries(7 + 2 * q, dbits(f["quantity/%s/mean" % name][...]))
+            entries(8 + 2 * q, dbits(f["quantity/%s/p_positive" % name][...]))
+        def hs(h, s):
+            for ch in s.encode():
+                h = m(h ^ ch)
+            return m(h ^ 0xFF)
+        def unit_of(path):
+            return text(f[path].attrs.get("unit", b"")) if path in f else ""
+        h = 0x243f6a8885a308d3
+        for name in [text(x) for x in f["labels/factor_name"][...]]:
+            vp, lp = "factor/%s/value" % name, "factor/%s/label" % name
+            h = hs(h, unit_of(vp))
+            if vp in f:
+                for v in dbits(f[vp][...]):
+                    h = m(h ^ int(v))
+            h = m(h ^ (1 if vp in f else 2))
+            if lp in f:
+                for lab in f[lp][...]:
+                    h = hs(h, text(lab))
+            h = m(h ^ (3 if lp in f else 4))
+        if "action/value" in f:
+            for v in dbits(f["action/value"][...]):
+                h = m(h ^ int(v))
+        h = hs(h, unit_of("action/value"))
+        h = hs(h, text(a.get("reward_unit", b"")))
+        h = hs(h, text(a.get("period_unit", b"")))
+        for name in qn:
+            h = hs(h, name)
+            h = hs(h, unit_of("quantity/%s/mean" % name))
+        head ^= m((m(h ^ len(qn)) + 13) & M64)
     return "%016x%016x" % (m(acc[0] ^ head), m((acc[1] + head) & M64))
 
 def flip_chunk(path, dset, chunk):
@@ -123,8 +158,8 @@ def make(kind, src, dst, refp):
     with h5py.File(dst, "r+") as f:
         if kind == "no_format":
             del f.attrs["sluice_format"]
-        elif kind == "version2":
-            f.attrs.modify("format_version", np.int64(2))
+        elif kind == "version3":
+            f.attrs.modify("format_version", np.int64(3))
         elif kind == "n_states":
             f.attrs.modify("n_states", np.int64(int(f.attrs["n_states"]) + 1))
         elif kind == "first_pair":  # state 10 ends before it begins
@@ -165,7 +200,7 @@ expect "model: the good model's info" --code 0 --out "4320" -- "$SLUICE" info "$
 expect "model: the good model solves" --code 0 -- "$SLUICE" solve -q "$G" -o "$W/good_sol.h5"
 expect "model: the good solution verifies" --code 0 -- "$SLUICE" verify -q "$G" "$W/good_sol.h5"
 specs=()
-for k in no_format version2 n_states flip_reward flip_prob reward first_pair target; do
+for k in no_format version3 n_states flip_reward flip_prob reward first_pair target; do
     specs+=("$k:$W/$k.h5")
 done
 specs+=("first_pair:$W/first_pairrefp.h5:refp" "target:$W/targetrefp.h5:refp" "foreign:$W/foreign.h5")
@@ -193,7 +228,7 @@ echo "this is plain text, not HDF5" >"$W/text.h5"
 both "non-HDF5 file" "$W/text.h5" 65 65 "not an HDF5 file"
 both "HDF5 file that is not a sluice model" "$W/foreign.h5" 65 65 "sluice_format"
 both "sluice model with /sluice_format removed" "$W/no_format.h5" 65 65 "sluice_format"
-both "format_version 2" "$W/version2.h5" 65 65 "format_version 2" "newer"
+both "format_version 3" "$W/version3.h5" 65 65 "format_version 3" "newer"
 cp "$G" "$W/half.h5" && truncate -s $(($(stat -c %s "$G") / 2)) "$W/half.h5"
 both "truncated to half" "$W/half.h5" "65|74" "65|74" "truncated"
 both "/n_states attribute inconsistent with the datasets" "$W/n_states.h5" 65 65 "n_states"

@@ -9,7 +9,7 @@ usage: crossread_model.py MODEL.h5 [--param NAME=VALUE ...]
 The file is read with h5py only (no sluice code). Two kinds of checks:
 
 1. The model-file contract of docs (DESIGN: "Model file"): attributes
-   sluice_format == "model", format_version == 1, fingerprint, n_states,
+   sluice_format == "model", format_version 1 or 2, fingerprint, n_states,
    n_pairs, n_transitions, discount; dataset dtypes and sizes; pointer
    arrays that start at 0, end at the counts and never decrease; at least one
    pair per state and one transition per pair; action ids ascending and
@@ -24,6 +24,10 @@ The file is read with h5py only (no sluice code). Two kinds of checks:
    within a relative 1e-12, because the file's reward is a sum over
    successors whose summation order (and any fused multiply-add) the file
    contract leaves to the builder. The discount must be identical.
+3. Format 2 (docs/formats.md): units, factor values and labels and action
+   values identical to the twin's; every outcome quantity's per-pair mean
+   within the reward's relative 1e-12 and its probability of being
+   positive within 1e-12.
 
 Exit 0 when everything matches; 1 with a message naming the first
 differing state (and action) otherwise; 2 on a usage error.
@@ -125,8 +129,9 @@ def read_model(path):
         if fmt != "model":
             raise Mismatch("attribute /sluice_format is %r, expected \"model\""
                            % f.attrs.get("sluice_format"))
-        if _attr_int(f, "format_version") != 1:
-            raise Mismatch("attribute /format_version is not 1")
+        m["format_version"] = _attr_int(f, "format_version")
+        if m["format_version"] not in (1, 2):
+            raise Mismatch("attribute /format_version is %d, not 1 or 2" % m["format_version"])
         if _attr_str(f.attrs.get("fingerprint")) is None:
             raise Mismatch("attribute /fingerprint is missing or not a string")
         for k in ("n_states", "n_pairs", "n_transitions"):
@@ -162,8 +167,97 @@ def read_model(path):
             if ds.shape[0] != size:
                 raise Mismatch("/%s has %d entries, expected %d" % (dpath, ds.shape[0], size))
             m[key] = ds[...]
+        if m["format_version"] >= 2:
+            read_annotations(f, m)
     m["target"] = m["target"].astype(np.int64)  # uint32 fits; uint64 above 2^63 cannot be a state
     return m
+
+
+def _f64(f, dpath, size):
+    if dpath not in f:
+        raise Mismatch("dataset /%s is missing" % dpath)
+    ds = f[dpath]
+    if not isinstance(ds, h5py.Dataset) or ds.ndim != 1 or ds.dtype != np.float64 or ds.shape[0] != size:
+        raise Mismatch("/%s must be float64[%d]" % (dpath, size))
+    x = ds[...]
+    if not np.all(np.isfinite(x)):
+        raise Mismatch("/%s holds a value that is not finite" % dpath)
+    return x, _attr_str(ds.attrs.get("unit"))
+
+
+def read_annotations(f, m):
+    """Format 2 (docs/formats.md): factor values and labels, action values,
+    units and the per-pair outcome quantities."""
+    m["reward_unit"] = _attr_str(f.attrs.get("reward_unit"))
+    m["period_unit"] = _attr_str(f.attrs.get("period_unit"))
+    names = [_attr_str(x) for x in f["labels/factor_name"][...]] if "labels/factor_name" in f else []
+    sizes = f["labels/factor_size"][...] if names else []
+    m["factor_values"], m["factor_labels"] = {}, {}
+    for name, size in zip(names, sizes):
+        if "factor/%s/value" % name in f:
+            m["factor_values"][name] = _f64(f, "factor/%s/value" % name, int(size))
+        if "factor/%s/label" % name in f:
+            lab = [_attr_str(x) for x in f["factor/%s/label" % name][...]]
+            if len(lab) != size:
+                raise Mismatch("/factor/%s/label has %d entries, the factor %d" % (name, len(lab), size))
+            m["factor_labels"][name] = lab
+    if "action/value" in f:
+        n = f["action/value"].shape[0]
+        m["action_values"] = _f64(f, "action/value", n)
+    m["quantities"], m["quantity_units"] = {}, {}
+    qn = [_attr_str(x) for x in f["labels/quantity_name"][...]] if "labels/quantity_name" in f else []
+    m["quantity_order"] = qn
+    for q in qn:
+        mean, unit = _f64(f, "quantity/%s/mean" % q, m["n_pairs"])
+        pos, _ = _f64(f, "quantity/%s/p_positive" % q, m["n_pairs"])
+        if np.any((pos < 0) | (pos > 1)):
+            raise Mismatch("/quantity/%s/p_positive holds a value outside [0, 1]" % q)
+        m["quantities"][q] = (mean, pos)
+        m["quantity_units"][q] = unit
+
+
+def compare_annotations(m, twin, gen, params):
+    """The format 2 content against the twin: units, labels, values exactly;
+    quantity means within REWARD_RTOL (a sum over successors like the
+    reward), probabilities of being positive within 1e-12."""
+    if "quantities" not in twin:
+        return
+    if m.get("format_version", 1) < 2:
+        raise Mismatch("format_version 1, but the %s generator reports units and quantities" % gen)
+    for key in ("reward_unit", "period_unit"):
+        if m[key] != twin[key]:
+            raise Mismatch("%s is %r, the twin has %r" % (key, m[key], twin[key]))
+    for name, (vals, unit) in twin["factor_values"].items():
+        if name not in m["factor_values"]:
+            raise Mismatch("/factor/%s/value is missing" % name)
+        fv, fu = m["factor_values"][name]
+        if fu != unit or not np.array_equal(fv, vals):
+            raise Mismatch("/factor/%s/value (unit %r) differs from the twin (unit %r)" % (name, fu, unit))
+    for name, lab in twin["factor_labels"].items():
+        if m["factor_labels"].get(name) != lab:
+            raise Mismatch("/factor/%s/label is %r, the twin has %r" % (name, m["factor_labels"].get(name), lab))
+    av, au = m.get("action_values", (None, None))
+    if av is None or au != twin["action_values"][1] or not np.array_equal(av, twin["action_values"][0]):
+        raise Mismatch("/action/value or its unit differs from the twin")
+    if m["quantity_order"] != list(twin["quantity_units"]):
+        raise Mismatch("quantities %s, the twin has %s" % (m["quantity_order"], list(twin["quantity_units"])))
+    fp = m["first_pair"]
+    for q, (tmean, tpos) in twin["quantities"].items():
+        if m["quantity_units"][q] != twin["quantity_units"][q]:
+            raise Mismatch("quantity %s: unit %r, the twin has %r" % (q, m["quantity_units"][q],
+                                                                      twin["quantity_units"][q]))
+        mean, pos = m["quantities"][q]
+        scale = np.maximum(np.abs(mean), np.abs(tmean))
+        bad = np.nonzero(np.abs(mean - tmean) > REWARD_RTOL * scale)[0]
+        if bad.size:
+            k = int(bad[0])
+            raise Mismatch("%s action %d: quantity %s mean %.17g, the twin has %.17g"
+                           % (_describe(gen, params, _pair_state(fp, k)), m["action"][k], q, mean[k], tmean[k]))
+        bad = np.nonzero(np.abs(pos - tpos) > 1e-12)[0]
+        if bad.size:
+            k = int(bad[0])
+            raise Mismatch("%s action %d: quantity %s p_positive %.17g, the twin has %.17g"
+                           % (_describe(gen, params, _pair_state(fp, k)), m["action"][k], q, pos[k], tpos[k]))
 
 
 def _pair_state(first_pair, k):
@@ -322,6 +416,7 @@ def main(argv=None):
         check_contract(m, args.sum_tolerance)
         twin = TWINS[args.generator](params)
         compare(m, twin, args.generator, params)
+        compare_annotations(m, twin, args.generator, params)
     except Mismatch as e:
         sys.stderr.write("crossread_model.py: %s: MISMATCH: %s\n" % (args.model, e))
         return 1

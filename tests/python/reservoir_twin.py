@@ -60,6 +60,12 @@ DEFAULTS = {
 
 INTEGER_PARAMS = ("storage_levels", "inflow_classes", "release_levels", "inflow_band")
 
+MONTH_LABELS = ["Jan", "Feb", "Mar", "Apr", "May", "Jun", "Jul", "Aug", "Sep", "Oct", "Nov", "Dec"]
+
+# outcome quantities in the order and with the units of docs/reservoir.md
+QUANTITIES = [("energy", "MWh"), ("revenue", "kCU"), ("release", "hm3"), ("spill", "hm3"),
+              ("shortfall", "hm3"), ("inflow", "hm3"), ("evaporation", "hm3"), ("rounding", "hm3")]
+
 
 def season(m, peak):
     return math.cos(TAU * (m - peak) / 12)
@@ -200,6 +206,7 @@ def build_csr(params=None):
     t = Tables(params)
     p = t.p
     L, J, N, w = t.L, t.J, t.N, t.w
+    cv3 = math.sqrt(3.0) * p["inflow_cv"]
     ns = t.n_states
     K = t.K
     s = np.arange(ns, dtype=np.int64)
@@ -245,6 +252,9 @@ def build_csr(params=None):
     excess = np.where(flow > p["channel_capacity"], flow - p["channel_capacity"], 0.0)
     r = pr[pm] * energy / 1000 - p["shortfall_penalty"] * shortfall \
         - p["flood_penalty"] * excess
+    qval = {"energy": energy, "revenue": pr[pm] * energy / 1000, "release": R,
+            "spill": spill, "shortfall": shortfall, "inflow": Qtab[pm, pj], "evaporation": E[ps],
+            "rounding": S[i_next] - S_end}
     del x, spill, Sbar, head, energy, flow, shortfall, excess
 
     probs = p_tab[pm, pj]                            # (n_pairs, w), zero padded
@@ -252,6 +262,17 @@ def build_csr(params=None):
     reward = np.zeros(len(ps))
     for k in range(w):                               # padding adds 0 * r = 0
         reward += probs[:, k] * r
+    # per pair: expected value of each quantity and the probability that it
+    # is positive, summed over the successors in emission order
+    quantities = {}
+    for name, _ in QUANTITIES:
+        q = qval[name]
+        mean = np.zeros(len(ps))
+        pos = np.zeros(len(ps))
+        for k in range(w):
+            mean += probs[:, k] * q
+            pos += np.where(q > 0, probs[:, k], 0.0)
+        quantities[name] = (mean, np.minimum(pos, 1.0))
     m_next = (pm + 1) % MONTHS
     base = i_next + L * (lo_tab[pm, pj] + J * m_next)
     keep = np.arange(w, dtype=np.int64)[None, :] < cnt[:, None]
@@ -269,6 +290,16 @@ def build_csr(params=None):
         "first_transition": first_transition,
         "target": target,
         "probability": probability,
+        # format 2 annotations (docs/reservoir.md, "Values, units and labels")
+        "quantities": quantities,
+        "quantity_units": dict(QUANTITIES),
+        "factor_values": {"storage": (S, "hm3"),
+                          "inflow": (np.array([p["mean_inflow"] * (1 + cv3 * (2 * jj / (J - 1) - 1 if J > 1 else 0.0))
+                                               for jj in range(J)]), "hm3/month")},
+        "factor_labels": {"month": MONTH_LABELS},
+        "action_values": (Rv, "hm3/month"),
+        "reward_unit": "kCU",
+        "period_unit": "month",
     }
 
 

@@ -144,6 +144,7 @@ def check_case(chk, binary, work, case_no, name, params, tol, methods, fingerpri
         m = cm.read_model(model)
         cm.check_contract(m, 1e-12)
         cm.compare(m, twin, name, params)
+        cm.compare_annotations(m, twin, name, params)
         chk.check(True, "%s: model file matches the twin" % label)
     except cm.Mismatch as e:
         chk.fail("%s: model file matches the twin" % label, str(e))

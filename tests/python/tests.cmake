@@ -25,6 +25,14 @@ else()
     set_tests_properties(py_${_t} PROPERTIES LABELS python TIMEOUT 300)
   endforeach()
 
+  # Tables, outlooks and totals of issue 9 (each runs 1, 2 and 3 ranks itself)
+  foreach(_t table outlook totals)
+    add_test(NAME py_${_t}
+      COMMAND ${SLUICE_TEST_PYTHON} ${_sluice_py_dir}/test_${_t}.py
+              $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/py_${_t})
+    set_tests_properties(py_${_t} PROPERTIES LABELS "python;mpi" TIMEOUT 600
+      ENVIRONMENT "SLUICE_CACHE=${PROJECT_BINARY_DIR}/test-cache;OMPI_ALLOW_RUN_AS_ROOT=1;OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1")
+  endforeach()
   # finite / total / average objectives (docs/objectives.md); the rank and
   # resume comparisons launch mpiexec themselves
   add_test(NAME py_objectives

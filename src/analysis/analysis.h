@@ -1,0 +1,57 @@
+/* analysis.h - what tables, outlooks and totals share: a solution's policy
+ * on this rank's slice of states with the model's per-pair numbers, and
+ * factor labels / NAME=VALUE lookups. Internal. */
+#ifndef SL_ANALYSIS_H
+#define SL_ANALYSIS_H
+
+#include "store/store.h"
+
+/* A policy view: states [s_begin, s_end) of this rank (an even split by
+ * states, bounds[r] = n*r/P), with the solution's value and action and the
+ * model's numbers for the chosen pair (s, pi(s)). */
+typedef struct sl_pview {
+    sl_meta meta;
+    int64_t s_begin, s_end, n_local;
+    double *value;          /* [n_local] */
+    int32_t *action;        /* [n_local] action id chosen by the policy */
+    double *reward;         /* [n_local] r(s, pi(s)) */
+    int nq;                 /* quantities loaded (0 unless asked) */
+    double *qmean, *qpos;   /* [n_local * nq], state-major */
+    /* policy rows, if asked: successors of (s, pi(s)) */
+    int64_t *first_trans;   /* [n_local + 1], from 0 */
+    int64_t *target;        /* global next states */
+    double *prob;
+} sl_pview;
+
+/* Load the view. Checks that the solution belongs to the model
+ * (fingerprint) and that every policy action is a pair of the model.
+ * want_quantities: also the quantities' mean and p_positive at the chosen
+ * pairs; want_rows: also the policy rows (transitions). Collective. */
+sl_status sl_pview_load(sl_ctx *ctx, const char *model, const char *solution, int want_quantities, int want_rows,
+                        sl_pview *pv);
+void sl_pview_free(sl_pview *pv);
+
+/* Collect, on every rank, value / action / quantity means of the listed
+ * global states (each owned by exactly one rank). Outputs may be NULL;
+ * qmean is [n * nq]. Collective. */
+sl_status sl_pview_gather(sl_ctx *ctx, const sl_pview *pv, int64_t n, const int64_t *states, double *value,
+                          int32_t *action, double *qmean);
+
+/* Label of index i of factor f: its label, else its value ("%.6g"), else
+ * the index. Local. */
+void sl_factor_label(const sl_meta *m, int f, int64_t i, char *buf, size_t n);
+
+/* Parse "NAME=VALUE" (a label, or a numeric value as printed, or for a
+ * factor with neither the index) or "NAME@INDEX" into a factor and an
+ * index. `what` names the option for messages. Local; records the error. */
+sl_status sl_factor_parse(sl_ctx *ctx, const sl_meta *m, const char *text, const char *what, int *factor,
+                          int64_t *index);
+
+/* Parse a state: a number, or every factor as NAME=VALUE / NAME@INDEX
+ * separated by commas. Local; records the error. */
+sl_status sl_state_parse(sl_ctx *ctx, const sl_meta *m, const char *text, const char *what, int64_t *state);
+
+/* Stride of factor f in the state number (product of the earlier sizes). */
+int64_t sl_factor_stride(const sl_meta *m, int f);
+
+#endif /* SL_ANALYSIS_H */
