@@ -6,7 +6,6 @@
 
 #include "core/json.h"
 #include "sluice/report.h"
-#include "store/h5.h"
 #include "store/store.h"
 
 static const char caution_text[] =
@@ -22,8 +21,7 @@ typedef struct report_in {
     const sl_meta *m;           /* mh's metadata */
     sl_solution_info info;
     sl_certificate cert;
-    sl_history_view hist;       /* owned by xh, or a view of own_hist */
-    sl_history own_hist;        /* read from the file when the handle has none */
+    sl_history_view hist;       /* owned by xh */
     double *value;              /* [n_states] on rank 0 */
     int32_t *action;            /* [n_states] on rank 0: the policy's action ids */
     int64_t *avail;             /* states where each action id is available (all ranks) */
@@ -36,32 +34,9 @@ static void report_in_free(report_in *r)
     free(r->value);
     free(r->action);
     free(r->avail);
-    sl_history_free(&r->own_hist);
     sl_solution_free(&r->xh);
     sl_model_free(&r->mh);
     memset(r, 0, sizeof(*r));
-}
-
-/* The residual history straight from the solution file (a loaded solution
- * handle does not carry it). Absent in old files: n = 0. Collective. */
-static sl_status read_history(sl_ctx *ctx, const char *path, report_in *r)
-{
-    sl_status st = SL_OK;
-    hid_t f = H5I_INVALID_HID;
-    sl_history *h = &r->own_hist;
-    SL_TRY(sl_h5_open(ctx, path, 0, &f));
-    int64_t n = sl_h5_length(f, "/history/sweeps");
-    for (int64_t i = 0; i < n && st == SL_OK; i++) st = sl_history_push(ctx, h, 0, 0, 0, 0, 0, 0, 0);
-    SL_TRY(sl_agree(ctx, st));
-    sl_history_column col[SL_HISTORY_COLUMNS];
-    sl_history_columns(h, col);
-    for (int k = 0; k < SL_HISTORY_COLUMNS && n > 0; k++)
-        SL_TRY(sl_agree(ctx, sl_h5_read_1d(ctx, f, col[k].name, col[k].mtype, n, 0, n, col[k].data, path)));
-    r->hist = (sl_history_view){h->n, h->iteration, h->sweeps, h->seconds, h->sup, h->span, h->value_error,
-                                h->policy_loss};
-cleanup:
-    if (f >= 0) H5Fclose(f);
-    return st;
 }
 
 /* Model and solution as handles (the solution must belong to the model and
@@ -77,7 +52,6 @@ static sl_status load(sl_ctx *ctx, const sl_report_data_opts *o, report_in *r)
     SL_TRY(sl_solution_get_info(r->xh, &r->info));
     SL_TRY(sl_solution_get_certificate(r->xh, &r->cert));
     SL_TRY(sl_solution_get_history(r->xh, &r->hist));
-    if (r->hist.n == 0) SL_TRY(read_history(ctx, o->solution, r));
     if (!r->info.has_policy)
         SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EDATA, "%s holds values only (from evaluate), no policy to report on",
                                     o->solution)));

@@ -366,6 +366,23 @@ def main():
     else:
         chk.note("no mpiexec: the 2-rank comparison was not run")
 
+    # ---- a solve stopped early: the page must say NOT certified ----------------
+    early = os.path.join(work, "tamsel-early.h5")
+    mc.run_sluice(binary, ["solve", model, "-o", early, "--tolerance", "1e-6", "--max-iterations", "3"],
+                  expect=(mc.EXIT_STOPPED,))
+    ehtml = os.path.join(work, "tamsel-early.html")
+    cp = run([binary, "report", model, early, "-o", ehtml], env=env)
+    chk.check(cp.returncode == 0, "early: a report of an uncertified solution is still written", cp.stderr[-800:])
+    if cp.returncode == 0:
+        epage = open_page(rdir, ehtml)
+        with h5py.File(early, "r") as f:
+            eb = (mc._attr(f, "value_error_bound"), mc._attr(f, "policy_loss_bound"), mc._attr(f, "tolerance"))
+        chk.check(eb[0] > eb[2] and epage["verdict"] == "NOT CERTIFIED" and epage["verify"] == "fail",
+                  "early: bounds above the tolerance are shown as NOT CERTIFIED, and verify fails too",
+                  "%r, %s / %s" % (eb, epage["verdict"], epage["verify"]))
+        chk.check(epage["certificate"]["value_error_bound"]["value"] == eb[0],
+                  "early: the page shows the solution's own (large) bound")
+
     # ---- 2. an imported model without factors ------------------------------------
     rnd = mc.random_mdp(20261202, 40, 0.9, actions=(1, 3), successors=(1, 3))
     imodel = mc.import_model(binary, rnd, work, "imported")
@@ -407,6 +424,11 @@ def main():
     cp = run([binary, "report", model, sol, "-o", os.path.join(bad, "no", "such", "dir", "r.html")], env=env)
     chk.check(cp.returncode == EX_CANTCREAT and "cannot create" in cp.stderr,
               "bad: an unwritable output exits 73 naming it", "%d %s" % (cp.returncode, cp.stderr[-300:]))
+    if has_outlook:   # a start outside the model
+        cp = run([binary, "report", model, sol, "-o", out, "--start", "storage@%d,inflow@0,month@0" % (L + 5)], env=env)
+        chk.check(cp.returncode == mc.EXIT_USAGE and "storage" in cp.stderr,
+                  "bad: an outlook start off the grid exits 64 naming the factor",
+                  "%d %s" % (cp.returncode, cp.stderr[-300:]))
     # a missing plotting package: a renderer directory without node_modules
     bare = os.path.join(work, "bare-renderer")
     os.makedirs(bare)
