@@ -21,6 +21,9 @@ typedef struct sl_report_data_opts {
     int64_t map_max_x;      /* most values of a map axis / panels shown; */
     int64_t map_max_y;      /* 0 -> 60, 24, 12 (evenly spaced values of */
     int64_t map_max_panels; /* larger factors, first and last included) */
+    const char *outlook_start;  /* a state number or NAME=VALUE/NAME@INDEX,...;
+                                 * NULL: the middle of every factor, stage 0 */
+    int64_t outlook_stages;     /* stages of the outlook; 0 -> 24 */
 } sl_report_data_opts;
 
 /* Write the report-data document for (model, solution) to opts->out on

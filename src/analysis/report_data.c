@@ -4,14 +4,25 @@
 #include <string.h>
 #include <time.h>
 
+#include "analysis/analysis.h"
 #include "core/json.h"
 #include "sluice/report.h"
-#include "store/store.h"
 
 static const char caution_text[] =
     "Water release, grid and safety decisions can hurt people. sluice computes what a model implies; it knows "
     "nothing the model leaves out. Its results support, and never replace, the judgement of licensed engineers "
     "and the rules and regulations that apply where the decision is made.";
+
+/* A unit string, or null when the model gives none. */
+static void unit_json(sl_json *j, const char *key, const char *u)
+{
+    if (u && u[0]) {
+        sl_json_str(j, key, u);
+    } else {
+        sl_json_key(j, key);
+        fputs("null", j->f);
+    }
+}
 
 /* What the document is made of. The handles are distributed over the ranks;
  * value, action and history are whole on rank 0. */
@@ -114,9 +125,10 @@ static int64_t pick(int64_t size, int64_t max, int64_t *idx)
 
 static void axis_json(sl_json *j, const char *key, const sl_meta *m, int f, const int64_t *idx, int64_t n)
 {
-    char lab[32];
+    char lab[SL_LABEL_MAX];
     sl_json_obj_open(j, key);
     sl_json_str(j, "factor", m->factor_name[f]);
+    unit_json(j, "unit", m->factor_value[f] && !m->factor_label[f] ? m->factor_unit[f] : "");
     sl_json_int(j, "size", m->factor_size[f]);
     sl_json_bool(j, "sampled", n < m->factor_size[f]);
     sl_json_arr_open(j, "indices");
@@ -124,7 +136,7 @@ static void axis_json(sl_json *j, const char *key, const sl_meta *m, int f, cons
     sl_json_close_arr(j);
     sl_json_arr_open(j, "labels");
     for (int64_t k = 0; k < n; k++) {
-        snprintf(lab, sizeof(lab), "%lld", (long long)idx[k]);
+        sl_factor_label(m, f, idx[k], lab, sizeof(lab));
         sl_json_str(j, NULL, lab);
     }
     sl_json_close_arr(j);
@@ -175,8 +187,8 @@ static sl_status rule_map_json(sl_ctx *ctx, sl_json *j, const sl_report_data_opt
     sl_json_arr_open(j, "fixed");
     for (int f = 0; f < m->n_factors; f++) {
         if (f == fx || f == fy || f == fp) continue;
-        char lab[32];
-        snprintf(lab, sizeof(lab), "%lld", (long long)fv[f]);
+        char lab[SL_LABEL_MAX];
+        sl_factor_label(m, f, fv[f], lab, sizeof(lab));
         sl_json_obj_open(j, NULL);
         sl_json_str(j, "factor", m->factor_name[f]);
         sl_json_int(j, "index", fv[f]);
@@ -208,7 +220,203 @@ static sl_status rule_map_json(sl_ctx *ctx, sl_json *j, const sl_report_data_opt
     return st;
 }
 
+/* ---- water values: the marginal value table of the planner-results work ---------- */
+
+typedef struct water_in {
+    int have;
+    int factor;             /* the numeric factor */
+    sl_table t;             /* rows: that factor; columns: the stage (or next) factor */
+    char reason[256];       /* why left out, when !have */
+} water_in;
+
+/* The first factor that is not a stage and has numeric values, over the
+ * stage factor (or the next factor), the others fixed mid-range. Collective. */
+static sl_status water_values(sl_ctx *ctx, const sl_report_data_opts *o, const sl_meta *m, water_in *w)
+{
+    memset(w, 0, sizeof(*w));
+    int wf = -1, cf = sl_meta_stage_factor(m);
+    for (int f = 0; f < m->n_factors && wf < 0; f++)
+        if (f != cf && m->factor_value[f] && m->factor_size[f] >= 2) wf = f;
+    if (m->n_factors == 0) {
+        snprintf(w->reason, sizeof(w->reason), "the model has no factors, so no numeric factor to take a marginal value of");
+        return SL_OK;
+    }
+    if (wf < 0) {
+        snprintf(w->reason, sizeof(w->reason), "%s",
+                 m->format_version < 2 ? "the model gives no numeric values for its factors (a model file of format 1), "
+                                         "so a marginal value per unit cannot be formed"
+                                       : "no factor other than the stage has numeric values, so a marginal value per "
+                                         "unit cannot be formed");
+        return SL_OK;
+    }
+    if (cf < 0)
+        for (int f = 0; f < m->n_factors && cf < 0; f++)
+            if (f != wf) cf = f;
+    if (cf < 0) {
+        snprintf(w->reason, sizeof(w->reason), "the model has a single factor; the water values are drawn by a second one");
+        return SL_OK;
+    }
+    char fixbuf[SLUICE_MAX_FACTORS][SL_NAME_MAX + 32];
+    const char *fix[SLUICE_MAX_FACTORS];
+    int nfix = 0;
+    for (int f = 0; f < m->n_factors; f++) {
+        if (f == wf || f == cf) continue;
+        snprintf(fixbuf[nfix], sizeof(fixbuf[nfix]), "%s@%lld", m->factor_name[f], (long long)(m->factor_size[f] / 2));
+        fix[nfix] = fixbuf[nfix];
+        nfix++;
+    }
+    char show[SL_NAME_MAX + 16];
+    snprintf(show, sizeof(show), "marginal:%s", m->factor_name[wf]);
+    sl_table_opts to;
+    memset(&to, 0, sizeof(to));
+    to.solution = o->solution;
+    to.model = o->model;
+    to.rows = m->factor_name[wf];
+    to.cols = m->factor_name[cf];
+    to.n_fix = nfix;
+    to.fix = fix;
+    to.show = show;
+    sl_status st = sl_table_compute(ctx, &to, &w->t);
+    if (st == SL_OK) {
+        w->have = 1;
+        w->factor = wf;
+    }
+    return st;
+}
+
+static void water_json(sl_json *j, const sl_meta *m, const water_in *w)
+{
+    sl_json_obj_open(j, "water_values");
+    if (!w->have) {
+        sl_json_str(j, "omitted", w->reason);
+        sl_json_close_obj(j);
+        return;
+    }
+    const sl_table *t = &w->t;
+    int f = w->factor;
+    int64_t R = t->n_rows, C = t->n_cols, nr = R <= 200 ? R : 200;
+    sl_json_str(j, "factor", m->factor_name[f]);
+    sl_json_str(j, "x_unit", m->factor_unit[f]);
+    sl_json_str(j, "unit", t->unit);
+    sl_json_str(j, "by", t->col_name);
+    char note[1400];
+    snprintf(note, sizeof(note), "%s%s; central differences of the value along %s (one-sided at the ends)%s",
+             t->fixed[0] ? "fixed: " : "", t->fixed, m->factor_name[f], nr < R ? "; evenly spaced values shown" : "");
+    sl_json_str(j, "note", note);
+    int64_t *rows = malloc((size_t)nr * sizeof(*rows));
+    if (rows == NULL) nr = 0; /* an empty plot is left out by the renderer */
+    for (int64_t k = 0; k < nr; k++) rows[k] = nr == 1 ? 0 : (int64_t)llround((double)k * (double)(R - 1) / (double)(nr - 1));
+    sl_json_arr_open(j, "x");
+    for (int64_t k = 0; k < nr; k++) sl_json_num(j, NULL, m->factor_value[f][rows[k]]);
+    sl_json_close_arr(j);
+    sl_json_arr_open(j, "series");
+    for (int64_t c = 0; c < C; c++) {
+        sl_json_obj_open(j, NULL);
+        sl_json_str(j, "label", t->col_label[c]);
+        sl_json_arr_open(j, "values");
+        for (int64_t k = 0; k < nr; k++) sl_json_num(j, NULL, t->cell[rows[k] * C + c]);
+        sl_json_close_arr(j);
+        sl_json_close_obj(j);
+    }
+    sl_json_close_arr(j);
+    free(rows);
+    sl_json_close_obj(j);
+}
+
+/* ---- the outlook: the exact forward distribution of the planner-results work ------ */
+
+typedef struct outlook_in {
+    int have;
+    sl_outlook o;
+    char start[1024];
+    char label[2048];           /* the start in the model's words */
+} outlook_in;
+
+/* From the start given, or a middle state of the first stage (every factor
+ * at its middle index, the stage factor at 0; a middle state number for a
+ * model without factors). Collective; a bad start is the caller's error. */
+static sl_status outlook(sl_ctx *ctx, const sl_report_data_opts *o, const sl_meta *m, outlook_in *w)
+{
+    memset(w, 0, sizeof(*w));
+    if (o->outlook_start) {
+        snprintf(w->start, sizeof(w->start), "%s", o->outlook_start);
+        snprintf(w->label, sizeof(w->label), "%s", o->outlook_start);
+    } else if (m->n_factors == 0) {
+        snprintf(w->start, sizeof(w->start), "%lld", (long long)(m->n_states / 2));
+        snprintf(w->label, sizeof(w->label), "state %lld (the middle state)", (long long)(m->n_states / 2));
+    } else {
+        for (int f = 0; f < m->n_factors; f++) {
+            int64_t i = m->factor_stage[f] ? 0 : m->factor_size[f] / 2;
+            char lab[SL_LABEL_MAX];
+            sl_factor_label(m, f, i, lab, sizeof(lab));
+            size_t len = strlen(w->start), ll = strlen(w->label);
+            snprintf(w->start + len, sizeof(w->start) - len, "%s%s@%lld", f ? "," : "", m->factor_name[f], (long long)i);
+            snprintf(w->label + ll, sizeof(w->label) - ll, "%s%s = %s%s%s", f ? ", " : "", m->factor_name[f], lab,
+                     m->factor_value[f] && !m->factor_label[f] && m->factor_unit[f][0] ? " " : "",
+                     m->factor_value[f] && !m->factor_label[f] ? m->factor_unit[f] : "");
+        }
+    }
+    sl_outlook_opts oo;
+    memset(&oo, 0, sizeof(oo));
+    oo.model = o->model;
+    oo.solution = o->solution;
+    oo.start = w->start;
+    oo.stages = o->outlook_stages > 0 ? o->outlook_stages : 24;
+    sl_status st = sl_outlook_compute(ctx, &oo, &w->o);
+    w->have = st == SL_OK;
+    return st;
+}
+
+static void outlook_json(sl_json *j, const outlook_in *w)
+{
+    sl_json_obj_open(j, "outlook");
+    if (!w->have) {
+        sl_json_str(j, "omitted", "the outlook was not asked for");
+        sl_json_close_obj(j);
+        return;
+    }
+    const sl_outlook *r = &w->o;
+    static const char *stat[SL_OUTLOOK_NQ] = {"mean", "p5", "p25", "p50", "p75", "p95"};
+    sl_json_str(j, "start", w->start);
+    sl_json_str(j, "start_label", w->label);
+    sl_json_str(j, "period_unit", r->period_unit);
+    sl_json_str(j, "reward_unit", r->reward_unit);
+    sl_json_obj_open(j, "factor_units");
+    for (int k = 0; k < r->n_factors; k++) sl_json_str(j, r->factor_name[k], r->factor_unit[k]);
+    sl_json_close_obj(j);
+    sl_json_obj_open(j, "quantity_units");
+    for (int q = 0; q < r->n_quantities; q++) sl_json_str(j, r->quantity_name[q], r->quantity_unit[q]);
+    sl_json_close_obj(j);
+    sl_json_arr_open(j, "stages");
+    for (int64_t t = 0; t <= r->n_stages; t++) {
+        sl_json_obj_open(j, NULL);
+        sl_json_int(j, "stage", t);
+        sl_json_obj_open(j, "factors");
+        for (int k = 0; k < r->n_factors; k++) {
+            sl_json_obj_open(j, r->factor_name[k]);
+            for (int i = 0; i < SL_OUTLOOK_NQ; i++)
+                sl_json_num(j, stat[i], r->factor_stats[(t * r->n_factors + k) * SL_OUTLOOK_NQ + i]);
+            sl_json_close_obj(j);
+        }
+        sl_json_close_obj(j);
+        sl_json_obj_open(j, "quantities");
+        for (int q = 0; q < r->n_quantities; q++) {
+            sl_json_obj_open(j, r->quantity_name[q]);
+            sl_json_num(j, "mean", r->quantity_stats[(t * r->n_quantities + q) * 2]);
+            sl_json_num(j, "p_positive", r->quantity_stats[(t * r->n_quantities + q) * 2 + 1]);
+            sl_json_close_obj(j);
+        }
+        sl_json_close_obj(j);
+        sl_json_num(j, "discounted_reward", r->discounted_reward[t]);
+        sl_json_num(j, "mass", r->mass[t]);
+        sl_json_close_obj(j);
+    }
+    sl_json_close_arr(j);
+    sl_json_close_obj(j);
+}
+
 /* ---- the document --------------------------------------------------------------- */
+
 
 static void hist_array(sl_json *j, const char *key, const report_in *r, int k)
 {
@@ -228,7 +436,8 @@ static void hist_array(sl_json *j, const char *key, const report_in *r, int k)
     sl_json_close_arr(j);
 }
 
-static sl_status write_doc(sl_ctx *ctx, const sl_report_data_opts *o, const report_in *r, const verify_out *v)
+static sl_status write_doc(sl_ctx *ctx, const sl_report_data_opts *o, const report_in *r, const verify_out *v,
+                           const water_in *w, const outlook_in *ol)
 {
     const sl_meta *m = r->m;
     const sl_solution_info *in = &r->info;
@@ -261,12 +470,9 @@ static sl_status write_doc(sl_ctx *ctx, const sl_report_data_opts *o, const repo
     sl_json_int(j, "n_transitions", m->n_trans);
     sl_json_num(j, "discount", m->discount);
     sl_json_str(j, "objective", sl_objective_name(m->objective));
-    sl_json_key(j, "reward_unit");
-    fputs("null", out);
-    sl_json_key(j, "period_unit");
-    fputs("null", out);
-    sl_json_key(j, "action_unit");
-    fputs("null", out);
+    unit_json(j, "reward_unit", m->reward_unit);
+    unit_json(j, "period_unit", m->period_unit);
+    unit_json(j, "action_unit", m->n_action_values > 0 ? m->action_unit : "");
     sl_json_arr_open(j, "parameters");
     for (int k = 0; k < m->n_params; k++) {
         sl_json_obj_open(j, NULL);
@@ -282,6 +488,17 @@ static sl_status write_doc(sl_ctx *ctx, const sl_report_data_opts *o, const repo
         sl_json_str(j, "name", m->factor_name[f]);
         sl_json_int(j, "size", m->factor_size[f]);
         sl_json_bool(j, "stage", m->factor_stage[f] != 0);
+        unit_json(j, "unit", m->factor_value[f] ? m->factor_unit[f] : "");
+        if (m->factor_value[f]) {
+            sl_json_arr_open(j, "values");
+            for (int64_t i = 0; i < m->factor_size[f]; i++) sl_json_num(j, NULL, m->factor_value[f][i]);
+            sl_json_close_arr(j);
+        }
+        if (m->factor_label[f]) {
+            sl_json_arr_open(j, "labels");
+            for (int64_t i = 0; i < m->factor_size[f]; i++) sl_json_str(j, NULL, m->factor_label[f][i]);
+            sl_json_close_arr(j);
+        }
         sl_json_close_obj(j);
     }
     sl_json_close_arr(j);
@@ -293,11 +510,18 @@ static sl_status write_doc(sl_ctx *ctx, const sl_report_data_opts *o, const repo
         sl_json_obj_open(j, NULL);
         sl_json_int(j, "id", a);
         sl_json_str(j, "name", name);
+        if (a < m->n_action_values) sl_json_num(j, "value", m->action_value[a]);
         sl_json_int(j, "states_available", r->avail[a]);
         sl_json_close_obj(j);
     }
     sl_json_close_arr(j);
     sl_json_arr_open(j, "quantities");
+    for (int q = 0; q < m->n_quantities; q++) {
+        sl_json_obj_open(j, NULL);
+        sl_json_str(j, "name", m->quantity_name[q]);
+        sl_json_str(j, "unit", m->quantity_unit[q]);
+        sl_json_close_obj(j);
+    }
     sl_json_close_arr(j);
     sl_json_obj_open(j, "actions_per_state");
     sl_json_int(j, "min", r->aps_min);
@@ -369,15 +593,8 @@ static sl_status write_doc(sl_ctx *ctx, const sl_report_data_opts *o, const repo
     sl_json_close_obj(j);
 
     st = rule_map_json(ctx, j, o, r);
-    sl_json_obj_open(j, "water_values");
-    sl_json_str(j, "omitted", m->n_factors == 0 ? "the model has no factors, so no numeric factor to take a marginal value of"
-                                                : "the model gives no numeric values for its factors (a model file of format 1), "
-                                                  "so a marginal value per unit cannot be formed");
-    sl_json_close_obj(j);
-    sl_json_obj_open(j, "outlook");
-    sl_json_str(j, "omitted", "this version of sluice has no exact outlook (forward propagation of the state "
-                              "distribution) to draw from");
-    sl_json_close_obj(j);
+    water_json(j, m, w);
+    outlook_json(j, ol);
     sl_json_end(j);
     if (ferror(out)) st = SL_ERR(ctx, SL_EIO, "writing the report data failed");
     return st;
@@ -388,15 +605,23 @@ sl_status sl_report_data(sl_ctx *ctx, const sl_report_data_opts *o)
     sl_status st = SL_OK;
     report_in r;
     verify_out v;
+    water_in w;
+    outlook_in ol;
+    memset(&ol, 0, sizeof(ol));
     memset(&r, 0, sizeof(r));
     memset(&v, 0, sizeof(v));
+    memset(&w, 0, sizeof(w));
     if (o == NULL || o->model == NULL || o->solution == NULL || (ctx->rank == 0 && o->out == NULL))
         SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EUSAGE, "report data: model, solution and output are required")));
     SL_TRY(load(ctx, o, &r));
     if (!o->skip_verify) SL_TRY(run_verify(ctx, &r, &v));
-    if (ctx->rank == 0) st = write_doc(ctx, o, &r, &v);
+    SL_TRY(water_values(ctx, o, r.m, &w));
+    SL_TRY(outlook(ctx, o, r.m, &ol));
+    if (ctx->rank == 0) st = write_doc(ctx, o, &r, &v, &w, &ol);
     st = sl_agree(ctx, st);
 cleanup:
+    sl_table_free(&w.t);
+    sl_outlook_free(&ol.o);
     report_in_free(&r);
     return st;
 }

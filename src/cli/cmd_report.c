@@ -35,6 +35,10 @@ static const char report_help[] =
     "  --figures DIR         also write every plot as a standalone SVG and PNG in DIR\n"
     "  --data FILE.json      also keep the report-data document (docs/report.md)\n"
     "  --no-verify           leave out the independent verification run\n"
+    "  --outlook-stages N    stages of the outlook (default 24)\n"
+    "  --start STATE         start of the outlook: a state number, or every factor as\n"
+    "                        NAME=VALUE or NAME@INDEX separated by commas (default: the\n"
+    "                        middle of every factor in the first stage)\n"
     "Needs Node.js and the npm packages of report/ (installed by tools/setup);\n"
     "without them it exits 69 naming what is missing. Environment: SLUICE_NODE\n"
     "(the node program), SLUICE_REPORT_DIR (the directory holding render.mjs).\n";
@@ -154,6 +158,8 @@ static int run_renderer(const char *node, const char *dir, const char *data, con
 int cmd_report(cli_args *a)
 {
     const char *model = NULL, *solution = NULL, *output = NULL, *figures = NULL, *keep = NULL;
+    const char *start = NULL;
+    int64_t stages = 0;
     int rc = 0, skip_verify = 0;
     while (a->i < a->argc && rc == 0) {
         int c = cli_common_opt(a, report_help);
@@ -167,6 +173,12 @@ int cmd_report(cli_args *a)
             if ((keep = cli_value(a)) == NULL) rc = SL_EUSAGE;
         } else if (cli_opt(a, "--no-verify")) {
             skip_verify = 1;
+        } else if (cli_opt(a, "--start")) {
+            if ((start = cli_value(a)) == NULL) rc = SL_EUSAGE;
+        } else if (cli_opt(a, "--outlook-stages")) {
+            const char *v = cli_value(a);
+            if (v == NULL || !cli_int64(a, "--outlook-stages", v, &stages)) rc = SL_EUSAGE;
+            else if (stages < 1 || stages > 100000) rc = cli_usage_error(a, "--outlook-stages must be in [1, 100000]");
         } else if (a->argv[a->i][0] == '-') {
             rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
         } else if (model == NULL) {
@@ -214,6 +226,8 @@ int cmd_report(cli_args *a)
     o.solution = solution;
     o.out = df;
     o.skip_verify = skip_verify;
+    o.outlook_start = start;
+    o.outlook_stages = stages;
     sl_status st = sl_report_data(a->ctx, &o);
     if (root) {
         if (fclose(df) != 0 && st == SL_OK) {
