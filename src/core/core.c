@@ -73,6 +73,11 @@ void sl_ctx_set_signal_flag(sl_ctx *ctx, volatile sig_atomic_t *flag)
     ctx->signal_flag = flag;
 }
 
+void sl_ctx_set_signal_info(sl_ctx *ctx, volatile sig_atomic_t *info)
+{
+    ctx->signal_info = info;
+}
+
 sl_status sl_error_at(sl_ctx *ctx, sl_status st, const char *file, int line,
                       const char *fmt, ...)
 {

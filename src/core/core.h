@@ -18,6 +18,7 @@ struct sl_ctx {
     FILE *log;                          /* progress (rank 0 only) */
     int log_tty;                        /* log is a terminal */
     volatile sig_atomic_t *signal_flag; /* may be NULL */
+    volatile sig_atomic_t *signal_info; /* [3] signal, monotonic s, us; may be NULL */
     sl_status err_status;
     char err[SL_MSG_MAX];               /* first error on this rank */
 };

@@ -2,6 +2,7 @@
  * policy iteration and policy iteration, with certified stopping,
  * progress lines, checkpoints and the solution file. */
 #include <math.h>
+#include <signal.h>
 #include <string.h>
 
 #include "core/json.h"
@@ -18,7 +19,8 @@ typedef struct run {
     sl_history hist;
     sl_solver_state S;
     double t0;              /* start of this process's solve (reset at each checkpoint) */
-    double wall0;           /* start of this process's solve, for --walltime */
+    double wall0;           /* start of this process's solve, for --walltime: the solver clock's 0 */
+    double prev_poll;       /* solver clock of the previous sweep boundary (< 0: none yet) */
     double tol;
     double last_ckpt, last_progress;
     sl_check last;
@@ -224,24 +226,68 @@ enum { POLL_NONE = 0, POLL_CKPT = 1, POLL_STOP = 2 };
 
 /* Agree on what to do at this sweep boundary. Deterministic for the numbers:
  * only whether to write/stop depends on time or signals. Collective. */
+static const char *signal_name(int sig)
+{
+    switch (sig) {
+    case SIGUSR1: return "USR1";
+    case SIGUSR2: return "USR2";
+    case SIGTERM: return "TERM";
+    case SIGINT: return "INT";
+    default: return "other";
+    }
+}
+
 static int poll(run *r)
 {
-    int want = 0;
+    int want = 0, flag = 0, by_signal = 0, by_walltime = 0;
+    /* the boundary's time is taken before the flag is read and again after:
+     * a signal noticed here arrived after `before` of the previous boundary
+     * (which saw no flag) and before `now` of this one */
+    double before = sl_now() - r->wall0;
+    if (r->ctx->signal_flag) flag = *r->ctx->signal_flag;
     double now = sl_now();
-    if (r->ctx->signal_flag && *r->ctx->signal_flag) {
-        want = *r->ctx->signal_flag >= 2 ? POLL_STOP : POLL_CKPT;
+    if (flag) {
+        want = flag >= 2 ? POLL_STOP : POLL_CKPT;
         if (want == POLL_CKPT) *r->ctx->signal_flag = 0;
+        by_signal = 1;
     }
     double every = r->o->checkpoint_every > 0 ? r->o->checkpoint_every : 600.0;
     if (r->o->checkpoint_dir && now - r->last_ckpt >= every && want < POLL_CKPT) want = POLL_CKPT;
+    double margin = 0, due = 0;
     if (r->o->walltime > 0) {
         /* stop with a margin for the final write: 5% or 10 s, whichever is more (common practice, no source) */
-        double margin = fmax(10.0, 0.05 * r->o->walltime);
+        margin = fmax(10.0, 0.05 * r->o->walltime);
         if (r->o->walltime < 60) margin = fmin(margin, 0.2 * r->o->walltime);
-        if (now - r->wall0 >= r->o->walltime - margin) want = POLL_STOP;
+        due = r->o->walltime - margin;
+        if (now - r->wall0 >= due) {
+            want = POLL_STOP;
+            by_walltime = 1;
+        }
     }
     int agreed = 0;
     MPI_Allreduce(&want, &agreed, 1, MPI_INT, MPI_MAX, r->ctx->comm);
+    /* the solver's own account of when it acted (rank 0's clock): what the
+     * signal and walltime tests check, instead of a busy machine's wall clock */
+    char prev[32] = "none (first boundary)";
+    if (r->prev_poll >= 0) snprintf(prev, sizeof(prev), "%.3f s", r->prev_poll);
+    if (by_signal) {
+        const volatile sig_atomic_t *in = r->ctx->signal_info;
+        if (in != NULL && in[0] != 0) {
+            double at = (double)in[1] + 1e-6 * (double)in[2] - r->wall0;
+            sl_log(r->ctx, "solve: signal %d (%s) arrived at %.3f s; acted on at the sweep boundary at %.3f s "
+                           "(iteration %lld; previous boundary %s)",
+                   (int)in[0], signal_name((int)in[0]), at, now - r->wall0, (long long)r->S.iteration, prev);
+        } else {
+            sl_log(r->ctx, "solve: stop/checkpoint flag seen at the sweep boundary at %.3f s (iteration %lld; "
+                           "previous boundary %s)",
+                   now - r->wall0, (long long)r->S.iteration, prev);
+        }
+    } else if (by_walltime) {
+        sl_log(r->ctx, "solve: --walltime %.3f s: stop due at %.3f s (margin %.3f s); acted on at the sweep boundary "
+                       "at %.3f s (iteration %lld; previous boundary %s)",
+               r->o->walltime, due, margin, now - r->wall0, (long long)r->S.iteration, prev);
+    }
+    r->prev_poll = before;
     return agreed;
 }
 
@@ -257,8 +303,8 @@ static sl_status checkpoint(run *r)
     r->last_ckpt = sl_now();
     if (st == SL_OK) {
         r->n_ckpt++;
-        sl_log(r->ctx, "solve: checkpoint written to %s (iteration %lld, sweep %lld)", r->o->checkpoint_dir,
-               (long long)r->S.iteration, (long long)r->S.sweeps);
+        sl_log(r->ctx, "solve: checkpoint written to %s (iteration %lld, sweep %lld, done at %.3f s)",
+               r->o->checkpoint_dir, (long long)r->S.iteration, (long long)r->S.sweeps, r->last_ckpt - r->wall0);
     }
     return st;
 }
@@ -387,6 +433,7 @@ sl_status sl_solve(sl_ctx *ctx, const sl_solve_opts *o)
     r->o = o;
     r->t0 = sl_now();
     r->wall0 = r->t0;
+    r->prev_poll = -1;
     r->last_ckpt = r->t0;
     r->last_progress = r->t0 - 1e9;
     r->tol = o->tolerance > 0 ? o->tolerance : 1e-6;
