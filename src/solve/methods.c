@@ -29,6 +29,7 @@ typedef struct run {
     char evaluation[16];
     double lu_estimate;
     int64_t n_ckpt;
+    int lock_fd;            /* checkpoint directory lock (rank 0), -1 if none */
 } run;
 
 static double elapsed(const run *r) { return r->S.elapsed + (sl_now() - r->t0); }
@@ -434,12 +435,14 @@ sl_status sl_solve(sl_ctx *ctx, const sl_solve_opts *o)
     r->t0 = sl_now();
     r->wall0 = r->t0;
     r->prev_poll = -1;
+    r->lock_fd = -1;
     r->last_ckpt = r->t0;
     r->last_progress = r->t0 - 1e9;
     r->tol = o->tolerance > 0 ? o->tolerance : 1e-6;
     sl_status outcome = SL_OK;
     int converged = 0;
 
+    if (o->checkpoint_dir) SL_TRY(sl_ckpt_lock(ctx, o->checkpoint_dir, &r->lock_fd));
     SL_TRY(sl_problem_load(ctx, o->model, o->order, &r->P));
     int64_t n = r->P.n_local, nx = n + r->P.halo.n_halo;
     if (SL_ZALLOC(ctx, r->x, nx, "values") == NULL || SL_ZALLOC(ctx, r->y, nx, "values") == NULL ||
@@ -541,5 +544,6 @@ cleanup:
     free(r->actions);
     sl_history_free(&r->hist);
     sl_problem_free(&r->P);
+    sl_ckpt_unlock(&r->lock_fd);
     return st;
 }

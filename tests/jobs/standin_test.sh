@@ -408,7 +408,7 @@ scenario term
 # later, so only the direct launch can be expected to checkpoint on it.
 # SIGTERM once sluice has logged some progress (its handlers are installed).
 export SLUICE_LAUNCHER=none
-run_job term-0 0 - - "+$chunk"
+run_job term-0 0 - - +1
 check "term: SIGTERM without warning gives exit 75 and a requeue request" \
     eval '[ "$RUN_RC" = 75 ] && [ "$RUN_KILLED" = 0 ] && [ "$(requeues)" = 1 ]'
 check "term: the batch shell saw SIGTERM" log_has "$RUN_LOG" "received SIGTERM"

@@ -17,6 +17,6 @@ add_test(NAME jobs_slurm_real COMMAND bash ${PROJECT_SOURCE_DIR}/tests/jobs/slur
          $<TARGET_FILE:sluice> ${_jobs_dir}/slurm.h5 ${_jobs_dir}/slurm)
 set_tests_properties(jobs_slurm_standin jobs_pbs_standin PROPERTIES LABELS jobs TIMEOUT 600
                      SKIP_RETURN_CODE 77 RUN_SERIAL TRUE FIXTURES_REQUIRED jobs_big
-                     ENVIRONMENT "${SLUICE_TEST_ENV};SLUICE_TEST_MIN_SECONDS=3")
+                     ENVIRONMENT "${SLUICE_TEST_ENV}")
 set_tests_properties(jobs_slurm_real PROPERTIES LABELS jobs TIMEOUT 1200 SKIP_RETURN_CODE 77
                      RUN_SERIAL TRUE FIXTURES_REQUIRED jobs_big ENVIRONMENT "${SLUICE_TEST_ENV}")
