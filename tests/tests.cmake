@@ -20,7 +20,7 @@ foreach(src ${SLUICE_UNIT_TESTS})
   target_compile_definitions(${name} PRIVATE _POSIX_C_SOURCE=200809L
     SLUICE_SOURCE_DIR="${PROJECT_SOURCE_DIR}" SLUICE_BINARY_DIR="${PROJECT_BINARY_DIR}")
   target_compile_options(${name} PRIVATE ${SLUICE_WARNINGS} -Wno-missing-prototypes)
-  target_link_libraries(${name} PRIVATE sluice_lib ${CMOCKA_LIBRARY} PkgConfig::HDF5P UMFPACK::UMFPACK m)
+  target_link_libraries(${name} PRIVATE sluice_obj ${CMOCKA_LIBRARY} PkgConfig::HDF5P UMFPACK::UMFPACK m)
   add_test(NAME unit_${name} COMMAND ${name})
   set_tests_properties(unit_${name} PROPERTIES LABELS unit TIMEOUT 300 ENVIRONMENT "${SLUICE_TEST_ENV}")
 endforeach()
@@ -44,7 +44,7 @@ foreach(script ${SLUICE_MPI_TESTS})
                        ENVIRONMENT "${SLUICE_TEST_ENV};SLUICE_MPIEXEC=${SLUICE_MPIEXEC};SLUICE_PYTHON=/usr/bin/python3")
 endforeach()
 
-foreach(frag tests/python/tests.cmake tests/jobs/tests.cmake)
+foreach(frag tests/python/tests.cmake tests/jobs/tests.cmake tests/report/tests.cmake)
   if(EXISTS ${PROJECT_SOURCE_DIR}/${frag})
     include(${PROJECT_SOURCE_DIR}/${frag})
   endif()
@@ -69,3 +69,10 @@ set_tests_properties(fuzz_csv PROPERTIES LABELS fuzz TIMEOUT 300)
 add_test(NAME fuzz_validate COMMAND bash ${PROJECT_SOURCE_DIR}/tests/fuzz/run_validate.sh ${PROJECT_SOURCE_DIR}
          ${PROJECT_BINARY_DIR}/fuzz_validate 30)
 set_tests_properties(fuzz_validate PROPERTIES LABELS fuzz TIMEOUT 300)
+
+# the library API on 2 and 3 ranks (rows on rank 0 only; solving spreads nothing:
+# the same numbers must come out)
+foreach(np 2 3)
+  add_test(NAME mpi_unit_handles_${np} COMMAND ${SLUICE_MPIEXEC} -np ${np} ${SLUICE_MPI_FLAGS} $<TARGET_FILE:test_handles>)
+  set_tests_properties(mpi_unit_handles_${np} PROPERTIES LABELS mpi TIMEOUT 300 ENVIRONMENT "${SLUICE_TEST_ENV}")
+endforeach()

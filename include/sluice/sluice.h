@@ -1,9 +1,18 @@
-/* sluice/sluice.h - library API: build, import, solve and check MDP models.
+/* sluice/sluice.h - library API: models, solvers and solutions as handles.
  *
- * Every function that takes an sl_ctx is collective over the context's
- * communicator unless marked "local": all ranks must call it, and all ranks
- * return the same status (errors found on one rank are agreed across ranks;
- * the message is available on every rank through sl_ctx_message()).
+ * Three opaque handles, each created and freed in pairs (`_free(&h)` accepts
+ * NULL and sets the pointer to NULL):
+ *   sl_model     an immutable sparse model, each rank holding a contiguous
+ *                range of states (rows) with global state numbers;
+ *   sl_solver    a method and its settings (tolerance, checkpoints, monitor);
+ *   sl_solution  values, actions and the certificate, distributed like the
+ *                model it was computed for.
+ * Every function is collective over the context's communicator unless marked
+ * "local": all ranks call it and all ranks return the same status (an error
+ * found on one rank is agreed across ranks; the message of the last failing
+ * call is available on every rank through sl_ctx_message()).
+ * The library prints nothing unless a log stream is set (sl_ctx_set_log) or a
+ * monitor is installed (sl_solver_set_monitor).
  */
 #ifndef SLUICE_SLUICE_H
 #define SLUICE_SLUICE_H
@@ -14,7 +23,13 @@
 #include <signal.h>
 #include <mpi.h>
 
-#define SLUICE_VERSION "0.1.0"
+#if defined(__GNUC__) && !defined(SLUICE_STATIC)
+#define SLUICE_API __attribute__((visibility("default")))
+#else
+#define SLUICE_API
+#endif
+
+#define SLUICE_VERSION "0.2.0"
 #define SLUICE_FORMAT_VERSION 1
 
 /* Status codes. Values are the sysexits.h exit codes the CLI returns. */
@@ -31,33 +46,34 @@ typedef enum sl_status {
 } sl_status;
 
 /* Short description of a status (local). */
-const char *sl_strerror(sl_status st);
+SLUICE_API const char *sl_strerror(sl_status st);
 
 typedef struct sl_ctx sl_ctx;
 
 /* Create a context on `comm` (duplicated). verbosity: 0 quiet, 1 normal
  * progress, 2 debug (messages carry source file:line). Collective. */
-sl_status sl_ctx_new(MPI_Comm comm, int verbosity, sl_ctx **out);
+SLUICE_API sl_status sl_ctx_new(MPI_Comm comm, int verbosity, sl_ctx **out);
 /* Free a context; accepts NULL and *ctx == NULL, sets *ctx = NULL. Collective. */
-void sl_ctx_free(sl_ctx **ctx);
-int sl_ctx_rank(const sl_ctx *ctx);
-int sl_ctx_size(const sl_ctx *ctx);
-/* The message of the last error (agreed across ranks), "" if none. Local. */
-const char *sl_ctx_message(const sl_ctx *ctx);
-/* Where progress lines go (default stderr, rank 0 only). Local. */
-void sl_ctx_set_log(sl_ctx *ctx, FILE *log);
+SLUICE_API void sl_ctx_free(sl_ctx **ctx);
+SLUICE_API int sl_ctx_rank(const sl_ctx *ctx);
+SLUICE_API int sl_ctx_size(const sl_ctx *ctx);
+SLUICE_API int sl_ctx_verbosity(const sl_ctx *ctx);
+/* The message of the last failing call (agreed across ranks), "" if none. Local. */
+SLUICE_API const char *sl_ctx_message(const sl_ctx *ctx);
+/* Where log lines and warnings go (default: nowhere; rank 0 only). Local. */
+SLUICE_API void sl_ctx_set_log(sl_ctx *ctx, FILE *log);
 /* A flag set asynchronously (e.g. by a signal handler): 1 = checkpoint now,
  * 2 = checkpoint and stop. Solvers poll it at sweep boundaries and agree on
  * it across ranks. Local. */
-void sl_ctx_set_signal_flag(sl_ctx *ctx, volatile sig_atomic_t *flag);
+SLUICE_API void sl_ctx_set_signal_flag(sl_ctx *ctx, volatile sig_atomic_t *flag);
 /* Optional: where the handler that sets the flag records each signal before
  * setting it: info[0] the signal number, info[1] and info[2] the
  * CLOCK_MONOTONIC seconds and microseconds of its arrival. Solvers then log
  * when the signal arrived and at which sweep boundary they acted on it, on
  * their own clock, so tests can check the promise without a wall clock. Local. */
-void sl_ctx_set_signal_info(sl_ctx *ctx, volatile sig_atomic_t *info);
+SLUICE_API void sl_ctx_set_signal_info(sl_ctx *ctx, volatile sig_atomic_t *info);
 
-/* ---- model building ------------------------------------------------- */
+/* ---- names ------------------------------------------------------------------ */
 
 typedef enum sl_objective {
     SL_OBJ_DISCOUNTED = 0,
@@ -65,70 +81,6 @@ typedef enum sl_objective {
     SL_OBJ_AVERAGE = 2,
     SL_OBJ_FINITE = 3
 } sl_objective;
-
-/* Parse/print objective names ("discounted", ...). Local. */
-int sl_objective_parse(const char *name, sl_objective *out);
-const char *sl_objective_name(sl_objective obj);
-
-typedef struct sl_build_opts {
-    const char *generator;      /* path to GEN.c or GEN.so */
-    const char *output;         /* model file to write */
-    int n_params;
-    const char *const *param_names;
-    const double *param_values;
-    int have_discount;          /* override generator's discount */
-    double discount;
-    sl_objective objective;
-    double prob_tolerance;      /* |sum p - 1| allowed; 0 -> 1e-9 */
-    int renormalize;            /* rescale pairs within 1e-6 of 1 */
-    const char *cache_dir;      /* NULL -> $SLUICE_CACHE or ~/.cache/sluice */
-    const char *cc;             /* NULL -> $CC or "cc" */
-} sl_build_opts;
-
-/* Compile (if .c), load and enumerate a generator; write the model file
- * atomically. Collective: each rank enumerates a slice of states. */
-sl_status sl_build(sl_ctx *ctx, const sl_build_opts *opts);
-
-typedef struct sl_import_opts {
-    const char *input;          /* CSV path, or "-" for stdin */
-    const char *output;
-    double discount;
-    sl_objective objective;
-    int64_t n_states;           /* 0: max index + 1 */
-    double prob_tolerance;
-    int renormalize;
-} sl_import_opts;
-
-/* Import a triplet CSV (state,action,next_state,probability,reward).
- * Collective (rank 0 parses; all ranks write). */
-sl_status sl_import(sl_ctx *ctx, const sl_import_opts *opts);
-
-typedef struct sl_estimate_opts {
-    const char *input;          /* experience CSV: state,action,reward,next_state */
-    const char *output;
-    double discount;
-    sl_objective objective;
-    int64_t n_states;           /* 0: max index + 1 */
-    int64_t min_visits;         /* pairs seen fewer times are dropped (>=1) */
-    int unseen_absorb;          /* states with no data become absorbing, reward 0 */
-} sl_estimate_opts;
-
-/* Maximum-likelihood model from logged experience. Collective. */
-sl_status sl_estimate(sl_ctx *ctx, const sl_estimate_opts *opts);
-
-/* ---- inspection ----------------------------------------------------- */
-
-typedef struct sl_info_opts {
-    const char *path;
-    int json;
-    int partition;              /* > 0: print predicted partition for N ranks */
-    FILE *out;
-} sl_info_opts;
-
-/* Describe a model, solution or checkpoint file. Collective. */
-sl_status sl_info(sl_ctx *ctx, const sl_info_opts *opts);
-
-/* ---- solving -------------------------------------------------------- */
 
 typedef enum sl_method {
     SL_METHOD_GS = 0,       /* Gauss-Seidel value iteration */
@@ -144,70 +96,253 @@ typedef enum sl_order {
     SL_ORDER_REVERSE = 3
 } sl_order;
 
-int sl_method_parse(const char *name, sl_method *out);
-const char *sl_method_name(sl_method m);
-int sl_order_parse(const char *name, sl_order *out);
-const char *sl_order_name(sl_order o);
+/* Parse / print names ("discounted", "gs", "stage-reverse", ...). Local. */
+SLUICE_API int sl_objective_parse(const char *name, sl_objective *out);
+SLUICE_API const char *sl_objective_name(sl_objective obj);
+SLUICE_API int sl_method_parse(const char *name, sl_method *out);
+SLUICE_API const char *sl_method_name(sl_method m);
+SLUICE_API int sl_order_parse(const char *name, sl_order *out);
+SLUICE_API const char *sl_order_name(sl_order o);
 
-typedef struct sl_solve_opts {
-    const char *model;
-    const char *output;
-    sl_method method;
-    sl_order order;
-    double tolerance;           /* certified sup-norm bound; <= 0 -> 1e-6 */
-    int64_t max_iterations;     /* 0: no limit */
-    double walltime;            /* seconds; 0: none */
-    int sweeps;                 /* MPI partial-evaluation sweeps; 0: adaptive */
-    int64_t check_every;        /* GS: sweeps between certificate checks; 0 auto */
-    double memory_limit;        /* bytes for a direct factorization; 0: auto */
-    int strict_memory;          /* fail instead of falling back to iterative */
-    const char *checkpoint_dir; /* NULL: no checkpoints */
-    double checkpoint_every;    /* seconds; 0 -> 600 */
-    int resume;
-    const char *report;         /* JSON report path, or NULL */
-    double progress_every;      /* seconds between progress lines; 0 -> 2/30 */
-} sl_solve_opts;
+/* ---- models ----------------------------------------------------------------- */
 
-/* Solve a model; writes the solution file atomically. Returns SL_OK when the
- * tolerance was certified, SL_ESTOPPED when stopped early (the solution is
- * written with converged=false and, with a checkpoint directory, a
- * checkpoint). Collective. */
-sl_status sl_solve(sl_ctx *ctx, const sl_solve_opts *opts);
+typedef struct sl_model sl_model;
 
-typedef struct sl_evaluate_opts {
-    const char *model;
-    const char *policy;         /* solution file holding /policy */
-    const char *output;
-    double tolerance;           /* for iterative evaluation */
-    double memory_limit;
-    int iterative;              /* force iterative evaluation */
-} sl_evaluate_opts;
+/* An empty discounted model of n_states states. Fill it with
+ * sl_model_set_rows on every rank that owns rows, then sl_model_assemble. */
+SLUICE_API sl_status sl_model_create(sl_ctx *ctx, int64_t n_states, double discount, sl_model **m);
 
-/* Value of a fixed policy. Collective. */
-sl_status sl_evaluate(sl_ctx *ctx, const sl_evaluate_opts *opts);
+/* This rank's rows [s_begin, s_end), copied. Offsets are local, from 0:
+ * the pairs of state s_begin+i are first_pair[i] .. first_pair[i+1]-1;
+ * per pair: its action id and reward r(s,a); the transitions of local pair k
+ * are first_transition[k] .. first_transition[k+1]-1, each a GLOBAL target
+ * state and its probability. Ranks' ranges must tile [0, n_states) in rank
+ * order; a rank that owns no rows need not call this. Local (checked again
+ * collectively by sl_model_assemble). */
+SLUICE_API sl_status sl_model_set_rows(sl_model *m, int64_t s_begin, int64_t s_end, const int64_t *first_pair,
+                            const int32_t *action, const double *reward, const int64_t *first_transition,
+                            const int64_t *target, const double *probability);
 
-typedef struct sl_verify_opts {
-    const char *model;
-    const char *solution;
-    double tolerance;           /* <= 0: use the solution's own */
+/* Optional description, before assembling. Factors: the state number is
+ * mixed radix over the factors, factor 0 fastest; at most one is the stage
+ * (e.g. month). Action names are indexed by action id. Local. */
+SLUICE_API sl_status sl_model_set_factors(sl_model *m, int n_factors, const char *const *names, const int64_t *sizes,
+                               int stage_factor /* -1: none */);
+SLUICE_API sl_status sl_model_set_action_names(sl_model *m, int32_t n_actions, const char *const *names);
+SLUICE_API sl_status sl_model_set_objective(sl_model *m, sl_objective objective);
+
+/* Validate every row (targets in range, probabilities in [0,1] summing to 1
+ * within 1e-9, finite rewards, no repeated action, every state with an
+ * action) and compute the fingerprint. After this the model is immutable. */
+SLUICE_API sl_status sl_model_assemble(sl_model *m);
+
+/* Load a model file, each rank reading a range of states balanced by
+ * transitions; checks the fingerprint. */
+SLUICE_API sl_status sl_model_load(sl_ctx *ctx, const char *path, sl_model **m);
+/* Write the model file atomically (temporary name, then rename). */
+SLUICE_API sl_status sl_model_save(const sl_model *m, const char *path);
+
+/* Compile (for .c), load and enumerate a generator (see sluice/generator.h),
+ * each rank enumerating a slice of states; n_params NAME=VALUE overrides. */
+SLUICE_API sl_status sl_model_from_generator(sl_ctx *ctx, const char *path_or_so, int n_params, const char *const *names,
+                                  const double *values, sl_model **m);
+
+typedef struct sl_build_opts {
+    const char *generator;      /* path to GEN.c or GEN.so */
+    int n_params;
+    const char *const *param_names;
+    const double *param_values;
+    int have_discount;          /* override generator's discount */
+    double discount;
+    sl_objective objective;
+    double prob_tolerance;      /* |sum p - 1| allowed; 0 -> 1e-9 */
+    int renormalize;            /* rescale pairs within 1e-6 of 1 */
+    const char *cache_dir;      /* NULL -> $SLUICE_CACHE or ~/.cache/sluice */
+    const char *cc;             /* NULL -> $CC or "cc" */
+} sl_build_opts;
+/* The same with every build setting. */
+SLUICE_API sl_status sl_model_from_generator_opts(sl_ctx *ctx, const sl_build_opts *opts, sl_model **m);
+
+typedef struct sl_import_opts {
+    const char *input;          /* CSV path, or "-" for stdin */
+    double discount;
+    sl_objective objective;
+    int64_t n_states;           /* 0: max index + 1 */
+    double prob_tolerance;
+    int renormalize;
+} sl_import_opts;
+/* A model from a triplet CSV (state,action,next_state,probability,reward).
+ * Rank 0 parses; the rows are then spread over the ranks. */
+SLUICE_API sl_status sl_model_import_csv(sl_ctx *ctx, const sl_import_opts *opts, sl_model **m);
+
+typedef struct sl_estimate_opts {
+    const char *input;          /* experience CSV: state,action,reward,next_state */
+    double discount;
+    sl_objective objective;
+    int64_t n_states;           /* 0: max index + 1 */
+    int64_t min_visits;         /* pairs seen fewer times are dropped (>=1) */
+    int unseen_absorb;          /* states with no data become absorbing, reward 0 */
+} sl_estimate_opts;
+/* The maximum-likelihood model of logged experience. */
+SLUICE_API sl_status sl_model_estimate_csv(sl_ctx *ctx, const sl_estimate_opts *opts, sl_model **m);
+
+SLUICE_API void sl_model_free(sl_model **m);
+
+/* Getters. Local. Strings stay valid while the model lives. */
+SLUICE_API int64_t sl_model_n_states(const sl_model *m);
+SLUICE_API int64_t sl_model_n_pairs(const sl_model *m);          /* global */
+SLUICE_API int64_t sl_model_n_transitions(const sl_model *m);    /* global */
+SLUICE_API double sl_model_discount(const sl_model *m);
+SLUICE_API sl_objective sl_model_objective(const sl_model *m);
+SLUICE_API const char *sl_model_fingerprint(const sl_model *m);  /* 32 hex digits; "" before assembling */
+/* This rank's rows [*s_begin, *s_end). */
+SLUICE_API void sl_model_local_range(const sl_model *m, int64_t *s_begin, int64_t *s_end);
+SLUICE_API int sl_model_n_factors(const sl_model *m);
+SLUICE_API const char *sl_model_factor_name(const sl_model *m, int f);
+SLUICE_API int64_t sl_model_factor_size(const sl_model *m, int f);
+SLUICE_API int sl_model_stage_factor(const sl_model *m);         /* -1: none */
+/* Factor indices of a state (mixed radix, factor 0 fastest). */
+SLUICE_API void sl_model_decode_state(const sl_model *m, int64_t state, int64_t *factor_index);
+SLUICE_API int32_t sl_model_n_action_names(const sl_model *m);
+SLUICE_API const char *sl_model_action_name(const sl_model *m, int32_t action);  /* "" if unnamed */
+SLUICE_API const char *sl_model_generator(const sl_model *m);    /* "" if not built from one */
+SLUICE_API int sl_model_n_params(const sl_model *m);
+SLUICE_API const char *sl_model_param_name(const sl_model *m, int i);
+SLUICE_API const char *sl_model_param_unit(const sl_model *m, int i);
+SLUICE_API double sl_model_param_value(const sl_model *m, int i);
+
+/* ---- solvers ---------------------------------------------------------------- */
+
+typedef struct sl_solver sl_solver;
+typedef struct sl_solution sl_solution;
+
+SLUICE_API sl_status sl_solver_create(sl_ctx *ctx, sl_solver **s);
+SLUICE_API void sl_solver_free(sl_solver **s);
+/* Settings. Local (every rank must set the same). */
+SLUICE_API sl_status sl_solver_set_method(sl_solver *s, sl_method method);          /* default gs */
+SLUICE_API sl_status sl_solver_set_tolerance(sl_solver *s, double eps);             /* certified sup bound; default 1e-6 */
+SLUICE_API sl_status sl_solver_set_order(sl_solver *s, sl_order order);             /* default auto */
+SLUICE_API sl_status sl_solver_set_max_iterations(sl_solver *s, int64_t n);         /* 0: no limit */
+SLUICE_API sl_status sl_solver_set_walltime(sl_solver *s, double seconds);          /* 0: none; counted from set */
+/* The walltime is counted from this instant (sl_now()-like monotonic seconds
+ * from sl_clock()); a command line passes its process start. Local. */
+SLUICE_API sl_status sl_solver_set_walltime_origin(sl_solver *s, double clock_seconds);
+SLUICE_API sl_status sl_solver_set_sweeps(sl_solver *s, int sweeps);                /* mpi: 0 adaptive */
+SLUICE_API sl_status sl_solver_set_memory_limit(sl_solver *s, double bytes, int strict);  /* pi */
+/* Checkpoints into dir every every_s seconds (0 -> 600) and when asked by
+ * the context's signal flag; resume: start from the newest valid one. */
+SLUICE_API sl_status sl_solver_set_checkpoint(sl_solver *s, const char *dir, double every_s, int resume);
+
+/* Monitor: called on every rank with the same numbers (print on rank 0). */
+typedef enum sl_event {
+    SL_EVENT_START = 0,     /* before the first sweep (resumed: iteration > 0) */
+    SL_EVENT_CHECK = 1,     /* after a synchronous Bellman check */
+    SL_EVENT_CHECKPOINT = 2,/* a checkpoint was written */
+    SL_EVENT_STOP = 3,      /* stopping early (signal, walltime, iteration limit) */
+    SL_EVENT_END = 4        /* the last check before the solution is formed */
+} sl_event;
+typedef struct sl_progress {
+    sl_event event;
+    int64_t iteration, sweeps;
+    double seconds;         /* solving time, including earlier runs before a resume */
+    int have_check;         /* 0 before the first Bellman check: bounds below are NaN */
+    double residual_sup;    /* sup |Tv - v| */
+    double residual_span;
+    double value_error;     /* certified bound at this check */
+    double policy_loss;
+    double rate;            /* observed contraction of the span per sweep (NaN if unknown) */
+    double eta;             /* seconds to the tolerance at that rate (NaN if unknown) */
+    int resumed;            /* START: resumed from a checkpoint */
+    const char *note;       /* STOP: why; START: the sweep order used */
+} sl_progress;
+typedef void (*sl_monitor_fn)(const sl_progress *p, void *user);
+SLUICE_API sl_status sl_solver_set_monitor(sl_solver *s, sl_monitor_fn fn, void *user);
+
+/* Solve. SL_OK when the tolerance was certified; SL_ESTOPPED when stopped
+ * early (signal, walltime, iteration limit; *x is still a valid solution
+ * with converged = 0 and honest bounds, and with a checkpoint directory a
+ * checkpoint was written); SL_EUSAGE when the tolerance is below the
+ * model's roundoff floor (*x is set too). On other errors *x is NULL. */
+SLUICE_API sl_status sl_solver_solve(sl_solver *s, const sl_model *m, sl_solution **x);
+
+/* Value of a fixed policy (the actions of `policy`): exact (UMFPACK) when it
+ * fits the memory limit, else iterative to the solver's tolerance. *values
+ * has no actions. */
+SLUICE_API sl_status sl_solver_evaluate(sl_solver *s, const sl_model *m, const sl_solution *policy, sl_solution **values);
+
+/* ---- solutions --------------------------------------------------------------- */
+
+typedef struct sl_certificate {
+    int converged;              /* both bounds <= tolerance */
+    double value_error;         /* |value - v*| <= value_error in every state */
+    double policy_loss;         /* v* - v_policy <= policy_loss in every state */
+    double residual_span;       /* span of Tv - v at the last check */
+    double residual_sup;        /* sup |Tv - v| */
+    double residual_min, residual_max;
+    double tolerance;
+} sl_certificate;
+
+typedef struct sl_solution_info {
+    char model_fingerprint[40];
+    char method[16];            /* gs, jacobi, mpi, pi; for values: direct/iterative */
+    char order[24];
+    char evaluation[16];        /* pi: "direct" or "iterative" */
+    int ranks;                  /* ranks of the run that wrote it (0: unknown) */
+    int has_policy;             /* 0 for a values file */
+    int64_t n_states;
+    int64_t iterations, sweeps;
+    double seconds;
+    double discount;
+    int64_t checkpoints_written;
+} sl_solution_info;
+
+/* This rank's slice: states [s_begin, s_begin + n); action ids (NULL for a
+ * values-only solution). Local. */
+SLUICE_API sl_status sl_solution_get_local(const sl_solution *x, int64_t *s_begin, int64_t *n, const double **value,
+                                const int32_t **action);
+SLUICE_API sl_status sl_solution_get_certificate(const sl_solution *x, sl_certificate *c);   /* local */
+SLUICE_API sl_status sl_solution_get_info(const sl_solution *x, sl_solution_info *info);     /* local */
+/* Residual history, one entry per synchronous check: *n entries, arrays
+ * owned by x. Local. */
+typedef struct sl_history_view {
+    int64_t n;
+    const int64_t *iteration, *sweeps;
+    const double *seconds, *sup, *span, *value_error, *policy_loss;
+} sl_history_view;
+SLUICE_API sl_status sl_solution_get_history(const sl_solution *x, sl_history_view *h);
+/* Whole vectors on rank `root` (malloc'ed there, NULL elsewhere; free()). */
+SLUICE_API sl_status sl_solution_gather(const sl_solution *x, int root, double **value, int32_t **action);
+
+/* Write atomically; load distributed like m, checking that x was computed
+ * for m (fingerprint). A values file (from evaluate) loads without actions. */
+SLUICE_API sl_status sl_solution_save(const sl_solution *x, const char *path);
+SLUICE_API sl_status sl_solution_load(sl_ctx *ctx, const char *path, const sl_model *m, sl_solution **x);
+SLUICE_API void sl_solution_free(sl_solution **x);
+
+/* ---- independent checks ------------------------------------------------------ */
+
+typedef struct sl_verification {
+    int certified;              /* both bounds <= tolerance */
+    double residual_sup, residual_span;
+    double value_error;         /* recomputed from the model, the value and the policy alone */
+    double policy_loss;
+    double tolerance;           /* used */
+    sl_certificate claimed;     /* what the solution says of itself */
+} sl_verification;
+/* Recompute the bounds of x for m (tolerance <= 0: the solution's own).
+ * SL_OK if certified within tolerance, SL_EDATA if not (*out filled). */
+SLUICE_API sl_status sl_verify(const sl_model *m, const sl_solution *x, double tolerance, sl_verification *out);
+
+/* ---- file inspection (printing lives here for `sluice info`) ------------------ */
+
+typedef struct sl_info_opts {
+    const char *path;
     int json;
+    int partition;              /* > 0: print predicted partition for N ranks */
     FILE *out;
-} sl_verify_opts;
-
-/* Recompute the certificate of a solution independently of how it was
- * produced. Returns SL_OK if certified within tolerance, SL_EDATA if not.
- * Collective. */
-sl_status sl_verify(sl_ctx *ctx, const sl_verify_opts *opts);
-
-typedef struct sl_export_opts {
-    const char *solution;
-    const char *model;
-    const char *output;         /* "-" for stdout */
-} sl_export_opts;
-
-/* One CSV row per state: state, factor labels, action, action name, value.
- * Collective (rank 0 writes). */
-sl_status sl_export(sl_ctx *ctx, const sl_export_opts *opts);
+} sl_info_opts;
+/* Describe a model, solution or checkpoint file. */
+SLUICE_API sl_status sl_info(sl_ctx *ctx, const sl_info_opts *opts);
 
 typedef struct sl_simulate_opts {
     const char *model;
@@ -219,9 +354,45 @@ typedef struct sl_simulate_opts {
     int json;
     FILE *out;
 } sl_simulate_opts;
+/* Monte Carlo rollouts of the solution's policy from one start state. */
+SLUICE_API sl_status sl_simulate(sl_ctx *ctx, const sl_simulate_opts *opts);
 
-/* Monte Carlo rollouts of the solution's policy from one start state.
- * Collective. */
-sl_status sl_simulate(sl_ctx *ctx, const sl_simulate_opts *opts);
+/* ---- objectives other than discounted ------------------------------------------
+ * Finite horizon, total reward to absorption and average reward per period
+ * (docs/objectives.md). Interim file-level entry points, to be folded into
+ * sl_solver / sl_solution: they write the solution file (and report) and
+ * print progress, the summary and the verification through the context's
+ * log, like the command line does. */
+
+typedef struct sl_objective_opts {
+    const char *model_path;     /* for messages and the report */
+    const char *output;         /* solution file to write */
+    const char *report;         /* JSON report, or NULL */
+    sl_order order;
+    double tolerance;           /* total: value and policy; average: gain; <= 0 -> 1e-6 */
+    int64_t max_iterations;     /* total/average: iterations; finite: stages; 0: none */
+    double walltime;            /* seconds; 0: none */
+    const char *checkpoint_dir; /* NULL: none */
+    double checkpoint_every;    /* seconds; <= 0 -> 600 */
+    int resume;
+    int64_t horizon;            /* finite: number of stages */
+    const char *terminal;       /* finite: solution file whose /value closes the horizon;
+                                 * NULL: the model's /terminal_value, else 0 */
+    double aperiodicity;        /* average: tau in (0, 1); <= 0 -> 0.5 */
+} sl_objective_opts;
+
+/* Solve m (objective finite, total or average) and write o->output.
+ * Returns SL_OK certified, SL_ESTOPPED stopped early (solution written with
+ * converged = 0; finite: stages kept in the checkpoint only), SL_EDATA for
+ * models the objective cannot handle, naming a state. Collective. */
+SLUICE_API sl_status sl_objective_solve(const sl_model *m, const sl_objective_opts *o);
+/* Recompute the certificate of a solution file of such a model and print it
+ * to out on rank 0 (text or JSON). SL_OK if certified within tolerance (<= 0:
+ * the solution's own), SL_EDATA if not. Collective. */
+SLUICE_API sl_status sl_objective_verify(const sl_model *m, const char *model_path, const char *solution,
+                                         double tolerance, int json, FILE *out);
+
+/* Monotonic seconds (the clock the solver's walltime uses). Local. */
+SLUICE_API double sl_clock(void);
 
 #endif /* SLUICE_SLUICE_H */

@@ -7,7 +7,7 @@
 
 /* Whole model + solution on rank 0 (others hold nothing). Collective. */
 static sl_status load_on_root(sl_ctx *ctx, const char *model, const char *solution, sl_meta *m, sl_block *b,
-                              double **value, int32_t **actions, sl_solution_info *info, int need_rows)
+                              double **value, int32_t **actions, sl_solution_record *info, int need_rows)
 {
     sl_status st = SL_OK;
     *value = NULL;
@@ -58,7 +58,7 @@ sl_status sl_simulate(sl_ctx *ctx, const sl_simulate_opts *o)
     sl_block b;
     double *v = NULL;
     int32_t *a = NULL;
-    sl_solution_info info;
+    sl_solution_record info;
     memset(&m, 0, sizeof(m));
     memset(&b, 0, sizeof(b));
     SL_TRY(load_on_root(ctx, o->model, o->solution, &m, &b, &v, &a, &info, 1));

@@ -10,6 +10,8 @@ typedef struct cli_args {
     int i;              /* next argument */
     const char *cmd;
     sl_ctx *ctx;
+    double start_clock;     /* sl_clock() when the process started */
+    int stderr_tty;         /* progress lines go to a terminal */
 } cli_args;
 
 /* Is argv[i] the option `name`? Consumes it. "--name=value" is split. */
@@ -36,5 +38,6 @@ int cmd_evaluate(cli_args *a);
 int cmd_verify(cli_args *a);
 int cmd_export(cli_args *a);
 int cmd_simulate(cli_args *a);
+int cmd_report(cli_args *a);
 
 #endif

@@ -16,6 +16,17 @@ static int parse_objective(cli_args *a, sl_objective *obj)
     return 1;
 }
 
+/* Write a model and say so. */
+static int save_model(cli_args *a, const sl_model *m, const char *output, double t0)
+{
+    int rc = cli_fail(a, sl_model_save(m, output));
+    if (rc == 0 && sl_ctx_rank(a->ctx) == 0 && sl_ctx_verbosity(a->ctx) >= 1)
+        fprintf(stderr, "%s: wrote %s: %lld states, %lld pairs, %lld transitions in %.1f s\n", a->cmd, output,
+                (long long)sl_model_n_states(m), (long long)sl_model_n_pairs(m),
+                (long long)sl_model_n_transitions(m), sl_clock() - t0);
+    return rc;
+}
+
 static const char build_help[] =
     "usage: sluice build GENERATOR.c|GENERATOR.so -o MODEL.h5 [options]\n"
     "  compile a generator program (see sluice/generator.h), enumerate every state\n"
@@ -33,6 +44,7 @@ int cmd_build(cli_args *a)
 {
     sl_build_opts o;
     memset(&o, 0, sizeof(o));
+    const char *output = NULL;
     const char *names[256];
     double values[256];
     char *owned[256];
@@ -45,7 +57,7 @@ int cmd_build(cli_args *a)
         if (c < 0) return 0;
         if (c > 0) continue;
         if (cli_opt(a, "-o") || cli_opt(a, "--output")) {
-            if ((o.output = cli_value(a)) == NULL) rc = SL_EUSAGE;
+            if ((output = cli_value(a)) == NULL) rc = SL_EUSAGE;
         } else if (cli_opt(a, "--param")) {
             if ((v = cli_value(a)) == NULL) { rc = SL_EUSAGE; break; }
             const char *eq = strchr(v, '=');
@@ -78,8 +90,14 @@ int cmd_build(cli_args *a)
         }
     }
     if (rc == 0 && o.generator == NULL) rc = cli_usage_error(a, "no generator given");
-    if (rc == 0 && o.output == NULL) rc = cli_usage_error(a, "no output file given (-o MODEL.h5)");
-    if (rc == 0) rc = cli_fail(a, sl_build(a->ctx, &o));
+    if (rc == 0 && output == NULL) rc = cli_usage_error(a, "no output file given (-o MODEL.h5)");
+    if (rc == 0) {
+        sl_model *m = NULL;
+        double t0 = sl_clock();
+        rc = cli_fail(a, sl_model_from_generator_opts(a->ctx, &o, &m));
+        if (rc == 0) rc = save_model(a, m, output, t0);
+        sl_model_free(&m);
+    }
     for (int k = 0; k < n_owned; k++) free(owned[k]);
     return rc;
 }
@@ -152,12 +170,18 @@ static int csv_command(cli_args *a, int estimate)
     if (input == NULL) return cli_usage_error(a, "no input CSV given");
     if (output == NULL) return cli_usage_error(a, "no output file given (-o MODEL.h5)");
     if (!have_discount) return cli_usage_error(a, "--discount G is required");
+    sl_model *m = NULL;
+    double t0 = sl_clock();
     if (estimate) {
-        sl_estimate_opts o = {input, output, discount, obj, states, min_visits, absorb};
-        return cli_fail(a, sl_estimate(a->ctx, &o));
+        sl_estimate_opts o = {input, discount, obj, states, min_visits, absorb};
+        rc = cli_fail(a, sl_model_estimate_csv(a->ctx, &o, &m));
+    } else {
+        sl_import_opts o = {input, discount, obj, states, tol, renorm};
+        rc = cli_fail(a, sl_model_import_csv(a->ctx, &o, &m));
     }
-    sl_import_opts o = {input, output, discount, obj, states, tol, renorm};
-    return cli_fail(a, sl_import(a->ctx, &o));
+    if (rc == 0) rc = save_model(a, m, output, t0);
+    sl_model_free(&m);
+    return rc;
 }
 
 int cmd_import(cli_args *a) { return csv_command(a, 0); }

@@ -1,10 +1,33 @@
-/* cmd_solve.c - solve, evaluate, verify, export and simulate commands. */
+/* cmd_solve.c - solve, evaluate, verify, export and simulate commands:
+ * options, the library calls, and everything printed. */
+#include <math.h>
 #include <signal.h>
 #include <stdlib.h>
 #include <string.h>
 #include <time.h>
 
 #include "cli/cli.h"
+#include "core/json.h"
+
+/* What `sluice solve` was asked for. */
+typedef struct solve_args {
+    const char *model, *output, *report;
+    sl_method method;
+    sl_order order;
+    double tolerance;
+    int64_t max_iterations;
+    double walltime;
+    int sweeps;
+    double memory_limit;
+    int strict_memory;
+    const char *checkpoint_dir;
+    double checkpoint_every;
+    int resume;
+    double progress_every;
+    int64_t horizon;            /* finite */
+    const char *terminal;       /* finite */
+    double aperiodicity;        /* average */
+} solve_args;
 
 /* The CLI's one piece of process state: what the last signal asked for, and
  * which signal it was and when it arrived (CLOCK_MONOTONIC s, us), written
@@ -76,11 +99,245 @@ static const char solve_help[] =
     "                        $SLUICE_WALLTIME, or $SLURM_JOB_END_TIME when set\n"
     "  --report FILE.json    machine-readable report\n"
     "  --progress-every S    seconds between progress lines (default 1 on a terminal, 30 otherwise)\n"
+    "objectives other than discounted (recorded in the model; docs/objectives.md):\n"
+    "  --horizon H           finite: number of stages (required)\n"
+    "  --terminal SOL.h5     finite: terminal values from another solution's /value\n"
+    "                        (default: the model's /terminal_value, else 0)\n"
+    "  --aperiodicity TAU    average: weight of staying put in the transform, in (0, 1)\n"
+    "                        (default 0.5); --tolerance bounds the gain\n"
     "signals: USR1 = checkpoint now and continue; TERM, INT, USR2 = checkpoint and exit 75.\n";
+
+/* ---- progress lines (rank 0) ------------------------------------------------------ */
+
+typedef struct monitor_state {
+    cli_args *a;
+    const solve_args *o;
+    double every, last;
+} monitor_state;
+
+static void stamp(char *buf, size_t n)
+{
+    time_t t = time(NULL);
+    struct tm tmv;
+    if (localtime_r(&t, &tmv) == NULL || strftime(buf, n, "%Y-%m-%d %H:%M:%S", &tmv) == 0) snprintf(buf, n, "?");
+}
+
+static void on_progress(const sl_progress *p, void *user)
+{
+    monitor_state *ms = user;
+    sl_ctx *ctx = ms->a->ctx;
+    if (sl_ctx_rank(ctx) != 0 || sl_ctx_verbosity(ctx) < 1) return;
+    char ts[32];
+    stamp(ts, sizeof(ts));
+    const solve_args *o = ms->o;
+    switch (p->event) {
+    case SL_EVENT_START:
+        if (o->resume && p->resumed)
+            fprintf(stderr, "[%s] solve: resumed at iteration %lld, sweep %lld (%.1f s already spent)\n", ts,
+                    (long long)p->iteration, (long long)p->sweeps, p->seconds);
+        else if (o->resume)
+            fprintf(stderr, "[%s] solve: no checkpoint in %s; starting fresh\n", ts, o->checkpoint_dir);
+        fprintf(stderr, "[%s] solve: %s, %s order, %d rank(s), tolerance %.1e\n", ts, o->model,
+                p->note ? p->note : "?", sl_ctx_size(ctx), o->tolerance > 0 ? o->tolerance : 1e-6);
+        return;
+    case SL_EVENT_CHECKPOINT:
+        fprintf(stderr, "[%s] solve: checkpoint written to %s (iteration %lld, sweep %lld)\n", ts,
+                p->note ? p->note : "?", (long long)p->iteration, (long long)p->sweeps);
+        return;
+    case SL_EVENT_STOP:
+        fprintf(stderr, "[%s] solve: %s (iteration %lld, sweep %lld, %.1f s)\n", ts, p->note ? p->note : "stopping",
+                (long long)p->iteration, (long long)p->sweeps, p->seconds);
+        return;
+    case SL_EVENT_CHECK:
+    case SL_EVENT_END:
+        break;
+    }
+    double now = sl_clock();
+    if (p->event == SL_EVENT_CHECK && now - ms->last < ms->every) return;
+    ms->last = now;
+    if (!p->have_check) {
+        fprintf(stderr, "[%s] solve: iter %lld  sweeps %lld  %.1fs  (no Bellman check yet)\n", ts,
+                (long long)p->iteration, (long long)p->sweeps, p->seconds);
+        return;
+    }
+    char etas[32] = "?";
+    if (isfinite(p->eta)) snprintf(etas, sizeof(etas), "%.0fs", p->eta);
+    fprintf(stderr,
+            "[%s] solve: iter %lld  sweeps %lld  sup|Tv-v| %.3e  span %.3e  bound %.3e  rate %.4f  %.1fs  ETA %s\n",
+            ts, (long long)p->iteration, (long long)p->sweeps, p->residual_sup, p->residual_span,
+            fmax(p->value_error, p->policy_loss), p->rate, p->seconds, etas);
+}
+
+/* ---- report and summary --------------------------------------------------------- */
+
+static int write_report(cli_args *a, const solve_args *o, const sl_model *m, const sl_solution *x, int exit_code)
+{
+    sl_ctx *ctx = a->ctx;
+    if (o->report == NULL || sl_ctx_rank(ctx) != 0) return 0;
+    sl_solution_info in;
+    sl_certificate c;
+    sl_history_view h;
+    sl_solution_get_info(x, &in);
+    sl_solution_get_certificate(x, &c);
+    sl_solution_get_history(x, &h);
+    char tmp[4200];
+    snprintf(tmp, sizeof(tmp), "%s.partial", o->report);
+    FILE *f = fopen(tmp, "w");
+    if (f == NULL) {
+        fprintf(stderr, "sluice solve: %s: cannot create report\n", o->report);
+        return SL_ECANTCREAT;
+    }
+    sl_json j;
+    sl_json_begin(&j, f);
+    sl_json_str(&j, "sluice_version", SLUICE_VERSION);
+    sl_json_str(&j, "model", o->model);
+    sl_json_str(&j, "model_fingerprint", sl_model_fingerprint(m));
+    sl_json_str(&j, "solution", o->output);
+    sl_json_str(&j, "method", in.method);
+    sl_json_str(&j, "order", in.order);
+    if (in.evaluation[0]) sl_json_str(&j, "evaluation", in.evaluation);
+    sl_json_int(&j, "ranks", sl_ctx_size(ctx));
+    sl_json_int(&j, "n_states", sl_model_n_states(m));
+    sl_json_int(&j, "n_transitions", sl_model_n_transitions(m));
+    sl_json_num(&j, "discount", sl_model_discount(m));
+    sl_json_bool(&j, "converged", c.converged);
+    sl_json_int(&j, "exit_code", (int64_t)exit_code);
+    sl_json_num(&j, "tolerance", c.tolerance);
+    sl_json_int(&j, "iterations", in.iterations);
+    sl_json_int(&j, "sweeps", in.sweeps);
+    sl_json_num(&j, "seconds", in.seconds);
+    sl_json_num(&j, "residual_sup", c.residual_sup);
+    sl_json_num(&j, "residual_span", c.residual_span);
+    sl_json_num(&j, "residual_min", c.residual_min);
+    sl_json_num(&j, "residual_max", c.residual_max);
+    sl_json_num(&j, "value_error_bound", c.value_error);
+    sl_json_num(&j, "policy_loss_bound", c.policy_loss);
+    sl_json_int(&j, "checkpoints_written", in.checkpoints_written);
+    sl_json_arr_open(&j, "history");
+    for (int64_t i = 0; i < h.n; i++) {
+        sl_json_obj_open(&j, NULL);
+        sl_json_int(&j, "iteration", h.iteration[i]);
+        sl_json_int(&j, "sweeps", h.sweeps[i]);
+        sl_json_num(&j, "seconds", h.seconds[i]);
+        sl_json_num(&j, "sup", h.sup[i]);
+        sl_json_num(&j, "span", h.span[i]);
+        sl_json_num(&j, "value_error_bound", h.value_error[i]);
+        sl_json_num(&j, "policy_loss_bound", h.policy_loss[i]);
+        sl_json_close_obj(&j);
+    }
+    sl_json_close_arr(&j);
+    sl_json_str(&j, "caution",
+                "results support, and never replace, licensed engineering judgement and local regulations");
+    sl_json_end(&j);
+    int bad = ferror(f);
+    bad |= fclose(f) != 0;
+    if (bad || rename(tmp, o->report) != 0) {
+        remove(tmp);
+        fprintf(stderr, "sluice solve: %s: cannot write report\n", o->report);
+        return SL_EIO;
+    }
+    return 0;
+}
+
+static void print_summary(cli_args *a, const solve_args *o, const sl_model *m, const sl_solution *x)
+{
+    sl_ctx *ctx = a->ctx;
+    if (sl_ctx_rank(ctx) != 0 || sl_ctx_verbosity(ctx) < 1) return;
+    sl_solution_info in;
+    sl_certificate c;
+    sl_solution_get_info(x, &in);
+    sl_solution_get_certificate(x, &c);
+    FILE *f = stderr;
+    fprintf(f, "\nsluice solve summary\n");
+    fprintf(f, "  model        %s (%lld states, %lld transitions, discount %g)\n", o->model,
+            (long long)sl_model_n_states(m), (long long)sl_model_n_transitions(m), sl_model_discount(m));
+    fprintf(f, "  method       %s (order %s%s%s) on %d rank(s)\n", in.method, in.order,
+            in.evaluation[0] ? ", evaluation " : "", in.evaluation, sl_ctx_size(ctx));
+    fprintf(f, "  result       %s after %lld iterations, %lld sweeps, %.2f s\n",
+            c.converged ? "CERTIFIED" : "NOT converged", (long long)in.iterations, (long long)in.sweeps, in.seconds);
+    fprintf(f, "  residual     sup|Tv - v| = %.3e, span = %.3e\n", c.residual_sup, c.residual_span);
+    fprintf(f, "  certificate  |value - v*| <= %.3e in every state; policy within %.3e of optimal (tolerance %.1e)\n",
+            c.value_error, c.policy_loss, c.tolerance);
+    fprintf(f, "  written      %s\n", o->output);
+    fprintf(f, "  caution      results support, and never replace, licensed engineering judgement\n"
+               "               and local regulations.\n");
+}
+
+static int run_solve(cli_args *a, const solve_args *o)
+{
+    sl_ctx *ctx = a->ctx;
+    sl_model *m = NULL;
+    sl_solver *s = NULL;
+    sl_solution *x = NULL;
+    monitor_state ms = {a, o, 0, -1e300};
+    ms.every = o->progress_every > 0 ? o->progress_every : (a->stderr_tty ? 1.0 : 30.0);
+    int rc = cli_fail(a, sl_model_load(ctx, o->model, &m));
+    if (rc == 0 && sl_model_objective(m) != SL_OBJ_DISCOUNTED) {
+        /* finite, total, average: docs/objectives.md */
+        sl_objective_opts oo;
+        memset(&oo, 0, sizeof(oo));
+        oo.model_path = o->model;
+        oo.output = o->output;
+        oo.report = o->report;
+        oo.order = o->order;
+        oo.tolerance = o->tolerance;
+        oo.max_iterations = o->max_iterations;
+        oo.walltime = o->walltime;
+        oo.checkpoint_dir = o->checkpoint_dir;
+        oo.checkpoint_every = o->checkpoint_every;
+        oo.resume = o->resume;
+        oo.horizon = o->horizon;
+        oo.terminal = o->terminal;
+        oo.aperiodicity = o->aperiodicity;
+        if (o->method != SL_METHOD_GS && sl_ctx_rank(ctx) == 0)
+            fprintf(stderr, "sluice solve: warning: --method applies to the discounted objective; ignored for "
+                            "objective %s\n",
+                    sl_objective_name(sl_model_objective(m)));
+        rc = cli_fail(a, sl_objective_solve(m, &oo));
+        sl_model_free(&m);
+        return rc;
+    }
+    if (rc == 0 && (o->horizon > 0 || o->terminal || o->aperiodicity > 0))
+        rc = cli_usage_error(a, "--horizon, --terminal and --aperiodicity apply to the finite and average "
+                                "objectives; %s is discounted",
+                             o->model);
+    if (rc == 0) rc = cli_fail(a, sl_solver_create(ctx, &s));
+    if (rc == 0) {
+        sl_status st = sl_solver_set_method(s, o->method);
+        if (st == SL_OK) st = sl_solver_set_order(s, o->order);
+        if (st == SL_OK && o->tolerance > 0) st = sl_solver_set_tolerance(s, o->tolerance);
+        if (st == SL_OK) st = sl_solver_set_max_iterations(s, o->max_iterations);
+        if (st == SL_OK) st = sl_solver_set_walltime(s, o->walltime);
+        if (st == SL_OK) st = sl_solver_set_walltime_origin(s, a->start_clock);
+        if (st == SL_OK) st = sl_solver_set_sweeps(s, o->sweeps);
+        if (st == SL_OK) st = sl_solver_set_memory_limit(s, o->memory_limit, o->strict_memory);
+        if (st == SL_OK && o->checkpoint_dir)
+            st = sl_solver_set_checkpoint(s, o->checkpoint_dir, o->checkpoint_every, o->resume);
+        if (st == SL_OK) st = sl_solver_set_monitor(s, on_progress, &ms);
+        rc = cli_fail(a, st);
+    }
+    if (rc == 0) {
+        sl_status st = sl_solver_solve(s, m, &x);
+        if (x != NULL) {
+            /* certified, stopped early or below the roundoff floor: the
+             * solution is honest either way; write it, then say how it ended */
+            int wrc = cli_fail(a, sl_solution_save(x, o->output));
+            if (wrc == 0) wrc = write_report(a, o, m, x, (int)st);
+            if (wrc == 0) print_summary(a, o, m, x);
+            rc = wrc != 0 ? wrc : cli_fail(a, st);
+        } else {
+            rc = cli_fail(a, st);
+        }
+    }
+    sl_solution_free(&x);
+    sl_solver_free(&s);
+    sl_model_free(&m);
+    return rc;
+}
 
 int cmd_solve(cli_args *a)
 {
-    sl_solve_opts o;
+    solve_args o;
     memset(&o, 0, sizeof(o));
     int rc = 0;
     const char *v;
@@ -128,6 +385,15 @@ int cmd_solve(cli_args *a)
             if ((o.report = cli_value(a)) == NULL) rc = SL_EUSAGE;
         } else if (cli_opt(a, "--progress-every")) {
             if (!num_opt(a, "--progress-every", &o.progress_every)) rc = SL_EUSAGE;
+        } else if (cli_opt(a, "--horizon")) {
+            if (!int_opt(a, "--horizon", &o.horizon)) rc = SL_EUSAGE;
+            else if (o.horizon < 1 || o.horizon > 100000000) rc = cli_usage_error(a, "--horizon must be in [1, 1e8]");
+        } else if (cli_opt(a, "--terminal")) {
+            if ((o.terminal = cli_value(a)) == NULL) rc = SL_EUSAGE;
+        } else if (cli_opt(a, "--aperiodicity")) {
+            if (!num_opt(a, "--aperiodicity", &o.aperiodicity)) rc = SL_EUSAGE;
+            else if (!(o.aperiodicity > 0 && o.aperiodicity < 1))
+                rc = cli_usage_error(a, "--aperiodicity must be in (0, 1)");
         } else if (a->argv[a->i][0] == '-') {
             rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
         } else if (o.model == NULL) {
@@ -149,7 +415,7 @@ int cmd_solve(cli_args *a)
         }
     }
     install_signals(a->ctx);
-    return cli_fail(a, sl_solve(a->ctx, &o));
+    return run_solve(a, &o);
 }
 
 static const char evaluate_help[] =
@@ -160,9 +426,47 @@ static const char evaluate_help[] =
     "  --memory-limit BYTES  largest factorization to attempt (default half of RAM);\n"
     "                        above it the evaluation is iterative\n";
 
+typedef struct evaluate_args {
+    const char *model, *policy, *output;
+    double tolerance, memory_limit;
+    int iterative;
+} evaluate_args;
+
+static int run_evaluate(cli_args *a, const evaluate_args *o)
+{
+    sl_ctx *ctx = a->ctx;
+    sl_model *m = NULL;
+    sl_solver *s = NULL;
+    sl_solution *pol = NULL, *v = NULL;
+    int rc = cli_fail(a, sl_model_load(ctx, o->model, &m));
+    if (rc == 0) rc = cli_fail(a, sl_solution_load(ctx, o->policy, m, &pol));
+    if (rc == 0) rc = cli_fail(a, sl_solver_create(ctx, &s));
+    if (rc == 0) {
+        sl_status st = sl_solver_set_method(s, o->iterative ? SL_METHOD_GS : SL_METHOD_PI);
+        if (st == SL_OK && o->tolerance > 0) st = sl_solver_set_tolerance(s, o->tolerance);
+        if (st == SL_OK) st = sl_solver_set_memory_limit(s, o->memory_limit, 0);
+        rc = cli_fail(a, st);
+    }
+    if (rc == 0) rc = cli_fail(a, sl_solver_evaluate(s, m, pol, &v));
+    if (rc == 0) rc = cli_fail(a, sl_solution_save(v, o->output));
+    if (rc == 0 && sl_ctx_rank(ctx) == 0 && sl_ctx_verbosity(ctx) >= 1) {
+        sl_solution_info in;
+        sl_certificate c;
+        sl_solution_get_info(v, &in);
+        sl_solution_get_certificate(v, &c);
+        fprintf(stderr, "evaluate: %s evaluation of the policy in %s: |value - v_policy| <= %.3e; wrote %s\n",
+                in.evaluation, o->policy, c.value_error, o->output);
+    }
+    sl_solution_free(&v);
+    sl_solution_free(&pol);
+    sl_solver_free(&s);
+    sl_model_free(&m);
+    return rc;
+}
+
 int cmd_evaluate(cli_args *a)
 {
-    sl_evaluate_opts o;
+    evaluate_args o;
     memset(&o, 0, sizeof(o));
     int rc = 0;
     while (a->i < a->argc && rc == 0) {
@@ -192,7 +496,7 @@ int cmd_evaluate(cli_args *a)
     if (o.model == NULL) return cli_usage_error(a, "no model file given");
     if (o.policy == NULL) return cli_usage_error(a, "no policy given (--policy SOLUTION.h5)");
     if (o.output == NULL) return cli_usage_error(a, "no output file given (-o VALUES.h5)");
-    return cli_fail(a, sl_evaluate(a->ctx, &o));
+    return run_evaluate(a, &o);
 }
 
 static const char verify_help[] =
@@ -201,11 +505,70 @@ static const char verify_help[] =
     "  certify the value and the policy independently of how they were computed.\n"
     "  Exit 0 if both bounds are within EPS (default: the solution's tolerance), 65 if not.\n";
 
+typedef struct verify_args {
+    const char *model, *solution;
+    double tolerance;
+    int json;
+} verify_args;
+
+static int run_verify(cli_args *a, const verify_args *o)
+{
+    sl_ctx *ctx = a->ctx;
+    sl_model *m = NULL;
+    sl_solution *x = NULL;
+    sl_verification r;
+    memset(&r, 0, sizeof(r));
+    int rc = cli_fail(a, sl_model_load(ctx, o->model, &m));
+    if (rc == 0 && sl_model_objective(m) != SL_OBJ_DISCOUNTED) {
+        rc = cli_fail(a, sl_objective_verify(m, o->model, o->solution, o->tolerance, o->json, stdout));
+        sl_model_free(&m);
+        return rc;
+    }
+    if (rc == 0) rc = cli_fail(a, sl_solution_load(ctx, o->solution, m, &x));
+    if (rc == 0) {
+        sl_status st = sl_verify(m, x, o->tolerance, &r);
+        if ((st == SL_OK || st == SL_EDATA) && sl_ctx_rank(ctx) == 0) {
+            sl_solution_info in;
+            sl_solution_get_info(x, &in);
+            FILE *out = stdout;
+            if (o->json) {
+                sl_json j;
+                sl_json_begin(&j, out);
+                sl_json_str(&j, "solution", o->solution);
+                sl_json_str(&j, "model_fingerprint", sl_model_fingerprint(m));
+                sl_json_num(&j, "residual_sup", r.residual_sup);
+                sl_json_num(&j, "residual_span", r.residual_span);
+                sl_json_num(&j, "value_error_bound", r.value_error);
+                sl_json_num(&j, "policy_loss_bound", r.policy_loss);
+                sl_json_num(&j, "tolerance", r.tolerance);
+                sl_json_bool(&j, "certified", r.certified);
+                sl_json_end(&j);
+            } else {
+                fprintf(out, "verify %s against %s\n", o->solution, o->model);
+                fprintf(out, "  residual      sup|Tv - v| = %.3e, span = %.3e (recomputed)\n", r.residual_sup,
+                        r.residual_span);
+                fprintf(out, "  value         |value - v*| <= %.3e in every state\n", r.value_error);
+                fprintf(out, "  policy        v* - v_policy <= %.3e in every state\n", r.policy_loss);
+                fprintf(out, "  claimed       value %.3e, policy %.3e (by %s)\n", r.claimed.value_error,
+                        r.claimed.policy_loss, in.method);
+                fprintf(out, "  result        %s at tolerance %.1e\n", r.certified ? "CERTIFIED" : "NOT certified",
+                        r.tolerance);
+            }
+            fflush(out);
+        }
+        if (st == SL_EDATA && r.tolerance > 0 && sl_ctx_rank(ctx) == 0)
+            fprintf(stderr, "sluice verify: %s: %s\n", o->solution, sl_ctx_message(ctx));
+        rc = st == SL_EDATA && r.tolerance > 0 ? (int)st : cli_fail(a, st);
+    }
+    sl_solution_free(&x);
+    sl_model_free(&m);
+    return rc;
+}
+
 int cmd_verify(cli_args *a)
 {
-    sl_verify_opts o;
+    verify_args o;
     memset(&o, 0, sizeof(o));
-    o.out = stdout;
     int rc = 0;
     while (a->i < a->argc && rc == 0) {
         int c = cli_common_opt(a, verify_help);
@@ -228,38 +591,7 @@ int cmd_verify(cli_args *a)
     }
     if (rc) return rc;
     if (o.model == NULL || o.solution == NULL) return cli_usage_error(a, "need MODEL.h5 and SOLUTION.h5");
-    return cli_fail(a, sl_verify(a->ctx, &o));
-}
-
-static const char export_help[] =
-    "usage: sluice export SOLUTION.h5 --model MODEL.h5 -o FILE.csv|-\n"
-    "  one CSV row per state: state, factor values, action id, action name, value.\n";
-
-int cmd_export(cli_args *a)
-{
-    sl_export_opts o = {NULL, NULL, NULL};
-    int rc = 0;
-    while (a->i < a->argc && rc == 0) {
-        int c = cli_common_opt(a, export_help);
-        if (c < 0) return 0;
-        if (c > 0) continue;
-        if (cli_opt(a, "-o") || cli_opt(a, "--output")) {
-            if ((o.output = cli_value(a)) == NULL) rc = SL_EUSAGE;
-        } else if (cli_opt(a, "--model")) {
-            if ((o.model = cli_value(a)) == NULL) rc = SL_EUSAGE;
-        } else if (a->argv[a->i][0] == '-') {
-            rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
-        } else if (o.solution == NULL) {
-            o.solution = a->argv[a->i++];
-        } else {
-            rc = cli_usage_error(a, "unexpected argument '%s'", a->argv[a->i]);
-        }
-    }
-    if (rc) return rc;
-    if (o.solution == NULL) return cli_usage_error(a, "no solution file given");
-    if (o.model == NULL) return cli_usage_error(a, "no model given (--model MODEL.h5)");
-    if (o.output == NULL) return cli_usage_error(a, "no output given (-o FILE.csv, or - for stdout)");
-    return cli_fail(a, sl_export(a->ctx, &o));
+    return run_verify(a, &o);
 }
 
 static const char simulate_help[] =

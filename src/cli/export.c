@@ -1,93 +1,93 @@
-/* export.c - `sluice export` (policy and values as CSV). */
+/* export.c - `sluice export`: policy and values as CSV, one row per state. */
 #include <errno.h>
-#include <math.h>
+#include <stdlib.h>
 #include <string.h>
 
-#include "store/store.h"
+#include "cli/cli.h"
+#include "sluice/generator.h"
 
-/* Whole model + solution on rank 0 (others hold nothing). Collective. */
-static sl_status load_on_root(sl_ctx *ctx, const char *model, const char *solution, sl_meta *m, sl_block *b,
-                              double **value, int32_t **actions, sl_solution_info *info, int need_rows)
+static const char export_help[] =
+    "usage: sluice export SOLUTION.h5 --model MODEL.h5 -o FILE.csv|-\n"
+    "  one CSV row per state: state, factor values, action id, action name, value.\n";
+
+static int write_csv(cli_args *a, const char *output, const sl_model *m, const double *v, const int32_t *act)
 {
-    sl_status st = SL_OK;
-    *value = NULL;
-    *actions = NULL;
-    memset(b, 0, sizeof(*b));
-    SL_TRY(sl_store_model_meta(ctx, model, m));
-    int64_t n = ctx->rank == 0 ? m->n_states : 0;
-    if (SL_ALLOC(ctx, *value, n, "values") == NULL || SL_ALLOC(ctx, *actions, n, "policy") == NULL) st = SL_ENOMEM;
-    SL_TRY(sl_agree(ctx, st));
-    SL_TRY(sl_store_solution_read(ctx, solution, SL_FILE_SOLUTION, m->n_states, 0, n, *value, *actions, info));
-    if (strcmp(info->model_fingerprint, m->fingerprint) != 0)
-        SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EDATA,
-                                    "%s was computed for a different model (fingerprint %s) than %s (fingerprint %s)",
-                                    solution, info->model_fingerprint, model, m->fingerprint)));
-    if (need_rows) SL_TRY(sl_store_model_read(ctx, model, m, 0, n, b));
-cleanup:
-    if (st != SL_OK) {
-        free(*value);
-        free(*actions);
-        *value = NULL;
-        *actions = NULL;
+    int to_stdout = strcmp(output, "-") == 0;
+    char tmp[4200];
+    snprintf(tmp, sizeof(tmp), "%s.partial", output);
+    FILE *f = to_stdout ? stdout : fopen(tmp, "w");
+    if (f == NULL) {
+        fprintf(stderr, "sluice %s: %s: cannot create: %s\n", a->cmd, output, strerror(errno));
+        return SL_ECANTCREAT;
     }
-    return st;
+    int nf = sl_model_n_factors(m);
+    fprintf(f, "state");
+    for (int k = 0; k < nf; k++) fprintf(f, ",%s", sl_model_factor_name(m, k));
+    fprintf(f, ",action,action_name,value\n");
+    int64_t fv[SLUICE_MAX_FACTORS];
+    for (int64_t s = 0; s < sl_model_n_states(m); s++) {
+        sl_model_decode_state(m, s, fv);
+        fprintf(f, "%lld", (long long)s);
+        for (int k = 0; k < nf; k++) fprintf(f, ",%lld", (long long)fv[k]);
+        fprintf(f, ",%d,%s,%.17g\n", (int)act[s], sl_model_action_name(m, act[s]), v[s]);
+    }
+    int bad = ferror(f) != 0;
+    if (to_stdout) bad |= fflush(f) != 0;
+    else bad |= fclose(f) != 0;
+    int rc = 0;
+    if (bad) {
+        fprintf(stderr, "sluice %s: %s: write failed\n", a->cmd, output);
+        rc = SL_EIO;
+    }
+    if (!to_stdout) {
+        if (rc == 0 && rename(tmp, output) != 0) {
+            fprintf(stderr, "sluice %s: %s: cannot rename into place: %s\n", a->cmd, output, strerror(errno));
+            rc = SL_ECANTCREAT;
+        }
+        if (rc != 0) remove(tmp);
+    }
+    return rc;
 }
 
-sl_status sl_export(sl_ctx *ctx, const sl_export_opts *o)
+int cmd_export(cli_args *a)
 {
-    sl_status st = SL_OK;
-    sl_meta m;
-    sl_block b;
-    double *v = NULL;
-    int32_t *a = NULL;
-    sl_solution_info info;
-    memset(&m, 0, sizeof(m));
-    SL_TRY(load_on_root(ctx, o->model, o->solution, &m, &b, &v, &a, &info, 1));
-    /* every policy action must be one the model offers in that state */
-    for (int64_t s = 0; ctx->rank == 0 && s < m.n_states && st == SL_OK; s++) {
-        int found = 0;
-        for (int64_t q = b.first_pair[s]; q < b.first_pair[s + 1]; q++) found |= b.action[q] == a[s];
-        if (!found)
-            st = SL_ERR(ctx, SL_EDATA, "%s: state %lld: policy action %d is not available in %s", o->solution,
-                        (long long)s, (int)a[s], o->model);
-    }
-    SL_TRY(sl_agree(ctx, st));
-    if (ctx->rank == 0) {
-        int to_stdout = strcmp(o->output, "-") == 0;
-        char tmp[4200];
-        snprintf(tmp, sizeof(tmp), "%s.partial", o->output);
-        FILE *f = to_stdout ? stdout : fopen(tmp, "w");
-        if (f == NULL) {
-            st = SL_ERR(ctx, SL_ECANTCREAT, "%s: cannot create: %s", o->output, strerror(errno));
+    const char *solution = NULL, *model = NULL, *output = NULL;
+    int rc = 0;
+    while (a->i < a->argc && rc == 0) {
+        int c = cli_common_opt(a, export_help);
+        if (c < 0) return 0;
+        if (c > 0) continue;
+        if (cli_opt(a, "-o") || cli_opt(a, "--output")) {
+            if ((output = cli_value(a)) == NULL) rc = SL_EUSAGE;
+        } else if (cli_opt(a, "--model")) {
+            if ((model = cli_value(a)) == NULL) rc = SL_EUSAGE;
+        } else if (a->argv[a->i][0] == '-') {
+            rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
+        } else if (solution == NULL) {
+            solution = a->argv[a->i++];
         } else {
-            fprintf(f, "state");
-            for (int k = 0; k < m.n_factors; k++) fprintf(f, ",%s", m.factor_name[k]);
-            fprintf(f, ",action,action_name,value\n");
-            int64_t fv[SLUICE_MAX_FACTORS];
-            for (int64_t s = 0; s < m.n_states; s++) {
-                sl_meta_decode(&m, s, fv);
-                fprintf(f, "%lld", (long long)s);
-                for (int k = 0; k < m.n_factors; k++) fprintf(f, ",%lld", (long long)fv[k]);
-                const char *name = a[s] >= 0 && a[s] < m.n_action_names ? m.action_name[a[s]] : "";
-                fprintf(f, ",%d,%s,%.17g\n", (int)a[s], name, v[s]);
-            }
-            int bad = ferror(f) != 0;
-            if (to_stdout) bad |= fflush(f) != 0;
-            else bad |= fclose(f) != 0;
-            if (bad) st = SL_ERR(ctx, SL_EIO, "%s: write failed", o->output);
-            if (!to_stdout) {
-                if (st == SL_OK && rename(tmp, o->output) != 0)
-                    st = SL_ERR(ctx, SL_ECANTCREAT, "%s: cannot rename into place: %s", o->output, strerror(errno));
-                if (st != SL_OK) remove(tmp);
-            }
+            rc = cli_usage_error(a, "unexpected argument '%s'", a->argv[a->i]);
         }
     }
-    st = sl_agree(ctx, st);
-cleanup:
-    free(v);
-    free(a);
-    sl_block_free(&b);
-    sl_meta_free(&m);
-    return st;
-}
+    if (rc) return rc;
+    if (solution == NULL) return cli_usage_error(a, "no solution file given");
+    if (model == NULL) return cli_usage_error(a, "no model given (--model MODEL.h5)");
+    if (output == NULL) return cli_usage_error(a, "no output given (-o FILE.csv, or - for stdout)");
 
+    sl_ctx *ctx = a->ctx;
+    sl_model *m = NULL;
+    sl_solution *x = NULL;
+    double *v = NULL;
+    int32_t *act = NULL;
+    rc = cli_fail(a, sl_model_load(ctx, model, &m));
+    if (rc == 0) rc = cli_fail(a, sl_solution_load(ctx, solution, m, &x));
+    if (rc == 0) rc = cli_fail(a, sl_solution_gather(x, 0, &v, &act));
+    if (rc == 0 && sl_ctx_rank(ctx) == 0) rc = write_csv(a, output, m, v, act);
+    /* every rank returns rank 0's outcome */
+    MPI_Bcast(&rc, 1, MPI_INT, 0, MPI_COMM_WORLD);
+    free(v);
+    free(act);
+    sl_solution_free(&x);
+    sl_model_free(&m);
+    return rc;
+}

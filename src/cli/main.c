@@ -4,6 +4,7 @@
 #include <stdarg.h>
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
 #include "cli/cli.h"
 
@@ -20,6 +21,7 @@ static const char usage_text[] =
     "  verify MODEL.h5 SOLUTION.h5 [--tolerance EPS]            recompute and check a solution's certificate\n"
     "  export SOLUTION.h5 --model MODEL.h5 -o FILE.csv          policy and values as CSV\n"
     "  simulate MODEL.h5 SOLUTION.h5 --start S --episodes N --seed K\n"
+    "  report MODEL.h5 SOLUTION.h5 -o REPORT.html [--figures DIR]   one HTML page for a reviewer\n"
     "\n"
     "Run 'sluice COMMAND --help' for the options of one command. Under 'mpirun -np N'\n"
     "every command that reads or writes a model uses all N ranks.\n"
@@ -112,6 +114,7 @@ int cli_int64(cli_args *a, const char *opt, const char *s, int64_t *out)
 
 int main(int argc, char **argv)
 {
+    double start_clock = sl_clock();
     int provided = 0;
     if (MPI_Init_thread(&argc, &argv, MPI_THREAD_SINGLE, &provided) != MPI_SUCCESS) {
         fprintf(stderr, "sluice: MPI initialisation failed\n");
@@ -138,7 +141,8 @@ int main(int argc, char **argv)
         int (*fn)(cli_args *);
     } cmds[] = {{"build", cmd_build},       {"import", cmd_import}, {"estimate", cmd_estimate},
                 {"info", cmd_info},         {"solve", cmd_solve},   {"evaluate", cmd_evaluate},
-                {"verify", cmd_verify},     {"export", cmd_export}, {"simulate", cmd_simulate}};
+                {"verify", cmd_verify},     {"export", cmd_export}, {"simulate", cmd_simulate},
+                {"report", cmd_report}};
     int (*fn)(cli_args *) = NULL;
     for (size_t k = 0; k < sizeof(cmds) / sizeof(cmds[0]); k++)
         if (strcmp(argv[1], cmds[k].name) == 0) fn = cmds[k].fn;
@@ -160,7 +164,8 @@ int main(int argc, char **argv)
         MPI_Finalize();
         return SL_EINTERNAL;
     }
-    cli_args a = {argc, argv, 2, argv[1], ctx};
+    sl_ctx_set_log(ctx, stderr);
+    cli_args a = {argc, argv, 2, argv[1], ctx, start_clock, isatty(STDERR_FILENO)};
     rc = fn(&a);
     sl_ctx_free(&ctx);
     MPI_Finalize();

@@ -48,8 +48,8 @@ sl_status sl_ctx_new(MPI_Comm comm, int verbosity, sl_ctx **out)
      * checked allocation of this process fails */
     const char *fa = getenv("SLUICE_FAULT_ALLOC");
     ctx->fault_alloc_at = fa != NULL ? atoll(fa) : 0;
-    ctx->log = stderr;
-    ctx->log_tty = isatty(STDERR_FILENO);
+    ctx->log = NULL;            /* the library prints nothing unless asked */
+    ctx->log_tty = 0;
     *out = ctx;
     return SL_OK;
 }
@@ -63,6 +63,7 @@ void sl_ctx_free(sl_ctx **pctx)
 }
 
 int sl_ctx_rank(const sl_ctx *ctx) { return ctx->rank; }
+int sl_ctx_verbosity(const sl_ctx *ctx) { return ctx->verbosity; }
 int sl_ctx_size(const sl_ctx *ctx) { return ctx->size; }
 const char *sl_ctx_message(const sl_ctx *ctx) { return ctx->err; }
 
@@ -85,14 +86,20 @@ void sl_ctx_set_signal_info(sl_ctx *ctx, volatile sig_atomic_t *info)
 sl_status sl_error_at(sl_ctx *ctx, sl_status st, const char *file, int line,
                       const char *fmt, ...)
 {
-    if (ctx == NULL || ctx->err_status != SL_OK) return st;
+    /* the message of the last failing call wins: a failure recorded earlier
+     * that an API call returned is overwritten by the next one */
+    if (ctx == NULL) return st;
     ctx->err_status = st;
+    /* format into a scratch buffer first: the arguments may point into
+     * ctx->err itself (re-raising the current message) */
+    char buf[SL_MSG_MAX];
     va_list ap;
     va_start(ap, fmt);
-    int n = vsnprintf(ctx->err, sizeof(ctx->err), fmt, ap);
+    int n = vsnprintf(buf, sizeof(buf), fmt, ap);
     va_end(ap);
-    if (ctx->verbosity >= 2 && n >= 0 && (size_t)n < sizeof(ctx->err))
-        snprintf(ctx->err + n, sizeof(ctx->err) - (size_t)n, " [%s:%d]", file, line);
+    if (ctx->verbosity >= 2 && n >= 0 && (size_t)n < sizeof(buf))
+        snprintf(buf + n, sizeof(buf) - (size_t)n, " [%s:%d]", file, line);
+    memcpy(ctx->err, buf, sizeof(buf));
     return st;
 }
 

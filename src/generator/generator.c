@@ -294,7 +294,7 @@ static void progress(sl_ctx *ctx, double t0, double *last, int64_t done, int64_t
     fflush(ctx->log);
 }
 
-sl_status sl_build(sl_ctx *ctx, const sl_build_opts *o)
+sl_status sl_model_from_generator_opts(sl_ctx *ctx, const sl_build_opts *o, sl_model **out)
 {
     sl_status st = SL_OK;
     char so_path[4400] = "";
@@ -309,6 +309,9 @@ sl_status sl_build(sl_ctx *ctx, const sl_build_opts *o)
     memset(&meta, 0, sizeof(meta));
     memset(&blk, 0, sizeof(blk));
     memset(&shape, 0, sizeof(shape));
+    if (out == NULL) return SL_ERR(ctx, SL_EUSAGE, "sl_model_from_generator: no output handle");
+    *out = NULL;
+    if (o == NULL || o->generator == NULL) return SL_ERR(ctx, SL_EUSAGE, "sl_model_from_generator: no generator given");
 
     if (ctx->rank == 0) {
         if (access(o->generator, R_OK) != 0)
@@ -490,9 +493,9 @@ sl_status sl_build(sl_ctx *ctx, const sl_build_opts *o)
     const char *base = strrchr(o->generator, '/');
     snprintf(meta.source, sizeof(meta.source), "%s", base ? base + 1 : o->generator);
     SL_TRY(sl_fingerprint(ctx, &meta, &blk, meta.fingerprint));
-    SL_TRY(sl_store_model_write(ctx, o->output, &meta, &blk));
-    sl_log(ctx, "build: wrote %s: %lld states, %lld pairs, %lld transitions in %.1f s", o->output,
+    sl_log(ctx, "build: %s: %lld states, %lld pairs, %lld transitions enumerated in %.1f s", o->generator,
            (long long)meta.n_states, (long long)meta.n_pairs, (long long)meta.n_trans, sl_now() - t0);
+    SL_TRY(sl_model_adopt(ctx, &meta, &blk, out));
 cleanup:
     if (armed)
         for (int i = 0; i < 8; i++) sigaction(sigs[i], &old[i], NULL);
@@ -503,4 +506,16 @@ cleanup:
     sl_block_free(&blk);
     sl_meta_free(&meta);
     return st;
+}
+
+sl_status sl_model_from_generator(sl_ctx *ctx, const char *path_or_so, int n_params, const char *const *names,
+                                  const double *values, sl_model **m)
+{
+    sl_build_opts o;
+    memset(&o, 0, sizeof(o));
+    o.generator = path_or_so;
+    o.n_params = n_params;
+    o.param_names = names;
+    o.param_values = values;
+    return sl_model_from_generator_opts(ctx, &o, m);
 }

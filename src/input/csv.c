@@ -606,8 +606,8 @@ sl_status sl_csv_check_discount(sl_ctx *ctx, sl_objective obj, double discount)
     return SL_OK;
 }
 
-sl_status sl_csv_write_model(sl_ctx *ctx, sl_status st, const char *path, sl_meta *meta,
-                             sl_block *block, const char *where)
+sl_status sl_csv_adopt_model(sl_ctx *ctx, sl_status st, sl_meta *meta, sl_block *block, const char *where,
+                             sl_model **out)
 {
     st = sl_agree(ctx, st);
     if (st != SL_OK) return st;
@@ -623,5 +623,5 @@ sl_status sl_csv_write_model(sl_ctx *ctx, sl_status st, const char *path, sl_met
     if (st != SL_OK) return st;
     st = sl_agree(ctx, sl_fingerprint(ctx, meta, block, meta->fingerprint));
     if (st != SL_OK) return st;
-    return sl_store_model_write(ctx, path, meta, block);
+    return sl_model_adopt(ctx, meta, block, out);
 }

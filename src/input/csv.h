@@ -74,13 +74,13 @@ void sl_csv_close_input(FILE **fp);
  * otherwise; SL_EUSAGE with a message if not. Local. */
 sl_status sl_csv_check_discount(sl_ctx *ctx, sl_objective obj, double discount);
 
-/* Write a model built on rank 0 (other ranks pass anything; their block is
- * replaced by an empty one at the end of the state range). `st` is this
- * rank's status so far: it is agreed first, so a failure on rank 0 stops
- * every rank before any collective write. Broadcasts meta, fingerprints and
- * writes `path` atomically. Collective. */
-sl_status sl_csv_write_model(sl_ctx *ctx, sl_status st, const char *path, sl_meta *meta,
-                             sl_block *block, const char *where);
+/* Wrap a model built on rank 0 into a model handle (other ranks pass
+ * anything; their block is replaced by an empty one at the end of the state
+ * range). `st` is this rank's status so far: it is agreed first, so a
+ * failure on rank 0 stops every rank. Broadcasts meta, fingerprints, and
+ * takes ownership of meta and block. Collective. */
+sl_status sl_csv_adopt_model(sl_ctx *ctx, sl_status st, sl_meta *meta, sl_block *block, const char *where,
+                             sl_model **out);
 
 /* Records of `size` bytes (a multiple of 8, at most 64) whose first member is an int64_t
  * state in [0, n_states): sort them by state in place (American flag sort:

@@ -231,7 +231,7 @@ cleanup:
     return st;
 }
 
-sl_status sl_estimate(sl_ctx *ctx, const sl_estimate_opts *opts)
+sl_status sl_model_estimate_csv(sl_ctx *ctx, const sl_estimate_opts *opts, sl_model **out)
 {
     sl_status st = SL_OK;
     FILE *fp = NULL;
@@ -241,9 +241,11 @@ sl_status sl_estimate(sl_ctx *ctx, const sl_estimate_opts *opts)
     memset(&m, 0, sizeof(m));
     memset(&b, 0, sizeof(b));
 
-    /* the same checks on every rank, agreed inside sl_csv_write_model */
-    if (opts == NULL || opts->input == NULL || opts->output == NULL)
-        st = SL_ERR(ctx, SL_EUSAGE, "estimate needs an experience CSV and an output model file");
+    if (out == NULL) return SL_ERR(ctx, SL_EUSAGE, "sl_model_estimate_csv: no output handle");
+    *out = NULL;
+    /* the same checks on every rank, agreed inside sl_csv_adopt_model */
+    if (opts == NULL || opts->input == NULL)
+        st = SL_ERR(ctx, SL_EUSAGE, "estimate needs an experience CSV");
     else {
         name = strcmp(opts->input, "-") == 0 ? "<stdin>" : opts->input;
         st = sl_csv_check_discount(ctx, opts->objective, opts->discount);
@@ -263,7 +265,7 @@ sl_status sl_estimate(sl_ctx *ctx, const sl_estimate_opts *opts)
                        (long long)absorbed);
         }
     }
-    st = sl_csv_write_model(ctx, st, opts ? opts->output : NULL, &m, &b, name);
+    st = sl_csv_adopt_model(ctx, st, &m, &b, name, out);
     sl_block_free(&b);
     sl_meta_free(&m);
     return st;

@@ -275,7 +275,7 @@ cleanup:
     return st;
 }
 
-sl_status sl_import(sl_ctx *ctx, const sl_import_opts *opts)
+sl_status sl_model_import_csv(sl_ctx *ctx, const sl_import_opts *opts, sl_model **out)
 {
     sl_status st = SL_OK;
     FILE *fp = NULL;
@@ -285,9 +285,11 @@ sl_status sl_import(sl_ctx *ctx, const sl_import_opts *opts)
     memset(&m, 0, sizeof(m));
     memset(&b, 0, sizeof(b));
 
-    /* the same checks on every rank, agreed inside sl_csv_write_model */
-    if (opts == NULL || opts->input == NULL || opts->output == NULL)
-        st = SL_ERR(ctx, SL_EUSAGE, "import needs an input CSV and an output model file");
+    if (out == NULL) return SL_ERR(ctx, SL_EUSAGE, "sl_model_import_csv: no output handle");
+    *out = NULL;
+    /* the same checks on every rank, agreed inside sl_csv_adopt_model */
+    if (opts == NULL || opts->input == NULL)
+        st = SL_ERR(ctx, SL_EUSAGE, "import needs an input CSV");
     else {
         name = strcmp(opts->input, "-") == 0 ? "<stdin>" : opts->input;
         st = sl_csv_check_discount(ctx, opts->objective, opts->discount);
@@ -300,7 +302,7 @@ sl_status sl_import(sl_ctx *ctx, const sl_import_opts *opts)
             sl_log(ctx, "%s: %lld of %lld pairs renormalized (probability sums within 1e-6 of 1)",
                    name, (long long)b.n_renormalized, (long long)m.n_pairs);
     }
-    st = sl_csv_write_model(ctx, st, opts ? opts->output : NULL, &m, &b, name);
+    st = sl_csv_adopt_model(ctx, st, &m, &b, name, out);
     sl_block_free(&b);
     sl_meta_free(&m);
     return st;

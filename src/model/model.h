@@ -99,4 +99,26 @@ sl_status sl_block_validate(sl_ctx *ctx, const sl_block *b, const sl_meta *m,
  * sizes and discount. Same value for any partition. Collective. */
 sl_status sl_fingerprint(sl_ctx *ctx, const sl_meta *m, const sl_block *b, char out[40]);
 
+/* ---- the public model handle -------------------------------------------- */
+
+/* An immutable model once assembled: metadata identical on every rank, this
+ * rank's rows with global indices, and every rank's state range. */
+struct sl_model {
+    sl_ctx *ctx;
+    sl_meta meta;
+    sl_block blk;
+    int64_t *bounds;            /* [size + 1] state ranges of all ranks */
+    char name[4096];            /* for messages: the file it was loaded from or its source */
+    int have_rows;              /* sl_model_set_rows was called on this rank */
+    int assembled;
+};
+
+/* Wrap rows that are already validated, rebased to global offsets and
+ * fingerprinted (meta->fingerprint set) into an assembled model. Takes
+ * ownership of *meta and *blk (left empty), also on failure. Collective. */
+sl_status sl_model_adopt(sl_ctx *ctx, sl_meta *meta, sl_block *blk, sl_model **out);
+
+/* Whether a model is ready for solving (assembled); records an error. Local. */
+sl_status sl_model_check_ready(sl_ctx *ctx, const sl_model *m, const char *what);
+
 #endif /* SL_MODEL_H */

@@ -1,9 +1,8 @@
-/* dist.c - partition by transitions, halo plan and exchange, reductions. */
+/* layout.c - partition of states by transitions, halo plan and exchange,
+ * reductions. Works from row counts; never reads files. */
 #include "parallel/layout.h"
 
 #include <string.h>
-
-#include "store/store.h"
 
 double sl_sum(sl_ctx *ctx, double v)
 {
@@ -64,23 +63,15 @@ void sl_partition_split(const int64_t *cum, int64_t n, int nparts, int64_t *boun
     bounds[nparts] = n;
 }
 
-sl_status sl_dist_partition(sl_ctx *ctx, const char *path, const sl_meta *m, int64_t *bounds)
+sl_status sl_partition_from_counts(sl_ctx *ctx, int64_t n, int64_t total, const int64_t *cum, int64_t *bounds)
 {
     int P = ctx->size, r = ctx->rank;
-    int64_t n = m->n_states;
-    /* phase 1: each rank reads an even share of states' cumulative counts */
     int64_t lo = n * r / P, hi = n * (r + 1) / P;
-    int64_t *cum = NULL, *cand = NULL;
-    sl_status st = sl_store_model_cumulative(ctx, path, lo, hi, &cum);
-    if (st != SL_OK) return st;
+    int64_t *cand = NULL;
+    sl_status st = SL_OK;
     if (SL_ALLOC(ctx, cand, P + 1, "partition") == NULL) st = SL_ENOMEM;
     st = sl_agree(ctx, st);
-    if (st != SL_OK) {
-        free(cum);
-        free(cand);
-        return st;
-    }
-    int64_t total = m->n_trans;
+    if (st != SL_OK) return st;
     /* phase 2: split point k is the first state whose cumulative count
      * reaches q_k; the rank whose share holds it proposes it */
     for (int k = 0; k <= P; k++) {
@@ -96,7 +87,6 @@ sl_status sl_dist_partition(sl_ctx *ctx, const char *path, const sl_meta *m, int
     for (int k = 1; k <= P; k++)
         if (bounds[k] < bounds[k - 1]) bounds[k] = bounds[k - 1];
     bounds[P] = n;
-    free(cum);
     free(cand);
     return SL_OK;
 }
@@ -179,8 +169,6 @@ sl_status sl_halo_build(sl_ctx *ctx, const int64_t *bounds, sl_block *b, sl_halo
                 b->col[t] = (uint32_t)(h->n_local + lo);
             }
         }
-        free(b->target);
-        b->target = NULL;
     }
     if (SL_ZALLOC(ctx, cnt_recv, P, "halo") == NULL || SL_ZALLOC(ctx, cnt_send, P, "halo") == NULL ||
         SL_ZALLOC(ctx, displ_r, P, "halo") == NULL || SL_ZALLOC(ctx, displ_s, P, "halo") == NULL)

@@ -9,10 +9,13 @@
  * nparts + 1 entries. Local and pure. */
 void sl_partition_split(const int64_t *cum, int64_t n_states, int nparts, int64_t *bounds);
 
-/* The same split computed collectively from a model file without any rank
- * reading more than its share of the index arrays. bounds: size + 1 entries
- * on every rank. Collective. */
-sl_status sl_dist_partition(sl_ctx *ctx, const char *path, const sl_meta *m, int64_t *bounds);
+/* The same split computed collectively when each rank holds only an even
+ * share of the cumulative counts: rank r passes cum[i] = transitions of
+ * states [0, lo + i) for i in [0, hi - lo], lo = n*r/size, hi = n*(r+1)/size
+ * (so no rank needs more than its share of the index arrays). bounds:
+ * size + 1 entries on every rank. Collective. */
+sl_status sl_partition_from_counts(sl_ctx *ctx, int64_t n_states, int64_t n_transitions, const int64_t *cum,
+                                   int64_t *bounds);
 
 /* Owner rank of global state s (binary search in bounds). Local. */
 int sl_dist_owner(const int64_t *bounds, int nparts, int64_t s);
@@ -33,7 +36,7 @@ typedef struct sl_halo {
 } sl_halo;
 
 /* Build the halo of a block: b->col gets the local column of every
- * transition in [owned | halo], and b->target (global ids) is freed.
+ * transition in [owned | halo]; b->target (global ids) is left as it is.
  * Collective. */
 sl_status sl_halo_build(sl_ctx *ctx, const int64_t *bounds, sl_block *b, sl_halo *h);
 /* Refresh the halo part of x from the owners. Collective. */

@@ -172,29 +172,32 @@ sl_status sl_evaluate_iterative(sl_ctx *ctx, const sl_problem *p, const int32_t 
     }
 }
 
-/* Load a model and the policy of a solution file, checking fingerprints. */
-static sl_status load_with_policy(sl_ctx *ctx, const char *model, const char *solution, sl_problem *p,
-                                  int32_t **policy, double **value, sl_solution_info *info)
+/* Prepare a model and the policy of a solution for it: pair offsets of the
+ * solution's actions (each must be available in its state) and the values
+ * in a vector with room for the halo. Collective. */
+static sl_status prepare_with_policy(sl_ctx *ctx, const sl_model *m, const sl_solution *x, sl_problem *p,
+                                     int32_t **policy, double **value, const char *what)
 {
     sl_status st = SL_OK;
-    int32_t *actions = NULL;
     *policy = NULL;
     *value = NULL;
-    SL_TRY(sl_problem_load(ctx, model, SL_ORDER_AUTO, p));
+    SL_TRY(sl_problem_from_model(ctx, m, SL_ORDER_AUTO, 0, p));
+    if (x == NULL || x->action == NULL)
+        st = SL_ERR(ctx, SL_EUSAGE, "%s: the solution holds no policy (a values file?)", what);
+    else if (strcmp(x->info.model_fingerprint, p->meta.fingerprint) != 0)
+        st = SL_ERR(ctx, SL_EDATA, "%s: the solution was computed for a different model (fingerprint %s, model %s)",
+                    what, x->info.model_fingerprint, p->meta.fingerprint);
+    else if (x->s_begin != p->blk.s_begin || x->n != p->n_local)
+        st = SL_ERR(ctx, SL_EUSAGE, "%s: the solution is distributed differently from the model (load it with "
+                                    "sl_solution_load for this model)", what);
+    SL_TRY(sl_agree(ctx, st));
     int64_t n = p->n_local, nx = n + p->halo.n_halo;
-    if (SL_ALLOC(ctx, actions, n, "policy") == NULL || SL_ALLOC(ctx, *policy, n, "policy") == NULL ||
-        SL_ZALLOC(ctx, *value, nx, "values") == NULL)
+    if (SL_ALLOC(ctx, *policy, n, "policy") == NULL || SL_ZALLOC(ctx, *value, nx, "values") == NULL)
         st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
-    SL_TRY(sl_store_solution_read(ctx, solution, SL_FILE_SOLUTION, p->meta.n_states, p->blk.s_begin, n, *value,
-                                  actions, info));
-    if (strcmp(info->model_fingerprint, p->meta.fingerprint) != 0)
-        SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EDATA,
-                                    "%s was computed for a different model (fingerprint %s) than %s (fingerprint %s)",
-                                    solution, info->model_fingerprint, model, p->meta.fingerprint)));
-    SL_TRY(sl_agree(ctx, sl_policy_offsets(ctx, p, actions, *policy, solution)));
+    memcpy(*value, x->value, (size_t)n * sizeof(double));
+    SL_TRY(sl_agree(ctx, sl_policy_offsets(ctx, p, x->action, *policy, what)));
 cleanup:
-    free(actions);
     if (st != SL_OK) {
         free(*policy);
         free(*value);
@@ -205,28 +208,39 @@ cleanup:
     return st;
 }
 
-sl_status sl_evaluate(sl_ctx *ctx, const sl_evaluate_opts *o)
+sl_status sl_solver_evaluate(sl_solver *s, const sl_model *m, const sl_solution *policy, sl_solution **out)
 {
+    if (s == NULL) return SL_EUSAGE;
+    sl_ctx *ctx = s->ctx;
     sl_status st = SL_OK;
     sl_problem P;
     int32_t *pol = NULL;
     double *x = NULL, *y = NULL;
     void *lu = NULL;
-    sl_solution_info info;
+    sl_solution *res = NULL;
     double t0 = sl_now();
     memset(&P, 0, sizeof(P));
-    SL_TRY(load_with_policy(ctx, o->model, o->policy, &P, &pol, &x, &info));
+    if (out == NULL) return SL_ERR(ctx, SL_EUSAGE, "sl_solver_evaluate: no output handle");
+    *out = NULL;
+    SL_TRY(prepare_with_policy(ctx, m, policy, &P, &pol, &x, "evaluate"));
     int64_t n = P.n_local, nx = n + P.halo.n_halo;
     if (SL_ZALLOC(ctx, y, nx, "values") == NULL) st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
-    double tol = o->tolerance > 0 ? o->tolerance : 1e-6;
+    double tol = s->tolerance > 0 ? s->tolerance : 1e-6;
     int direct = 0;
     double est = 0;
-    double limit = o->memory_limit > 0 ? o->memory_limit : 0.5 * sl_physical_memory();
-    if (!o->iterative) SL_TRY(sl_evaluate_direct(ctx, &P, pol, limit, x, &direct, &est, &lu));
-    if (!o->iterative && !direct)
+    double limit = s->memory_limit > 0 ? s->memory_limit : 0.5 * sl_physical_memory();
+    int iterative_only = s->method != SL_METHOD_PI;
+    if (!iterative_only) SL_TRY(sl_evaluate_direct(ctx, &P, pol, limit, x, &direct, &est, &lu));
+    if (!iterative_only && !direct) {
+        if (s->strict_memory)
+            SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EDATA,
+                                        "exact evaluation needs about %.2f GB (UMFPACK estimate), over the memory "
+                                        "limit of %.2f GB",
+                                        est / 1e9, limit / 1e9)));
         sl_warn(ctx, "exact evaluation needs about %.2f GB (UMFPACK estimate), over the limit of %.2f GB: "
                      "evaluating iteratively", est / 1e9, limit / 1e9);
+    }
     sl_check c;
     memset(&c, 0, sizeof(c));
     int64_t sweeps = 0;
@@ -241,25 +255,26 @@ sl_status sl_evaluate(sl_ctx *ctx, const sl_evaluate_opts *o)
         for (int64_t i = 0; i < n; i++) x[i] = 0;
         SL_TRY(sl_evaluate_iterative(ctx, &P, pol, tol, 0, x, y, &c, &sweeps));
     }
-    sl_solution_info out;
-    memset(&out, 0, sizeof(out));
-    snprintf(out.model_fingerprint, sizeof(out.model_fingerprint), "%s", P.meta.fingerprint);
-    snprintf(out.method, sizeof(out.method), "%s", direct ? "direct" : "iterative");
-    out.converged = 1;
-    out.sweeps = sweeps;
-    out.seconds = sl_now() - t0;
-    out.tolerance = tol;
-    out.discount = P.gamma;
-    out.residual_sup = c.sup;
-    out.residual_span = c.span;
-    out.residual_min = c.dmin;
-    out.residual_max = c.dmax;
-    out.value_error_bound = c.value_error;
-    SL_TRY(sl_store_solution_write(ctx, o->output, SL_FILE_VALUES, P.meta.n_states, P.blk.s_begin, n, x, NULL, &out,
-                                   NULL));
-    sl_log(ctx, "evaluate: %s evaluation of the policy in %s: |value - v_policy| <= %.3e; wrote %s",
-           direct ? "direct" : "iterative", o->policy, c.value_error, o->output);
+    SL_TRY(sl_agree(ctx, sl_solution_new(ctx, P.meta.n_states, P.blk.s_begin, n, 0, &res)));
+    memcpy(res->value, x, (size_t)n * sizeof(double));
+    snprintf(res->info.model_fingerprint, sizeof(res->info.model_fingerprint), "%s", P.meta.fingerprint);
+    snprintf(res->info.method, sizeof(res->info.method), "%s", direct ? "direct" : "iterative");
+    snprintf(res->info.evaluation, sizeof(res->info.evaluation), "%s", direct ? "direct" : "iterative");
+    res->info.sweeps = sweeps;
+    res->info.seconds = sl_now() - t0;
+    res->info.discount = P.gamma;
+    res->cert.converged = c.value_error <= tol;
+    res->cert.tolerance = tol;
+    res->cert.residual_sup = c.sup;
+    res->cert.residual_span = c.span;
+    res->cert.residual_min = c.dmin;
+    res->cert.residual_max = c.dmax;
+    res->cert.value_error = c.value_error;
+    res->cert.policy_loss = NAN;
+    *out = res;
+    res = NULL;
 cleanup:
+    sl_solution_free(&res);
     sl_evaluate_direct_free(&lu);
     free(pol);
     free(x);
@@ -270,15 +285,17 @@ cleanup:
 
 /* ---- verify ----------------------------------------------------------------------- */
 
-sl_status sl_verify(sl_ctx *ctx, const sl_verify_opts *o)
+sl_status sl_verify(const sl_model *m, const sl_solution *sol, double tolerance, sl_verification *out)
 {
+    if (m == NULL || sol == NULL || out == NULL) return SL_EUSAGE;
+    sl_ctx *ctx = m->ctx;
     sl_status st = SL_OK;
     sl_problem P;
     int32_t *pol = NULL, *greedy = NULL;
     double *x = NULL, *y = NULL, *ypi = NULL;
-    sl_solution_info info;
     memset(&P, 0, sizeof(P));
-    SL_TRY(load_with_policy(ctx, o->model, o->solution, &P, &pol, &x, &info));
+    memset(out, 0, sizeof(*out));
+    SL_TRY(prepare_with_policy(ctx, m, sol, &P, &pol, &x, "verify"));
     int64_t n = P.n_local, nx = n + P.halo.n_halo;
     if (SL_ALLOC(ctx, greedy, n, "policy") == NULL || SL_ZALLOC(ctx, y, nx, "values") == NULL ||
         SL_ZALLOC(ctx, ypi, nx, "values") == NULL)
@@ -307,28 +324,17 @@ sl_status sl_verify(sl_ctx *ctx, const sl_verify_opts *o)
     }
     verr = sl_max(ctx, verr) + (1.0 + 2.0 * f) * fp;
     loss = sl_max(ctx, loss) + 2.0 * f * fp + fp;
-    double tol = o->tolerance > 0 ? o->tolerance : info.tolerance;
-    int ok = verr <= tol && loss <= tol;
-    if (ctx->rank == 0 && o->out) {
-        FILE *out = o->out;
-        if (o->json) {
-            fprintf(out, "{\n  \"solution\": \"%s\",\n  \"model_fingerprint\": \"%s\",\n  \"residual_sup\": %.17g,\n"
-                         "  \"residual_span\": %.17g,\n  \"value_error_bound\": %.17g,\n  \"policy_loss_bound\": %.17g,\n"
-                         "  \"tolerance\": %.17g,\n  \"certified\": %s\n}\n",
-                    o->solution, P.meta.fingerprint, c.sup, c.span, verr, loss, tol, ok ? "true" : "false");
-        } else {
-            fprintf(out, "verify %s against %s\n", o->solution, o->model);
-            fprintf(out, "  residual      sup|Tv - v| = %.3e, span = %.3e (recomputed)\n", c.sup, c.span);
-            fprintf(out, "  value         |value - v*| <= %.3e in every state\n", verr);
-            fprintf(out, "  policy        v* - v_policy <= %.3e in every state\n", loss);
-            fprintf(out, "  claimed       value %.3e, policy %.3e (by %s)\n", info.value_error_bound,
-                    info.policy_loss_bound, info.method);
-            fprintf(out, "  result        %s at tolerance %.1e\n", ok ? "CERTIFIED" : "NOT certified", tol);
-        }
-    }
-    if (!ok)
-        st = SL_ERR(ctx, SL_EDATA, "%s: not certified within %.1e (value bound %.3e, policy bound %.3e)", o->solution,
-                    tol, verr, loss);
+    double tol = tolerance > 0 ? tolerance : sol->cert.tolerance;
+    out->residual_sup = c.sup;
+    out->residual_span = c.span;
+    out->value_error = verr;
+    out->policy_loss = loss;
+    out->tolerance = tol;
+    out->certified = verr <= tol && loss <= tol;
+    out->claimed = sol->cert;
+    if (!out->certified)
+        st = SL_ERR(ctx, SL_EDATA, "not certified within %.1e (value bound %.3e, policy bound %.3e)", tol, verr,
+                    loss);
     st = sl_agree(ctx, st);
 cleanup:
     free(pol);

@@ -10,7 +10,7 @@ void sl_problem_free(sl_problem *p)
 {
     if (p == NULL) return;
     sl_meta_free(&p->meta);
-    sl_block_free(&p->blk);
+    free(p->blk.col);           /* the other arrays belong to the model */
     sl_halo_free(&p->halo);
     free(p->bounds);
     free(p->order);
@@ -52,33 +52,30 @@ static sl_status build_order(sl_ctx *ctx, sl_problem *p, sl_order order)
     return SL_OK;
 }
 
-sl_status sl_problem_load(sl_ctx *ctx, const char *path, sl_order order, sl_problem *p)
+sl_status sl_problem_from_model(sl_ctx *ctx, const sl_model *m, sl_order order, int allow_any, sl_problem *p)
 {
     sl_status st = SL_OK;
-    char fp[40];
     memset(p, 0, sizeof(*p));
-    p->path = path;
-    SL_TRY(sl_store_model_meta(ctx, path, &p->meta));
-    if (p->meta.objective != SL_OBJ_DISCOUNTED)
+    SL_TRY(sl_agree(ctx, sl_model_check_ready(ctx, m, "solve")));
+    p->path = m->name;
+    if (!allow_any && m->meta.objective != SL_OBJ_DISCOUNTED)
         st = SL_ERR(ctx, SL_EDATA,
-                    "%s: objective \"%s\" is recorded in the file, but this version of sluice solves "
-                    "only the discounted objective",
-                    path, sl_objective_name(p->meta.objective));
-    else if (!(p->meta.discount >= 0.0 && p->meta.discount < 1.0))
-        st = SL_ERR(ctx, SL_EDATA, "%s: discount %g is not in [0, 1) as the discounted objective requires",
-                    path, p->meta.discount);
+                    "%s: objective \"%s\" is recorded in the model, but this method solves only the "
+                    "discounted objective",
+                    p->path, sl_objective_name(m->meta.objective));
+    else if (!allow_any && !(m->meta.discount >= 0.0 && m->meta.discount < 1.0))
+        st = SL_ERR(ctx, SL_EDATA, "%s: discount %g is not in [0, 1) as the discounted objective requires", p->path,
+                    m->meta.discount);
     SL_TRY(sl_agree(ctx, st));
+    SL_TRY(sl_meta_copy(ctx, &p->meta, &m->meta));
     p->gamma = p->meta.discount;
+    /* borrow the rows; only the local columns are this problem's own */
+    p->blk = m->blk;
+    p->blk.col = NULL;
+    p->blk.cap_states = p->blk.cap_pairs = p->blk.cap_ptrs = p->blk.cap_trans = 0;
     if (SL_ALLOC(ctx, p->bounds, ctx->size + 1, "partition") == NULL) st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
-    SL_TRY(sl_dist_partition(ctx, path, &p->meta, p->bounds));
-    SL_TRY(sl_store_model_read(ctx, path, &p->meta, p->bounds[ctx->rank], p->bounds[ctx->rank + 1], &p->blk));
-    SL_TRY(sl_fingerprint(ctx, &p->meta, &p->blk, fp));
-    if (strcmp(fp, p->meta.fingerprint) != 0)
-        SL_TRY(SL_ERR(ctx, SL_EDATA,
-                      "%s: contents do not match the file's fingerprint (%s recorded, %s computed): the file "
-                      "was altered or is corrupted",
-                      path, p->meta.fingerprint, fp));
+    memcpy(p->bounds, m->bounds, (size_t)(ctx->size + 1) * sizeof(int64_t));
     p->n_local = sl_block_states(&p->blk);
     double rmax = 0;
     for (int64_t k = 0; k < sl_block_pairs(&p->blk); k++)

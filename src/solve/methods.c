@@ -1,17 +1,16 @@
-/* methods.c - sl_solve: Gauss-Seidel / Jacobi value iteration, modified
- * policy iteration and policy iteration, with certified stopping,
- * progress lines, checkpoints and the solution file. */
+/* methods.c - the solver handle: Gauss-Seidel / Jacobi value iteration,
+ * modified policy iteration and policy iteration, with certified stopping,
+ * monitor events and checkpoints. Printing is the caller's business. */
 #include <math.h>
 #include <signal.h>
 #include <string.h>
 
-#include "core/json.h"
 #include "solve/solve.h"
 #include "store/store.h"
 
 typedef struct run {
     sl_ctx *ctx;
-    const sl_solve_opts *o;
+    const sl_solver *o;
     sl_problem P;
     double *x, *y;          /* [n_local + n_halo] */
     int32_t *pol;           /* pair offsets, owned states */
@@ -30,38 +29,47 @@ typedef struct run {
     double lu_estimate;
     int64_t n_ckpt;
     int lock_fd;            /* checkpoint directory lock (rank 0), -1 if none */
+    sl_solution *out;
 } run;
 
 static double elapsed(const run *r) { return r->S.elapsed + (sl_now() - r->t0); }
 
-/* ---- progress ------------------------------------------------------------------- */
+/* ---- monitor ------------------------------------------------------------------- */
 
-static void progress(run *r, const sl_check *c, int force)
+static void notify(run *r, sl_event ev, const sl_check *c, const char *note)
 {
-    sl_ctx *ctx = r->ctx;
-    double now = sl_now();
-    double every = r->o->progress_every > 0 ? r->o->progress_every : (ctx->log_tty ? 1.0 : 30.0);
-    if (!force && now - r->last_progress < every) return;
-    r->last_progress = now;
-    /* observed contraction per sweep from the last two checks */
-    double rate = NAN, eta = NAN;
-    if (r->hist.n >= 2) {
-        int64_t a = r->hist.n - 2, b = r->hist.n - 1;
-        int64_t ds = r->hist.sweeps[b] - r->hist.sweeps[a];
-        if (ds > 0 && r->hist.span[a] > 0 && r->hist.span[b] > 0)
-            rate = pow(r->hist.span[b] / r->hist.span[a], 1.0 / (double)ds);
-        double target = r->tol * (1.0 - r->P.gamma) / (r->P.gamma > 0 ? r->P.gamma : 1.0);
-        double secs_per_sweep = r->S.sweeps > 0 ? elapsed(r) / (double)r->S.sweeps : 0;
-        if (rate > 0 && rate < 1 && c->span > target)
-            eta = log(target / c->span) / log(rate) * secs_per_sweep;
-        else if (c->span <= target)
-            eta = 0;
+    if (r->o->monitor == NULL) return;
+    sl_progress p;
+    memset(&p, 0, sizeof(p));
+    p.event = ev;
+    p.iteration = r->S.iteration;
+    p.sweeps = r->S.sweeps;
+    p.seconds = elapsed(r);
+    p.have_check = r->have_check && c != NULL;
+    p.residual_sup = p.residual_span = p.value_error = p.policy_loss = NAN;
+    p.rate = p.eta = NAN;
+    p.note = note;
+    p.resumed = r->S.iteration > 0 || r->S.sweeps > 0;
+    if (p.have_check) {
+        p.residual_sup = c->sup;
+        p.residual_span = c->span;
+        p.value_error = c->value_error;
+        p.policy_loss = c->policy_loss;
+        /* observed contraction per sweep from the last two checks */
+        if (r->hist.n >= 2) {
+            int64_t a = r->hist.n - 2, b = r->hist.n - 1;
+            int64_t ds = r->hist.sweeps[b] - r->hist.sweeps[a];
+            if (ds > 0 && r->hist.span[a] > 0 && r->hist.span[b] > 0)
+                p.rate = pow(r->hist.span[b] / r->hist.span[a], 1.0 / (double)ds);
+            double target = r->tol * (1.0 - r->P.gamma) / (r->P.gamma > 0 ? r->P.gamma : 1.0);
+            double secs_per_sweep = r->S.sweeps > 0 ? elapsed(r) / (double)r->S.sweeps : 0;
+            if (p.rate > 0 && p.rate < 1 && c->span > target)
+                p.eta = log(target / c->span) / log(p.rate) * secs_per_sweep;
+            else if (c->span <= target)
+                p.eta = 0;
+        }
     }
-    char etas[32] = "?";
-    if (isfinite(eta)) snprintf(etas, sizeof(etas), "%.0fs", eta);
-    sl_log(ctx, "solve: iter %lld  sweeps %lld  sup|Tv-v| %.3e  span %.3e  bound %.3e  rate %.4f  %.1fs  ETA %s",
-           (long long)r->S.iteration, (long long)r->S.sweeps, c->sup, c->span, c->policy_loss, rate, elapsed(r),
-           etas);
+    r->o->monitor(&p, r->o->monitor_user);
 }
 
 /* ---- checks ----------------------------------------------------------------- */
@@ -79,7 +87,7 @@ static int check(run *r, int32_t *pol)
     if (sl_history_push(r->ctx, &r->hist, r->S.iteration, r->S.sweeps, elapsed(r), r->last.sup, r->last.span,
                         r->last.value_error, r->last.policy_loss) != SL_OK)
         return -1;
-    progress(r, &r->last, 0);
+    notify(r, SL_EVENT_CHECK, &r->last, NULL);
     if (r->last.value_error <= r->tol && r->last.policy_loss <= r->tol) return 1;
     /* The measured spread of d has reached the roundoff allowance: further
      * sweeps cannot shrink the certificate below its floor. */
@@ -88,137 +96,53 @@ static int check(run *r, int32_t *pol)
     return 0;
 }
 
-/* ---- output ------------------------------------------------------------------- */
+/* ---- the solution ---------------------------------------------------------------- */
 
-static sl_status write_solution(run *r, int converged)
+static sl_status form_solution(run *r, int converged)
 {
     sl_ctx *ctx = r->ctx;
     sl_status st = SL_OK;
     int64_t n = r->P.n_local;
     int32_t *pol2 = NULL;
-    double *val = NULL;
-    if (SL_ALLOC(ctx, pol2, n, "policy") == NULL || SL_ALLOC(ctx, val, n, "values") == NULL) st = SL_ENOMEM;
+    sl_solution *x = NULL;
+    if (SL_ALLOC(ctx, pol2, n, "policy") == NULL) st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
+    SL_TRY(sl_agree(ctx, sl_solution_new(ctx, r->P.meta.n_states, r->P.blk.s_begin, n, 1, &x)));
     memcpy(pol2, r->pol, (size_t)n * sizeof(int32_t));
     /* a fresh synchronous check at the current x defines value and bounds
      * (x itself is left untouched so a checkpoint stays exact) */
     if (!converged) {
         if (check(r, pol2) < 0) st = SL_ENOMEM;
         SL_TRY(sl_agree(ctx, st));
-    } else {
-        memcpy(pol2, r->pol, (size_t)n * sizeof(int32_t));
     }
-    sl_midpoint(&r->P, r->y, &r->last, val);
-    sl_policy_actions(&r->P, pol2, r->actions);
-    sl_solution_info in;
-    memset(&in, 0, sizeof(in));
-    snprintf(in.model_fingerprint, sizeof(in.model_fingerprint), "%s", r->P.meta.fingerprint);
-    snprintf(in.method, sizeof(in.method), "%s", sl_method_name(r->o->method));
-    snprintf(in.order, sizeof(in.order), "%s", sl_order_name(r->P.order_used));
-    snprintf(in.evaluation, sizeof(in.evaluation), "%s", r->evaluation);
-    in.converged = converged;
-    in.iterations = r->S.iteration;
-    in.sweeps = r->S.sweeps;
-    in.seconds = elapsed(r);
-    in.tolerance = r->tol;
-    in.discount = r->P.gamma;
-    in.residual_sup = r->last.sup;
-    in.residual_span = r->last.span;
-    in.residual_min = r->last.dmin;
-    in.residual_max = r->last.dmax;
-    in.value_error_bound = r->last.value_error;
-    in.policy_loss_bound = r->last.policy_loss;
-    st = sl_store_solution_write(ctx, r->o->output, SL_FILE_SOLUTION, r->P.meta.n_states, r->P.blk.s_begin, n, val,
-                                 r->actions, &in, &r->hist);
+    sl_midpoint(&r->P, r->y, &r->last, x->value);
+    sl_policy_actions(&r->P, pol2, x->action);
+    snprintf(x->info.model_fingerprint, sizeof(x->info.model_fingerprint), "%s", r->P.meta.fingerprint);
+    snprintf(x->info.method, sizeof(x->info.method), "%s", sl_method_name(r->o->method));
+    snprintf(x->info.order, sizeof(x->info.order), "%s", sl_order_name(r->P.order_used));
+    snprintf(x->info.evaluation, sizeof(x->info.evaluation), "%s", r->evaluation);
+    x->info.iterations = r->S.iteration;
+    x->info.sweeps = r->S.sweeps;
+    x->info.seconds = elapsed(r);
+    x->info.discount = r->P.gamma;
+    x->info.checkpoints_written = r->n_ckpt;
+    x->cert.converged = converged;
+    x->cert.tolerance = r->tol;
+    x->cert.residual_sup = r->last.sup;
+    x->cert.residual_span = r->last.span;
+    x->cert.residual_min = r->last.dmin;
+    x->cert.residual_max = r->last.dmax;
+    x->cert.value_error = r->last.value_error;
+    x->cert.policy_loss = r->last.policy_loss;
+    notify(r, SL_EVENT_END, &r->last, NULL);
+    x->hist = r->hist;
+    memset(&r->hist, 0, sizeof(r->hist));
+    r->out = x;
+    x = NULL;
 cleanup:
+    sl_solution_free(&x);
     free(pol2);
-    free(val);
     return st;
-}
-
-static sl_status write_report(run *r, int converged, sl_status outcome)
-{
-    if (r->o->report == NULL) return SL_OK;
-    sl_ctx *ctx = r->ctx;
-    sl_status st = SL_OK;
-    if (ctx->rank == 0) {
-        char tmp[4200];
-        snprintf(tmp, sizeof(tmp), "%s.partial", r->o->report);
-        FILE *f = fopen(tmp, "w");
-        if (f == NULL) {
-            st = SL_ERR(ctx, SL_ECANTCREAT, "%s: cannot create report", r->o->report);
-        } else {
-            sl_json j;
-            sl_json_begin(&j, f);
-            sl_json_str(&j, "sluice_version", SLUICE_VERSION);
-            sl_json_str(&j, "model", r->o->model);
-            sl_json_str(&j, "model_fingerprint", r->P.meta.fingerprint);
-            sl_json_str(&j, "solution", r->o->output);
-            sl_json_str(&j, "method", sl_method_name(r->o->method));
-            sl_json_str(&j, "order", sl_order_name(r->P.order_used));
-            if (r->evaluation[0]) sl_json_str(&j, "evaluation", r->evaluation);
-            sl_json_int(&j, "ranks", ctx->size);
-            sl_json_int(&j, "n_states", r->P.meta.n_states);
-            sl_json_int(&j, "n_transitions", r->P.meta.n_trans);
-            sl_json_num(&j, "discount", r->P.gamma);
-            sl_json_bool(&j, "converged", converged);
-            sl_json_int(&j, "exit_code", (int64_t)outcome);
-            sl_json_num(&j, "tolerance", r->tol);
-            sl_json_int(&j, "iterations", r->S.iteration);
-            sl_json_int(&j, "sweeps", r->S.sweeps);
-            sl_json_num(&j, "seconds", elapsed(r));
-            sl_json_num(&j, "residual_sup", r->last.sup);
-            sl_json_num(&j, "residual_span", r->last.span);
-            sl_json_num(&j, "residual_min", r->last.dmin);
-            sl_json_num(&j, "residual_max", r->last.dmax);
-            sl_json_num(&j, "value_error_bound", r->last.value_error);
-            sl_json_num(&j, "policy_loss_bound", r->last.policy_loss);
-            sl_json_int(&j, "checkpoints_written", r->n_ckpt);
-            sl_json_arr_open(&j, "history");
-            for (int64_t i = 0; i < r->hist.n; i++) {
-                sl_json_obj_open(&j, NULL);
-                sl_json_int(&j, "iteration", r->hist.iteration[i]);
-                sl_json_int(&j, "sweeps", r->hist.sweeps[i]);
-                sl_json_num(&j, "seconds", r->hist.seconds[i]);
-                sl_json_num(&j, "sup", r->hist.sup[i]);
-                sl_json_num(&j, "span", r->hist.span[i]);
-                sl_json_num(&j, "value_error_bound", r->hist.value_error[i]);
-                sl_json_num(&j, "policy_loss_bound", r->hist.policy_loss[i]);
-                sl_json_close_obj(&j);
-            }
-            sl_json_close_arr(&j);
-            sl_json_str(&j, "caution",
-                        "results support, and never replace, licensed engineering judgement and local regulations");
-            sl_json_end(&j);
-            int bad = ferror(f);
-            bad |= fclose(f) != 0;
-            if (bad || rename(tmp, r->o->report) != 0) {
-                remove(tmp);
-                st = SL_ERR(ctx, SL_EIO, "%s: cannot write report", r->o->report);
-            }
-        }
-    }
-    return sl_agree(ctx, st);
-}
-
-static void summary(run *r, int converged)
-{
-    sl_ctx *ctx = r->ctx;
-    if (ctx->rank != 0 || ctx->verbosity < 1 || ctx->log == NULL) return;
-    FILE *f = ctx->log;
-    fprintf(f, "\nsluice solve summary\n");
-    fprintf(f, "  model        %s (%lld states, %lld transitions, discount %g)\n", r->o->model,
-            (long long)r->P.meta.n_states, (long long)r->P.meta.n_trans, r->P.gamma);
-    fprintf(f, "  method       %s (order %s%s%s) on %d rank(s)\n", sl_method_name(r->o->method),
-            sl_order_name(r->P.order_used), r->evaluation[0] ? ", evaluation " : "", r->evaluation, ctx->size);
-    fprintf(f, "  result       %s after %lld iterations, %lld sweeps, %.2f s\n",
-            converged ? "CERTIFIED" : "NOT converged", (long long)r->S.iteration, (long long)r->S.sweeps, elapsed(r));
-    fprintf(f, "  residual     sup|Tv - v| = %.3e, span = %.3e\n", r->last.sup, r->last.span);
-    fprintf(f, "  certificate  |value - v*| <= %.3e in every state; policy within %.3e of optimal (tolerance %.1e)\n",
-            r->last.value_error, r->last.policy_loss, r->tol);
-    fprintf(f, "  written      %s\n", r->o->output);
-    fprintf(f, "  caution      results support, and never replace, licensed engineering judgement\n"
-               "               and local regulations.\n");
 }
 
 /* ---- checkpoints and stop requests ------------------------------------------------ */
@@ -244,7 +168,10 @@ static int poll(run *r)
     /* the boundary's time is taken before the flag is read and again after:
      * a signal noticed here arrived after `before` of the previous boundary
      * (which saw no flag) and before `now` of this one */
-    double before = sl_now() - r->wall0;
+    /* the solver's clock: seconds since the walltime origin (the process
+     * start when the CLI sets it), else since the start of this solve */
+    double c0 = r->o->have_wall_origin ? r->o->wall_origin : r->wall0;
+    double before = sl_now() - c0;
     if (r->ctx->signal_flag) flag = *r->ctx->signal_flag;
     double now = sl_now();
     if (flag) {
@@ -260,7 +187,7 @@ static int poll(run *r)
         margin = fmax(10.0, 0.05 * r->o->walltime);
         if (r->o->walltime < 60) margin = fmin(margin, 0.2 * r->o->walltime);
         due = r->o->walltime - margin;
-        if (now - r->wall0 >= due) {
+        if (now - c0 >= due) {
             want = POLL_STOP;
             by_walltime = 1;
         }
@@ -274,19 +201,19 @@ static int poll(run *r)
     if (by_signal) {
         const volatile sig_atomic_t *in = r->ctx->signal_info;
         if (in != NULL && in[0] != 0) {
-            double at = (double)in[1] + 1e-6 * (double)in[2] - r->wall0;
+            double at = (double)in[1] + 1e-6 * (double)in[2] - c0;
             sl_log(r->ctx, "solve: signal %d (%s) arrived at %.3f s; acted on at the sweep boundary at %.3f s "
                            "(iteration %lld; previous boundary %s)",
-                   (int)in[0], signal_name((int)in[0]), at, now - r->wall0, (long long)r->S.iteration, prev);
+                   (int)in[0], signal_name((int)in[0]), at, now - c0, (long long)r->S.iteration, prev);
         } else {
             sl_log(r->ctx, "solve: stop/checkpoint flag seen at the sweep boundary at %.3f s (iteration %lld; "
                            "previous boundary %s)",
-                   now - r->wall0, (long long)r->S.iteration, prev);
+                   now - c0, (long long)r->S.iteration, prev);
         }
     } else if (by_walltime) {
         sl_log(r->ctx, "solve: --walltime %.3f s: stop due at %.3f s (margin %.3f s); acted on at the sweep boundary "
                        "at %.3f s (iteration %lld; previous boundary %s)",
-               r->o->walltime, due, margin, now - r->wall0, (long long)r->S.iteration, prev);
+               r->o->walltime, due, margin, now - c0, (long long)r->S.iteration, prev);
     }
     r->prev_poll = before;
     return agreed;
@@ -304,8 +231,7 @@ static sl_status checkpoint(run *r)
     r->last_ckpt = sl_now();
     if (st == SL_OK) {
         r->n_ckpt++;
-        sl_log(r->ctx, "solve: checkpoint written to %s (iteration %lld, sweep %lld, done at %.3f s)",
-               r->o->checkpoint_dir, (long long)r->S.iteration, (long long)r->S.sweeps, r->last_ckpt - r->wall0);
+        notify(r, SL_EVENT_CHECKPOINT, r->have_check ? &r->last : NULL, r->o->checkpoint_dir);
     }
     return st;
 }
@@ -424,8 +350,10 @@ static int step_pi(run *r, sl_status *st)
     return 0;
 }
 
-sl_status sl_solve(sl_ctx *ctx, const sl_solve_opts *o)
+sl_status sl_solver_solve(sl_solver *o, const sl_model *m, sl_solution **xout)
 {
+    if (o == NULL) return SL_EUSAGE;
+    sl_ctx *ctx = o->ctx;
     sl_status st = SL_OK;
     run R;
     run *r = &R;
@@ -441,9 +369,11 @@ sl_status sl_solve(sl_ctx *ctx, const sl_solve_opts *o)
     r->tol = o->tolerance > 0 ? o->tolerance : 1e-6;
     sl_status outcome = SL_OK;
     int converged = 0;
+    if (xout == NULL) return SL_ERR(ctx, SL_EUSAGE, "sl_solver_solve: no output handle");
+    *xout = NULL;
 
     if (o->checkpoint_dir) SL_TRY(sl_ckpt_lock(ctx, o->checkpoint_dir, &r->lock_fd));
-    SL_TRY(sl_problem_load(ctx, o->model, o->order, &r->P));
+    SL_TRY(sl_problem_from_model(ctx, m, o->order, 0, &r->P));
     int64_t n = r->P.n_local, nx = n + r->P.halo.n_halo;
     if (SL_ZALLOC(ctx, r->x, nx, "values") == NULL || SL_ZALLOC(ctx, r->y, nx, "values") == NULL ||
         SL_ZALLOC(ctx, r->pol, n, "policy") == NULL || SL_ZALLOC(ctx, r->actions, n, "policy") == NULL)
@@ -478,28 +408,24 @@ sl_status sl_solve(sl_ctx *ctx, const sl_solve_opts *o)
                 r->S.sweeps = keep.sweeps;
                 r->S.iteration = keep.iteration;
             }
-            sl_log(ctx, "solve: resumed at iteration %lld, sweep %lld (%.1f s already spent)",
-                   (long long)r->S.iteration, (long long)r->S.sweeps, r->S.elapsed);
-        } else {
-            sl_log(ctx, "solve: no checkpoint in %s; starting fresh", o->checkpoint_dir);
         }
     }
-    sl_log(ctx, "solve: %s, %lld states, %lld transitions, discount %g, %s order, %d rank(s), tolerance %.1e",
-           o->model, (long long)r->P.meta.n_states, (long long)r->P.meta.n_trans, r->P.gamma,
-           sl_order_name(r->P.order_used), ctx->size, r->tol);
+    notify(r, SL_EVENT_START, NULL, sl_order_name(r->P.order_used));
 
     for (;;) {
         int pr = poll(r);
         if (pr >= POLL_CKPT) SL_TRY(checkpoint(r));
         if (pr == POLL_STOP) {
-            sl_log(ctx, "solve: stop requested; %s", o->checkpoint_dir ? "checkpoint written" : "no checkpoint directory given");
+            notify(r, SL_EVENT_STOP, r->have_check ? &r->last : NULL,
+                   o->checkpoint_dir ? "stop requested; checkpoint written"
+                                     : "stop requested; no checkpoint directory given");
             outcome = SL_ESTOPPED;
             break;
         }
         if (o->max_iterations > 0 && r->S.iteration >= o->max_iterations) {
-            sl_log(ctx, "solve: reached --max-iterations %lld without certifying the tolerance",
-                   (long long)o->max_iterations);
             if (o->checkpoint_dir) SL_TRY(checkpoint(r));
+            notify(r, SL_EVENT_STOP, r->have_check ? &r->last : NULL,
+                   "iteration limit reached without certifying the tolerance");
             outcome = SL_ESTOPPED;
             break;
         }
@@ -528,15 +454,19 @@ sl_status sl_solve(sl_ctx *ctx, const sl_solve_opts *o)
             break;
         }
     }
-    progress(r, &r->last, 1);
-    SL_TRY(write_solution(r, converged));
-    SL_TRY(write_report(r, converged, outcome));
-    summary(r, converged);
+    SL_TRY(form_solution(r, converged));
+    *xout = r->out;
+    r->out = NULL;
     st = outcome;
     if (outcome == SL_EUSAGE)
         st = SL_ERR(ctx, SL_EUSAGE, "tolerance %.1e is below the roundoff floor of this model (about %.1e)", r->tol,
                     fmax(r->last.value_error, r->last.policy_loss));
+    else if (outcome == SL_ESTOPPED)
+        st = SL_ERR(ctx, SL_ESTOPPED, "stopped before certifying the tolerance %.1e (bounds %.3e, %.3e)%s", r->tol,
+                    r->last.value_error, r->last.policy_loss,
+                    o->checkpoint_dir ? "; a checkpoint was written" : "");
 cleanup:
+    sl_solution_free(&r->out);
     sl_evaluate_direct_free(&r->lu);
     free(r->x);
     free(r->y);
@@ -547,3 +477,127 @@ cleanup:
     sl_ckpt_unlock(&r->lock_fd);
     return st;
 }
+
+/* ---- the solver handle --------------------------------------------------------------- */
+
+sl_status sl_solver_create(sl_ctx *ctx, sl_solver **out)
+{
+    sl_solver *s = NULL;
+    if (out == NULL) return SL_ERR(ctx, SL_EUSAGE, "sl_solver_create: no output handle");
+    *out = NULL;
+    sl_status st = SL_OK;
+    if (SL_ZALLOC(ctx, s, 1, "solver") == NULL) st = SL_ENOMEM;
+    st = sl_agree(ctx, st);
+    if (st != SL_OK) return st;
+    s->ctx = ctx;
+    s->method = SL_METHOD_GS;
+    s->order = SL_ORDER_AUTO;
+    s->tolerance = 1e-6;
+    *out = s;
+    return SL_OK;
+}
+
+void sl_solver_free(sl_solver **ps)
+{
+    if (ps == NULL || *ps == NULL) return;
+    free((*ps)->checkpoint_dir);
+    free(*ps);
+    *ps = NULL;
+}
+
+sl_status sl_solver_set_method(sl_solver *s, sl_method method)
+{
+    if (s == NULL) return SL_EUSAGE;
+    if (method != SL_METHOD_GS && method != SL_METHOD_JACOBI && method != SL_METHOD_MPI && method != SL_METHOD_PI)
+        return SL_ERR(s->ctx, SL_EUSAGE, "sl_solver_set_method: unknown method %d", (int)method);
+    s->method = method;
+    return SL_OK;
+}
+
+sl_status sl_solver_set_tolerance(sl_solver *s, double eps)
+{
+    if (s == NULL) return SL_EUSAGE;
+    if (!(eps > 0) || !isfinite(eps))
+        return SL_ERR(s->ctx, SL_EUSAGE, "sl_solver_set_tolerance: %g is not a positive number", eps);
+    s->tolerance = eps;
+    return SL_OK;
+}
+
+sl_status sl_solver_set_order(sl_solver *s, sl_order order)
+{
+    if (s == NULL) return SL_EUSAGE;
+    if (order != SL_ORDER_AUTO && order != SL_ORDER_NATURAL && order != SL_ORDER_STAGE_REVERSE &&
+        order != SL_ORDER_REVERSE)
+        return SL_ERR(s->ctx, SL_EUSAGE, "sl_solver_set_order: unknown order %d", (int)order);
+    s->order = order;
+    return SL_OK;
+}
+
+sl_status sl_solver_set_max_iterations(sl_solver *s, int64_t n)
+{
+    if (s == NULL) return SL_EUSAGE;
+    if (n < 0) return SL_ERR(s->ctx, SL_EUSAGE, "sl_solver_set_max_iterations: %lld is negative", (long long)n);
+    s->max_iterations = n;
+    return SL_OK;
+}
+
+sl_status sl_solver_set_walltime(sl_solver *s, double seconds)
+{
+    if (s == NULL) return SL_EUSAGE;
+    if (!(seconds >= 0) || !isfinite(seconds))
+        return SL_ERR(s->ctx, SL_EUSAGE, "sl_solver_set_walltime: %g is not a number of seconds", seconds);
+    s->walltime = seconds;
+    return SL_OK;
+}
+
+sl_status sl_solver_set_walltime_origin(sl_solver *s, double clock_seconds)
+{
+    if (s == NULL) return SL_EUSAGE;
+    s->wall_origin = clock_seconds;
+    s->have_wall_origin = 1;
+    return SL_OK;
+}
+
+sl_status sl_solver_set_sweeps(sl_solver *s, int sweeps)
+{
+    if (s == NULL) return SL_EUSAGE;
+    if (sweeps < 0 || sweeps > 100000)
+        return SL_ERR(s->ctx, SL_EUSAGE, "sl_solver_set_sweeps: %d is not in [0, 100000]", sweeps);
+    s->sweeps = sweeps;
+    return SL_OK;
+}
+
+sl_status sl_solver_set_memory_limit(sl_solver *s, double bytes, int strict)
+{
+    if (s == NULL) return SL_EUSAGE;
+    if (!(bytes >= 0) || !isfinite(bytes))
+        return SL_ERR(s->ctx, SL_EUSAGE, "sl_solver_set_memory_limit: %g is not a number of bytes", bytes);
+    s->memory_limit = bytes;
+    s->strict_memory = strict != 0;
+    return SL_OK;
+}
+
+sl_status sl_solver_set_checkpoint(sl_solver *s, const char *dir, double every_s, int resume)
+{
+    if (s == NULL) return SL_EUSAGE;
+    if (!(every_s >= 0) || !isfinite(every_s))
+        return SL_ERR(s->ctx, SL_EUSAGE, "sl_solver_set_checkpoint: interval %g is not a number of seconds", every_s);
+    char *copy = NULL;
+    if (dir != NULL && (copy = strdup(dir)) == NULL)
+        return SL_ERR(s->ctx, SL_ENOMEM, "out of memory copying the checkpoint directory name");
+    free(s->checkpoint_dir);
+    s->checkpoint_dir = copy;
+    s->checkpoint_every = every_s;
+    s->resume = resume != 0;
+    return SL_OK;
+}
+
+sl_status sl_solver_set_monitor(sl_solver *s, sl_monitor_fn fn, void *user)
+{
+    if (s == NULL) return SL_EUSAGE;
+    s->monitor = fn;
+    s->monitor_user = user;
+    return SL_OK;
+}
+
+double sl_clock(void) { return sl_now(); }

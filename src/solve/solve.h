@@ -3,12 +3,14 @@
 #define SL_SOLVE_H
 
 #include "parallel/layout.h"
+#include "store/store.h"
 
-/* A model loaded across ranks: each rank owns rows [s_begin, s_end) with
- * targets rewritten to local columns of x = [owned | halo]. */
+/* A model prepared for solving: each rank's rows [s_begin, s_end) as the
+ * model holds them (borrowed, read only) plus the local columns of every
+ * transition in x = [owned | halo], the halo and the sweep order. */
 typedef struct sl_problem {
     sl_meta meta;
-    sl_block blk;
+    sl_block blk;           /* arrays borrowed from the model except col */
     sl_halo halo;
     int64_t *bounds;        /* [size + 1] state ranges of all ranks */
     int64_t n_local;
@@ -16,13 +18,50 @@ typedef struct sl_problem {
     double rmax_abs;        /* global max |r(s,a)| */
     int64_t *order;         /* [n_local] sweep order (local indices) */
     sl_order order_used;
-    const char *path;
+    const char *path;       /* for messages */
 } sl_problem;
 
-/* Load, partition by transitions, validate, check the fingerprint, build the
- * halo and the sweep order. Collective. */
-sl_status sl_problem_load(sl_ctx *ctx, const char *path, sl_order order, sl_problem *p);
+/* Prepare an assembled model for solving: local columns, halo and sweep
+ * order; refuses objectives other than discounted unless allow_any.
+ * Collective. */
+sl_status sl_problem_from_model(sl_ctx *ctx, const sl_model *m, sl_order order, int allow_any, sl_problem *p);
 void sl_problem_free(sl_problem *p);
+
+/* ---- handles ---------------------------------------------------------------- */
+
+struct sl_solver {
+    sl_ctx *ctx;
+    sl_method method;
+    sl_order order;
+    double tolerance;           /* > 0 */
+    int64_t max_iterations;     /* 0: no limit */
+    double walltime;            /* seconds; 0: none */
+    double wall_origin;         /* sl_now() instant the walltime counts from */
+    int have_wall_origin;
+    int sweeps;                 /* mpi: partial-evaluation sweeps; 0 adaptive */
+    double memory_limit;        /* pi: bytes; 0 auto */
+    int strict_memory;
+    char *checkpoint_dir;       /* NULL: none */
+    double checkpoint_every;    /* seconds; 0 -> 600 */
+    int resume;
+    sl_monitor_fn monitor;
+    void *monitor_user;
+};
+
+struct sl_solution {
+    sl_ctx *ctx;
+    int64_t n_states, s_begin, n;
+    double *value;              /* [n] */
+    int32_t *action;            /* [n] action ids; NULL for values only */
+    sl_solution_info info;
+    sl_certificate cert;
+    sl_history hist;
+};
+
+/* A solution with room for n local entries (actions if with_actions).
+ * Local (callers agree). */
+sl_status sl_solution_new(sl_ctx *ctx, int64_t n_states, int64_t s_begin, int64_t n, int with_actions,
+                          sl_solution **out);
 
 /* One synchronous Bellman check: y = T x on owned states, greedy policy
  * (pair offsets within each state; ties keep the current choice unless

@@ -70,7 +70,16 @@ static const char *kind_str(sl_file_kind k)
 
 sl_status sl_store_solution_write(sl_ctx *ctx, const char *path, sl_file_kind kind, int64_t n_states,
                                   int64_t s_begin, int64_t n_local, const double *value,
-                                  const int32_t *actions, const sl_solution_info *in, const sl_history *hist)
+                                  const int32_t *actions, const sl_solution_record *in, const sl_history *hist)
+{
+    return sl_store_solution_write_ex(ctx, path, kind, n_states, s_begin, n_local, value, actions, in, hist, NULL,
+                                      NULL);
+}
+
+sl_status sl_store_solution_write_ex(sl_ctx *ctx, const char *path, sl_file_kind kind, int64_t n_states,
+                                     int64_t s_begin, int64_t n_local, const double *value,
+                                     const int32_t *actions, const sl_solution_record *in, const sl_history *hist,
+                                     sl_store_extra_fn extra, const void *extra_arg)
 {
     sl_status st = SL_OK;
     sl_outfile of;
@@ -88,6 +97,7 @@ sl_status sl_store_solution_write(sl_ctx *ctx, const char *path, sl_file_kind ki
     if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "converged", in->converged, p);
     if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "iterations", in->iterations, p);
     if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "sweeps", in->sweeps, p);
+    if (st == SL_OK && in->ranks > 0) st = sl_h5_attr_write_i64(ctx, f, "ranks", in->ranks, p);
     if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "n_states", n_states, p);
     if (st == SL_OK) st = sl_h5_attr_write_f64(ctx, f, "seconds", in->seconds, p);
     if (st == SL_OK) st = sl_h5_attr_write_f64(ctx, f, "tolerance", in->tolerance, p);
@@ -114,6 +124,7 @@ sl_status sl_store_solution_write(sl_ctx *ctx, const char *path, sl_file_kind ki
         for (int k = 0; k < SL_HISTORY_COLUMNS; k++)
             SL_TRY(sl_h5_write_1d(ctx, f, col[k].name, col[k].ftype, col[k].mtype, n, 0, c, col[k].data, 0, p));
     }
+    if (extra) SL_TRY(sl_agree(ctx, extra(ctx, f, p, extra_arg)));
     st = sl_h5_close(ctx, &f, p);
 cleanup:
     if (f >= 0) H5Fclose(f);
@@ -122,7 +133,7 @@ cleanup:
 
 sl_status sl_store_solution_read(sl_ctx *ctx, const char *path, sl_file_kind kind, int64_t n_states,
                                  int64_t s_begin, int64_t n_local, double *value, int32_t *actions,
-                                 sl_solution_info *in)
+                                 sl_solution_record *in)
 {
     sl_status st = SL_OK;
     hid_t f = H5I_INVALID_HID;
@@ -146,6 +157,7 @@ sl_status sl_store_solution_read(sl_ctx *ctx, const char *path, sl_file_kind kin
     if (st == SL_OK) st = sl_h5_attr_read_i64(ctx, f, "converged", &conv, 0, path);
     if (st == SL_OK) st = sl_h5_attr_read_i64(ctx, f, "iterations", &in->iterations, 0, path);
     if (st == SL_OK) st = sl_h5_attr_read_i64(ctx, f, "sweeps", &in->sweeps, 0, path);
+    if (st == SL_OK) st = sl_h5_attr_read_i64(ctx, f, "ranks", &in->ranks, 0, path);
     if (st == SL_OK) st = sl_h5_attr_read_f64(ctx, f, "seconds", &in->seconds, 0, path);
     if (st == SL_OK) st = sl_h5_attr_read_f64(ctx, f, "tolerance", &in->tolerance, 0, path);
     if (st == SL_OK) st = sl_h5_attr_read_f64(ctx, f, "discount", &in->discount, 0, path);

@@ -39,7 +39,6 @@ sl_status sl_store_model_read(sl_ctx *ctx, const char *path, const sl_meta *meta
 sl_status sl_store_model_cumulative(sl_ctx *ctx, const char *path, int64_t s_begin,
                                     int64_t s_end, int64_t **cum);
 
-#endif /* SL_STORE_H */
 
 /* ---- solutions ---------------------------------------------------------------- */
 
@@ -54,32 +53,41 @@ sl_status sl_history_push(sl_ctx *ctx, sl_history *h, int64_t iteration, int64_t
 void sl_history_free(sl_history *h);
 
 /* Scalars of a solution (or values, or checkpoint) file. */
-typedef struct sl_solution_info {
+typedef struct sl_solution_record {
     char model_fingerprint[40];
     char method[16];            /* gs, jacobi, mpi, pi; for values: direct/iterative */
     char order[24];
     char evaluation[16];        /* pi/evaluate: "direct" or "iterative" */
     int converged;
+    int64_t ranks;              /* ranks of the run (0: not recorded) */
     int64_t iterations, sweeps;
     double seconds;
     double tolerance, discount;
     double residual_sup, residual_span, residual_min, residual_max;
     double value_error_bound, policy_loss_bound;
-} sl_solution_info;
+} sl_solution_record;
 
 /* Write a solution (kind SL_FILE_SOLUTION; value + policy) or a values file
  * (SL_FILE_VALUES; actions == NULL). Each rank writes its owned slice
  * [s_begin, s_begin + n_local). Atomic. Collective. */
 sl_status sl_store_solution_write(sl_ctx *ctx, const char *path, sl_file_kind kind, int64_t n_states,
                                   int64_t s_begin, int64_t n_local, const double *value,
-                                  const int32_t *actions, const sl_solution_info *info,
+                                  const int32_t *actions, const sl_solution_record *info,
                                   const sl_history *hist);
+/* Same, calling extra(ctx, file, path, extra_arg) on the open file (an HDF5
+ * hid_t) before it is closed, to add objective-specific attributes and
+ * datasets (src/store/objective_io.c). Collective. */
+typedef sl_status (*sl_store_extra_fn)(sl_ctx *ctx, int64_t file, const char *path, const void *arg);
+sl_status sl_store_solution_write_ex(sl_ctx *ctx, const char *path, sl_file_kind kind, int64_t n_states,
+                                     int64_t s_begin, int64_t n_local, const double *value,
+                                     const int32_t *actions, const sl_solution_record *info,
+                                     const sl_history *hist, sl_store_extra_fn extra, const void *extra_arg);
 /* Read a solution's scalars and (if not NULL) the slice of value/policy.
  * Requires kind SL_FILE_SOLUTION (or SL_FILE_VALUES when `kind` says so) and
  * n_states to match. Collective. */
 sl_status sl_store_solution_read(sl_ctx *ctx, const char *path, sl_file_kind kind, int64_t n_states,
                                  int64_t s_begin, int64_t n_local, double *value, int32_t *actions,
-                                 sl_solution_info *info);
+                                 sl_solution_record *info);
 
 /* ---- checkpoints ---------------------------------------------------------------- */
 
@@ -121,3 +129,5 @@ sl_status sl_ckpt_lock(sl_ctx *ctx, const char *dir, int *fd);
 void sl_ckpt_unlock(int *fd);
 sl_status sl_ckpt_info(sl_ctx *ctx, const char *path, char *fingerprint, int64_t *n_states,
                        sl_solver_state *state, sl_history *hist, int *complete);
+
+#endif /* SL_STORE_H */

@@ -168,7 +168,7 @@ expect "solve: --checkpoint names a regular file" --code "64|73" --err "ck_file"
 "$SLUICE" solve "$W/mid.h5" -o "$W/first.h5" --checkpoint "$W/shared" --method jacobi --progress-every 1000 \
     >"$W/first.log" 2>&1 &
 first=$!
-for _ in $(seq 1 6000); do grep -q "^solve: .*states" "$W/first.log" && break; sleep 0.05; done
+for _ in $(seq 1 6000); do grep -Eq "solve: .*rank\(s\), tolerance" "$W/first.log" && break; sleep 0.05; done
 kill -STOP "$first"
 expect "solve: a second run on a checkpoint directory in use" --code 73 --err "shared" --err "in use by another run" \
     --err "pid $first" --gone "$W/second.h5" -- \

@@ -40,7 +40,7 @@ start() {
     shift 2
     "$SLUICE" "${SOLVE[@]}" --checkpoint "$dir" "$@" >"$log" 2>&1 &
     pid=$!
-    if ! ck_wait_grep "^solve: m.h5, " "$log" 120 "$pid"; then
+    if ! ck_wait_grep "solve: m.h5, " "$log" 120 "$pid"; then
         echo "# $log: no header line within 120 s (hang?)"
         ck_mpi_startup_note "$log"
     fi
@@ -58,7 +58,7 @@ for n in 1 2; do
         else
             ck_not_ok "SIGUSR1 #$n" "$CK_ACTED_MSG"
         fi
-        ck_wait_grep "^solve: checkpoint written .*iteration $CK_ACTED_ITER," usr1.log 120 "$pid" &&
+        ck_wait_grep "solve: checkpoint written .*iteration $CK_ACTED_ITER," usr1.log 120 "$pid" &&
             [ "$(ck_tool attr "$f" iteration)" = "$CK_ACTED_ITER" ] &&
             ck_ok "SIGUSR1 #$n: the checkpoint holds the iteration the signal was acted on ($CK_ACTED_ITER)" ||
             ck_not_ok "SIGUSR1 #$n: checkpoint iteration $(ck_tool attr "$f" iteration 2>&1), acted on at $CK_ACTED_ITER"

@@ -154,7 +154,7 @@ reached() {
     while kill -0 "$pid" 2>/dev/null; do
         case $spec in
             +*)
-                it=$(sed -n 's/^solve: iter \([0-9]*\) .*/\1/p' "$RUN_LOG" | tail -n 1)
+                it=$(sed -n 's/.*solve: iter \([0-9]*\) .*/\1/p' "$RUN_LOG" | tail -n 1)
                 [ -n "$it" ] && [ "$it" -ge "${spec#+}" ] && return 0 ;;
             *) [ "$(now_ms)" -ge $((t0 + $(ms "$spec"))) ] && return 0 ;;
         esac
@@ -259,7 +259,7 @@ for restart in $(seq 0 "$SLUICE_MAX_RESTARTS"); do
     run_job "chain-$restart" "$id" "$restart" "$hang"
     runs=$((runs + 1))
     # the iteration this run resumed at and the one it stopped or ended at (its own log)
-    from=$(sed -n 's/^solve: resumed at iteration \([0-9]*\),.*/\1/p' "$RUN_LOG" | tail -n 1)
+    from=$(sed -n 's/.*solve: resumed at iteration \([0-9]*\),.*/\1/p' "$RUN_LOG" | tail -n 1)
     to=$(sed -n 's/.* after \([0-9]*\) iterations, .*/\1/p' "$RUN_LOG" | tail -n 1)
     iters="$iters ${from:-0}->${to:-?}"
     if [ "${from:-0}" != "$prev_iter" ] || [ -z "$to" ] || [ "$to" -le "${from:-0}" ]; then

@@ -201,10 +201,10 @@ reached() {
     while kill -0 "$pid" 2>/dev/null; do
         case $spec in
             -) ;;
-            hdr) grep -Eq "^solve: .*, [0-9]+ states, " "$RUN_LOG" && return 0 ;;
+            hdr) grep -Eq "solve: .*, [0-9]+ rank\(s\), tolerance" "$RUN_LOG" && return 0 ;;
             +*)
-                start=$(sed -n 's/^solve: resumed at iteration \([0-9]*\),.*/\1/p' "$RUN_LOG" | tail -n 1)
-                it=$(sed -n 's/^solve: iter \([0-9]*\) .*/\1/p' "$RUN_LOG" | tail -n 1)
+                start=$(sed -n 's/.*solve: resumed at iteration \([0-9]*\),.*/\1/p' "$RUN_LOG" | tail -n 1)
+                it=$(sed -n 's/.*solve: iter \([0-9]*\) .*/\1/p' "$RUN_LOG" | tail -n 1)
                 [ -n "$it" ] && [ "$it" -ge $((${start:-0} + ${spec#+})) ] && return 0 ;;
             ckpt) has_files "$SLURM_SUBMIT_DIR/checkpoints" && return 0 ;;
             *) [ "$(now_ms)" -ge $((t0 + $(ms "$spec"))) ] && return 0 ;;

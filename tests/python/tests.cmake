@@ -29,6 +29,19 @@ else()
     set_tests_properties(py_${_t} PROPERTIES LABELS python TIMEOUT 300)
   endforeach()
 
+  # finite / total / average objectives (docs/objectives.md); the rank and
+  # resume comparisons launch mpiexec themselves
+  add_test(NAME py_objectives
+    COMMAND ${SLUICE_TEST_PYTHON} ${_sluice_py_dir}/test_objectives.py
+            $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/py_objectives)
+  set_tests_properties(py_objectives PROPERTIES LABELS python TIMEOUT 600
+    ENVIRONMENT "OBJ_PARTS=finite,total,average")
+  add_test(NAME py_objectives_ranks
+    COMMAND ${SLUICE_TEST_PYTHON} ${_sluice_py_dir}/test_objectives.py
+            $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/py_objectives_ranks)
+  set_tests_properties(py_objectives_ranks PROPERTIES LABELS "python;mpi" TIMEOUT 900
+    ENVIRONMENT "OBJ_PARTS=ranks;SLUICE_MPIEXEC=${MPIEXEC_EXECUTABLE};OMPI_ALLOW_RUN_AS_ROOT=1;OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1;OMPI_MCA_rmaps_base_oversubscribe=1")
+
   # The LP and certificate checks again with 2 MPI ranks (every command that
   # reads or writes a model uses all ranks under mpirun).
   if(MPIEXEC_EXECUTABLE)

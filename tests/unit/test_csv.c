@@ -933,6 +933,25 @@ static void remove_files(const char *dir, const char *const *names, int n)
     MPI_Barrier(MPI_COMM_WORLD);
 }
 
+/* The command line's import/estimate: a model handle, then the file. */
+static sl_status import_to(sl_ctx *ctx, const sl_import_opts *o, const char *path)
+{
+    sl_model *m = NULL;
+    sl_status st = sl_model_import_csv(ctx, o, &m);
+    if (st == SL_OK) st = sl_model_save(m, path);
+    sl_model_free(&m);
+    return st;
+}
+
+static sl_status estimate_to(sl_ctx *ctx, const sl_estimate_opts *o, const char *path)
+{
+    sl_model *m = NULL;
+    sl_status st = sl_model_estimate_csv(ctx, o, &m);
+    if (st == SL_OK) st = sl_model_save(m, path);
+    sl_model_free(&m);
+    return st;
+}
+
 static void test_entry_points_errors(void **state)
 {
     sl_ctx *ctx = ctx_of(state);
@@ -944,22 +963,20 @@ static void test_entry_points_errors(void **state)
     write_file(bad, "state,action,next_state,probability,reward\n0,0,0,1,0\n0,1,0,2,0\n");
 
     sl_import_opts io = import_opts();
-    io.output = out;
     io.input = missing;
-    check_error(ctx, sl_import(ctx, &io), SL_ENOINPUT, missing, "cannot open", NULL);
+    check_error(ctx, import_to(ctx, &io, out), SL_ENOINPUT, missing, "cannot open", NULL);
     io.input = d;
-    check_error(ctx, sl_import(ctx, &io), SL_ENOINPUT, "is a directory", NULL);
+    check_error(ctx, import_to(ctx, &io, out), SL_ENOINPUT, "is a directory", NULL);
     io.input = bad;
-    check_error(ctx, sl_import(ctx, &io), SL_EDATA, bad, ":3: column 'probability'", NULL);
+    check_error(ctx, import_to(ctx, &io, out), SL_EDATA, bad, ":3: column 'probability'", NULL);
     io.discount = 1.5;
-    check_error(ctx, sl_import(ctx, &io), SL_EUSAGE, "discount 1.5", NULL);
+    check_error(ctx, import_to(ctx, &io, out), SL_EUSAGE, "discount 1.5", NULL);
 
     sl_estimate_opts eo = estimate_opts();
-    eo.output = out;
     eo.input = missing;
-    check_error(ctx, sl_estimate(ctx, &eo), SL_ENOINPUT, missing, NULL);
+    check_error(ctx, estimate_to(ctx, &eo, out), SL_ENOINPUT, missing, NULL);
     eo.input = bad;
-    check_error(ctx, sl_estimate(ctx, &eo), SL_EDATA, bad, ":1: bad header", NULL);
+    check_error(ctx, estimate_to(ctx, &eo, out), SL_EDATA, bad, ":1: bad header", NULL);
     assert_int_equal(access(out, F_OK), -1);
 
     const char *names[] = {"bad.csv"};
@@ -989,11 +1006,9 @@ static void test_entry_points_write(void **state)
 
     sl_import_opts io = import_opts();
     io.input = in;
-    io.output = out;
-    assert_int_equal(sl_import(ctx, &io), SL_OK);
+    assert_int_equal(import_to(ctx, &io, out), SL_OK);
     io.input = in2;
-    io.output = out2;
-    assert_int_equal(sl_import(ctx, &io), SL_OK);
+    assert_int_equal(import_to(ctx, &io, out2), SL_OK);
 
     sl_meta m, m2;
     assert_int_equal(sl_store_model_meta(ctx, out, &m), SL_OK);
@@ -1032,10 +1047,10 @@ static void test_entry_points_write(void **state)
 
     sl_estimate_opts eo = estimate_opts();
     eo.input = log;
-    eo.output = out;    /* replaces the imported model atomically */
     eo.min_visits = 2;
     eo.unseen_absorb = 1;
-    assert_int_equal(sl_estimate(ctx, &eo), SL_OK);
+    /* replaces the imported model atomically */
+    assert_int_equal(estimate_to(ctx, &eo, out), SL_OK);
     assert_int_equal(sl_store_model_meta(ctx, out, &m), SL_OK);
     assert_int_equal(m.n_states, 3);
     assert_int_equal(m.n_pairs, 3);

@@ -347,7 +347,7 @@ static void print_history_tail(FILE *out, const sl_history *h)
 static sl_status solution_info(sl_ctx *ctx, const sl_info_opts *o, sl_file_kind kind)
 {
     sl_status st = SL_OK;
-    sl_solution_info in;
+    sl_solution_record in;
     hid_t f = H5I_INVALID_HID;
     int64_t n = 0;
     SL_TRY(sl_h5_open(ctx, o->path, 0, &f));

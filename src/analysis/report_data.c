@@ -1,0 +1,428 @@
+/* report_data.c - the report-data JSON document (docs/report.md) from a model
+ * and a solution: certificate, verification, history, model facts, rule map. */
+#include <math.h>
+#include <string.h>
+#include <time.h>
+
+#include "core/json.h"
+#include "sluice/report.h"
+#include "store/h5.h"
+#include "store/store.h"
+
+static const char caution_text[] =
+    "Water release, grid and safety decisions can hurt people. sluice computes what a model implies; it knows "
+    "nothing the model leaves out. Its results support, and never replace, the judgement of licensed engineers "
+    "and the rules and regulations that apply where the decision is made.";
+
+/* What the document is made of. The handles are distributed over the ranks;
+ * value, action and history are whole on rank 0. */
+typedef struct report_in {
+    sl_model *mh;
+    sl_solution *xh;
+    const sl_meta *m;           /* mh's metadata */
+    sl_solution_info info;
+    sl_certificate cert;
+    sl_history_view hist;       /* owned by xh, or a view of own_hist */
+    sl_history own_hist;        /* read from the file when the handle has none */
+    double *value;              /* [n_states] on rank 0 */
+    int32_t *action;            /* [n_states] on rank 0: the policy's action ids */
+    int64_t *avail;             /* states where each action id is available (all ranks) */
+    int32_t n_actions;          /* 1 + largest action id */
+    int64_t aps_min, aps_max;   /* actions per state */
+} report_in;
+
+static void report_in_free(report_in *r)
+{
+    free(r->value);
+    free(r->action);
+    free(r->avail);
+    sl_history_free(&r->own_hist);
+    sl_solution_free(&r->xh);
+    sl_model_free(&r->mh);
+    memset(r, 0, sizeof(*r));
+}
+
+/* The residual history straight from the solution file (a loaded solution
+ * handle does not carry it). Absent in old files: n = 0. Collective. */
+static sl_status read_history(sl_ctx *ctx, const char *path, report_in *r)
+{
+    sl_status st = SL_OK;
+    hid_t f = H5I_INVALID_HID;
+    sl_history *h = &r->own_hist;
+    SL_TRY(sl_h5_open(ctx, path, 0, &f));
+    int64_t n = sl_h5_length(f, "/history/sweeps");
+    for (int64_t i = 0; i < n && st == SL_OK; i++) st = sl_history_push(ctx, h, 0, 0, 0, 0, 0, 0, 0);
+    SL_TRY(sl_agree(ctx, st));
+    sl_history_column col[SL_HISTORY_COLUMNS];
+    sl_history_columns(h, col);
+    for (int k = 0; k < SL_HISTORY_COLUMNS && n > 0; k++)
+        SL_TRY(sl_agree(ctx, sl_h5_read_1d(ctx, f, col[k].name, col[k].mtype, n, 0, n, col[k].data, path)));
+    r->hist = (sl_history_view){h->n, h->iteration, h->sweeps, h->seconds, h->sup, h->span, h->value_error,
+                                h->policy_loss};
+cleanup:
+    if (f >= 0) H5Fclose(f);
+    return st;
+}
+
+/* Model and solution as handles (the solution must belong to the model and
+ * choose only offered actions: sl_solution_load checks both), availability
+ * counted over every rank's rows, value and policy gathered on rank 0.
+ * Collective. */
+static sl_status load(sl_ctx *ctx, const sl_report_data_opts *o, report_in *r)
+{
+    sl_status st = SL_OK;
+    SL_TRY(sl_model_load(ctx, o->model, &r->mh));
+    SL_TRY(sl_solution_load(ctx, o->solution, r->mh, &r->xh));
+    r->m = &r->mh->meta;
+    SL_TRY(sl_solution_get_info(r->xh, &r->info));
+    SL_TRY(sl_solution_get_certificate(r->xh, &r->cert));
+    SL_TRY(sl_solution_get_history(r->xh, &r->hist));
+    if (r->hist.n == 0) SL_TRY(read_history(ctx, o->solution, r));
+    if (!r->info.has_policy)
+        SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EDATA, "%s holds values only (from evaluate), no policy to report on",
+                                    o->solution)));
+    SL_TRY(sl_solution_gather(r->xh, 0, &r->value, &r->action));
+    const sl_block *b = &r->mh->blk;
+    int32_t amax = r->m->n_action_names > 0 ? r->m->n_action_names - 1 : 0;
+    int64_t lim[2] = {INT64_MAX, 0};
+    for (int64_t q = 0; q < sl_block_pairs(b); q++)
+        if (b->action[q] > amax) amax = b->action[q];
+    for (int64_t i = 0; i < sl_block_states(b); i++) {
+        int64_t c = b->first_pair[i + 1] - b->first_pair[i];
+        if (c < lim[0]) lim[0] = c;
+        if (c > lim[1]) lim[1] = c;
+    }
+    MPI_Allreduce(MPI_IN_PLACE, &amax, 1, MPI_INT32_T, MPI_MAX, ctx->comm);
+    MPI_Allreduce(MPI_IN_PLACE, &lim[0], 1, MPI_INT64_T, MPI_MIN, ctx->comm);
+    MPI_Allreduce(MPI_IN_PLACE, &lim[1], 1, MPI_INT64_T, MPI_MAX, ctx->comm);
+    r->aps_min = lim[0];
+    r->aps_max = lim[1];
+    r->n_actions = amax + 1;
+    if (SL_ZALLOC(ctx, r->avail, r->n_actions, "availability") == NULL) st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    for (int64_t q = 0; q < sl_block_pairs(b); q++) r->avail[b->action[q]]++;
+    MPI_Allreduce(MPI_IN_PLACE, r->avail, r->n_actions, MPI_INT64_T, MPI_SUM, ctx->comm);
+cleanup:
+    return st;
+}
+
+/* ---- the independent check: the `verify` computation, in-process ---------- */
+
+typedef struct verify_out {
+    int ran;
+    sl_verification v;
+} verify_out;
+
+/* sl_verify recomputes the bounds from the model, the value and the policy
+ * alone. A solution that fails them is a result for the page, not an error.
+ * Collective. */
+static sl_status run_verify(sl_ctx *ctx, const report_in *r, verify_out *v)
+{
+    memset(v, 0, sizeof(*v));
+    sl_status st = sl_verify(r->mh, r->xh, 0, &v->v);
+    if (st == SL_OK || (st == SL_EDATA && !v->v.certified && v->v.tolerance > 0)) {
+        sl_error_clear(ctx);
+        v->ran = 1;
+        st = SL_OK;
+    }
+    return st;
+}
+
+/* ---- rule map ----------------------------------------------------------------- */
+
+/* Evenly spaced indices of a factor of `size` values, at most `max` of them. */
+static int64_t pick(int64_t size, int64_t max, int64_t *idx)
+{
+    int64_t n = size <= max ? size : max;
+    for (int64_t k = 0; k < n; k++) idx[k] = n == 1 ? 0 : (int64_t)llround((double)k * (double)(size - 1) / (double)(n - 1));
+    return n;
+}
+
+static void axis_json(sl_json *j, const char *key, const sl_meta *m, int f, const int64_t *idx, int64_t n)
+{
+    char lab[32];
+    sl_json_obj_open(j, key);
+    sl_json_str(j, "factor", m->factor_name[f]);
+    sl_json_int(j, "size", m->factor_size[f]);
+    sl_json_bool(j, "sampled", n < m->factor_size[f]);
+    sl_json_arr_open(j, "indices");
+    for (int64_t k = 0; k < n; k++) sl_json_int(j, NULL, idx[k]);
+    sl_json_close_arr(j);
+    sl_json_arr_open(j, "labels");
+    for (int64_t k = 0; k < n; k++) {
+        snprintf(lab, sizeof(lab), "%lld", (long long)idx[k]);
+        sl_json_str(j, NULL, lab);
+    }
+    sl_json_close_arr(j);
+    sl_json_close_obj(j);
+}
+
+static sl_status rule_map_json(sl_ctx *ctx, sl_json *j, const sl_report_data_opts *o, const report_in *r)
+{
+    const sl_meta *m = r->m;
+    if (m->n_factors < 2) {
+        sl_json_obj_open(j, "rule_map");
+        sl_json_str(j, "omitted", m->n_factors == 0
+                                      ? "the model has no named factors (its states are numbers only), so there are "
+                                        "no two factors to map the rule over"
+                                      : "the model has a single factor; a map needs two");
+        sl_json_close_obj(j);
+        return SL_OK;
+    }
+    /* x: the first factor that is not a stage; y: the stage factor, or the
+     * next one; panels: the next remaining factor; the rest fixed mid-range */
+    int fx = -1, fy = sl_meta_stage_factor(m), fp = -1;
+    for (int f = 0; f < m->n_factors && fx < 0; f++)
+        if (f != fy) fx = f;
+    if (fy < 0)
+        for (int f = 0; f < m->n_factors && fy < 0; f++)
+            if (f != fx) fy = f;
+    for (int f = 0; f < m->n_factors && fp < 0; f++)
+        if (f != fx && f != fy) fp = f;
+    int64_t mx = o->map_max_x > 0 ? o->map_max_x : 60, my = o->map_max_y > 0 ? o->map_max_y : 24,
+            mp = o->map_max_panels > 0 ? o->map_max_panels : 12;
+    int64_t *ix = NULL, *iy = NULL, *ip = NULL;
+    sl_status st = SL_OK;
+    if (SL_ALLOC(ctx, ix, mx, "map") == NULL || SL_ALLOC(ctx, iy, my, "map") == NULL || SL_ALLOC(ctx, ip, mp, "map") == NULL) {
+        free(ix);
+        free(iy);
+        free(ip);
+        return SL_ENOMEM;
+    }
+    int64_t nx = pick(m->factor_size[fx], mx, ix), ny = pick(m->factor_size[fy], my, iy);
+    int64_t np = fp >= 0 ? pick(m->factor_size[fp], mp, ip) : 1;
+    if (fp < 0) ip[0] = 0;
+    int64_t fv[SLUICE_MAX_FACTORS];
+    for (int f = 0; f < m->n_factors; f++) fv[f] = m->factor_size[f] / 2;
+    sl_json_obj_open(j, "rule_map");
+    axis_json(j, "x", m, fx, ix, nx);
+    axis_json(j, "y", m, fy, iy, ny);
+    if (fp >= 0) axis_json(j, "facet", m, fp, ip, np);
+    sl_json_arr_open(j, "fixed");
+    for (int f = 0; f < m->n_factors; f++) {
+        if (f == fx || f == fy || f == fp) continue;
+        char lab[32];
+        snprintf(lab, sizeof(lab), "%lld", (long long)fv[f]);
+        sl_json_obj_open(j, NULL);
+        sl_json_str(j, "factor", m->factor_name[f]);
+        sl_json_int(j, "index", fv[f]);
+        sl_json_str(j, "label", lab);
+        sl_json_close_obj(j);
+    }
+    sl_json_close_arr(j);
+    /* one pass per array: action ids, then values, row-major (panel, y, x) */
+    for (int pass = 0; pass < 3; pass++) {
+        sl_json_arr_open(j, pass == 0 ? "action" : pass == 1 ? "value" : "state");
+        for (int64_t p = 0; p < np; p++)
+            for (int64_t y = 0; y < ny; y++)
+                for (int64_t x = 0; x < nx; x++) {
+                    if (fp >= 0) fv[fp] = ip[p];
+                    fv[fy] = iy[y];
+                    fv[fx] = ix[x];
+                    int64_t s = 0;
+                    for (int f = m->n_factors - 1; f >= 0; f--) s = s * m->factor_size[f] + fv[f];
+                    if (pass == 0) sl_json_int(j, NULL, r->action[s]);
+                    else if (pass == 1) sl_json_num(j, NULL, r->value[s]);
+                    else sl_json_int(j, NULL, s);
+                }
+        sl_json_close_arr(j);
+    }
+    sl_json_close_obj(j);
+    free(ix);
+    free(iy);
+    free(ip);
+    return st;
+}
+
+/* ---- the document --------------------------------------------------------------- */
+
+static void hist_array(sl_json *j, const char *key, const report_in *r, int k)
+{
+    sl_json_arr_open(j, key);
+    for (int64_t i = 0; i < r->hist.n; i++) {
+        const sl_history_view *h = &r->hist;
+        switch (k) {
+        case 0: sl_json_int(j, NULL, h->iteration[i]); break;
+        case 1: sl_json_int(j, NULL, h->sweeps[i]); break;
+        case 2: sl_json_num(j, NULL, h->seconds[i]); break;
+        case 3: sl_json_num(j, NULL, h->sup[i]); break;
+        case 4: sl_json_num(j, NULL, h->span[i]); break;
+        case 5: sl_json_num(j, NULL, h->value_error[i]); break;
+        default: sl_json_num(j, NULL, h->policy_loss[i]); break;
+        }
+    }
+    sl_json_close_arr(j);
+}
+
+static sl_status write_doc(sl_ctx *ctx, const sl_report_data_opts *o, const report_in *r, const verify_out *v)
+{
+    const sl_meta *m = r->m;
+    const sl_solution_info *in = &r->info;
+    const sl_certificate *c = &r->cert;
+    sl_json jj, *j = &jj;
+    sl_status st = SL_OK;
+    FILE *out = o->out;
+    sl_json_begin(j, out);
+    sl_json_int(j, "sluice_report_data", 1);
+    sl_json_str(j, "generated_by", "sluice " SLUICE_VERSION);
+    char when[64] = "";
+    time_t now = time(NULL);
+    struct tm tmv;
+    if (gmtime_r(&now, &tmv)) strftime(when, sizeof(when), "%Y-%m-%d %H:%M UTC", &tmv);
+    sl_json_str(j, "created", when);
+    char title[512];
+    snprintf(title, sizeof(title), "sluice report: %s", m->generator[0] ? m->generator : o->model);
+    sl_json_str(j, "title", title);
+    sl_json_str(j, "caution", caution_text);
+
+    /* model facts */
+    sl_json_obj_open(j, "model");
+    sl_json_str(j, "path", o->model);
+    sl_json_str(j, "name", m->generator);
+    sl_json_str(j, "source", m->source);
+    sl_json_str(j, "fingerprint", m->fingerprint);
+    sl_json_int(j, "format_version", m->format_version);
+    sl_json_int(j, "n_states", m->n_states);
+    sl_json_int(j, "n_pairs", m->n_pairs);
+    sl_json_int(j, "n_transitions", m->n_trans);
+    sl_json_num(j, "discount", m->discount);
+    sl_json_str(j, "objective", sl_objective_name(m->objective));
+    sl_json_key(j, "reward_unit");
+    fputs("null", out);
+    sl_json_key(j, "period_unit");
+    fputs("null", out);
+    sl_json_key(j, "action_unit");
+    fputs("null", out);
+    sl_json_arr_open(j, "parameters");
+    for (int k = 0; k < m->n_params; k++) {
+        sl_json_obj_open(j, NULL);
+        sl_json_str(j, "name", m->param_name[k]);
+        sl_json_num(j, "value", m->param_value[k]);
+        sl_json_str(j, "unit", m->param_unit ? m->param_unit[k] : "");
+        sl_json_close_obj(j);
+    }
+    sl_json_close_arr(j);
+    sl_json_arr_open(j, "factors");
+    for (int f = 0; f < m->n_factors; f++) {
+        sl_json_obj_open(j, NULL);
+        sl_json_str(j, "name", m->factor_name[f]);
+        sl_json_int(j, "size", m->factor_size[f]);
+        sl_json_bool(j, "stage", m->factor_stage[f] != 0);
+        sl_json_close_obj(j);
+    }
+    sl_json_close_arr(j);
+    sl_json_arr_open(j, "actions");
+    for (int32_t a = 0; a < r->n_actions; a++) {
+        char name[SL_NAME_MAX + 16];
+        if (a < m->n_action_names) snprintf(name, sizeof(name), "%s", m->action_name[a]);
+        else snprintf(name, sizeof(name), "action %d", (int)a);
+        sl_json_obj_open(j, NULL);
+        sl_json_int(j, "id", a);
+        sl_json_str(j, "name", name);
+        sl_json_int(j, "states_available", r->avail[a]);
+        sl_json_close_obj(j);
+    }
+    sl_json_close_arr(j);
+    sl_json_arr_open(j, "quantities");
+    sl_json_close_arr(j);
+    sl_json_obj_open(j, "actions_per_state");
+    sl_json_int(j, "min", r->aps_min);
+    sl_json_num(j, "mean", (double)m->n_pairs / (double)m->n_states);
+    sl_json_int(j, "max", r->aps_max);
+    sl_json_close_obj(j);
+    sl_json_close_obj(j);
+
+    /* solution and certificate */
+    double vmin = INFINITY, vmax = -INFINITY, vabs = INFINITY;
+    for (int64_t s = 0; s < m->n_states; s++) {
+        double x = r->value[s];
+        if (x < vmin) vmin = x;
+        if (x > vmax) vmax = x;
+        if (fabs(x) < vabs) vabs = fabs(x);
+    }
+    sl_json_obj_open(j, "solution");
+    sl_json_str(j, "path", o->solution);
+    sl_json_str(j, "method", in->method);
+    sl_json_str(j, "order", in->order);
+    if (in->ranks > 0) {
+        sl_json_int(j, "ranks", in->ranks);
+    } else { /* not recorded by older writers */
+        sl_json_key(j, "ranks");
+        fputs("null", out);
+    }
+    sl_json_bool(j, "converged", c->converged);
+    sl_json_int(j, "iterations", in->iterations);
+    sl_json_int(j, "sweeps", in->sweeps);
+    sl_json_num(j, "seconds", in->seconds);
+    sl_json_num(j, "value_min", vmin);
+    sl_json_num(j, "value_max", vmax);
+    sl_json_num(j, "value_min_abs", vabs);
+    sl_json_close_obj(j);
+    sl_json_obj_open(j, "certificate");
+    sl_json_num(j, "tolerance", c->tolerance);
+    sl_json_num(j, "value_error_bound", c->value_error);
+    sl_json_num(j, "policy_loss_bound", c->policy_loss);
+    sl_json_num(j, "residual_sup", c->residual_sup);
+    sl_json_num(j, "residual_span", c->residual_span);
+    sl_json_bool(j, "certified", c->converged && c->value_error <= c->tolerance && c->policy_loss <= c->tolerance);
+    /* relative to the smallest |value| (null when some value is 0) */
+    sl_json_num(j, "value_error_relative", vabs > 0 ? c->value_error / vabs : NAN);
+    sl_json_num(j, "policy_loss_relative", vabs > 0 ? c->policy_loss / vabs : NAN);
+    sl_json_close_obj(j);
+
+    sl_json_obj_open(j, "verify");
+    if (!v->ran) {
+        sl_json_str(j, "omitted", "the verification was skipped on request (--no-verify)");
+    } else {
+        sl_json_bool(j, "certified", v->v.certified);
+        sl_json_num(j, "tolerance", v->v.tolerance);
+        sl_json_num(j, "residual_sup", v->v.residual_sup);
+        sl_json_num(j, "residual_span", v->v.residual_span);
+        sl_json_num(j, "value_error_bound", v->v.value_error);
+        sl_json_num(j, "policy_loss_bound", v->v.policy_loss);
+        sl_json_int(j, "ranks", ctx->size);
+    }
+    sl_json_close_obj(j);
+
+    sl_json_obj_open(j, "history");
+    if (r->hist.n == 0) {
+        sl_json_str(j, "omitted", "the solution file holds no residual history");
+    } else {
+        static const char *keys[] = {"iteration", "sweeps", "seconds", "sup", "span", "value_error_bound",
+                                     "policy_loss_bound"};
+        for (int k = 0; k < 7; k++) hist_array(j, keys[k], r, k);
+    }
+    sl_json_close_obj(j);
+
+    st = rule_map_json(ctx, j, o, r);
+    sl_json_obj_open(j, "water_values");
+    sl_json_str(j, "omitted", m->n_factors == 0 ? "the model has no factors, so no numeric factor to take a marginal value of"
+                                                : "the model gives no numeric values for its factors (a model file of format 1), "
+                                                  "so a marginal value per unit cannot be formed");
+    sl_json_close_obj(j);
+    sl_json_obj_open(j, "outlook");
+    sl_json_str(j, "omitted", "this version of sluice has no exact outlook (forward propagation of the state "
+                              "distribution) to draw from");
+    sl_json_close_obj(j);
+    sl_json_end(j);
+    if (ferror(out)) st = SL_ERR(ctx, SL_EIO, "writing the report data failed");
+    return st;
+}
+
+sl_status sl_report_data(sl_ctx *ctx, const sl_report_data_opts *o)
+{
+    sl_status st = SL_OK;
+    report_in r;
+    verify_out v;
+    memset(&r, 0, sizeof(r));
+    memset(&v, 0, sizeof(v));
+    if (o == NULL || o->model == NULL || o->solution == NULL || (ctx->rank == 0 && o->out == NULL))
+        SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EUSAGE, "report data: model, solution and output are required")));
+    SL_TRY(load(ctx, o, &r));
+    if (!o->skip_verify) SL_TRY(run_verify(ctx, &r, &v));
+    if (ctx->rank == 0) st = write_doc(ctx, o, &r, &v);
+    st = sl_agree(ctx, st);
+cleanup:
+    report_in_free(&r);
+    return st;
+}
