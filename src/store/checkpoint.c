@@ -489,7 +489,9 @@ sl_status sl_ckpt_load(sl_ctx *ctx, const char *dir, const char *fingerprint, in
             *found = 1;
             return SL_OK;
         }
-        if (refuse) return st;
+        /* out of memory says nothing about the file: stop here, set nothing
+         * aside (found by tests/cli/fault_alloc.sh) */
+        if (refuse || st == SL_ENOMEM) return st;
         if (i == 0) snprintf(first_err, sizeof(first_err), "%s", ctx->err);
         else sl_warn(ctx, "checkpoint unusable: %s", ctx->err);
         sl_error_clear(ctx);
