@@ -47,7 +47,9 @@ log() { echo "$*" | tee -a "$W/mutation.log"; }
 
 mkdir -p "$W"
 : >"$W/mutation.log"
-rm -rf "$S" && mkdir -p "$S"
+# a second run reuses WORKDIR: tar keeps the files' times, so only what
+# changed since is rebuilt
+mkdir -p "$S"
 (cd "$root" && git ls-files -z | xargs -0 tar -cf - 2>/dev/null) | tar -xf - -C "$S" || { echo "copy failed"; exit 1; }
 cmake -S "$S" -B "$B" -DCMAKE_BUILD_TYPE=RelWithDebInfo -DSLUICE_WERROR=OFF >"$W/cmake.log" 2>&1 &&
     nice cmake --build "$B" -j2 >"$W/build.log" 2>&1 || { echo "baseline build failed: $W/build.log"; exit 1; }
@@ -67,7 +69,7 @@ caught=0 survived=0 total=0
 while IFS='~' read -r id file old new re what; do
     [ -n "$id" ] || continue
     case $only in "  ") ;; *" $id "*) ;; *) continue ;; esac
-    cp "$S/$file" "$W/orig"
+    cp -p "$S/$file" "$W/orig"
     if ! /usr/bin/python3 - "$S/$file" "$old" "$new" <<'PY'
 import sys
 p, old, new = sys.argv[1:4]
@@ -94,7 +96,8 @@ PY
         log "$id caught by ${failed:-$re}: $what  [$first]"
         caught=$((caught + 1))
     fi
-    cp "$W/orig" "$S/$file"
+    cp -p "$W/orig" "$S/$file"
+    touch "$S/$file" # rebuilt next time, with the original text
 done < <(mutations)
 nice cmake --build "$B" -j2 >/dev/null 2>&1
 log "mutation score: $caught of $total caught, $survived survived"
