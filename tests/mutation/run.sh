@@ -51,6 +51,9 @@ mkdir -p "$W"
 # changed since is rebuilt
 mkdir -p "$S"
 (cd "$root" && git ls-files -z | xargs -0 tar -cf - 2>/dev/null) | tar -xf - -C "$S" || { echo "copy failed"; exit 1; }
+# files the tree no longer tracks (moved, removed) must not stay in the copy
+(cd "$root" && git ls-files) | sort >"$W/tracked"
+(cd "$S" && find . -type f | sed 's|^\./||' | sort) | comm -23 - "$W/tracked" | (cd "$S" && xargs -r rm -f)
 cmake -S "$S" -B "$B" -DCMAKE_BUILD_TYPE=RelWithDebInfo -DSLUICE_WERROR=OFF >"$W/cmake.log" 2>&1 &&
     nice cmake --build "$B" -j2 >"$W/build.log" 2>&1 || { echo "baseline build failed: $W/build.log"; exit 1; }
 
