@@ -26,16 +26,17 @@ G=$W/good.h5
 echo "old" >"$W/old.out"
 
 total=0
-# sweep NAME OUT -- COMMAND...: inject at N = 1, 2, ... until exit 0 without the fault
+# sweep NAME OUT RC -- COMMAND...: inject at N = 1, 2, ... until the command
+# exits RC (its fault-free status) without reaching the fault
 sweep() {
-    local name=$1 out=$2 n rc faults=0 bad=0
-    shift 3
+    local name=$1 out=$2 done_rc=$3 n rc faults=0 bad=0
+    shift 4
     for n in $(seq 1 2000); do
         cp "$W/old.out" "$out"
         [ -d "$W/ck" ] && cp -r "$W/ck" "$W/ck.before"
         SLUICE_FAULT_ALLOC=$n "$@" >"$W/f.out" 2>"$W/f.err" </dev/null
         rc=$?
-        if [ $rc -eq 0 ] && ! grep -q "injected failure" "$W/f.err"; then
+        if [ $rc -eq "$done_rc" ] && ! grep -q "injected failure" "$W/f.err"; then
             break
         fi
         faults=$((faults + 1))
@@ -63,21 +64,22 @@ sweep() {
         fi
     done
     total=$((total + faults))
-    if [ $bad -eq 0 ] && [ $faults -gt 0 ] && [ $rc -eq 0 ]; then
+    if [ $bad -eq 0 ] && [ $faults -gt 0 ] && [ $rc -eq "$done_rc" ]; then
         note_ok "$name: $faults allocations failed one at a time, each exit 71 with the message; $(basename "$out") kept"
     else
         note_fail "$name" "$bad of $faults injected failures misbehaved (last exit $rc)"
     fi
 }
 
-sweep "import" "$W/m_imp.h5" -- "$SLUICE" import -q "$W/ok.csv" --discount 0.9 -o "$W/m_imp.h5"
-sweep "build" "$W/m_build.h5" -- "$SLUICE" build -q "$SRC/examples/reservoir.c" --param storage_levels=20 \
+sweep "import" "$W/m_imp.h5" 0 -- "$SLUICE" import -q "$W/ok.csv" --discount 0.9 -o "$W/m_imp.h5"
+sweep "build" "$W/m_build.h5" 0 -- "$SLUICE" build -q "$SRC/examples/reservoir.c" --param storage_levels=20 \
     --param inflow_classes=3 -o "$W/m_build.h5"
-sweep "solve (gs, checkpoints, resume)" "$W/s1.h5" -- "$SLUICE" solve -q "$G" -o "$W/s1.h5" --checkpoint "$W/ck" \
-    --resume --checkpoint-every 0.000001
+# 3 iterations, a checkpoint at each: ends with 75 (stopped, valid checkpoint)
+sweep "solve (gs, checkpoints, resume)" "$W/s1.h5" 75 -- "$SLUICE" solve -q "$G" -o "$W/s1.h5" --checkpoint "$W/ck" \
+    --resume --checkpoint-every 0.000001 --max-iterations 3
 rm -rf "$W/ck"
-sweep "solve (pi)" "$W/s2.h5" -- "$SLUICE" solve -q "$G" -o "$W/s2.h5" --method pi
-sweep "verify" "$W/none.out" -- "$SLUICE" verify -q "$G" "$W/good_sol.h5"
-sweep "export" "$W/p.csv" -- "$SLUICE" export "$W/good_sol.h5" --model "$G" -o "$W/p.csv"
+sweep "solve (pi)" "$W/s2.h5" 0 -- "$SLUICE" solve -q "$G" -o "$W/s2.h5" --method pi
+sweep "verify" "$W/none.out" 0 -- "$SLUICE" verify -q "$G" "$W/good_sol.h5"
+sweep "export" "$W/p.csv" 0 -- "$SLUICE" export "$W/good_sol.h5" --model "$G" -o "$W/p.csv"
 echo "# $total allocation failures injected"
 sl_finish
