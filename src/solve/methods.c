@@ -192,8 +192,12 @@ static int poll(run *r)
             by_walltime = 1;
         }
     }
-    int agreed = 0;
+    int agreed = 0, why = by_walltime ? 2 : 0, why_any = 0;
     MPI_Allreduce(&want, &agreed, 1, MPI_INT, MPI_MAX, r->ctx->comm);
+    /* the walltime may be reached first on another rank (each measures from
+     * its own start): rank 0 logs the stop all the same */
+    MPI_Allreduce(&why, &why_any, 1, MPI_INT, MPI_BOR, r->ctx->comm);
+    if ((why_any & 2) && !by_signal) by_walltime = 1;
     /* the solver's own account of when it acted (rank 0's clock): what the
      * signal and walltime tests check, instead of a busy machine's wall clock */
     char prev[32] = "none (first boundary)";
