@@ -66,6 +66,12 @@ SLUICE_API void sl_ctx_set_log(sl_ctx *ctx, FILE *log);
  * 2 = checkpoint and stop. Solvers poll it at sweep boundaries and agree on
  * it across ranks. Local. */
 SLUICE_API void sl_ctx_set_signal_flag(sl_ctx *ctx, volatile sig_atomic_t *flag);
+/* Optional: where the handler that sets the flag records each signal before
+ * setting it: info[0] the signal number, info[1] and info[2] the
+ * CLOCK_MONOTONIC seconds and microseconds of its arrival. Solvers then log
+ * when the signal arrived and at which sweep boundary they acted on it, on
+ * their own clock, so tests can check the promise without a wall clock. Local. */
+SLUICE_API void sl_ctx_set_signal_info(sl_ctx *ctx, volatile sig_atomic_t *info);
 
 /* ---- names ------------------------------------------------------------------ */
 

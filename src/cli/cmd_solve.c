@@ -30,11 +30,20 @@ typedef struct solve_args {
     double aperiodicity;        /* average */
 } solve_args;
 
-/* The CLI's one piece of process state: what the last signal asked for. */
+/* The CLI's one piece of process state: what the last signal asked for, and
+ * which signal it was and when it arrived (CLOCK_MONOTONIC s, us), written
+ * before the flag so the solver can log both on its own clock. */
 static volatile sig_atomic_t stop_flag;
+static volatile sig_atomic_t stop_info[3];
 
 static void on_signal(int sig)
 {
+    struct timespec ts;
+    if (clock_gettime(CLOCK_MONOTONIC, &ts) == 0) { /* async-signal-safe (POSIX) */
+        stop_info[1] = (sig_atomic_t)ts.tv_sec;
+        stop_info[2] = (sig_atomic_t)(ts.tv_nsec / 1000);
+        stop_info[0] = sig;
+    }
     if (sig == SIGUSR1) {
         if (stop_flag < 1) stop_flag = 1;
     } else {
@@ -54,6 +63,7 @@ static void install_signals(sl_ctx *ctx)
     sigaction(SIGTERM, &sa, NULL);
     sigaction(SIGINT, &sa, NULL);
     sl_ctx_set_signal_flag(ctx, &stop_flag);
+    sl_ctx_set_signal_info(ctx, stop_info);
 }
 
 

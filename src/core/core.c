@@ -44,6 +44,10 @@ sl_status sl_ctx_new(MPI_Comm comm, int verbosity, sl_ctx **out)
     MPI_Comm_rank(ctx->comm, &ctx->rank);
     MPI_Comm_size(ctx->comm, &ctx->size);
     ctx->verbosity = verbosity;
+    /* fault injection for the tests (tests/cli/fault_alloc.sh): the N-th
+     * checked allocation of this process fails */
+    const char *fa = getenv("SLUICE_FAULT_ALLOC");
+    ctx->fault_alloc_at = fa != NULL ? atoll(fa) : 0;
     ctx->log = NULL;            /* the library prints nothing unless asked */
     ctx->log_tty = 0;
     *out = ctx;
@@ -72,6 +76,11 @@ void sl_ctx_set_log(sl_ctx *ctx, FILE *log)
 void sl_ctx_set_signal_flag(sl_ctx *ctx, volatile sig_atomic_t *flag)
 {
     ctx->signal_flag = flag;
+}
+
+void sl_ctx_set_signal_info(sl_ctx *ctx, volatile sig_atomic_t *info)
+{
+    ctx->signal_info = info;
 }
 
 sl_status sl_error_at(sl_ctx *ctx, sl_status st, const char *file, int line,
@@ -123,6 +132,11 @@ void *sl_malloc(sl_ctx *ctx, size_t count, size_t size, const char *what)
         return NULL;
     }
     size_t bytes = count * size;
+    if (ctx->fault_alloc_at > 0 && ++ctx->alloc_count == ctx->fault_alloc_at) {
+        SL_ERR(ctx, SL_ENOMEM, "out of memory allocating %s (%zu bytes; injected failure of allocation %lld)", what,
+               bytes, (long long)ctx->alloc_count);
+        return NULL;
+    }
     void *p = malloc(bytes ? bytes : 1);
     if (p == NULL)
         SL_ERR(ctx, SL_ENOMEM, "out of memory allocating %s (%zu bytes)", what, bytes);
@@ -133,6 +147,11 @@ void *sl_calloc(sl_ctx *ctx, size_t count, size_t size, const char *what)
 {
     if (size != 0 && count > SIZE_MAX / size) {
         SL_ERR(ctx, SL_ENOMEM, "size overflow allocating %s", what);
+        return NULL;
+    }
+    if (ctx->fault_alloc_at > 0 && ++ctx->alloc_count == ctx->fault_alloc_at) {
+        SL_ERR(ctx, SL_ENOMEM, "out of memory allocating %s (%zu bytes; injected failure of allocation %lld)", what,
+               count * size, (long long)ctx->alloc_count);
         return NULL;
     }
     void *p = calloc(count ? count : 1, size ? size : 1);

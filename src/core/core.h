@@ -18,6 +18,9 @@ struct sl_ctx {
     FILE *log;                          /* progress (rank 0 only) */
     int log_tty;                        /* log is a terminal */
     volatile sig_atomic_t *signal_flag; /* may be NULL */
+    volatile sig_atomic_t *signal_info; /* [3] signal, monotonic s, us; may be NULL */
+    int64_t fault_alloc_at;             /* test hook: this allocation fails (0: none) */
+    int64_t alloc_count;                /* checked allocations so far (counted when the hook is set) */
     sl_status err_status;
     char err[SL_MSG_MAX];               /* first error on this rank */
 };

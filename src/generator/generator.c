@@ -49,7 +49,9 @@ static void crash_handler(int sig)
         const char *a = "sluice: generator ";
         for (const char *p = a; *p; p++) msg[k++] = *p;
         for (const char *p = crash_name; *p && k < 300; p++) msg[k++] = *p;
-        const char *b = " crashed (signal ";
+        /* TERM/INT/HUP: the user stopped a generator that may loop forever */
+        const char *b = (sig == SIGTERM || sig == SIGINT || sig == SIGHUP) ? " stopped (signal "
+                                                                            : " crashed (signal ";
         for (const char *p = b; *p; p++) msg[k++] = *p;
         k += fmt_i64(msg + k, sig);
         const char *c = ") while generating state ";
@@ -58,7 +60,8 @@ static void crash_handler(int sig)
         const char *d = ", action ";
         for (const char *p = d; *p; p++) msg[k++] = *p;
         k += fmt_i64(msg + k, crash_action);
-        msg[k++] = '\n';
+        const char *e = "; no model written\n";
+        for (const char *p = e; *p; p++) msg[k++] = *p;
         ssize_t w = write(STDERR_FILENO, msg, k);
         (void)w;
         _exit(SL_EDATA);
@@ -242,7 +245,16 @@ typedef struct sink_state {
     sl_ctx *ctx;
     sl_block *block;
     sl_status st;
+    int64_t n_pair;    /* successors emitted for the current pair */
+    int64_t state;     /* the current pair, for messages */
+    int32_t action;
+    const char *where;
 } sink_state;
+
+/* A pair has at most n_states distinct successors; a generator that emits
+ * more than this many for one pair is taken to be running away (a loop that
+ * never ends, a wrong bound) and is stopped before it exhausts memory. */
+#define SL_MAX_SUCCESSORS_PER_PAIR ((int64_t)1 << 24)
 
 static int sink_emit(sluice_sink *sink, int64_t next, double p, double r)
 {
@@ -252,8 +264,14 @@ static int sink_emit(sluice_sink *sink, int64_t next, double p, double r)
         s->st = SL_ERR(s->ctx, SL_EDATA,
                        "%s: state %lld, action %d: sluice_emit() without quantities, but the generator declares "
                        "%d outcome quantities (use sluice_emit_outcome)",
-                       s->block->where, (long long)s->block->s_end,
-                       (int)s->block->action[s->block->p_end - s->block->p_begin], s->block->nq);
+                       s->where, (long long)s->state, (int)s->action, s->block->nq);
+        return 1;
+    }
+    if (++s->n_pair > SL_MAX_SUCCESSORS_PER_PAIR) {
+        s->st = SL_ERR(s->ctx, SL_EDATA,
+                       "%s: state %lld, action %d: the generator emitted more than %lld successors for one pair; "
+                       "stopped (a runaway loop?)",
+                       s->where, (long long)s->state, (int)s->action, (long long)SL_MAX_SUCCESSORS_PER_PAIR);
         return 1;
     }
     s->st = sl_block_add(s->ctx, s->block, next, p, r);
@@ -264,6 +282,13 @@ static int sink_emit_outcome(sluice_sink *sink, int64_t next, double p, double r
 {
     sink_state *s = sink->opaque;
     if (s->st != SL_OK) return 1;
+    if (++s->n_pair > SL_MAX_SUCCESSORS_PER_PAIR) {
+        s->st = SL_ERR(s->ctx, SL_EDATA,
+                       "%s: state %lld, action %d: the generator emitted more than %lld successors for one pair; "
+                       "stopped (a runaway loop?)",
+                       s->where, (long long)s->state, (int)s->action, (long long)SL_MAX_SUCCESSORS_PER_PAIR);
+        return 1;
+    }
     s->st = s->block->nq > 0 ? sl_block_add_outcome(s->ctx, s->block, next, p, r, q)
                              : sl_block_add(s->ctx, s->block, next, p, r);
     return s->st != SL_OK;
@@ -465,8 +490,8 @@ sl_status sl_model_from_generator_opts(sl_ctx *ctx, const sl_build_opts *o, sl_m
     sl_meta meta;
     sl_block blk;
     sluice_shape shape;
-    struct sigaction sa, old[5];
-    int sigs[5] = {SIGSEGV, SIGBUS, SIGFPE, SIGILL, SIGABRT}, armed = 0;
+    struct sigaction sa, old[8];
+    int sigs[8] = {SIGSEGV, SIGBUS, SIGFPE, SIGILL, SIGABRT, SIGTERM, SIGINT, SIGHUP}, armed = 0;
     memset(&meta, 0, sizeof(meta));
     memset(&blk, 0, sizeof(blk));
     memset(&shape, 0, sizeof(shape));
@@ -556,10 +581,10 @@ sl_status sl_model_from_generator_opts(sl_ctx *ctx, const sl_build_opts *o, sl_m
     memset(&sa, 0, sizeof(sa));
     sa.sa_handler = crash_handler;
     sigemptyset(&sa.sa_mask);
-    for (int i = 0; i < 5; i++) sigaction(sigs[i], &sa, &old[i]);
+    for (int i = 0; i < 8; i++) sigaction(sigs[i], &sa, &old[i]);
     armed = 1;
     crash_armed = 1;
-    sink_state sk = {{sink_emit, NULL, sink_emit_outcome}, ctx, &blk, SL_OK};
+    sink_state sk = {{sink_emit, NULL, sink_emit_outcome}, ctx, &blk, SL_OK, 0, 0, 0, o->generator};
     sk.sink.opaque = &sk;
     double t0 = sl_now(), last = t0;
     for (int64_t s = s0; s < s1 && st == SL_OK; s++) {
@@ -570,6 +595,9 @@ sl_status sl_model_from_generator_opts(sl_ctx *ctx, const sl_build_opts *o, sl_m
             if (g->available && !g->available(inst, s, a)) continue;
             st = sl_block_begin_pair(ctx, &blk, a);
             if (st != SL_OK) break;
+            sk.n_pair = 0;
+            sk.state = s;
+            sk.action = a;
             int grc = g->transitions(inst, s, a, &sk.sink);
             if (sk.st != SL_OK) st = sk.st;
             else if (grc != 0)
@@ -626,7 +654,7 @@ sl_status sl_model_from_generator_opts(sl_ctx *ctx, const sl_build_opts *o, sl_m
     SL_TRY(sl_model_adopt(ctx, &meta, &blk, out));
 cleanup:
     if (armed)
-        for (int i = 0; i < 5; i++) sigaction(sigs[i], &old[i], NULL);
+        for (int i = 0; i < 8; i++) sigaction(sigs[i], &old[i], NULL);
     crash_armed = 0;
     if (inst && g && g->finish) g->finish(inst);
     if (dl) dlclose(dl);

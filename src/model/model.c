@@ -425,7 +425,7 @@ sl_status sl_block_validate(sl_ctx *ctx, const sl_block *b, const sl_meta *m,
         return SL_ERR(ctx, SL_EDATA,
                       "%s: /state/first_pair of states %lld..%lld does not match the pair range",
                       where, (long long)b->s_begin, (long long)b->s_end);
-    int64_t np = sl_block_pairs(b);
+    int64_t np = sl_block_pairs(b), nt = sl_block_trans(b);
     if (b->first_trans[0] != b->t_begin || b->first_trans[np] != b->t_end)
         return SL_ERR(ctx, SL_EDATA,
                       "%s: /pair/first_transition does not match the transition range of "
@@ -439,6 +439,9 @@ sl_status sl_block_validate(sl_ctx *ctx, const sl_block *b, const sl_meta *m,
                           (long long)s);
         if (p1 == p0)
             return SL_ERR(ctx, SL_EDATA, "%s: state %lld has no action", where, (long long)s);
+        if (p0 < 0 || p1 > np) /* inside the pairs of this block (found by fuzz_validate) */
+            return SL_ERR(ctx, SL_EDATA, "%s: state %lld: /state/first_pair points outside the pairs", where,
+                          (long long)s);
         for (int64_t k = p0; k < p1; k++) {
             int32_t a = b->action[k];
             for (int64_t k2 = p0; k2 < k; k2++)
@@ -452,6 +455,10 @@ sl_status sl_block_validate(sl_ctx *ctx, const sl_block *b, const sl_meta *m,
             if (t1 <= t0)
                 return SL_ERR(ctx, SL_EDATA,
                               "%s: state %lld, action %d: /pair/first_transition not increasing",
+                              where, (long long)s, (int)a);
+            if (t0 < 0 || t1 > nt) /* inside the transitions of this block (found by fuzz_validate) */
+                return SL_ERR(ctx, SL_EDATA,
+                              "%s: state %lld, action %d: /pair/first_transition points outside the transitions",
                               where, (long long)s, (int)a);
             double sum = 0.0;
             for (int64_t t = t0; t < t1; t++) {

@@ -2,6 +2,7 @@
  * modified policy iteration and policy iteration, with certified stopping,
  * monitor events and checkpoints. Printing is the caller's business. */
 #include <math.h>
+#include <signal.h>
 #include <string.h>
 
 #include "solve/solve.h"
@@ -17,7 +18,8 @@ typedef struct run {
     sl_history hist;
     sl_solver_state S;
     double t0;              /* start of this process's solve (reset at each checkpoint) */
-    double wall0;           /* start of this process's solve, for --walltime */
+    double wall0;           /* start of this process's solve, for --walltime: the solver clock's 0 */
+    double prev_poll;       /* solver clock of the previous sweep boundary (< 0: none yet) */
     double tol;
     double last_ckpt, last_progress;
     sl_check last;
@@ -26,6 +28,7 @@ typedef struct run {
     char evaluation[16];
     double lu_estimate;
     int64_t n_ckpt;
+    int lock_fd;            /* checkpoint directory lock (rank 0), -1 if none */
     sl_solution *out;
 } run;
 
@@ -151,8 +154,6 @@ cleanup:
 
 enum { POLL_NONE = 0, POLL_CKPT = 1, POLL_STOP = 2 };
 
-/* Agree on what to do at this sweep boundary. Deterministic for the numbers:
- * only whether to write/stop depends on time or signals. Collective. */
 /* sl_now() time by which a --walltime run must stop (0: none): the margin
  * is the one poll() uses */
 static double stop_deadline(const run *r)
@@ -164,25 +165,77 @@ static double stop_deadline(const run *r)
     return origin + r->o->walltime - margin;
 }
 
+static const char *signal_name(int sig)
+{
+    switch (sig) {
+    case SIGUSR1: return "USR1";
+    case SIGUSR2: return "USR2";
+    case SIGTERM: return "TERM";
+    case SIGINT: return "INT";
+    default: return "other";
+    }
+}
+
+/* Agree on what to do at this sweep boundary. Deterministic for the numbers:
+ * only whether to write/stop depends on time or signals. Collective. */
 static int poll(run *r)
 {
-    int want = 0;
+    int want = 0, flag = 0, by_signal = 0, by_walltime = 0;
+    /* the boundary's time is taken before the flag is read and again after:
+     * a signal noticed here arrived after `before` of the previous boundary
+     * (which saw no flag) and before `now` of this one */
+    /* the solver's clock: seconds since the walltime origin (the process
+     * start when the CLI sets it), else since the start of this solve */
+    double c0 = r->o->have_wall_origin ? r->o->wall_origin : r->wall0;
+    double before = sl_now() - c0;
+    if (r->ctx->signal_flag) flag = *r->ctx->signal_flag;
     double now = sl_now();
-    if (r->ctx->signal_flag && *r->ctx->signal_flag) {
-        want = *r->ctx->signal_flag >= 2 ? POLL_STOP : POLL_CKPT;
+    if (flag) {
+        want = flag >= 2 ? POLL_STOP : POLL_CKPT;
         if (want == POLL_CKPT) *r->ctx->signal_flag = 0;
+        by_signal = 1;
     }
     double every = r->o->checkpoint_every > 0 ? r->o->checkpoint_every : 600.0;
     if (r->o->checkpoint_dir && now - r->last_ckpt >= every && want < POLL_CKPT) want = POLL_CKPT;
+    double margin = 0, due = 0;
     if (r->o->walltime > 0) {
         /* stop with a margin for the final write: 5% or 10 s, whichever is more (common practice, no source) */
-        double margin = fmax(10.0, 0.05 * r->o->walltime);
+        margin = fmax(10.0, 0.05 * r->o->walltime);
         if (r->o->walltime < 60) margin = fmin(margin, 0.2 * r->o->walltime);
-        double origin = r->o->have_wall_origin ? r->o->wall_origin : r->wall0;
-        if (now - origin >= r->o->walltime - margin) want = POLL_STOP;
+        due = r->o->walltime - margin;
+        if (now - c0 >= due) {
+            want = POLL_STOP;
+            by_walltime = 1;
+        }
     }
-    int agreed = 0;
+    int agreed = 0, why = by_walltime ? 2 : 0, why_any = 0;
     MPI_Allreduce(&want, &agreed, 1, MPI_INT, MPI_MAX, r->ctx->comm);
+    /* the walltime may be reached first on another rank (each measures from
+     * its own start): rank 0 logs the stop all the same */
+    MPI_Allreduce(&why, &why_any, 1, MPI_INT, MPI_BOR, r->ctx->comm);
+    if ((why_any & 2) && !by_signal) by_walltime = 1;
+    /* the solver's own account of when it acted (rank 0's clock): what the
+     * signal and walltime tests check, instead of a busy machine's wall clock */
+    char prev[32] = "none (first boundary)";
+    if (r->prev_poll >= 0) snprintf(prev, sizeof(prev), "%.3f s", r->prev_poll);
+    if (by_signal) {
+        const volatile sig_atomic_t *in = r->ctx->signal_info;
+        if (in != NULL && in[0] != 0) {
+            double at = (double)in[1] + 1e-6 * (double)in[2] - c0;
+            sl_log(r->ctx, "solve: signal %d (%s) arrived at %.3f s; acted on at the sweep boundary at %.3f s "
+                           "(iteration %lld; previous boundary %s)",
+                   (int)in[0], signal_name((int)in[0]), at, now - c0, (long long)r->S.iteration, prev);
+        } else {
+            sl_log(r->ctx, "solve: stop/checkpoint flag seen at the sweep boundary at %.3f s (iteration %lld; "
+                           "previous boundary %s)",
+                   now - c0, (long long)r->S.iteration, prev);
+        }
+    } else if (by_walltime) {
+        sl_log(r->ctx, "solve: --walltime %.3f s: stop due at %.3f s (margin %.3f s); acted on at the sweep boundary "
+                       "at %.3f s (iteration %lld; previous boundary %s)",
+               r->o->walltime, due, margin, now - c0, (long long)r->S.iteration, prev);
+    }
+    r->prev_poll = before;
     return agreed;
 }
 
@@ -328,6 +381,8 @@ sl_status sl_solver_solve(sl_solver *o, const sl_model *m, sl_solution **xout)
     r->o = o;
     r->t0 = sl_now();
     r->wall0 = r->t0;
+    r->prev_poll = -1;
+    r->lock_fd = -1;
     r->last_ckpt = r->t0;
     r->last_progress = r->t0 - 1e9;
     r->tol = o->tolerance > 0 ? o->tolerance : 1e-6;
@@ -336,6 +391,7 @@ sl_status sl_solver_solve(sl_solver *o, const sl_model *m, sl_solution **xout)
     if (xout == NULL) return SL_ERR(ctx, SL_EUSAGE, "sl_solver_solve: no output handle");
     *xout = NULL;
 
+    if (o->checkpoint_dir) SL_TRY(sl_ckpt_lock(ctx, o->checkpoint_dir, &r->lock_fd));
     SL_TRY(sl_problem_from_model(ctx, m, o->order, 0, &r->P));
     int64_t n = r->P.n_local, nx = n + r->P.halo.n_halo;
     if (SL_ZALLOC(ctx, r->x, nx, "values") == NULL || SL_ZALLOC(ctx, r->y, nx, "values") == NULL ||
@@ -436,6 +492,7 @@ cleanup:
     free(r->actions);
     sl_history_free(&r->hist);
     sl_problem_free(&r->P);
+    sl_ckpt_unlock(&r->lock_fd);
     return st;
 }
 

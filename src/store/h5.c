@@ -4,6 +4,7 @@
 #include <errno.h>
 #include <string.h>
 #include <sys/stat.h>
+#include <sys/statvfs.h>
 #include <unistd.h>
 
 sl_status sl_h5_open(sl_ctx *ctx, const char *path, int writable, hid_t *file)
@@ -324,6 +325,57 @@ int sl_h5_is_u32(hid_t file, const char *name)
     if (t >= 0) H5Tclose(t);
     H5Dclose(d);
     return r;
+}
+
+sl_status sl_h5_space_check(sl_ctx *ctx, const char *path, double bytes)
+{
+    sl_status st = SL_OK;
+    if (ctx->rank == 0) {
+        char dir[4200];
+        snprintf(dir, sizeof(dir), "%s", path);
+        char *slash = strrchr(dir, '/');
+        if (slash == NULL) snprintf(dir, sizeof(dir), ".");
+        else if (slash == dir) dir[1] = '\0';
+        else *slash = '\0';
+        struct statvfs v;
+        /* room for the temporary next to the file, plus 1 MiB for HDF5's own metadata */
+        double need = bytes + 1048576.0;
+        if (statvfs(dir, &v) == 0 && (double)v.f_bavail * (double)v.f_frsize < need)
+            st = SL_ERR(ctx, SL_EIO,
+                        "%s: not enough free space in %s: writing needs up to %.3f MB (uncompressed bound), "
+                        "%.3f MB free; nothing written",
+                        path, dir, need / 1e6, (double)v.f_bavail * (double)v.f_frsize / 1e6);
+    }
+    return sl_agree(ctx, st);
+}
+
+sl_status sl_h5_check_1d(sl_ctx *ctx, hid_t file, const char *name, H5T_class_t cls, int64_t expected,
+                         const char *path)
+{
+    sl_status st = SL_OK;
+    if (!sl_h5_exists(file, name)) return SL_ERR(ctx, SL_EDATA, "%s: dataset %s is missing", path, name);
+    hid_t d = H5Dopen2(file, name, H5P_DEFAULT);
+    hid_t t = d >= 0 ? H5Dget_type(d) : H5I_INVALID_HID, s = d >= 0 ? H5Dget_space(d) : H5I_INVALID_HID;
+    if (d < 0 || t < 0 || s < 0) {
+        st = SL_ERR(ctx, SL_EDATA, "%s: cannot open dataset %s", path, name);
+    } else if (H5Tget_class(t) != cls) {
+        st = SL_ERR(ctx, SL_EDATA, "%s: dataset %s holds %s numbers, expected %s", path, name,
+                    H5Tget_class(t) == H5T_FLOAT ? "floating-point" : H5Tget_class(t) == H5T_INTEGER ? "integer" : "non-numeric",
+                    cls == H5T_FLOAT ? "floating-point" : "integers");
+    } else if (H5Sget_simple_extent_ndims(s) != 1) {
+        st = SL_ERR(ctx, SL_EDATA, "%s: dataset %s has %d dimensions, expected 1", path, name,
+                    H5Sget_simple_extent_ndims(s));
+    } else {
+        hsize_t dim = 0;
+        H5Sget_simple_extent_dims(s, &dim, NULL);
+        if ((int64_t)dim != expected)
+            st = SL_ERR(ctx, SL_EDATA, "%s: dataset %s has %llu entries, expected %lld (from the size attributes)", path,
+                        name, (unsigned long long)dim, (long long)expected);
+    }
+    if (s >= 0) H5Sclose(s);
+    if (t >= 0) H5Tclose(t);
+    if (d >= 0) H5Dclose(d);
+    return st;
 }
 
 sl_status sl_h5_read_1d(sl_ctx *ctx, hid_t file, const char *name, hid_t mtype, int64_t expected,

@@ -37,6 +37,16 @@ sl_status sl_h5_write_1d(sl_ctx *ctx, hid_t file, const char *name, hid_t ftype,
                          int compress, const char *path);
 /* Collective 1-D read of [offset, offset+count) into buf (memory type mtype).
  * *total receives the dataset length if not NULL; expected >= 0 checks it. */
+/* Before writing PATH: fail (74, nothing written) if its directory has less
+ * free space than BYTES plus 1 MiB. HDF5 1.10 cannot recover from a write
+ * that fills the disk (it crashes at exit), so a file that cannot fit is
+ * refused up front; a disk filled by someone else meanwhile is not caught.
+ * Collective (rank 0 looks). */
+sl_status sl_h5_space_check(sl_ctx *ctx, const char *path, double bytes);
+/* A 1-D dataset NAME of type class CLS with EXPECTED entries, or an error
+ * naming the dataset (missing, wrong class, not 1-D, wrong length). */
+sl_status sl_h5_check_1d(sl_ctx *ctx, hid_t file, const char *name, H5T_class_t cls, int64_t expected,
+                         const char *path);
 sl_status sl_h5_read_1d(sl_ctx *ctx, hid_t file, const char *name, hid_t mtype, int64_t expected,
                         int64_t offset, int64_t count, void *buf, const char *path);
 /* Length of a 1-D dataset (-1 if missing). Local. */

@@ -160,6 +160,9 @@ sl_status sl_store_model_write(sl_ctx *ctx, const char *path, const sl_meta *m,
     int64_t ns = sl_block_states(b), np = sl_block_pairs(b), nt = sl_block_trans(b);
     int use32 = m->n_states <= (int64_t)UINT32_MAX;
 
+    /* uncompressed bound: pointers, actions, rewards, targets, probabilities */
+    SL_TRY(sl_h5_space_check(ctx, path, 8.0 * (double)(m->n_states + 1) + 20.0 * (double)m->n_pairs + 8.0 +
+                                            (use32 ? 12.0 : 16.0) * (double)m->n_trans));
     SL_TRY(sl_outfile_begin(ctx, &of, path));
     if (use32 && SL_ALLOC(ctx, t32, nt, "target buffer") == NULL) st = SL_ENOMEM;
     st = sl_agree(ctx, st);
@@ -375,12 +378,23 @@ static sl_status read_meta_open(sl_ctx *ctx, hid_t f, const char *path, sl_meta 
     if (m->n_states < 1 || m->n_pairs < m->n_states || m->n_trans < m->n_pairs)
         SL_FAIL(SL_EDATA, "%s: inconsistent sizes (n_states %lld, n_pairs %lld, n_transitions %lld)",
                 path, (long long)m->n_states, (long long)m->n_pairs, (long long)m->n_trans);
-    if (sl_h5_length(f, "/state/first_pair") != m->n_states + 1 ||
-        sl_h5_length(f, "/pair/action") != m->n_pairs || sl_h5_length(f, "/pair/reward") != m->n_pairs ||
-        sl_h5_length(f, "/pair/first_transition") != m->n_pairs + 1 ||
-        sl_h5_length(f, "/transition/target") != m->n_trans ||
-        sl_h5_length(f, "/transition/probability") != m->n_trans)
-        SL_FAIL(SL_EDATA, "%s: dataset sizes do not match n_states/n_pairs/n_transitions", path);
+    {
+        /* each dataset by name: missing, not 1-D, wrong length or wrong class */
+        static const struct {
+            const char *name;
+            int per; /* 0 states+1, 1 pairs, 2 pairs+1, 3 transitions */
+            H5T_class_t cls;
+        } want[] = {{"/state/first_pair", 0, H5T_INTEGER},      {"/pair/action", 1, H5T_INTEGER},
+                    {"/pair/reward", 1, H5T_FLOAT},             {"/pair/first_transition", 2, H5T_INTEGER},
+                    {"/transition/target", 3, H5T_INTEGER},     {"/transition/probability", 3, H5T_FLOAT}};
+        for (size_t i = 0; i < sizeof(want) / sizeof(want[0]); i++) {
+            int64_t n = want[i].per == 0   ? m->n_states + 1
+                        : want[i].per == 1 ? m->n_pairs
+                        : want[i].per == 2 ? m->n_pairs + 1
+                                           : m->n_trans;
+            SL_TRY(sl_h5_check_1d(ctx, f, want[i].name, want[i].cls, n, path));
+        }
+    }
     if (!(m->discount >= 0.0 && m->discount <= 1.0))
         SL_FAIL(SL_EDATA, "%s: discount %g is not in [0, 1]", path, m->discount);
     SL_TRY(read_labels(ctx, f, m, path));

@@ -111,6 +111,7 @@ sl_status sl_store_solution_write_ex(sl_ctx *ctx, const char *path, sl_file_kind
     sl_status st = SL_OK;
     sl_outfile of;
     hid_t f = H5I_INVALID_HID;
+    SL_TRY(sl_h5_space_check(ctx, path, 12.0 * (double)n_states + 64.0 * (double)(hist ? hist->n : 0)));
     SL_TRY(sl_outfile_begin(ctx, &of, path));
     SL_TRY(sl_h5_create(ctx, of.tmp_path, &f));
     const char *p = path;
@@ -171,6 +172,11 @@ sl_status sl_store_solution_read(sl_ctx *ctx, const char *path, sl_file_kind kin
     if (st == SL_OK && strcmp(fmt, kind_str(kind)) != 0 &&
         !(kind == SL_FILE_SOLUTION && strcmp(fmt, "values") == 0 && actions == NULL))
         st = SL_ERR(ctx, SL_EDATA, "%s: is a %s file, not a %s file", path, fmt, kind_str(kind));
+    int64_t ver = 0;
+    if (st == SL_OK) st = sl_h5_attr_read_i64(ctx, f, "format_version", &ver, 1, path);
+    if (st == SL_OK && (ver < 1 || ver > SLUICE_FORMAT_VERSION))
+        st = SL_ERR(ctx, SL_EDATA, "%s: format_version %lld is not supported (this sluice reads version %d%s)", path,
+                    (long long)ver, SLUICE_FORMAT_VERSION, ver > SLUICE_FORMAT_VERSION ? "; written by a newer sluice" : "");
     if (st == SL_OK) st = sl_h5_attr_read_str(ctx, f, "model_fingerprint", in->model_fingerprint,
                                               sizeof(in->model_fingerprint), 1, path);
     if (st == SL_OK) st = sl_h5_attr_read_str(ctx, f, "method", in->method, sizeof(in->method), 0, path);

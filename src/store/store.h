@@ -131,6 +131,11 @@ sl_status sl_ckpt_load(sl_ctx *ctx, const char *dir, const char *fingerprint, in
                        sl_history *hist, int *found);
 
 /* For `sluice info`: read a checkpoint's state and history. Collective. */
+/* Lock the checkpoint directory DIR for this run (rank 0 creates DIR and
+ * locks DIR/.lock; *fd is its descriptor there, -1 elsewhere). 73 if another
+ * run holds it. Collective. sl_ckpt_unlock releases it (accepts -1). */
+sl_status sl_ckpt_lock(sl_ctx *ctx, const char *dir, int *fd);
+void sl_ckpt_unlock(int *fd);
 sl_status sl_ckpt_info(sl_ctx *ctx, const char *path, char *fingerprint, int64_t *n_states,
                        sl_solver_state *state, sl_history *hist, int *complete);
 

@@ -2,16 +2,23 @@
 # checkpoint_signals.sh SLUICE_BINARY WORKDIR SOURCE_DIR
 #
 # Signals and --walltime on a long one-process solve (Jacobi on a 19,200-state
-# reservoir, several seconds):
-#   USR1 (twice)  a new checkpoint appears each time and the run goes on to exit 0
-#                 with a result bitwise equal to an uninterrupted run
-#   TERM, INT, USR2  a checkpoint and exit 75 within 5 s of the signal
-#   --walltime 3  exit 75 before 3 s plus 1 s of start-up slack, with a new
-#                 checkpoint; also with --checkpoint-every 0.5 (periodic
-#                 checkpoints must not postpone the walltime stop)
+# reservoir, a few seconds on a quiet machine):
+#   USR1 (twice)  a new checkpoint each time, holding the iteration at which the
+#                 solver acted on the signal; the run goes on to exit 0 with a
+#                 result bitwise equal to an uninterrupted run
+#   TERM, INT, USR2  a checkpoint of the iteration at which the signal was
+#                 acted on, and exit 75
+#   --walltime 3  exit 75 with a new checkpoint; also with --checkpoint-every
+#                 0.5 (periodic checkpoints must not postpone the walltime stop)
 #   --resume      from those checkpoints to exit 0, bitwise equal to the
 #                 uninterrupted run
-# Figures (latencies, run times) are printed on the ok lines.
+# No wall-clock deadline is asserted: on a busy machine any run can take any
+# time. What is asserted is what the solver promises and logs on its own clock
+# (see ck_acted_signal / ck_acted_walltime in lib_ckpt.sh): every signal and
+# the walltime due time (walltime minus the documented margin, measured from
+# the start of the solve) is acted on at the first sweep boundary after it, and
+# no sweep is computed after that. Waits have generous limits that only catch
+# a hang (120 s).
 
 . "$(dirname "$0")/lib_ckpt.sh"
 ck_init "$@"
@@ -24,8 +31,7 @@ t0=$EPOCHREALTIME
 "$SLUICE" "${SOLVE[@]}" -o ref.h5 >ref.log 2>&1
 rc=$?
 ref_s=$(ck_since "$t0")
-ck_rc "uninterrupted reference solve (${ref_s} s)" 0 $rc ref.log
-ck_lt 5 "$ref_s" || echo "# warning: the reference took only $ref_s s; signal cases may finish before their signal"
+ck_rc "uninterrupted reference solve (${ref_s} s, not asserted)" 0 $rc ref.log
 
 # start LOG DIR ARGS...: solve in the background (pid in $pid), waiting until
 # its main loop has started (the header line is logged just before it)
@@ -34,8 +40,8 @@ start() {
     shift 2
     "$SLUICE" "${SOLVE[@]}" --checkpoint "$dir" "$@" >"$log" 2>&1 &
     pid=$!
-    if ! ck_wait_grep "solve: m.h5, " "$log" 30 "$pid"; then
-        echo "# $log: no header line within 30 s"
+    if ! ck_wait_grep "solve: m.h5, " "$log" 120 "$pid"; then
+        echo "# $log: no header line within 120 s (hang?)"
         ck_mpi_startup_note "$log"
     fi
 }
@@ -43,16 +49,21 @@ start() {
 # ---- USR1: checkpoint and continue --------------------------------------------------
 start usr1.log c_usr1 -o usr1.h5
 sleep 0.5
-lat=()
 for n in 1 2; do
     f=c_usr1/ckpt-00000$n.h5
-    t0=$EPOCHREALTIME
     kill -USR1 "$pid"
-    if ck_wait_file "$f" 5; then
-        lat+=("$(ck_since "$t0")")
-        ck_ok "SIGUSR1 #$n: $f appeared ${lat[-1]} s after the signal"
+    if ck_wait_file "$f" 120 && ck_wait_grep "checkpoint written .*iteration" usr1.log 120 "$pid"; then
+        if ck_acted_signal usr1.log USR1 "$n"; then
+            ck_ok "SIGUSR1 #$n: $f appeared; $CK_ACTED_MSG"
+        else
+            ck_not_ok "SIGUSR1 #$n" "$CK_ACTED_MSG"
+        fi
+        ck_wait_grep "solve: checkpoint written .*iteration $CK_ACTED_ITER," usr1.log 120 "$pid" &&
+            [ "$(ck_tool attr "$f" iteration)" = "$CK_ACTED_ITER" ] &&
+            ck_ok "SIGUSR1 #$n: the checkpoint holds the iteration the signal was acted on ($CK_ACTED_ITER)" ||
+            ck_not_ok "SIGUSR1 #$n: checkpoint iteration $(ck_tool attr "$f" iteration 2>&1), acted on at $CK_ACTED_ITER"
     else
-        ck_not_ok "SIGUSR1 #$n: no $f within 5 s"
+        ck_not_ok "SIGUSR1 #$n: no $f within 120 s (hang?)"
     fi
     sleep 0.5
 done
@@ -77,16 +88,21 @@ for sig in TERM INT USR2; do
     sleep 1
     t0=$EPOCHREALTIME
     kill -"$sig" "$pid"
-    ck_wait "$pid" 30
+    ck_wait "$pid" 120
     rc=$?
     secs=$(ck_since "$t0")
-    ck_rc "SIG$sig: stopped" 75 $rc "$sig.log"
-    if ck_lt "$secs" 5; then
-        ck_ok "SIG$sig: exit $secs s after the signal (limit 5 s)"
+    ck_rc "SIG$sig: stopped ($secs s after the signal by the wall clock, not asserted)" 75 $rc "$sig.log"
+    if ck_acted_signal "$sig.log" "$sig" 1; then
+        ck_ok "SIG$sig: $CK_ACTED_MSG"
     else
-        ck_not_ok "SIG$sig: exit took $secs s (limit 5 s)"
+        ck_not_ok "SIG$sig" "$CK_ACTED_MSG"
     fi
     newest=$(ck_newest_ckpt "c_$sig")
+    if [ -n "$newest" ] && [ "$(ck_tool attr "$newest" iteration)" = "$CK_ACTED_ITER" ]; then
+        ck_ok "SIG$sig: nothing computed after acting on it (checkpoint iteration $CK_ACTED_ITER)"
+    else
+        ck_not_ok "SIG$sig: newest checkpoint ${newest:-none} is not of iteration $CK_ACTED_ITER"
+    fi
     if [ -n "$newest" ] && why=$(ck_info_complete "$newest") && ck_tool validate "c_$sig" >/dev/null; then
         ck_ok "SIG$sig: valid checkpoint $(basename "$newest") (iteration $(ck_tool attr "$newest" iteration))"
     else
@@ -98,38 +114,34 @@ for sig in TERM INT USR2; do
 done
 
 # ---- --walltime -----------------------------------------------------------------------
-# walltime_case TAG NAME DIR ARGS...: exit 75 within 3 s + 1 s slack, with a new checkpoint
-# ($bug, if set, is appended to a failure: a known defect outside this suite's files)
+# walltime_case TAG NAME DIR ARGS...: exit 75 with a new checkpoint of the
+# iteration at which the due time was acted on (first boundary after it)
 walltime_case() {
-    local tag=$1 name=$2 dir=$3 before after secs rc
+    local tag=$1 name=$2 dir=$3 before after secs rc why
     shift 3
     before=$(ck_newest_ckpt "$dir")
     t0=$EPOCHREALTIME
     "$SLUICE" "${SOLVE[@]}" --checkpoint "$dir" --resume --walltime 3 "$@" -o "wall_$tag.h5" >"wall_$tag.log" 2>&1 &
     pid=$!
-    ck_wait "$pid" 30
+    ck_wait "$pid" 120
     rc=$?
     secs=$(ck_since "$t0")
-    if [ $rc -eq 75 ]; then
-        ck_ok "--walltime 3 ($name): stopped (exit 75)"
+    ck_rc "--walltime 3 ($name): stopped ($secs s by the wall clock, not asserted)" 75 $rc "wall_$tag.log"
+    if ck_acted_walltime "wall_$tag.log" 3; then
+        ck_ok "--walltime 3 ($name): $CK_ACTED_MSG"
     else
-        ck_not_ok "--walltime 3 ($name): exit $rc, expected 75${bug:+ $bug}"
-    fi
-    if ck_lt "$secs" 4; then
-        ck_ok "--walltime 3 ($name): exit after $secs s (limit 3 s + 1 s start-up slack)"
-    else
-        ck_not_ok "--walltime 3 ($name): exit after $secs s (limit 3 s + 1 s start-up slack)${bug:+ $bug}"
+        ck_not_ok "--walltime 3 ($name)" "$CK_ACTED_MSG"
     fi
     after=$(ck_newest_ckpt "$dir")
-    if [ -n "$after" ] && [ "$after" != "$before" ] && ck_tool validate "$dir" >/dev/null; then
-        ck_ok "--walltime 3 ($name): new valid checkpoint $(basename "$after") (iteration $(ck_tool attr "$after" iteration))"
+    if [ -n "$after" ] && [ "$after" != "$before" ] && ck_tool validate "$dir" >/dev/null &&
+        [ "$(ck_tool attr "$after" iteration)" = "$CK_ACTED_ITER" ]; then
+        ck_ok "--walltime 3 ($name): new valid checkpoint $(basename "$after") of iteration $CK_ACTED_ITER"
     else
-        ck_not_ok "--walltime 3 ($name): no new valid checkpoint (before: ${before:-none}, after: ${after:-none})"
+        ck_not_ok "--walltime 3 ($name): no new valid checkpoint of iteration $CK_ACTED_ITER (before: ${before:-none}, after: ${after:-none})"
     fi
 }
 walltime_case term "resumed from the SIGTERM checkpoint" c_TERM
-bug="[KNOWN BUG in src/solve/methods.c: poll() measures --walltime from r->t0, which checkpoint() resets]" \
-    walltime_case int "resumed from the SIGINT checkpoint, --checkpoint-every 0.5" c_INT --checkpoint-every 0.5
+walltime_case int "resumed from the SIGINT checkpoint, --checkpoint-every 0.5" c_INT --checkpoint-every 0.5
 walltime_case fresh "fresh start" c_wall
 
 # ---- resume to the end --------------------------------------------------------------------
@@ -138,7 +150,7 @@ for d in c_TERM c_INT c_USR2; do
     t0=$EPOCHREALTIME
     "$SLUICE" "${SOLVE[@]}" --checkpoint "$d" --resume -o "resumed_$d.h5" >"resume_$d.log" 2>&1 &
     pid=$!
-    ck_wait "$pid" 120
+    ck_wait "$pid" 300
     rc=$?
     ck_rc "--resume from $d (iteration $it) ran to the end in $(ck_since "$t0") s" 0 $rc "resume_$d.log"
     grep -q "resumed at iteration $it," "resume_$d.log" ||

@@ -46,8 +46,10 @@ sl_setup() {
     export SLUICE_CACHE=${SLUICE_CACHE:-$W/cache}
     PY=${SLUICE_PYTHON:-python3}
     if ! "$PY" -c 'import h5py, numpy' 2>/dev/null; then
-        echo "skip: $PY cannot import h5py and numpy (set SLUICE_PYTHON)"
-        exit 77
+        # a required prerequisite (README, tools/setup): missing is a failure
+        echo "not ok - prerequisite: $PY cannot import h5py and numpy (Debian: python3-h5py python3-numpy; or set SLUICE_PYTHON)"
+        echo "0 passed, 1 failed"
+        exit 1
     fi
     # a walltime inherited from a calling batch job would stop solves early (75)
     unset SLUICE_WALLTIME SLURM_JOB_END_TIME

@@ -9,18 +9,30 @@
 # the environment the script gave to qsub.  No real PBS server is involved.
 #
 # Scenarios
-#   reference  uninterrupted solve (sets the timing)
+#   reference  uninterrupted solve (sets the walltime budget of the chain)
 #   chain      walltime of about 40% of the reference time: sluice must stop
-#              itself (SLUICE_WALLTIME) with 75, the script must submit a
+#              itself (SLUICE_WALLTIME) with 75, logging that the stop was
+#              due at that walltime minus its margin; every run must resume
+#              from the previous run's checkpoint and end at a later
+#              iteration (progress in every run); the script must submit a
 #              follow-up with depend=afterany and the restart count raised;
 #              the chain can only converge by resuming
 #   term       SIGTERM to all processes with no walltime known: 75, follow-up
 #   limit      SLUICE_MAX_RESTARTS=0: no follow-up
 #   errors     missing model: 66, no follow-up
 #
+# Load: the emulated PBS SIGTERM at the walltime is a hang limit here (5x the
+# budget, at least 300 s), since a busy machine delays mpirun's start-up,
+# which no walltime can account for; what is asserted is the solver's own
+# account of its stop. A walltime chain does a budget of work per run, so the
+# number of runs depends on the machine's speed: up to 20 runs are allowed,
+# room for the machine to be 6x slower than during the reference solve in the
+# same test. SIGTERM in the term and limit scenarios is sent once sluice has
+# logged progress (its handlers are installed), not at a fixed moment.
+#
 # Exit 0 pass, 1 fail, 77 skip.  Settings as in standin_test.sh
 # (SLUICE_TEST_LAUNCHER mpirun|none, SLUICE_TEST_RANKS, SLUICE_TEST_TOLERANCE,
-# SLUICE_TEST_MIN_SECONDS, SLUICE_TEST_KILLWAIT), and SLUICE_JOB_SCRIPT.
+# SLUICE_TEST_KILLWAIT), and SLUICE_JOB_SCRIPT.
 
 # shellcheck disable=SC2016,SC2034  # eval'd check expressions
 
@@ -67,7 +79,6 @@ if [ -z "$launcher" ]; then
 fi
 ranks="${SLUICE_TEST_RANKS:-2}"
 tol="${SLUICE_TEST_TOLERANCE:-1e-6}"
-min_secs="${SLUICE_TEST_MIN_SECONDS:-5}"
 killwait="${SLUICE_TEST_KILLWAIT:-10}"
 largs=""
 if [ "$launcher" = mpirun ] && mpirun --version 2>&1 | grep -q "Open MPI"; then
@@ -102,6 +113,7 @@ unset SLUICE_RESTART_COUNT SLUICE_WALLTIME SLUICE_OUTPUT SLUICE_CHECKPOINT_DIR S
     SLUICE_CHECKPOINT_EVERY SLUICE_SOLVE_ARGS SLUICE_MAX_RESTARTS SLUICE_WALLTIME_MARGIN SLUICE_QSUB_ARGS \
     SLUICE_WORKDIR PBS_TEST_WALLTIME PBS_TEST_USED PBS_NODEFILE
 export PBS_JOBNAME=sluice-solve PBS_QUEUE=workq
+export SLUICE_SOLVE_ARGS="--progress-every 0.000001"
 export SLUICE_BIN="$bin" SLUICE_MODEL="$model" SLUICE_LAUNCHER="$launcher" \
     SLUICE_LAUNCHER_ARGS="$largs" SLUICE_RANKS="$ranks" SLUICE_TOLERANCE="$tol"
 
@@ -134,8 +146,25 @@ wait_until() {
     ! kill -0 "$1" 2>/dev/null
 }
 
-# run_job NAME JOBID RESTARTS TERM_S: one run of the script; SIGTERM to all
-# processes TERM_S seconds after the start, SIGKILL $killwait s later.
+# reached PID SPEC T0_MS: wait until PID ends (1) or SPEC holds (0): "+K" the
+# run's log (RUN_LOG) shows a progress line of iteration >= K; a number: that
+# many seconds after T0_MS
+reached() {
+    local pid=$1 spec=$2 t0=$3 it
+    while kill -0 "$pid" 2>/dev/null; do
+        case $spec in
+            +*)
+                it=$(sed -n 's/.*solve: iter \([0-9]*\) .*/\1/p' "$RUN_LOG" | tail -n 1)
+                [ -n "$it" ] && [ "$it" -ge "${spec#+}" ] && return 0 ;;
+            *) [ "$(now_ms)" -ge $((t0 + $(ms "$spec"))) ] && return 0 ;;
+        esac
+        sleep 0.05
+    done
+    return 1
+}
+
+# run_job NAME JOBID RESTARTS TERM: one run of the script; SIGTERM to all
+# processes when TERM is reached (see reached), SIGKILL $killwait s later.
 run_job() {
     local name=$1 id=$2 restarts=$3 term=$4 t0 pid
     RUN_LOG="$W/runs/$name.log"
@@ -148,7 +177,7 @@ run_job() {
     ) >"$RUN_LOG" 2>&1 </dev/null &
     pid=$!
     live_jobs="$live_jobs $pid"
-    if ! wait_until "$pid" $((t0 + $(ms "$term"))); then
+    if reached "$pid" "$term" "$t0"; then
         signal_tree TERM "$pid"
         RUN_TERMED=1
         if ! wait_until "$pid" $(($(now_ms) + killwait * 1000)); then
@@ -206,14 +235,17 @@ if [ "$rc" != 0 ] || ! converged "$W/reference/solution.h5"; then
     exit 1
 fi
 pass "reference solve exits 0 with a converged solution"
-[ "$ref_ms" -ge "$(ms "$min_secs")" ] ||
-    skip "the model solves in ${ref_ms} ms, too fast to interrupt reliably (need >= ${min_secs} s)"
+ref_iters=$(sed -n 's/.*CERTIFIED after \([0-9]*\) iterations.*/\1/p' "$W/runs/reference.log" | tail -n 1)
+[ -n "$ref_iters" ] && [ "$ref_iters" -ge 9 ] ||
+    { fail "reference: ${ref_iters:-no} iterations in its summary; the scenarios need at least 9"; exit 1; }
+chunk=$(((ref_iters + 2) / 3))
 
 # ---- chain --------------------------------------------------------------------------
 
 scenario chain
-export SLUICE_MAX_RESTARTS=8 SLUICE_WALLTIME_MARGIN=2
+export SLUICE_MAX_RESTARTS=20 SLUICE_WALLTIME_MARGIN=2
 budget=$(awk -v m="$ref_ms" 'BEGIN { b = int(m * 0.4 / 1000 + 0.999); if (b < 1) b = 1; print b }')
+hang=$(awk -v b="$budget" 'BEGIN { h = 5 * b; if (h < 300) h = 300; print h }')
 export PBS_TEST_WALLTIME
 PBS_TEST_WALLTIME=$(printf '00:%02d:%02d' $(((budget + 2) / 60)) $(((budget + 2) % 60)))
 export PBS_TEST_USED=00:00:00
@@ -221,15 +253,29 @@ id=1000.standin
 ok=1
 runs=0
 final=""
+prev_iter=0
+iters=""
 for restart in $(seq 0 "$SLUICE_MAX_RESTARTS"); do
-    # PBS's own SIGTERM comes at the walltime: budget + margin seconds
-    run_job "chain-$restart" "$id" "$restart" $((budget + 2 + 5))
+    run_job "chain-$restart" "$id" "$restart" "$hang"
     runs=$((runs + 1))
+    # the iteration this run resumed at and the one it stopped or ended at (its own log)
+    from=$(sed -n 's/.*solve: resumed at iteration \([0-9]*\),.*/\1/p' "$RUN_LOG" | tail -n 1)
+    to=$(sed -n 's/.* after \([0-9]*\) iterations, .*/\1/p' "$RUN_LOG" | tail -n 1)
+    iters="$iters ${from:-0}->${to:-?}"
+    if [ "${from:-0}" != "$prev_iter" ] || [ -z "$to" ] || [ "$to" -le "${from:-0}" ]; then
+        ok=0
+        echo "  run $restart: resumed at ${from:-0} (previous run ended at $prev_iter), ended at ${to:-?}: no progress"
+        tail -n 15 "$RUN_LOG"
+        break
+    fi
+    prev_iter=$to
     if [ "$RUN_RC" = 75 ]; then
         sub=$(last_submission)
         if [ "$RUN_TERMED" != 0 ] || [ "$(submissions)" != "$runs" ] ||
             [[ "$sub" != "restart=$((restart + 1)) workdir=$W/chain args=-V -W depend=afterany:$id -q workq "* ]] ||
-            ! log_has "$RUN_LOG" "sluice will stop itself after ${budget}s" || ! has_files "$W/chain/checkpoints"; then
+            ! log_has "$RUN_LOG" "sluice will stop itself after ${budget}s" ||
+            ! log_has "$RUN_LOG" "^solve: --walltime ${budget}.000 s: stop due at " ||
+            ! has_files "$W/chain/checkpoints"; then
             ok=0
             echo "  submission: $sub"
             tail -n 15 "$RUN_LOG"
@@ -241,9 +287,10 @@ for restart in $(seq 0 "$SLUICE_MAX_RESTARTS"); do
     final=$RUN_RC
     break
 done
-echo "  chain: $runs runs, $(submissions) follow-up submissions, final exit ${final:-none}"
-check "chain: each stopped run stopped itself before the walltime and submitted one follow-up (depend=afterany, restart+1)" \
+echo "  chain: $runs runs (iterations per run:$iters), $(submissions) follow-up submissions, final exit ${final:-none}"
+check "chain: each stopped run stopped itself at its walltime (its own log) and submitted one follow-up (depend=afterany, restart+1)" \
     test "$ok" = 1
+check "chain: every run resumed where the previous one stopped and made progress" test "$ok" = 1
 check "chain: the first run was stopped (75) and a later one converged (0)" \
     eval '[ "$runs" -ge 2 ] && [ "${final:-x}" = 0 ]'
 check "chain: the final run submitted nothing" eval '[ "$(submissions)" = $((runs - 1)) ]'
@@ -253,19 +300,10 @@ unset SLUICE_WALLTIME_MARGIN PBS_TEST_WALLTIME PBS_TEST_USED
 # ---- term ---------------------------------------------------------------------------
 
 scenario term
-# Direct launch (SIGTERM reaching mpirun kills the ranks); one rank runs at
-# another speed, so time it first.
+# Direct launch (SIGTERM reaching mpirun kills the ranks).
 export SLUICE_LAUNCHER=none
-one_ms=$ref_ms
-if [ "$launcher" != none ]; then
-    t0=$(now_ms)
-    "$bin" solve "$model" -o "$W/term/one-rank.h5" --tolerance "$tol" \
-        --checkpoint "$W/term/one-rank-checkpoints" >"$W/runs/term-reference.log" 2>&1 </dev/null
-    one_ms=$(($(now_ms) - t0))
-    echo "  one-rank reference solve: ${one_ms} ms"
-fi
-# (not before 1 s: sluice must have installed its signal handlers)
-run_job term-0 2000.standin 0 "$(awk -v m="$one_ms" 'BEGIN { t = m * 0.3 / 1000; if (t < 1) t = 1; printf "%.3f", t }')"
+# SIGTERM once sluice has logged progress (its signal handlers are installed)
+run_job term-0 2000.standin 0 +1
 check "term: SIGTERM gives exit 75 and one follow-up submission" \
     eval '[ "$RUN_RC" = 75 ] && [ "$RUN_KILLED" = 0 ] && [ "$(submissions)" = 1 ]'
 check "term: the log shows the walltime was unknown and SIGTERM arrived" \
@@ -276,7 +314,7 @@ export SLUICE_LAUNCHER="$launcher"
 
 scenario limit
 export SLUICE_MAX_RESTARTS=0 SLUICE_LAUNCHER=none
-run_job limit-0 3000.standin 0 "$(awk -v m="$one_ms" 'BEGIN { t = m * 0.3 / 1000; if (t < 1) t = 1; printf "%.3f", t }')"
+run_job limit-0 3000.standin 0 +1
 check "limit: with SLUICE_MAX_RESTARTS=0 a stop gives 75 and no follow-up" \
     eval '[ "$RUN_RC" = 75 ] && [ "$(submissions)" = 0 ] && log_has "$RUN_LOG" "restart limit reached"'
 unset SLUICE_MAX_RESTARTS

@@ -14,8 +14,12 @@ execute_process(
   RESULT_VARIABLE _sluice_py_ok OUTPUT_QUIET ERROR_QUIET)
 
 if(NOT _sluice_py_ok EQUAL 0)
-  message(WARNING "tests/python skipped: ${SLUICE_TEST_PYTHON} lacks numpy/scipy/h5py "
+  # Required by the README: registered as a test that fails with the reason,
+  # instead of silently leaving the cross-checks out.
+  message(WARNING "tests/python: ${SLUICE_TEST_PYTHON} lacks numpy/scipy/h5py; py_prerequisites will fail "
                   "(Debian packages python3-numpy python3-scipy python3-h5py)")
+  add_test(NAME py_prerequisites COMMAND ${SLUICE_TEST_PYTHON} -c "import numpy, scipy.optimize, scipy.sparse.linalg, h5py")
+  set_tests_properties(py_prerequisites PROPERTIES LABELS python)
 else()
   set(_sluice_py_dir ${PROJECT_SOURCE_DIR}/tests/python)
   foreach(_t lp evaluate published certificate)
