@@ -229,6 +229,10 @@ SLUICE_API sl_status sl_solver_set_walltime(sl_solver *s, double seconds);      
 SLUICE_API sl_status sl_solver_set_walltime_origin(sl_solver *s, double clock_seconds);
 SLUICE_API sl_status sl_solver_set_sweeps(sl_solver *s, int sweeps);                /* mpi: 0 adaptive */
 SLUICE_API sl_status sl_solver_set_memory_limit(sl_solver *s, double bytes, int strict);  /* pi */
+/* pi and exact evaluation: a factorization UMFPACK estimates to take longer
+ * than this is not started (evaluation turns iterative); default 120 s,
+ * 0: no limit. */
+SLUICE_API sl_status sl_solver_set_direct_time_limit(sl_solver *s, double seconds);
 /* Checkpoints into dir every every_s seconds (0 -> 600) and when asked by
  * the context's signal flag; resume: start from the newest valid one. */
 SLUICE_API sl_status sl_solver_set_checkpoint(sl_solver *s, const char *dir, double every_s, int resume);

@@ -21,6 +21,7 @@ typedef struct solve_args {
     int sweeps;
     double memory_limit;
     int strict_memory;
+    double direct_time_limit;   /* < 0: the library's default */
     const char *checkpoint_dir;
     double checkpoint_every;
     int resume;
@@ -93,6 +94,8 @@ static const char solve_help[] =
     "  --max-iterations N    stop after N iterations (exit 75 if not certified)\n"
     "  --memory-limit BYTES  pi: largest factorization to attempt (default half of RAM)\n"
     "  --strict-memory       pi: fail instead of evaluating iteratively when over the limit\n"
+    "  --direct-time-limit S pi: do not start a factorization UMFPACK estimates to take\n"
+    "                        longer than S seconds (default 120; 0 = no limit)\n"
     "  --checkpoint DIR      write checkpoints to DIR (newest two kept)\n"
     "  --checkpoint-every S  seconds between checkpoints (default 600)\n"
     "  --resume              continue from the newest valid checkpoint in DIR (fresh if none)\n"
@@ -312,6 +315,7 @@ static int run_solve(cli_args *a, const solve_args *o)
         if (st == SL_OK) st = sl_solver_set_walltime_origin(s, a->start_clock);
         if (st == SL_OK) st = sl_solver_set_sweeps(s, o->sweeps);
         if (st == SL_OK) st = sl_solver_set_memory_limit(s, o->memory_limit, o->strict_memory);
+        if (st == SL_OK && o->direct_time_limit >= 0) st = sl_solver_set_direct_time_limit(s, o->direct_time_limit);
         if (st == SL_OK && o->checkpoint_dir)
             st = sl_solver_set_checkpoint(s, o->checkpoint_dir, o->checkpoint_every, o->resume);
         if (st == SL_OK) st = sl_solver_set_monitor(s, on_progress, &ms);
@@ -340,6 +344,7 @@ int cmd_solve(cli_args *a)
 {
     solve_args o;
     memset(&o, 0, sizeof(o));
+    o.direct_time_limit = -1;
     int rc = 0;
     const char *v;
     int64_t iv;
@@ -372,6 +377,10 @@ int cmd_solve(cli_args *a)
             else if (!(o.memory_limit > 0)) rc = cli_usage_error(a, "--memory-limit must be positive (bytes)");
         } else if (cli_opt(a, "--strict-memory")) {
             o.strict_memory = 1;
+        } else if (cli_opt(a, "--direct-time-limit")) {
+            if (!num_opt(a, "--direct-time-limit", &o.direct_time_limit)) rc = SL_EUSAGE;
+            else if (!(o.direct_time_limit >= 0))
+                rc = cli_usage_error(a, "--direct-time-limit must be 0 (no limit) or a number of seconds");
         } else if (cli_opt(a, "--checkpoint")) {
             if ((o.checkpoint_dir = cli_value(a)) == NULL) rc = SL_EUSAGE;
         } else if (cli_opt(a, "--checkpoint-every")) {

@@ -328,7 +328,7 @@ static sl_status take_annotations(sl_ctx *ctx, const sluice_shape *sh, sl_meta *
         snprintf(meta->factor_unit[f], SL_NAME_MAX, "%s", fv->unit && fv->values ? fv->unit : "");
         if (fv->values) {
             if (n > INT32_MAX) SL_FAIL(SL_EDATA, "%s: factor %s: too many values", gen, sh->factors[f].name);
-            if (SL_ALLOC(ctx, meta->factor_value[f], n, "factor values") == NULL) SL_FAIL(SL_ENOMEM, "factor values");
+            if (SL_ALLOC(ctx, meta->factor_value[f], n, "factor values") == NULL) SL_TRY(SL_ENOMEM); /* the allocator recorded the message */
             for (int64_t i = 0; i < n; i++) {
                 if (!isfinite(fv->values[i]))
                     SL_FAIL(SL_EDATA, "%s: factor %s: value of index %lld is not finite", gen, sh->factors[f].name,
@@ -341,7 +341,7 @@ static sl_status take_annotations(sl_ctx *ctx, const sluice_shape *sh, sl_meta *
                                                      sh->factors[f].name);
             if (SL_ZALLOC(ctx, meta->factor_label[f], n, "factor labels") == NULL ||
                 SL_ALLOC(ctx, sorted, n, "labels") == NULL)
-                SL_FAIL(SL_ENOMEM, "factor labels");
+                SL_TRY(SL_ENOMEM); /* the allocator recorded the message */
             for (int64_t i = 0; i < n; i++) {
                 const char *l = fv->labels[i];
                 if (l == NULL || l[0] == '\0' || !short_text(l) || strpbrk(l, ",=@\"\n") != NULL)
@@ -363,7 +363,7 @@ static sl_status take_annotations(sl_ctx *ctx, const sluice_shape *sh, sl_meta *
     }
     if (sh->action_values) {
         if (SL_ALLOC(ctx, meta->action_value, sh->n_actions, "action values") == NULL)
-            SL_FAIL(SL_ENOMEM, "action values");
+            SL_TRY(SL_ENOMEM); /* the allocator recorded the message */
         meta->n_action_values = sh->n_actions;
         for (int32_t a = 0; a < sh->n_actions; a++) {
             if (!isfinite(sh->action_values[a]))

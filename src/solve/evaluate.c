@@ -228,7 +228,7 @@ sl_status sl_evaluate_direct(sl_ctx *ctx, const sl_problem *p, const int32_t *po
         int reused = 0;
         /* time guard: the factorization should not take longer than
          * SL_DIRECT_TIME_LIMIT nor run past the deadline */
-        double tlim = SL_DIRECT_TIME_LIMIT;
+        double tlim = p->direct_time_limit > 0 ? p->direct_time_limit : INFINITY;
         if (deadline > 0) tlim = fmax(1e-3, fmin(tlim, deadline - sl_now()));
         if (st == SL_OK) sl_lu_set_time_limit(lu, tlim);
         if (st == SL_OK) st = sl_lu_prepare(ctx, lu, N, arp, acol, aval, memory_limit, &fits, &reused, estimate_bytes);
@@ -373,6 +373,7 @@ sl_status sl_solver_evaluate(sl_solver *s, const sl_model *m, const sl_solution 
     double est = 0;
     double limit = s->memory_limit > 0 ? s->memory_limit : 0.5 * sl_physical_memory();
     int iterative_only = s->method != SL_METHOD_PI;
+    P.direct_time_limit = s->direct_time_limit;
     int abandoned = 0;
     if (!iterative_only) SL_TRY(sl_evaluate_direct(ctx, &P, pol, limit, 0, x, &direct, &abandoned, &est, &lu));
     if (abandoned) SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_ESTOPPED, "evaluate: stopped by a signal during the direct solve")));

@@ -68,6 +68,7 @@ sl_status sl_problem_from_model(sl_ctx *ctx, const sl_model *m, sl_order order, 
     memset(p, 0, sizeof(*p));
     SL_TRY(sl_agree(ctx, sl_model_check_ready(ctx, m, "solve")));
     p->path = m->name;
+    p->direct_time_limit = SL_DIRECT_TIME_LIMIT;
     if (!allow_any && m->meta.objective != SL_OBJ_DISCOUNTED)
         st = SL_ERR(ctx, SL_EDATA,
                     "%s: objective \"%s\" is recorded in the model, but this method solves only the "

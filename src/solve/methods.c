@@ -393,6 +393,7 @@ sl_status sl_solver_solve(sl_solver *o, const sl_model *m, sl_solution **xout)
 
     if (o->checkpoint_dir) SL_TRY(sl_ckpt_lock(ctx, o->checkpoint_dir, &r->lock_fd));
     SL_TRY(sl_problem_from_model(ctx, m, o->order, 0, &r->P));
+    r->P.direct_time_limit = o->direct_time_limit;
     int64_t n = r->P.n_local, nx = n + r->P.halo.n_halo;
     if (SL_ZALLOC(ctx, r->x, nx, "values") == NULL || SL_ZALLOC(ctx, r->y, nx, "values") == NULL ||
         SL_ZALLOC(ctx, r->pol, n, "policy") == NULL || SL_ZALLOC(ctx, r->actions, n, "policy") == NULL)
@@ -511,6 +512,7 @@ sl_status sl_solver_create(sl_ctx *ctx, sl_solver **out)
     s->method = SL_METHOD_GS;
     s->order = SL_ORDER_AUTO;
     s->tolerance = 1e-6;
+    s->direct_time_limit = SL_DIRECT_TIME_LIMIT;
     *out = s;
     return SL_OK;
 }
@@ -592,6 +594,15 @@ sl_status sl_solver_set_memory_limit(sl_solver *s, double bytes, int strict)
         return SL_ERR(s->ctx, SL_EUSAGE, "sl_solver_set_memory_limit: %g is not a number of bytes", bytes);
     s->memory_limit = bytes;
     s->strict_memory = strict != 0;
+    return SL_OK;
+}
+
+sl_status sl_solver_set_direct_time_limit(sl_solver *s, double seconds)
+{
+    if (s == NULL) return SL_EUSAGE;
+    if (!(seconds >= 0) || !isfinite(seconds))
+        return SL_ERR(s->ctx, SL_EUSAGE, "sl_solver_set_direct_time_limit: %g is not a number of seconds", seconds);
+    s->direct_time_limit = seconds;
     return SL_OK;
 }
 

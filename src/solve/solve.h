@@ -26,6 +26,8 @@ typedef struct sl_problem {
     sl_stage_map stages;
     sl_io_plan io;          /* internal order <-> the model's layout */
     int staged;             /* sweeps run stage by stage on all ranks */
+    double direct_time_limit; /* seconds a direct factorization may take (UMFPACK's
+                               * estimate); <= 0: no limit */
 } sl_problem;
 
 /* Prepare an assembled model for solving: local columns, halo and sweep
@@ -50,6 +52,7 @@ struct sl_solver {
     int sweeps;                 /* mpi: partial-evaluation sweeps; 0 adaptive */
     double memory_limit;        /* pi: bytes; 0 auto */
     int strict_memory;
+    double direct_time_limit;   /* pi/evaluate: seconds; <= 0 no limit */
     char *checkpoint_dir;       /* NULL: none */
     double checkpoint_every;    /* seconds; 0 -> 600 */
     int resume;

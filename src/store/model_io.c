@@ -242,7 +242,7 @@ static sl_status read_labels(sl_ctx *ctx, hid_t f, sl_meta *m, const char *path)
     int64_t na = sl_h5_length(f, "/labels/action_name");
     if (na > 0) {
         if (na > INT32_MAX) SL_FAIL(SL_EDATA, "%s: too many action names", path);
-        if (SL_ZALLOC(ctx, m->action_name, na, "action names") == NULL) SL_FAIL(SL_ENOMEM, "action names");
+        if (SL_ZALLOC(ctx, m->action_name, na, "action names") == NULL) SL_TRY(SL_ENOMEM); /* the allocator recorded the message */
         m->n_action_names = (int32_t)na;
         SL_TRY(sl_h5_read_1d(ctx, f, "/labels/action_name", str, na, 0, na, m->action_name, path));
         for (int64_t i = 0; i < na; i++) m->action_name[i][SL_NAME_MAX - 1] = '\0';
@@ -259,7 +259,7 @@ static sl_status read_labels(sl_ctx *ctx, hid_t f, sl_meta *m, const char *path)
             if (SL_ZALLOC(ctx, m->param_name, np, "params") == NULL ||
                 SL_ZALLOC(ctx, m->param_unit, np, "params") == NULL ||
                 SL_ZALLOC(ctx, m->param_value, np, "params") == NULL)
-                SL_FAIL(SL_ENOMEM, "params");
+                SL_TRY(SL_ENOMEM); /* the allocator recorded the message */
             m->n_params = (int)np;
             SL_TRY(sl_h5_read_1d(ctx, f, "/generator/param_name", str, np, 0, np, m->param_name, path));
             SL_TRY(sl_h5_read_1d(ctx, f, "/generator/param_unit", str, np, 0, np, m->param_unit, path));
@@ -301,7 +301,7 @@ static sl_status read_annotations(sl_ctx *ctx, hid_t f, sl_meta *m, const char *
         snprintf(name, sizeof(name), "/factor/%s/value", m->factor_name[i]);
         if (sl_h5_exists(f, name)) {
             if (n > INT32_MAX) SL_FAIL(SL_EDATA, "%s: factor %s is too large for values", path, m->factor_name[i]);
-            if (SL_ALLOC(ctx, m->factor_value[i], n, "factor values") == NULL) SL_FAIL(SL_ENOMEM, "factor values");
+            if (SL_ALLOC(ctx, m->factor_value[i], n, "factor values") == NULL) SL_TRY(SL_ENOMEM); /* the allocator recorded the message */
             SL_TRY(sl_h5_read_1d(ctx, f, name, H5T_NATIVE_DOUBLE, n, 0, n, m->factor_value[i], path));
             SL_TRY(read_unit(ctx, f, name, m->factor_unit[i], path));
             for (int64_t k = 0; k < n; k++)
@@ -312,7 +312,7 @@ static sl_status read_annotations(sl_ctx *ctx, hid_t f, sl_meta *m, const char *
         if (sl_h5_exists(f, name)) {
             if (n > INT32_MAX / SL_NAME_MAX)
                 SL_FAIL(SL_EDATA, "%s: factor %s is too large for labels", path, m->factor_name[i]);
-            if (SL_ZALLOC(ctx, m->factor_label[i], n, "factor labels") == NULL) SL_FAIL(SL_ENOMEM, "factor labels");
+            if (SL_ZALLOC(ctx, m->factor_label[i], n, "factor labels") == NULL) SL_TRY(SL_ENOMEM); /* the allocator recorded the message */
             SL_TRY(sl_h5_read_1d(ctx, f, name, str, n, 0, n, m->factor_label[i], path));
             for (int64_t k = 0; k < n; k++) m->factor_label[i][k][SL_NAME_MAX - 1] = '\0';
         }
@@ -320,7 +320,7 @@ static sl_status read_annotations(sl_ctx *ctx, hid_t f, sl_meta *m, const char *
     int64_t na = sl_h5_length(f, "/action/value");
     if (na > 0) {
         if (na > INT32_MAX) SL_FAIL(SL_EDATA, "%s: too many action values", path);
-        if (SL_ALLOC(ctx, m->action_value, na, "action values") == NULL) SL_FAIL(SL_ENOMEM, "action values");
+        if (SL_ALLOC(ctx, m->action_value, na, "action values") == NULL) SL_TRY(SL_ENOMEM); /* the allocator recorded the message */
         m->n_action_values = (int32_t)na;
         SL_TRY(sl_h5_read_1d(ctx, f, "/action/value", H5T_NATIVE_DOUBLE, na, 0, na, m->action_value, path));
         SL_TRY(read_unit(ctx, f, "/action/value", m->action_unit, path));
