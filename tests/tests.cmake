@@ -35,6 +35,9 @@ foreach(script ${SLUICE_CLI_TESTS})
   set_tests_properties(cli_${name} PROPERTIES LABELS cli TIMEOUT 600 SKIP_RETURN_CODE 77
                        ENVIRONMENT "${SLUICE_TEST_ENV};SLUICE_MPIEXEC=${SLUICE_MPIEXEC};SLUICE_PYTHON=/usr/bin/python3")
 endforeach()
+# the allocation-failure sweep runs the CLI about 600 times (every allocation of
+# import, build, solve, pi, verify, export): minutes, not seconds
+set_tests_properties(cli_fault_alloc PROPERTIES TIMEOUT 1800)
 file(GLOB SLUICE_MPI_TESTS CONFIGURE_DEPENDS ${PROJECT_SOURCE_DIR}/tests/mpi/*.sh)
 foreach(script ${SLUICE_MPI_TESTS})
   get_filename_component(name ${script} NAME_WE)

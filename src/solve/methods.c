@@ -20,6 +20,8 @@ typedef struct run {
     double t0;              /* start of this process's solve (reset at each checkpoint) */
     double wall0;           /* start of this process's solve, for --walltime: the solver clock's 0 */
     double prev_poll;       /* solver clock of the previous sweep boundary (< 0: none yet) */
+    int64_t start_iteration; /* iteration this run started (or resumed) at */
+    int held;               /* the walltime stop waited for this run's first iteration */
     double tol;
     double last_ckpt, last_progress;
     sl_check last;
@@ -203,7 +205,12 @@ static int poll(run *r)
         margin = fmax(10.0, 0.05 * r->o->walltime);
         if (r->o->walltime < 60) margin = fmin(margin, 0.2 * r->o->walltime);
         due = r->o->walltime - margin;
-        if (now - c0 >= due) {
+        /* every run makes progress: the walltime stop waits for one
+         * iteration after the (re)start, so a requeued chain whose start-up
+         * eats the walltime still converges after finitely many runs (a
+         * signal still stops at once) */
+        if (now - c0 >= due && r->S.iteration == r->start_iteration) r->held = 1;
+        if (now - c0 >= due && r->S.iteration > r->start_iteration) {
             want = POLL_STOP;
             by_walltime = 1;
         }
@@ -232,8 +239,9 @@ static int poll(run *r)
         }
     } else if (by_walltime) {
         sl_log(r->ctx, "solve: --walltime %.3f s: stop due at %.3f s (margin %.3f s); acted on at the sweep boundary "
-                       "at %.3f s (iteration %lld; previous boundary %s)",
-               r->o->walltime, due, margin, now - c0, (long long)r->S.iteration, prev);
+                       "at %.3f s (iteration %lld; previous boundary %s)%s",
+               r->o->walltime, due, margin, now - c0, (long long)r->S.iteration, prev,
+               r->held ? "; held for this run's first iteration (every run makes progress)" : "");
     }
     r->prev_poll = before;
     return agreed;
@@ -429,6 +437,7 @@ sl_status sl_solver_solve(sl_solver *o, const sl_model *m, sl_solution **xout)
             }
         }
     }
+    r->start_iteration = r->S.iteration;
     notify(r, SL_EVENT_START, NULL, sl_order_name(r->P.order_used));
 
     for (;;) {

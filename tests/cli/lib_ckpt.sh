@@ -258,7 +258,11 @@ ck_acted_walltime() {
         m = 0.05 * w; if (m < 10) m = 10; if (w < 60 && m > 0.2 * w) m = 0.2 * w
         want = w - m
         okdue = (due - want < 0.0005 && want - due < 0.0005)
-        ok = okdue && due <= acted && (first || prev <= due)
+        # the solver holds the stop for one iteration after a (re)start whose
+        # start-up outlasted the due time (every run makes progress); then
+        # the boundary it acts on is the first one after that iteration
+        held = ($0 ~ /held for this run.s first iteration/)
+        ok = okdue && due <= acted && (first || prev <= due || held)
         printf "due %.3f s (expected %.3f), acted on %.3f s, previous boundary %s (solver clock)%s\n", due, want, acted,
                first ? "none" : sprintf("%.3f s", prev), ok ? "" : ": NOT the first boundary after the due time"
         exit !ok }')
