@@ -38,6 +38,13 @@ endforeach()
 # the allocation-failure sweep runs the CLI about 600 times (every allocation of
 # import, build, solve, pi, verify, export): minutes, not seconds
 set_tests_properties(cli_fault_alloc PROPERTIES TIMEOUT 1800)
+# instrumented (ASan + UBSan) the CLI scripts run several times slower
+if(SLUICE_SANITIZE)
+  foreach(script ${SLUICE_CLI_TESTS})
+    get_filename_component(name ${script} NAME_WE)
+    set_tests_properties(cli_${name} PROPERTIES TIMEOUT 1800)
+  endforeach()
+endif()
 file(GLOB SLUICE_MPI_TESTS CONFIGURE_DEPENDS ${PROJECT_SOURCE_DIR}/tests/mpi/*.sh)
 foreach(script ${SLUICE_MPI_TESTS})
   get_filename_component(name ${script} NAME_WE)
