@@ -5,6 +5,7 @@
 #define _DEFAULT_SOURCE
 #endif
 #include <errno.h>
+#include <float.h>
 #include <math.h>
 #include <signal.h>
 #include <string.h>
@@ -394,8 +395,11 @@ sl_status sl_solver_evaluate(sl_solver *s, const sl_model *m, const sl_solution 
         sl_halo_exchange(ctx, &P.halo, x);
         sl_policy_check(&P, x, y, pol, &c);
         sl_certify(ctx, &P, &c);
-        /* |x - v_pi| <= sup|T_pi x - x| / (1 - gamma) (contraction; Puterman 1994, Thm 6.2.3) */
-        c.value_error = c.sup / (1.0 - P.gamma);
+        /* |x - v_pi| <= sup|T_pi x - x| / (1 - gamma) (contraction; Puterman 1994, Thm 6.2.3),
+         * with the residual accumulated in long double and its rounding bounded:
+         * c.sup (double) can underestimate the residual of a solution that is
+         * accurate to a few ulps. The division and 1 - gamma are rounded up. */
+        c.value_error = sl_policy_residual_bound(ctx, &P, x, pol) / (1.0 - P.gamma) * (1.0 + 4.0 * DBL_EPSILON);
     } else {
         for (int64_t i = 0; i < n; i++) x[i] = 0;
         SL_TRY(sl_evaluate_iterative(ctx, &P, pol, tol, 0, x, y, &c, &sweeps));

@@ -92,6 +92,9 @@ void sl_bellman_check(const sl_problem *p, const double *x, double *y, int32_t *
 /* Same with the operator of a fixed policy (T_pi x). */
 void sl_policy_check(const sl_problem *p, const double *x, double *y, const int32_t *policy,
                      sl_check *c);
+/* Rigorous sup |T_pi x - x| for a fixed policy (pair offsets), accumulated in
+ * long double with a bound on its own rounding added. Collective. */
+double sl_policy_residual_bound(sl_ctx *ctx, const sl_problem *p, const double *x, const int32_t *policy);
 /* Reduce a check over ranks and fill the bounds. Collective. */
 void sl_certify(sl_ctx *ctx, const sl_problem *p, sl_check *c);
 /* Midpoint value: out = y + gamma/(1-gamma) * (dmin + dmax)/2 (owned part). */
