@@ -65,12 +65,13 @@ endforeach()
 if(EXISTS ${PROJECT_SOURCE_DIR}/tests/python/test_examples.py)
   add_test(NAME py_examples COMMAND /usr/bin/python3 ${PROJECT_SOURCE_DIR}/tests/python/test_examples.py
            $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/py_examples)
-  add_test(NAME py_turbine_wear_twin COMMAND /usr/bin/python3 ${PROJECT_SOURCE_DIR}/tests/python/turbine_wear_twin.py)
-  set_tests_properties(py_examples py_turbine_wear_twin PROPERTIES LABELS python TIMEOUT 600
+  # (the turbine-wear twin's own checks run inside py_examples, before it
+  # serves as the reference; a test of the twin alone would test no product)
+  set_tests_properties(py_examples PROPERTIES LABELS python TIMEOUT 600
                        ENVIRONMENT "${SLUICE_TEST_ENV}")
 endif()
 
-# a bounded libFuzzer run over the CSV readers (skipped without clang)
+# a bounded libFuzzer run over the CSV readers (fails without clang: required)
 add_test(NAME fuzz_csv COMMAND bash ${PROJECT_SOURCE_DIR}/tests/fuzz/run.sh ${PROJECT_SOURCE_DIR}
          ${PROJECT_BINARY_DIR}/fuzz_csv 45)
 set_tests_properties(fuzz_csv PROPERTIES LABELS fuzz TIMEOUT 300)

@@ -250,7 +250,6 @@ expect "solve: a reward edited, fingerprint not updated" --code 65 --err "reward
 # report the damage (65, naming the file); with the fingerprint recomputed,
 # validation must, in its own words.
 expect "info: /state/first_pair not monotone" --code 65 --err "first_pair.h5" --err "first_pair" \
-    --bug "src/cli/info.c (the index scan behind 'actions per state'): a decreasing /state/first_pair is printed as a negative action count with exit 0 instead of being reported (65)" \
     -- "$SLUICE" info "$W/first_pair.h5"
 expect "solve: /state/first_pair not monotone (fingerprint not updated)" --code 65 --err "first_pair.h5" \
     --gone "$S" -- "$SLUICE" solve -q "$W/first_pair.h5" -o "$S"
@@ -263,7 +262,6 @@ if [ "$HAVE_FP" = 1 ]; then
         "$SLUICE" solve -q "$W/first_pairrefp.h5" -o "$S"
     # state 10 is the one whose pair range [first_pair[10], first_pair[11]) is reversed
     expect "solve: /state/first_pair not monotone names state 10" --code 65 --err "state 10:" \
-        --bug "src/store/model_io.c sl_store_model_cumulative: reports s_begin + i (the index of the smaller entry, state 11) instead of s_begin + i - 1, the state whose range is reversed" \
         -- "$SLUICE" solve -q "$W/first_pairrefp.h5" -o "$S"
     expect "solve: next state out of range (fingerprint recomputed)" --code 65 --err "targetrefp.h5" \
         --err "next state 4320" --not "fingerprint" --gone "$S" -- \

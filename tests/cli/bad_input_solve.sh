@@ -70,10 +70,8 @@ edit(sys.argv[4], act)' "$SA" "$W/bumped.h5" "$W/nan.h5" "$W/bad_action.h5" ||
 expect "verify: value perturbed by 1.0 in one state" --code 65 --err "bumped.h5" --err "not certified" -- \
     "$SLUICE" verify -q "$A" "$W/bumped.h5"
 expect "verify: value NaN in one state" --code 65 --err "nan.h5" \
-    --bug "src/solve/kernel.c check_loop (d < dmin / d > dmax skip NaN, so a NaN value is CERTIFIED with exit 0) and src/store/solution_io.c sl_store_solution_read (accepts non-finite /value)" \
     -- "$SLUICE" verify -q "$A" "$W/nan.h5"
 expect "export: value NaN in one state" --code 65 --err "nan.h5" --err "state 0" --gone "$C" \
-    --bug "src/store/solution_io.c sl_store_solution_read: non-finite /value entries are not rejected, so NaN is exported with exit 0" \
     -- "$SLUICE" export "$W/nan.h5" --model "$A" -o "$C"
 expect "verify: policy action not available" --code 65 --err "bad_action.h5" --err "state 1" \
     --err "action 1" -- "$SLUICE" verify -q "$A" "$W/bad_action.h5"
@@ -81,7 +79,6 @@ expect "evaluate: policy action not available" --code 65 --err "bad_action.h5" -
     --err "action 1" --gone "$O" -- "$SLUICE" evaluate -q "$A" --policy "$W/bad_action.h5" -o "$O"
 expect "export: policy action not available" --code 65 --err "bad_action.h5" --err "state 1" \
     --err "action 1" --gone "$C" \
-    --bug "src/cli/export.c sl_export: loads the model without rows (need_rows=0), so a policy action the model lacks in that state is exported with exit 0" \
     -- "$SLUICE" export "$W/bad_action.h5" --model "$A" -o "$C"
 expect "verify: a model file given as the solution" --code 65 --err "a.h5" --err "not a solution" -- \
     "$SLUICE" verify -q "$A" "$A"

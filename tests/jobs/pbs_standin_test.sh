@@ -30,7 +30,7 @@
 # same test. SIGTERM in the term and limit scenarios is sent once sluice has
 # logged progress (its handlers are installed), not at a fixed moment.
 #
-# Exit 0 pass, 1 fail, 77 skip.  Settings as in standin_test.sh
+# Exit 0 pass, 1 fail (also for a missing prerequisite).  Settings as in standin_test.sh
 # (SLUICE_TEST_LAUNCHER mpirun|none, SLUICE_TEST_RANKS, SLUICE_TEST_TOLERANCE,
 # SLUICE_TEST_KILLWAIT), and SLUICE_JOB_SCRIPT.
 
@@ -42,7 +42,8 @@ if [ $# -ne 3 ]; then
     echo "usage: $0 SLUICE_BIN MODEL_FILE WORKDIR" >&2
     exit 64
 fi
-skip() { echo "SKIP: $*"; exit 77; }
+# every prerequisite is installed by tools/setup: a missing one fails the test
+prereq_fail() { echo "FAIL: missing prerequisite: $*"; exit 1; }
 
 here=$(cd "$(dirname "$0")" && pwd)
 job_script="${SLUICE_JOB_SCRIPT:-$here/../../jobs/pbs/sluice-solve.pbs}"
@@ -53,16 +54,16 @@ case "$bin" in /*) ;; *) bin="$PWD/$bin" ;; esac
 case "$model" in /*) ;; *) model="$PWD/$model" ;; esac
 case "$job_script" in /*) ;; *) job_script="$PWD/$job_script" ;; esac
 
-[ -f "$job_script" ] || skip "job script not found: $job_script"
-[ -x "$bin" ] || skip "sluice binary not executable: $bin"
-[ -r "$model" ] || skip "model file not readable: $model"
+[ -f "$job_script" ] || prereq_fail "job script not found: $job_script"
+[ -x "$bin" ] || prereq_fail "sluice binary not executable: $bin"
+[ -r "$model" ] || prereq_fail "model file not readable: $model"
 for tool in setsid ps awk; do
-    command -v "$tool" >/dev/null 2>&1 || skip "'$tool' is not installed"
+    command -v "$tool" >/dev/null 2>&1 || prereq_fail "'$tool' is not installed"
 done
-[ -n "${EPOCHREALTIME:-}" ] || skip "bash 5 or newer is needed (EPOCHREALTIME)"
+[ -n "${EPOCHREALTIME:-}" ] || prereq_fail "bash 5 or newer is needed (EPOCHREALTIME)"
 case "$("$bin" solve --help 2>&1)" in
     *--checkpoint*) ;;
-    *) skip "'sluice solve --help' does not mention --checkpoint: checkpoints not supported by this build" ;;
+    *) prereq_fail "'sluice solve --help' does not mention --checkpoint: checkpoints not supported by this build" ;;
 esac
 py=""
 for cand in "${PYTHON:-}" python3 /usr/bin/python3; do
@@ -70,7 +71,7 @@ for cand in "${PYTHON:-}" python3 /usr/bin/python3; do
     if "$cand" -c 'import h5py' >/dev/null 2>&1; then py=$cand; break; fi
 done
 if [ -z "$py" ] && ! command -v h5dump >/dev/null 2>&1; then
-    skip "neither python3 with h5py nor h5dump is available to read solution files"
+    prereq_fail "neither python3 with h5py nor h5dump is available to read solution files"
 fi
 
 launcher="${SLUICE_TEST_LAUNCHER:-}"

@@ -10,11 +10,10 @@
 # Installs nothing: it needs the Debian packages slurm-wlm and munge.  MODEL
 # must need more compute than one job gets (the warning came 24 to 31 s after
 # each start here; Slurm checks time limits periodically, so this can vary),
-# or the requeue path cannot be exercised: then the test reports that and
-# skips.
+# or the requeue path cannot be exercised: then the test fails and says so.
 #
-# Exit 0 pass, 1 fail, 77 skip (Slurm cannot run here, or a prerequisite is
-# missing; the reason is printed).  Settings (environment):
+# Exit 0 pass, 1 fail, 77 skip (only: slurm-wlm/munge not installed, or not
+# root; the reason is printed).  Settings (environment):
 #   SLUICE_TEST_LAUNCHER   mpirun | srun | none [mpirun if found, else srun]
 #   SLUICE_TEST_RANKS      tasks for the job    [2, at most the CPUs here]
 #   SLUICE_TEST_TOLERANCE  --tolerance          [1e-6]
@@ -28,7 +27,11 @@ if [ $# -ne 3 ]; then
     exit 64
 fi
 
+# Skipped (77, shown by CTest as skipped; docs/testing.md) only where Slurm
+# cannot run here at all: its programs are not installed, or not root.
+# Anything else that goes wrong is a failure.
 skip() { echo "SKIP: $*"; exit 77; }
+fail() { echo "FAIL: $*"; exit 1; }
 
 here=$(cd "$(dirname "$0")" && pwd)
 job_script="${SLUICE_JOB_SCRIPT:-$here/../../jobs/slurm/sluice-solve.sbatch}"
@@ -40,9 +43,9 @@ case "$model" in /*) ;; *) model="$PWD/$model" ;; esac
 
 # ---- prerequisites -------------------------------------------------------------
 
-[ -f "$job_script" ] || skip "job script not found: $job_script"
-[ -x "$bin" ] || skip "sluice binary not executable: $bin"
-[ -r "$model" ] || skip "model file not readable: $model"
+[ -f "$job_script" ] || fail "job script not found: $job_script"
+[ -x "$bin" ] || fail "sluice binary not executable: $bin"
+[ -r "$model" ] || fail "model file not readable: $model"
 missing=""
 for tool in munged munge slurmctld slurmd sbatch scontrol squeue sinfo srun; do
     command -v "$tool" >/dev/null 2>&1 || missing="$missing $tool"
@@ -51,7 +54,7 @@ done
 [ "$(id -u)" = 0 ] || skip "slurmd must run as root to start jobs; this test runs as $(id -un)"
 case "$("$bin" solve --help 2>&1)" in
     *--checkpoint*) ;;
-    *) skip "'sluice solve --help' does not mention --checkpoint: checkpoints not supported by this build" ;;
+    *) fail "'sluice solve --help' does not mention --checkpoint: checkpoints not supported by this build" ;;
 esac
 py=""
 for cand in "${PYTHON:-}" python3 /usr/bin/python3; do
@@ -59,14 +62,14 @@ for cand in "${PYTHON:-}" python3 /usr/bin/python3; do
     if "$cand" -c 'import h5py' >/dev/null 2>&1; then py=$cand; break; fi
 done
 if [ -z "$py" ] && ! command -v h5dump >/dev/null 2>&1; then
-    skip "neither python3 with h5py nor h5dump is available to read solution files"
+    fail "neither python3 with h5py nor h5dump is available to read solution files"
 fi
 
 # The warning signal the script asks for (#SBATCH --signal=B:SIG@SECONDS);
 # the test keeps the signal and shortens the margin.
 warn_sig=$(sed -n 's/^#SBATCH --signal=B:\([A-Z0-9]*\)@.*/\1/p' "$job_script" | head -n 1)
 warn_sig=${warn_sig#SIG}
-[ -n "$warn_sig" ] || skip "no '#SBATCH --signal=B:SIG@SECONDS' line in $job_script"
+[ -n "$warn_sig" ] || fail "no '#SBATCH --signal=B:SIG@SECONDS' line in $job_script"
 
 cpus=$(nproc)
 ranks="${SLUICE_TEST_RANKS:-2}"
@@ -113,13 +116,13 @@ stop_daemons() {
 }
 trap stop_daemons EXIT
 
-daemon_trouble() { # daemon_trouble MESSAGE: print logs, stop, skip
+daemon_trouble() { # daemon_trouble MESSAGE: print logs, stop, fail (the packages are installed and we are root)
     echo "--- $S/log (tails)"
     for f in "$S"/log/* "$S/munge/munged.log"; do
         [ -f "$f" ] && { echo "--- $f"; tail -n 15 "$f"; }
     done
     stop_daemons
-    skip "$1"
+    fail "$1"
 }
 
 # ---- munge -------------------------------------------------------------------------
@@ -296,7 +299,7 @@ count_lines() { grep -c -- "$1" "$out" 2>/dev/null; }
 
 if [ "$final" = COMPLETED ] && [ "$max_restarts" = 0 ] && ! log_has "received SIG$warn_sig"; then
     stop_daemons
-    skip "the model was solved within the first one-minute job, so nothing was interrupted; use a model that needs more than a minute"
+    fail "the model was solved within the first one-minute job, so nothing was interrupted; use a model that needs more than a minute"
 fi
 
 check "Slurm sent the warning signal (SIG$warn_sig) to the batch shell of the first run" \

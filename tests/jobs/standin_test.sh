@@ -33,7 +33,7 @@
 # done; a checkpoint file), never at a fixed wall-clock moment, so a busy
 # machine only makes the test slower. Time limits only catch a hang.
 #
-# Exit 0 pass, 1 fail, 77 skip (a prerequisite is missing; the reason is
+# Exit 0 pass, 1 fail (also when a prerequisite is missing; the reason is
 # printed).  Settings (environment):
 #   SLUICE_TEST_LAUNCHER   mpirun | none    [mpirun if found, else none]
 #   SLUICE_TEST_RANKS      ranks for mpirun [2]
@@ -51,7 +51,8 @@ if [ $# -ne 3 ]; then
     exit 64
 fi
 
-skip() { echo "SKIP: $*"; exit 77; }
+# every prerequisite is installed by tools/setup: a missing one fails the test
+prereq_fail() { echo "FAIL: missing prerequisite: $*"; exit 1; }
 
 here=$(cd "$(dirname "$0")" && pwd)
 job_script="${SLUICE_JOB_SCRIPT:-$here/../../jobs/slurm/sluice-solve.sbatch}"
@@ -64,17 +65,17 @@ case "$model" in /*) ;; *) model="$PWD/$model" ;; esac
 
 # ---- prerequisites -------------------------------------------------------------
 
-[ -f "$job_script" ] || skip "job script not found: $job_script"
-[ -x "$bin" ] || skip "sluice binary not executable: $bin"
-[ -r "$model" ] || skip "model file not readable: $model"
+[ -f "$job_script" ] || prereq_fail "job script not found: $job_script"
+[ -x "$bin" ] || prereq_fail "sluice binary not executable: $bin"
+[ -r "$model" ] || prereq_fail "model file not readable: $model"
 for tool in setsid ps awk; do
-    command -v "$tool" >/dev/null 2>&1 || skip "'$tool' is not installed"
+    command -v "$tool" >/dev/null 2>&1 || prereq_fail "'$tool' is not installed"
 done
-[ -n "${EPOCHREALTIME:-}" ] || skip "bash 5 or newer is needed (EPOCHREALTIME)"
+[ -n "${EPOCHREALTIME:-}" ] || prereq_fail "bash 5 or newer is needed (EPOCHREALTIME)"
 help=$("$bin" solve --help 2>&1)
 case "$help" in
     *--checkpoint*) ;;
-    *) skip "'sluice solve --help' does not mention --checkpoint: checkpoints not supported by this build" ;;
+    *) prereq_fail "'sluice solve --help' does not mention --checkpoint: checkpoints not supported by this build" ;;
 esac
 
 py=""
@@ -83,7 +84,7 @@ for cand in "${PYTHON:-}" python3 /usr/bin/python3; do
     if "$cand" -c 'import h5py, numpy' >/dev/null 2>&1; then py=$cand; break; fi
 done
 if [ -z "$py" ] && ! command -v h5dump >/dev/null 2>&1; then
-    skip "neither python3 with h5py nor h5dump is available to read solution files"
+    prereq_fail "neither python3 with h5py nor h5dump is available to read solution files"
 fi
 
 launcher="${SLUICE_TEST_LAUNCHER:-}"
@@ -106,7 +107,7 @@ fi
 # The warning signal the script asks Slurm for (#SBATCH --signal=B:SIG@SECONDS)
 warn_sig=$(sed -n 's/^#SBATCH --signal=B:\([A-Z0-9]*\)@.*/\1/p' "$job_script" | head -n 1)
 warn_sig=${warn_sig#SIG}
-[ -n "$warn_sig" ] || skip "no '#SBATCH --signal=B:SIG@SECONDS' line in $job_script"
+[ -n "$warn_sig" ] || prereq_fail "no '#SBATCH --signal=B:SIG@SECONDS' line in $job_script"
 
 # ---- stand-in Slurm environment ---------------------------------------------------
 

@@ -16,7 +16,7 @@ add_test(NAME jobs_pbs_standin COMMAND bash ${PROJECT_SOURCE_DIR}/tests/jobs/pbs
 add_test(NAME jobs_slurm_real COMMAND bash ${PROJECT_SOURCE_DIR}/tests/jobs/slurm_test.sh
          $<TARGET_FILE:sluice> ${_jobs_dir}/slurm.h5 ${_jobs_dir}/slurm)
 set_tests_properties(jobs_slurm_standin jobs_pbs_standin PROPERTIES LABELS jobs TIMEOUT 1800
-                     SKIP_RETURN_CODE 77 RUN_SERIAL TRUE FIXTURES_REQUIRED jobs_big
+                     RUN_SERIAL TRUE FIXTURES_REQUIRED jobs_big
                      ENVIRONMENT "${SLUICE_TEST_ENV}")
 set_tests_properties(jobs_slurm_real PROPERTIES LABELS jobs TIMEOUT 1200 SKIP_RETURN_CODE 77
                      RUN_SERIAL TRUE FIXTURES_REQUIRED jobs_big ENVIRONMENT "${SLUICE_TEST_ENV}")

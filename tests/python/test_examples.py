@@ -300,6 +300,14 @@ def main():
     chk = mc.Checker("test_examples")
     if mc.launcher():
         chk.note("launch prefix: %s" % " ".join(mc.launcher()))
+    # the turbine-wear twin is the reference for the model sluice builds:
+    # its entries worked out by hand and its self-consistency come first
+    # (a wrong twin would make the comparisons below meaningless)
+    msg = tw._hand_checks()
+    chk.check(msg is None, "turbine_wear twin: entries worked out by hand", msg or "")
+    for prm in tw.CASES:
+        msg = tw._self_check(prm)
+        chk.check(msg is None, "turbine_wear twin: self-check %s" % (prm or "defaults"), msg or "")
     fingerprints = {}
     for case_no, (name, params, tol) in enumerate(CASES):
         check_case(chk, binary, work, case_no, name, params, tol, methods, fingerprints)
