@@ -1,5 +1,6 @@
 /* core.c - context, errors, agreement across ranks, allocation, atomic files. */
 #define _POSIX_C_SOURCE 200809L
+#define _GNU_SOURCE /* fallocate */
 #include "core/core.h"
 
 #include <errno.h>
@@ -254,6 +255,48 @@ sl_status sl_outfile_begin(sl_ctx *ctx, sl_outfile *of, const char *path)
     return SL_OK;
 }
 
+sl_status sl_outfile_reserve(sl_ctx *ctx, sl_outfile *of, double bytes)
+{
+    sl_status st = SL_OK;
+    if (ctx->rank == 0) {
+        /* HDF5's MPI-IO driver truncates an existing file only when it is not
+         * empty: an empty file with blocks reserved past its end keeps them */
+        int fd = open(of->tmp_path, O_WRONLY | O_CREAT | O_TRUNC | O_CLOEXEC, 0666);
+        if (fd < 0)
+            return sl_agree(ctx, SL_ERR(ctx, SL_ECANTCREAT, "%s: cannot create %s: %s", of->final_path, of->tmp_path,
+                                        strerror(errno)));
+        int e = 0;
+#ifdef FALLOC_FL_KEEP_SIZE
+        if (bytes > 0) {
+            off_t len = bytes < 9.2e18 ? (off_t)bytes : (off_t)9200000000000000000LL;
+            /* test hook: SLUICE_FAULT_NO_RESERVE=1 behaves as a file system
+             * without fallocate (tests/cli/bad_input_more.sh) */
+            const char *nr = getenv("SLUICE_FAULT_NO_RESERVE");
+            if (nr != NULL && strcmp(nr, "1") == 0)
+                e = EOPNOTSUPP;
+            else
+                while ((e = fallocate(fd, FALLOC_FL_KEEP_SIZE, 0, len) == 0 ? 0 : errno) == EINTR) continue;
+        }
+#else
+        (void)bytes;
+        e = EOPNOTSUPP;
+#endif
+        if (e == 0)
+            of->reserved = 1;
+        else if (e == ENOSPC || e == EFBIG || e == EDQUOT)
+            st = SL_ERR(ctx, SL_EIO,
+                        "%s: not enough free space to reserve %.3f MB for writing it (%s; another program may "
+                        "be filling the disk); nothing written",
+                        of->final_path, bytes / 1e6, strerror(e));
+        else if (e != EOPNOTSUPP && e != ENOSYS && e != EINVAL)
+            st = SL_ERR(ctx, SL_EIO, "%s: reserving disk space for %s: %s", of->final_path, of->tmp_path,
+                        strerror(e));
+        if (close(fd) != 0 && st == SL_OK)
+            st = SL_ERR(ctx, SL_EIO, "%s: close failed: %s", of->tmp_path, strerror(errno));
+    }
+    return sl_agree(ctx, st);
+}
+
 sl_status sl_outfile_end(sl_ctx *ctx, sl_outfile *of, sl_status st)
 {
     st = sl_agree(ctx, st);
@@ -262,7 +305,12 @@ sl_status sl_outfile_end(sl_ctx *ctx, sl_outfile *of, sl_status st)
         if (st == SL_OK) {
             char dir[4096];
             dir_of(of->final_path, dir, sizeof(dir));
-            fs = fsync_path(ctx, of->tmp_path, 0);
+            /* give back what the reservation held past the file's end (a
+             * truncate to the same size frees it on ext4, xfs and tmpfs) */
+            struct stat sb;
+            if (of->reserved && stat(of->tmp_path, &sb) == 0 && truncate(of->tmp_path, sb.st_size) != 0)
+                fs = SL_ERR(ctx, SL_EIO, "%s: releasing reserved space: %s", of->tmp_path, strerror(errno));
+            if (fs == SL_OK) fs = fsync_path(ctx, of->tmp_path, 0);
             if (fs == SL_OK && rename(of->tmp_path, of->final_path) != 0)
                 fs = SL_ERR(ctx, SL_ECANTCREAT, "%s: cannot rename into place: %s",
                             of->final_path, strerror(errno));

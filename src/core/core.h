@@ -88,8 +88,15 @@ static inline uint64_t sl_mix64(uint64_t x)
 typedef struct sl_outfile {
     char final_path[4096];
     char tmp_path[4096];
+    int reserved;           /* rank 0: disk space reserved beyond the temporary's end */
 } sl_outfile;
 sl_status sl_outfile_begin(sl_ctx *ctx, sl_outfile *of, const char *path);
+/* Create the (empty) temporary and reserve `bytes` of disk space for it
+ * without changing its size (Linux fallocate, FALLOC_FL_KEEP_SIZE), so that
+ * another program filling the disk while the file is written cannot make
+ * the writes fail. ENOSPC: a clean SL_EIO, nothing written. A file system
+ * without fallocate: no reservation, not an error. Collective. */
+sl_status sl_outfile_reserve(sl_ctx *ctx, sl_outfile *of, double bytes);
 /* Commit if st == SL_OK (fsync file, rename, fsync directory), else remove
  * the temporary. Returns the (possibly new) status, agreed. */
 sl_status sl_outfile_end(sl_ctx *ctx, sl_outfile *of, sl_status st);

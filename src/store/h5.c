@@ -1,5 +1,11 @@
 /* h5.c - checked parallel HDF5 adapters. */
+#define _GNU_SOURCE /* memfd_create */
 #include "store/h5.h"
+
+#include <dirent.h>
+#include <limits.h>
+#include <stdlib.h>
+#include <sys/mman.h>
 
 #include <errno.h>
 #include <string.h>
@@ -57,11 +63,57 @@ sl_status sl_h5_close(sl_ctx *ctx, hid_t *file, const char *path)
     sl_status st = SL_OK;
     if (*file < 0) return SL_OK;
     if (H5Fflush(*file, H5F_SCOPE_GLOBAL) < 0)
-        st = SL_ERR(ctx, SL_EIO, "%s: flushing the file failed (disk full?)", path);
-    if (H5Fclose(*file) < 0 && st == SL_OK)
-        st = SL_ERR(ctx, SL_EIO, "%s: closing the file failed (disk full?)", path);
+        st = SL_ERR(ctx, SL_EIO, "%s: writing the file failed (disk full or an I/O error?); nothing written", path);
+    /* a failed flush leaves the file open for sl_h5_discard: H5Fclose would
+     * flush again, fail, and leave a half-destroyed file that HDF5 1.10
+     * closes a second time at exit (segfault in H5F__close_cb) */
+    SL_TRY(sl_agree(ctx, st));
+    if (H5Fclose(*file) < 0) st = SL_ERR(ctx, SL_EIO, "%s: closing the file failed (disk full?)", path);
     *file = H5I_INVALID_HID;
+cleanup:
     return st;
+}
+
+/* Point every descriptor this process holds on `path` at an anonymous
+ * in-memory file (Linux memfd), so that whatever is still written to it
+ * succeeds and goes nowhere. Best effort: without /proc or memfd nothing
+ * changes. */
+static void divert_to_memory(const char *path)
+{
+    char want[PATH_MAX], link[64], got[PATH_MAX];
+    if (realpath(path, want) == NULL) return;
+    DIR *d = opendir("/proc/self/fd");
+    if (d == NULL) return;
+    int mfd = memfd_create("sluice-discarded-output", MFD_CLOEXEC);
+    struct dirent *e;
+    while (mfd >= 0 && (e = readdir(d)) != NULL) {
+        char *end;
+        long n = strtol(e->d_name, &end, 10);
+        if (end == e->d_name || *end != '\0' || n == dirfd(d) || n == mfd) continue;
+        snprintf(link, sizeof(link), "/proc/self/fd/%ld", n);
+        ssize_t k = readlink(link, got, sizeof(got) - 1);
+        if (k <= 0) continue;
+        got[k] = '\0';
+        if (strcmp(got, want) == 0 && dup2(mfd, (int)n) < 0) continue; /* left as it was */
+    }
+    if (mfd >= 0) close(mfd);
+    closedir(d);
+}
+
+void sl_h5_discard(sl_ctx *ctx, hid_t *file, const char *tmp_path)
+{
+    if (*file < 0) return;
+    /* The content is thrown away, but H5Fclose still flushes HDF5's cached
+     * metadata. On a disk that is full (or failing) that flush fails, and
+     * HDF5 1.10 then leaves a half-destroyed file object behind that it
+     * closes again in MPI_Finalize: a segfault in H5F__close_cb (exit 139)
+     * after the error was reported. So the flush is sent to memory: each
+     * rank diverts its own descriptors of the temporary, which is removed
+     * afterwards anyway (sl_outfile_end). */
+    divert_to_memory(tmp_path);
+    MPI_Barrier(ctx->comm);
+    H5Fclose(*file);
+    *file = H5I_INVALID_HID;
 }
 
 hid_t sl_h5_str_type(size_t n)
@@ -259,7 +311,7 @@ sl_status sl_h5_write_1d(sl_ctx *ctx, hid_t file, const char *name, hid_t ftype,
     }
     if (st == SL_OK) {
         dset = H5Dcreate2(file, name, ftype, fspace, H5P_DEFAULT, dcpl, H5P_DEFAULT);
-        if (dset < 0) st = SL_ERR(ctx, SL_EIO, "%s: cannot create dataset %s", path, name);
+        if (dset < 0) st = SL_ERR(ctx, SL_EIO, "%s: cannot create dataset %s (disk full or an I/O error?); nothing written", path, name);
     }
     if (st == SL_OK && total > 0) {
         hsize_t off = (hsize_t)offset, cnt = (hsize_t)count;
@@ -272,7 +324,7 @@ sl_status sl_h5_write_1d(sl_ctx *ctx, hid_t file, const char *name, hid_t ftype,
         if (mspace < 0 || e < 0)
             st = SL_ERR(ctx, SL_EINTERNAL, "%s: selection failed for %s", path, name);
         else if (H5Dwrite(dset, mtype, mspace, fspace, dxpl, count > 0 ? buf : (const void *)&dims) < 0)
-            st = SL_ERR(ctx, SL_EIO, "%s: writing %s failed (disk full?)", path, name);
+            st = SL_ERR(ctx, SL_EIO, "%s: writing %s failed (disk full or an I/O error?); nothing written", path, name);
     }
     if (mspace >= 0) H5Sclose(mspace);
     if (dset >= 0) H5Dclose(dset);
@@ -339,7 +391,7 @@ sl_status sl_h5_space_check(sl_ctx *ctx, const char *path, double bytes)
         else *slash = '\0';
         struct statvfs v;
         /* room for the temporary next to the file, plus 1 MiB for HDF5's own metadata */
-        double need = bytes + 1048576.0;
+        double need = bytes + SL_H5_METADATA_ALLOWANCE;
         if (statvfs(dir, &v) == 0 && (double)v.f_bavail * (double)v.f_frsize < need)
             st = SL_ERR(ctx, SL_EIO,
                         "%s: not enough free space in %s: writing needs up to %.3f MB (uncompressed bound), "

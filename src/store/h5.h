@@ -14,6 +14,9 @@ sl_status sl_h5_open(sl_ctx *ctx, const char *path, int writable, hid_t *file);
 sl_status sl_h5_create(sl_ctx *ctx, const char *path, hid_t *file);
 /* Flush (collective) and close; records an error if either fails. */
 sl_status sl_h5_close(sl_ctx *ctx, hid_t *file, const char *path);
+/* Close a file whose content is thrown away (after an error), with its
+ * temporary truncated first so the close needs next to no space. Collective. */
+void sl_h5_discard(sl_ctx *ctx, hid_t *file, const char *tmp_path);
 
 /* Attributes on the root group or any object (scalars / strings). Writes are
  * collective with identical values on all ranks. */
@@ -42,6 +45,8 @@ sl_status sl_h5_write_1d(sl_ctx *ctx, hid_t file, const char *name, hid_t ftype,
  * that fills the disk (it crashes at exit), so a file that cannot fit is
  * refused up front; a disk filled by someone else meanwhile is not caught.
  * Collective (rank 0 looks). */
+/* room HDF5's own metadata may take beyond the data (1 MiB) */
+#define SL_H5_METADATA_ALLOWANCE 1048576.0
 sl_status sl_h5_space_check(sl_ctx *ctx, const char *path, double bytes);
 /* A 1-D dataset NAME of type class CLS with EXPECTED entries, or an error
  * naming the dataset (missing, wrong class, not 1-D, wrong length). */

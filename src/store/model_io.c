@@ -161,14 +161,17 @@ sl_status sl_store_model_write(sl_ctx *ctx, const char *path, const sl_meta *m,
     int use32 = m->n_states <= (int64_t)UINT32_MAX;
 
     /* uncompressed bound: pointers, actions, rewards, targets, probabilities */
-    SL_TRY(sl_h5_space_check(ctx, path, 8.0 * (double)(m->n_states + 1) + 20.0 * (double)m->n_pairs + 8.0 +
-                                            (use32 ? 12.0 : 16.0) * (double)m->n_trans));
+    double need = 8.0 * (double)(m->n_states + 1) + 20.0 * (double)m->n_pairs + 8.0 +
+                  (use32 ? 12.0 : 16.0) * (double)m->n_trans;
+    SL_TRY(sl_h5_space_check(ctx, path, need));
+    need += SL_H5_METADATA_ALLOWANCE;
     SL_TRY(sl_outfile_begin(ctx, &of, path));
     if (use32 && SL_ALLOC(ctx, t32, nt, "target buffer") == NULL) st = SL_ENOMEM;
     st = sl_agree(ctx, st);
     if (st != SL_OK) goto cleanup;
     if (use32)
         for (int64_t t = 0; t < nt; t++) t32[t] = (uint32_t)b->target[t];
+    SL_TRY(sl_outfile_reserve(ctx, &of, need));
     SL_TRY(sl_h5_create(ctx, of.tmp_path, &f));
 
     const char *p = path;
@@ -207,7 +210,7 @@ sl_status sl_store_model_write(sl_ctx *ctx, const char *path, const sl_meta *m,
     if (m->format_version >= 2) SL_TRY(write_annotations(ctx, f, m, b, p));
     st = sl_h5_close(ctx, &f, p);
 cleanup:
-    if (f >= 0) H5Fclose(f);
+    sl_h5_discard(ctx, &f, of.tmp_path);
     free(t32);
     return sl_outfile_end(ctx, &of, st);
 }

@@ -111,8 +111,10 @@ sl_status sl_store_solution_write_ex(sl_ctx *ctx, const char *path, sl_file_kind
     sl_status st = SL_OK;
     sl_outfile of;
     hid_t f = H5I_INVALID_HID;
-    SL_TRY(sl_h5_space_check(ctx, path, 12.0 * (double)n_states + 64.0 * (double)(hist ? hist->n : 0)));
+    double need = 12.0 * (double)n_states + 64.0 * (double)(hist ? hist->n : 0);
+    SL_TRY(sl_h5_space_check(ctx, path, need));
     SL_TRY(sl_outfile_begin(ctx, &of, path));
+    SL_TRY(sl_outfile_reserve(ctx, &of, need + SL_H5_METADATA_ALLOWANCE));
     SL_TRY(sl_h5_create(ctx, of.tmp_path, &f));
     const char *p = path;
     st = sl_h5_attr_write_str(ctx, f, "sluice_format", kind_str(kind), p);
@@ -154,7 +156,7 @@ sl_status sl_store_solution_write_ex(sl_ctx *ctx, const char *path, sl_file_kind
     if (extra) SL_TRY(sl_agree(ctx, extra(ctx, f, p, extra_arg)));
     st = sl_h5_close(ctx, &f, p);
 cleanup:
-    if (f >= 0) H5Fclose(f);
+    sl_h5_discard(ctx, &f, of.tmp_path);
     return sl_outfile_end(ctx, &of, st);
 }
 
