@@ -398,6 +398,8 @@ SLUICE_API sl_status sl_objective_verify(const sl_model *m, const char *model_pa
 
 /* Monotonic seconds (the clock the solver's walltime uses). Local. */
 SLUICE_API double sl_clock(void);
+/* Short name of a signal the solver acts on ("TERM", "INT", "USR1", "USR2"; else "other"). */
+SLUICE_API const char *sl_signal_name(int sig);
 
 /* ==== results a planner can read (issue 9) ==============================
  * Units, outcome quantities, tables and outlooks. Kept in one block at the

@@ -29,6 +29,17 @@ int cli_usage_error(cli_args *a, const char *fmt, ...) __attribute__((format(pri
 /* Report a library failure (rank 0) and return its exit code. */
 int cli_fail(cli_args *a, sl_status st);
 
+/* Stop and checkpoint signals of `sluice solve` (signals.c): USR1 asks for
+ * a checkpoint, TERM, INT and USR2 for a stop. Install catches them (and
+ * unblocks them) from the first line of main(); intact says whether the
+ * handlers are still ours (after MPI_Init); attach hands the flag to the
+ * library; stop_requested reports a stop request and its arrival
+ * (CLOCK_MONOTONIC, the clock of sl_clock()). */
+int cli_signals_install(void);
+int cli_signals_intact(void);
+void cli_signals_attach(sl_ctx *ctx);
+int cli_signals_stop_requested(int *sig, double *arrived);
+
 int cmd_build(cli_args *a);
 int cmd_import(cli_args *a);
 int cmd_estimate(cli_args *a);

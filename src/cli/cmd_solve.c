@@ -31,43 +31,6 @@ typedef struct solve_args {
     double aperiodicity;        /* average */
 } solve_args;
 
-/* The CLI's one piece of process state: what the last signal asked for, and
- * which signal it was and when it arrived (CLOCK_MONOTONIC s, us), written
- * before the flag so the solver can log both on its own clock. */
-static volatile sig_atomic_t stop_flag;
-static volatile sig_atomic_t stop_info[3];
-
-static void on_signal(int sig)
-{
-    struct timespec ts;
-    if (clock_gettime(CLOCK_MONOTONIC, &ts) == 0) { /* async-signal-safe (POSIX) */
-        stop_info[1] = (sig_atomic_t)ts.tv_sec;
-        stop_info[2] = (sig_atomic_t)(ts.tv_nsec / 1000);
-        stop_info[0] = sig;
-    }
-    if (sig == SIGUSR1) {
-        if (stop_flag < 1) stop_flag = 1;
-    } else {
-        stop_flag = 2;
-    }
-}
-
-static void install_signals(sl_ctx *ctx)
-{
-    struct sigaction sa;
-    memset(&sa, 0, sizeof(sa));
-    sa.sa_handler = on_signal;
-    sigemptyset(&sa.sa_mask);
-    sa.sa_flags = SA_RESTART;
-    sigaction(SIGUSR1, &sa, NULL);
-    sigaction(SIGUSR2, &sa, NULL);
-    sigaction(SIGTERM, &sa, NULL);
-    sigaction(SIGINT, &sa, NULL);
-    sl_ctx_set_signal_flag(ctx, &stop_flag);
-    sl_ctx_set_signal_info(ctx, stop_info);
-}
-
-
 static int num_opt(cli_args *a, const char *name, double *out)
 {
     const char *v = cli_value(a);
@@ -267,6 +230,28 @@ static void print_summary(cli_args *a, const solve_args *o, const sl_model *m, c
                "               and local regulations.\n");
 }
 
+/* A stop signal (TERM, INT, USR2) that arrived before the solver started:
+ * nothing has been computed, so nothing is written and no checkpoint is
+ * touched; exit 75 (stopped early) with a line that says so. The flag is
+ * seen by every rank of a run under mpirun only if each got the signal
+ * (mpirun forwards it to all); the decision is agreed. Collective. */
+static int startup_stop(cli_args *a, const char *when)
+{
+    int sig = 0;
+    double arrived = 0;
+    int mine = cli_signals_stop_requested(&sig, &arrived);
+    /* the signal and its time (after this rank's start) from a rank that got it */
+    double in[2] = {mine ? (double)sig : 0.0, mine ? arrived - a->start_clock : -1.0}, out[2];
+    MPI_Allreduce(in, out, 2, MPI_DOUBLE, MPI_MAX, MPI_COMM_WORLD); /* main's communicator */
+    if (out[0] == 0.0) return 0;
+    if (sl_ctx_rank(a->ctx) == 0)
+        fprintf(stderr, "sluice solve: signal %d (%s) arrived during start-up, %s (%.3f s after the process "
+                        "started): stopped before the first iteration; no solution written, checkpoints "
+                        "untouched\n",
+                (int)out[0], sl_signal_name((int)out[0]), when, out[1]);
+    return SL_ESTOPPED;
+}
+
 static int run_solve(cli_args *a, const solve_args *o)
 {
     sl_ctx *ctx = a->ctx;
@@ -275,7 +260,9 @@ static int run_solve(cli_args *a, const solve_args *o)
     sl_solution *x = NULL;
     monitor_state ms = {a, o, 0, -1e300};
     ms.every = o->progress_every > 0 ? o->progress_every : (a->stderr_tty ? 1.0 : 30.0);
-    int rc = cli_fail(a, sl_model_load(ctx, o->model, &m));
+    int rc = startup_stop(a, "before the model was loaded");
+    if (rc == 0) rc = cli_fail(a, sl_model_load(ctx, o->model, &m));
+    if (rc == 0) rc = startup_stop(a, "while the model was loaded");
     if (rc == 0 && sl_model_objective(m) != SL_OBJ_DISCOUNTED) {
         /* finite, total, average: docs/objectives.md */
         sl_objective_opts oo;
@@ -424,7 +411,6 @@ int cmd_solve(cli_args *a)
             if (left > 0) o.walltime = left;
         }
     }
-    install_signals(a->ctx);
     return run_solve(a, &o);
 }
 

@@ -119,11 +119,20 @@ int cli_int64(cli_args *a, const char *opt, const char *s, int64_t *out)
 int main(int argc, char **argv)
 {
     double start_clock = sl_clock();
+    /* `solve` stops cleanly on TERM, INT and USR2 and checkpoints on USR1:
+     * caught from here on, before MPI_Init and the model load (a signal in
+     * the dynamic loader's time before main() still ends the process with
+     * the default action). The other commands keep the default actions. */
+    int is_solve = argc >= 2 && strcmp(argv[1], "solve") == 0;
+    if (is_solve && !cli_signals_install()) fprintf(stderr, "sluice: warning: cannot install signal handlers\n");
     int provided = 0;
     if (MPI_Init_thread(&argc, &argv, MPI_THREAD_SINGLE, &provided) != MPI_SUCCESS) {
         fprintf(stderr, "sluice: MPI initialisation failed\n");
         return SL_EINTERNAL;
     }
+    /* MPI_Init may install handlers of its own: ours must stay in place */
+    if (is_solve && !cli_signals_intact() && !cli_signals_install())
+        fprintf(stderr, "sluice: warning: cannot install signal handlers\n");
     int rank = 0;
     MPI_Comm_rank(MPI_COMM_WORLD, &rank);
     int rc = 0;
@@ -170,6 +179,7 @@ int main(int argc, char **argv)
         return SL_EINTERNAL;
     }
     sl_ctx_set_log(ctx, stderr);
+    if (is_solve) cli_signals_attach(ctx);
     cli_args a = {argc, argv, 2, argv[1], ctx, start_clock, isatty(STDERR_FILENO)};
     rc = fn(&a);
     sl_ctx_free(&ctx);

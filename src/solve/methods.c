@@ -167,7 +167,7 @@ static double stop_deadline(const run *r)
     return origin + r->o->walltime - margin;
 }
 
-static const char *signal_name(int sig)
+const char *sl_signal_name(int sig)
 {
     switch (sig) {
     case SIGUSR1: return "USR1";
@@ -231,7 +231,7 @@ static int poll(run *r)
             double at = (double)in[1] + 1e-6 * (double)in[2] - c0;
             sl_log(r->ctx, "solve: signal %d (%s) arrived at %.3f s; acted on at the sweep boundary at %.3f s "
                            "(iteration %lld; previous boundary %s)",
-                   (int)in[0], signal_name((int)in[0]), at, now - c0, (long long)r->S.iteration, prev);
+                   (int)in[0], sl_signal_name((int)in[0]), at, now - c0, (long long)r->S.iteration, prev);
         } else {
             sl_log(r->ctx, "solve: stop/checkpoint flag seen at the sweep boundary at %.3f s (iteration %lld; "
                            "previous boundary %s)",
