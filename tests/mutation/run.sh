@@ -24,7 +24,7 @@ S=$W/src
 B=$W/build
 export OMPI_ALLOW_RUN_AS_ROOT=1 OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1
 
-# ID~file~exact text~replacement~CTest regex of the subset that must fail~what the mutation breaks
+# ID~file~exact text~replacement~CTest regex of the subset that must fail~what the mutation breaks[~ENV=VALUE for the subset]
 mutations() {
 cat <<'M'
 M1~src/solve/kernel.c~c->value_error = 0.5 * f * c->span + fp;~c->value_error = 0.005 * f * c->span + fp;~^py_certificate$~solve's certificate: value bound 100x too small
@@ -34,8 +34,8 @@ M4~src/model/model.c~if (fabs(sum - 1.0) > tol)~if (0)~^cli_bad_input_datasets$~
 M5~src/model/model.c~if (p1 < p0)~if (p1 < p0 - 1000000)~^cli_bad_input_datasets$~model reader: decreasing /state/first_pair accepted
 M6~src/model/model.c~b->target[t] < 0 || b->target[t] >= m->n_states~b->target[t] < 0 || b->target[t] > m->n_states~^cli_bad_input_datasets$~model reader: off-by-one in the next-state bound
 M7~src/store/h5.c~} else if (H5Tget_class(t) != cls) {~} else if (0) {~^cli_bad_input_datasets$~model reader: dataset class check removed
-M8~src/solve/methods.c~if (r->ctx->signal_flag) flag = *r->ctx->signal_flag;~if (r->ctx->signal_flag && (r->S.iteration & 1)) flag = *r->ctx->signal_flag;~^cli_checkpoint_signals$~solver: acts on a signal only at every other sweep boundary
-M9~src/solve/methods.c~due = r->o->walltime - margin;~due = r->o->walltime - 0.5 * margin;~^cli_checkpoint_signals$~solver: --walltime stop due with half the documented margin
+M8~src/solve/methods.c~if (r->ctx->signal_flag) flag = *r->ctx->signal_flag;~if (r->ctx->signal_flag && (r->S.iteration & 1)) flag = *r->ctx->signal_flag;~^cli_checkpoint_signals$~solver: acts on a signal only at every other sweep boundary~CK_SIGNALS_QUICK=1
+M9~src/solve/methods.c~due = r->o->walltime - margin;~due = r->o->walltime - 0.5 * margin;~^cli_checkpoint_signals$~solver: --walltime stop due with half the documented margin~CK_SIGNALS_QUICK=1
 M10~src/store/checkpoint.c~if (st == SL_OK && ver > SLUICE_FORMAT_VERSION) {~if (st == SL_OK && ver > SLUICE_FORMAT_VERSION + 1) {~^cli_bad_input_datasets$~checkpoint of a newer format accepted
 M11~src/store/checkpoint.c~if (strcmp(a, cvs) != 0 || strcmp(b, cps) != 0)~if (0)~^cli_checkpoint_corrupt$~checkpoint checksums not compared
 M12~src/store/checkpoint.c~if (fcntl(*fd, F_SETLK, &lk) != 0) {~if (0) {~^cli_bad_input_datasets$~checkpoint directory lock never refused
@@ -45,6 +45,9 @@ M15~src/solve/evaluate.c~loss = sl_max(ctx, loss) + 2.0 * f * fp + fp;~loss = 0.
 M16~src/solve/evaluate.c~double e = fmax(fabs(d + f * c.dmin), fabs(d + f * c.dmax));~double e = fmin(fabs(d + f * c.dmin), fabs(d + f * c.dmax));~^py_bounds$~verify: value bound takes the nearer end of the interval (a flipped comparison)
 M17~src/solve/evaluate.c~c.value_error = sl_policy_residual_bound(ctx, &P, x, pol) / (1.0 - P.gamma)~c.value_error = 0.01 * sl_policy_residual_bound(ctx, &P, x, pol) / (1.0 - P.gamma)~^py_bounds$~direct evaluate: error bound 100x too small
 M18~src/solve/evaluate.c~if (c->value_error <= tol) {~if (c->value_error <= 100 * tol) {~^py_evaluate$~iterative evaluate: stops at 100x its tolerance
+M19~src/cli/signals.c~if (sigprocmask(SIG_UNBLOCK, &set, NULL) != 0) ok = 0;~if (0) ok = 0;~^cli_bad_input_more$~solve: start-up signals inherited as blocked stay blocked
+M20~src/cli/cmd_solve.c~    if (out[0] == 0.0) return 0;~    return 0;~^cli_bad_input_more$~solve: a stop requested during start-up is not noticed before solving
+M21~src/core/core.c~while ((e = fallocate(fd, FALLOC_FL_KEEP_SIZE, 0, len) == 0 ? 0 : errno) == EINTR) continue;~e = EOPNOTSUPP;~^cli_bad_input_more$~writers: no disk space reserved before writing (the write fails when another program fills the disk)
 M
 }
 
@@ -63,18 +66,19 @@ cmake -S "$S" -B "$B" -DCMAKE_BUILD_TYPE=RelWithDebInfo -DSLUICE_WERROR=OFF >"$W
     nice cmake --build "$B" -j2 >"$W/build.log" 2>&1 || { echo "baseline build failed: $W/build.log"; exit 1; }
 
 # baseline: every subset passes on the unmodified code
-subsets=$(mutations | awk -F'~' -v only="$only" 'only == "  " || index(only, " " $1 " ") { print $5 }' | sort -u)
-for re in $subsets; do
-    if (cd "$B" && nice ctest -R "$re" >"$W/baseline.$(echo "$re" | tr -c 'a-z0-9' _).log" 2>&1); then
-        log "baseline ok: $re"
+subsets=$(mutations | awk -F'~' -v only="$only" 'only == "  " || index(only, " " $1 " ") { print $5 "~" $7 }' | sort -u)
+for sub in $subsets; do
+    re=${sub%%~*} envs=${sub#*~}
+    if (cd "$B" && env $envs nice ctest -R "$re" >"$W/baseline.$(echo "$sub" | tr -c 'a-zA-Z0-9' _).log" 2>&1); then
+        log "baseline ok: $re${envs:+ ($envs)}"
     else
-        log "BASELINE FAILS: $re (see $W/baseline.*.log); a mutation score would mean nothing"
+        log "BASELINE FAILS: $re${envs:+ ($envs)} (see $W/baseline.*.log); a mutation score would mean nothing"
         exit 1
     fi
 done
 
 caught=0 survived=0 total=0
-while IFS='~' read -r id file old new re what; do
+while IFS='~' read -r id file old new re what envs; do
     [ -n "$id" ] || continue
     case $only in "  ") ;; *" $id "*) ;; *) continue ;; esac
     cp -p "$S/$file" "$W/orig"
@@ -95,7 +99,7 @@ PY
     if ! nice cmake --build "$B" -j2 >"$W/$id.build.log" 2>&1; then
         log "$id caught by the compiler: $what"
         caught=$((caught + 1))
-    elif (cd "$B" && nice ctest -R "$re" --output-on-failure >"$W/$id.ctest.log" 2>&1); then
+    elif (cd "$B" && env $envs nice ctest -R "$re" --output-on-failure >"$W/$id.ctest.log" 2>&1); then
         log "$id SURVIVED ($re passed): $what"
         survived=$((survived + 1))
     else
