@@ -11,11 +11,7 @@
 . "$(dirname "$0")/lib.sh"
 sl_setup "$@"
 
-G=$W/good.h5
-S=$W/sol.h5
-expect "setup: a small reservoir model builds" --code 0 -- \
-    "$SLUICE" build -q "$SRC/examples/reservoir.c" --param storage_levels=20 --param inflow_classes=3 -o "$G"
-expect "setup: it solves" --code 0 -- "$SLUICE" solve -q "$G" -o "$W/good_sol.h5"
+sl_small_reservoir # $G (720 states), its solution $W/good_sol.h5, $S the output name
 
 # ---------------------------------------------------------------- model datasets
 # edit.py SRC KIND DST: a copy of SRC with one change (h5py)

@@ -146,6 +146,16 @@ expect() {
     return 1
 }
 
+# sl_small_reservoir: G = a 720-state reservoir model ($W/good.h5), solved
+# into $W/good_sol.h5; S = $W/sol.h5, the name the cases write to
+sl_small_reservoir() {
+    G=$W/good.h5
+    S=$W/sol.h5
+    expect "setup: a small reservoir model builds" --code 0 -- \
+        "$SLUICE" build -q "$SRC/examples/reservoir.c" --param storage_levels=20 --param inflow_classes=3 -o "$G"
+    expect "setup: it solves" --code 0 -- "$SLUICE" solve -q "$G" -o "$W/good_sol.h5"
+}
+
 # note_ok NAME / note_fail NAME REASON: a case checked by the script itself
 note_ok() {
     SL_PASS=$((SL_PASS + 1))
