@@ -5,6 +5,8 @@
 
 #include <errno.h>
 #include <fcntl.h>
+#include <signal.h>
+#include <stdlib.h>
 #include <string.h>
 #include <sys/stat.h>
 #include <time.h>
@@ -266,6 +268,11 @@ sl_status sl_outfile_reserve(sl_ctx *ctx, sl_outfile *of, double bytes)
             return sl_agree(ctx, SL_ERR(ctx, SL_ECANTCREAT, "%s: cannot create %s: %s", of->final_path, of->tmp_path,
                                         strerror(errno)));
         int e = 0;
+        /* test hook: SLUICE_FAULT_STOP=reserve / =write stops the process
+         * (SIGSTOP) before / after the reservation, so that a test can fill
+         * the disk at that point and let it go on (tests/cli/bad_input_more.sh) */
+        const char *stop = getenv("SLUICE_FAULT_STOP");
+        if (stop != NULL && strcmp(stop, "reserve") == 0) raise(SIGSTOP);
 #ifdef FALLOC_FL_KEEP_SIZE
         if (bytes > 0) {
             off_t len = bytes < 9.2e18 ? (off_t)bytes : (off_t)9200000000000000000LL;
@@ -281,6 +288,7 @@ sl_status sl_outfile_reserve(sl_ctx *ctx, sl_outfile *of, double bytes)
         (void)bytes;
         e = EOPNOTSUPP;
 #endif
+        if (stop != NULL && strcmp(stop, "write") == 0) raise(SIGSTOP);
         if (e == 0)
             of->reserved = 1;
         else if (e == ENOSPC || e == EFBIG || e == EDQUOT)

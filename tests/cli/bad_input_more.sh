@@ -72,52 +72,33 @@ else
 fi
 
 # Another program fills the disk while sluice writes. stopfill.py runs the
-# command, stops it (SIGSTOP) when the temporary of the output appears (with
-# --reserved: once disk blocks are reserved for it), writes a filler until
-# the file system is full to the last byte, lets the command go on (SIGCONT)
-# and exits with its status (128 + signal if killed). Exit 99: the command
-# ended before the temporary appeared (the case tested nothing).
+# command with SLUICE_FAULT_STOP=WHEN (the command stops itself, SIGSTOP,
+# just before reserving the space of its output, WHEN=reserve, or just after,
+# before HDF5 writes anything, WHEN=write), waits until it has stopped, writes
+# a filler until the file system is full to the last byte, lets the command
+# go on (SIGCONT) and exits with its status (128 + signal if killed). Exit 99:
+# the command never stopped (the case tested nothing). No timing involved.
 cat >"$W/stopfill.py" <<'PYEOF'
-import glob, os, signal, subprocess, sys, time
-args = sys.argv[1:]
-reserved = args[0] == "--reserved"
-if reserved:
-    args = args[1:]
-d, base, cmd = args[0], args[1], args[2:]
-pat = os.path.join(d, "." + base + ".*.partial")
-p = subprocess.Popen(cmd)
-hit = False
-while p.poll() is None:
-    g = glob.glob(pat)
-    try:
-        if g and (not reserved or os.stat(g[0]).st_blocks > 0):
-            os.kill(p.pid, signal.SIGSTOP)
-            hit = True
-            break
-    except OSError:
-        pass
-if hit:
-    fd = os.open(os.path.join(d, "filler"), os.O_WRONLY | os.O_CREAT, 0o644)
-    n = 0
-    try:
-        while True:
-            n += os.write(fd, b"\0" * 65536)
-    except OSError:
-        pass
-    try:
-        while True:
-            n += os.write(fd, b"\0" * 512)
-    except OSError:
-        pass
-    os.close(fd)
-    st = os.statvfs(d)
-    print("stopfill: stopped the command, filled %d bytes, %d bytes free" % (n, st.f_bavail * st.f_frsize),
-          file=sys.stderr)
-    os.kill(p.pid, signal.SIGCONT)
-rc = p.wait()
-if not hit:
-    print("stopfill: the command ended before %s appeared" % pat, file=sys.stderr)
+import os, signal, subprocess, sys
+when, d, cmd = sys.argv[1], sys.argv[2], sys.argv[3:]
+p = subprocess.Popen(cmd, env=dict(os.environ, SLUICE_FAULT_STOP=when))
+_, status = os.waitpid(p.pid, os.WUNTRACED)
+if not os.WIFSTOPPED(status):
+    print("stopfill: the command ended without stopping", file=sys.stderr)
     sys.exit(99)
+fd = os.open(os.path.join(d, "filler"), os.O_WRONLY | os.O_CREAT, 0o644)
+n = 0
+for size in (65536, 512):
+    try:
+        while True:
+            n += os.write(fd, b"\0" * size)
+    except OSError:
+        pass
+os.close(fd)
+st = os.statvfs(d)
+print("stopfill: filled %d bytes, %d bytes free" % (n, st.f_bavail * st.f_frsize), file=sys.stderr)
+os.kill(p.pid, signal.SIGCONT)
+rc = p.wait()
 sys.exit(128 - rc if rc < 0 else rc)
 PYEOF
 # fill_case: a fresh 24 MB tmpfs at $W/fill with old.h5 (a valid model) in it
@@ -131,7 +112,7 @@ if [ "$(id -u)" = 0 ] && fill_case; then
     # sluice reserves the file's space before writing (fallocate): the writes
     # cannot fail, the new model is complete
     expect "build: another program fills the disk while the model is written (space reserved first)" --code 0 \
-        --clean "$W/fill/old.h5" -- "$PY" "$W/stopfill.py" --reserved "$W/fill" old.h5 \
+        --clean "$W/fill/old.h5" -- "$PY" "$W/stopfill.py" write "$W/fill" \
         "$SLUICE" build -q "${MIDGEN[@]}" -o "$W/fill/old.h5"
     expect "info: the model written while the disk filled up is complete" --code 0 --out "19200" -- \
         "$SLUICE" info "$W/fill/old.h5"
@@ -139,17 +120,17 @@ if [ "$(id -u)" = 0 ] && fill_case; then
     fill_case
     expect "build: the disk fills before sluice could reserve its space" --code 74 --err "old.h5" \
         --err "not enough free space to reserve" --keep "$W/fill/old.h5" -- \
-        "$PY" "$W/stopfill.py" "$W/fill" old.h5 "$SLUICE" build -q "${MIDGEN[@]}" -o "$W/fill/old.h5"
+        "$PY" "$W/stopfill.py" reserve "$W/fill" "$SLUICE" build -q "${MIDGEN[@]}" -o "$W/fill/old.h5"
     # a file system without fallocate (SLUICE_FAULT_NO_RESERVE=1): the writes
     # fail mid-file; HDF5 1.10 used to crash at exit here (exit 139)
     fill_case
     expect "build: disk filled mid-write, no reservation possible" --code 74 --err "old.h5" --err "disk full" \
         --keep "$W/fill/old.h5" -- env SLUICE_FAULT_NO_RESERVE=1 \
-        "$PY" "$W/stopfill.py" "$W/fill" old.h5 "$SLUICE" build -q "${MIDGEN[@]}" -o "$W/fill/old.h5"
+        "$PY" "$W/stopfill.py" write "$W/fill" "$SLUICE" build -q "${MIDGEN[@]}" -o "$W/fill/old.h5"
     fill_case
     expect "solve: disk filled mid-write of the solution, no reservation possible" --code 74 --err "old_sol.h5" \
         --err "disk full" --keep "$W/fill/old_sol.h5" -- env SLUICE_FAULT_NO_RESERVE=1 \
-        "$PY" "$W/stopfill.py" "$W/fill" old_sol.h5 "$SLUICE" solve -q "$W/mid.h5" -o "$W/fill/old_sol.h5"
+        "$PY" "$W/stopfill.py" write "$W/fill" "$SLUICE" solve -q "$W/mid.h5" -o "$W/fill/old_sol.h5"
     expect "verify: the solution kept is still the valid old one" --code 0 -- \
         "$SLUICE" verify -q "$G" "$W/fill/old_sol.h5"
     umount "$W/fill"

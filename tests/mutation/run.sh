@@ -48,6 +48,7 @@ M18~src/solve/evaluate.c~if (c->value_error <= tol) {~if (c->value_error <= 100 
 M19~src/cli/signals.c~if (sigprocmask(SIG_UNBLOCK, &set, NULL) != 0) ok = 0;~if (0) ok = 0;~^cli_bad_input_more$~solve: start-up signals inherited as blocked stay blocked
 M20~src/cli/cmd_solve.c~    if (out[0] == 0.0) return 0;~    return 0;~^cli_bad_input_more$~solve: a stop requested during start-up is not noticed before solving
 M21~src/core/core.c~while ((e = fallocate(fd, FALLOC_FL_KEEP_SIZE, 0, len) == 0 ? 0 : errno) == EINTR) continue;~e = EOPNOTSUPP;~^cli_bad_input_more$~writers: no disk space reserved before writing (the write fails when another program fills the disk)
+M22~src/store/h5.c~    divert_to_memory(tmp_path);~    (void)tmp_path;~^cli_bad_input_more$~writers: a failed file closed without diverting HDF5's last flush (the exit-139 crash)
 M
 }
 
