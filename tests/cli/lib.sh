@@ -143,7 +143,15 @@ expect() {
     fi
     echo "#   command: $*"
     sed -n '1,12s/^/#   stderr: /p' "$se"
+    sl_fail_fast
     return 1
+}
+
+# SL_FAIL_FAST=1 (tests/mutation/run.sh, not CTest): stop at the first failure
+sl_fail_fast() {
+    [ "${SL_FAIL_FAST:-0}" = 1 ] || return 0
+    echo "# SL_FAIL_FAST=1: stopping at the first failure"
+    sl_finish
 }
 
 # sl_small_reservoir: G = a 720-state reservoir model ($W/good.h5), solved
@@ -164,6 +172,7 @@ note_ok() {
 note_fail() {
     SL_FAIL=$((SL_FAIL + 1))
     echo "not ok - $1: $2"
+    sl_fail_fast
 }
 
 # py SCRIPT ARGS...: run a Python snippet (h5py/numpy available); args in sys.argv[1:]
