@@ -171,6 +171,21 @@ def make(kind, src, dst, refp):
         elif kind == "reward":      # structurally valid, contents changed
             d = f["pair/reward"]
             d[5] = d[5] + 1.0
+        elif kind in ("prob_range", "prob_sum"):
+            # a pair with two or more successors past the model's middle:
+            # prob_range sets 1.25 and 1 - 1.25 - rest (the sum stays 1),
+            # prob_sum scales every probability of the pair by 0.9 (all in range)
+            fpr, ft = f["state/first_pair"][...], f["pair/first_transition"][...]
+            k = next(k for k in range(len(ft) // 2, len(ft) - 1) if ft[k + 1] - ft[k] >= 2)
+            d = f["transition/probability"]
+            p, t = d[...], int(ft[k])
+            if kind == "prob_range":
+                p[t], p[t + 1] = 1.25, 1.0 - 1.25 - float(np.sum(p[t + 2:ft[k + 1]]))
+            else:
+                p[t:ft[k + 1]] *= 0.9
+            d[...] = p
+            print("%s: state %d, action %d" % (kind, int(np.searchsorted(fpr, k, side="right") - 1),
+                                               int(f["pair/action"][k])))
         else:
             sys.exit("damage.py: unknown kind " + kind)
         if refp:
@@ -203,7 +218,8 @@ specs=()
 for k in no_format version3 n_states flip_reward flip_prob reward first_pair target; do
     specs+=("$k:$W/$k.h5")
 done
-specs+=("first_pair:$W/first_pairrefp.h5:refp" "target:$W/targetrefp.h5:refp" "foreign:$W/foreign.h5")
+specs+=("first_pair:$W/first_pairrefp.h5:refp" "target:$W/targetrefp.h5:refp" "foreign:$W/foreign.h5"
+        "prob_range:$W/prob_rangerefp.h5:refp" "prob_sum:$W/prob_sumrefp.h5:refp")
 if out=$("$PY" "$W/damage.py" "$G" "${specs[@]}" 2>&1) && [ "${out#fingerprint ok}" != "$out" ]; then
     note_ok "model: damaged copies made; the test's fingerprint port matches sluice's"
     HAVE_FP=1
@@ -263,6 +279,16 @@ if [ "$HAVE_FP" = 1 ]; then
     # state 10 is the one whose pair range [first_pair[10], first_pair[11]) is reversed
     expect "solve: /state/first_pair not monotone names state 10" --code 65 --err "state 10:" \
         -- "$SLUICE" solve -q "$W/first_pairrefp.h5" -o "$S"
+    # the reader's probability checks, each alone, on files whose fingerprint
+    # is right: only the check itself can refuse them (exit 65, state named)
+    sa=$(echo "$out" | sed -n 's/^prob_range: //p')
+    expect "solve: a probability 1.25 in a pair that still sums to 1 (fingerprint recomputed)" --code 65 \
+        --err "prob_rangerefp.h5" --err "${sa:-state ?}" --err "not in [0, 1]" --not "fingerprint" --gone "$S" -- \
+        "$SLUICE" solve -q "$W/prob_rangerefp.h5" -o "$S"
+    sa=$(echo "$out" | sed -n 's/^prob_sum: //p')
+    expect "solve: the probabilities of one pair sum to 0.9 (fingerprint recomputed)" --code 65 \
+        --err "prob_sumrefp.h5" --err "${sa:-state ?}" --err "sum to" --not "fingerprint" --gone "$S" -- \
+        "$SLUICE" solve -q "$W/prob_sumrefp.h5" -o "$S"
     expect "solve: next state out of range (fingerprint recomputed)" --code 65 --err "targetrefp.h5" \
         --err "next state 4320" --not "fingerprint" --gone "$S" -- \
         "$SLUICE" solve -q "$W/targetrefp.h5" -o "$S"
