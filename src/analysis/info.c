@@ -250,16 +250,90 @@ cleanup:
     return st;
 }
 
+/* Visit counts of an estimated model: totals and the pairs seen fewer than
+ * K times (rank 0 reads; at most `keep` of them listed). */
+typedef struct visit_stats {
+    int64_t K, total, min, max, thin, listed;
+    int64_t *thin_state;        /* [listed] */
+    int32_t *thin_action;
+    int64_t *thin_visits;
+} visit_stats;
+
+static void visit_stats_free(visit_stats *v)
+{
+    free(v->thin_state);
+    free(v->thin_action);
+    free(v->thin_visits);
+}
+
+static sl_status scan_visits(sl_ctx *ctx, hid_t f, const sl_meta *m, int64_t K, int64_t keep, visit_stats *v,
+                             const char *path)
+{
+    sl_status st = SL_OK;
+    int64_t *fp = NULL, *vis = NULL;
+    int32_t *act = NULL;
+    memset(v, 0, sizeof(*v));
+    v->K = K;
+    v->min = INT64_MAX;
+    if (ctx->rank == 0) {
+        const int64_t CH = 1 << 20;
+        if (SL_ALLOC(ctx, fp, m->n_states + 1, "first_pair") == NULL || SL_ALLOC(ctx, vis, CH, "visits") == NULL ||
+            SL_ALLOC(ctx, act, CH, "actions") == NULL || SL_ALLOC(ctx, v->thin_state, keep, "thin pairs") == NULL ||
+            SL_ALLOC(ctx, v->thin_action, keep, "thin pairs") == NULL ||
+            SL_ALLOC(ctx, v->thin_visits, keep, "thin pairs") == NULL)
+            st = SL_ENOMEM;
+        if (st == SL_OK)
+            st = sl_h5_read_1d(ctx, f, "/state/first_pair", H5T_NATIVE_INT64, m->n_states + 1, 0, m->n_states + 1, fp,
+                               path);
+        int64_t s = 0;
+        for (int64_t a = 0; st == SL_OK && a < m->n_pairs; a += CH) {
+            int64_t c = m->n_pairs - a < CH ? m->n_pairs - a : CH;
+            st = sl_h5_read_1d(ctx, f, "/pair/visits", H5T_NATIVE_INT64, m->n_pairs, a, c, vis, path);
+            if (st == SL_OK) st = sl_h5_read_1d(ctx, f, "/pair/action", H5T_NATIVE_INT32, m->n_pairs, a, c, act, path);
+            for (int64_t k = 0; st == SL_OK && k < c; k++) {
+                while (s < m->n_states && fp[s + 1] <= a + k) s++;
+                int64_t n = vis[k];
+                if (n < 0) {
+                    st = SL_ERR(ctx, SL_EDATA, "%s: /pair/visits: state %lld, action %d: negative count %lld", path,
+                                (long long)s, (int)act[k], (long long)n);
+                    break;
+                }
+                v->total += n;
+                if (n < v->min) v->min = n;
+                if (n > v->max) v->max = n;
+                if (n < K) {
+                    if (v->listed < keep) {
+                        v->thin_state[v->listed] = s;
+                        v->thin_action[v->listed] = act[k];
+                        v->thin_visits[v->listed] = n;
+                        v->listed++;
+                    }
+                    v->thin++;
+                }
+            }
+        }
+    }
+    st = sl_agree(ctx, st);
+    free(fp);
+    free(vis);
+    free(act);
+    return st;
+}
+
 static sl_status model_info(sl_ctx *ctx, const sl_info_opts *o)
 {
     sl_status st = SL_OK;
     sl_meta m;
     model_stats ms;
+    visit_stats vis;
     hid_t f = H5I_INVALID_HID;
     memset(&ms, 0, sizeof(ms));
+    memset(&vis, 0, sizeof(vis));
     SL_TRY(sl_store_model_meta(ctx, o->path, &m));
     SL_TRY(sl_h5_open(ctx, o->path, 0, &f));
     SL_TRY(scan_counts(ctx, f, &m, &ms, o->path));
+    const int64_t K = o->thin_below > 0 ? o->thin_below : SLUICE_THIN_BELOW;
+    if (m.has_visits) SL_TRY(scan_visits(ctx, f, &m, K, o->json ? 10000 : 20, &vis, o->path));
     for (size_t i = 0; i < sizeof(names) / sizeof(names[0]); i++) {
         double s, r;
         sl_h5_sizes(f, names[i], &s, &r);
@@ -334,6 +408,25 @@ static sl_status model_info(sl_ctx *ctx, const sl_info_opts *o)
             } else if (m.source[0]) {
                 sl_json_str(&j, "source", m.source);
             }
+            if (m.has_visits) {
+                sl_json_obj_open(&j, "visits");
+                sl_json_int(&j, "total", vis.total);
+                sl_json_int(&j, "min", vis.min);
+                sl_json_int(&j, "max", vis.max);
+                sl_json_int(&j, "thin_below", vis.K);
+                sl_json_int(&j, "thin_pairs", vis.thin);
+                sl_json_int(&j, "thin_listed", vis.listed);
+                sl_json_arr_open(&j, "thin");
+                for (int64_t k = 0; k < vis.listed; k++) {
+                    sl_json_obj_open(&j, NULL);
+                    sl_json_int(&j, "state", vis.thin_state[k]);
+                    sl_json_int(&j, "action", vis.thin_action[k]);
+                    sl_json_int(&j, "visits", vis.thin_visits[k]);
+                    sl_json_close_obj(&j);
+                }
+                sl_json_close_arr(&j);
+                sl_json_close_obj(&j);
+            }
             sl_json_end(&j);
         } else {
             fprintf(out, "%s: sluice model (format %d)\n", o->path, m.format_version);
@@ -386,6 +479,15 @@ static sl_status model_info(sl_ctx *ctx, const sl_info_opts *o)
             } else if (m.source[0]) {
                 fprintf(out, "  source        %s\n", m.source);
             }
+            if (m.has_visits) {
+                fprintf(out, "  visits        %lld logged steps; per (state, action) min %lld, max %lld\n",
+                        (long long)vis.total, (long long)vis.min, (long long)vis.max);
+                fprintf(out, "  thin pairs    %lld seen fewer than %lld times (--thin-below)%s\n", (long long)vis.thin,
+                        (long long)vis.K, vis.thin > vis.listed ? "; the first listed" : "");
+                for (int64_t k = 0; k < vis.listed; k++)
+                    fprintf(out, "    state %lld action %d: %lld visits\n", (long long)vis.thin_state[k],
+                            (int)vis.thin_action[k], (long long)vis.thin_visits[k]);
+            }
         }
     }
     if (o->partition > 0) {
@@ -395,6 +497,7 @@ static sl_status model_info(sl_ctx *ctx, const sl_info_opts *o)
     }
 cleanup:
     if (f >= 0) H5Fclose(f);
+    visit_stats_free(&vis);
     sl_meta_free(&m);
     return st;
 }

@@ -319,6 +319,8 @@ static sl_status prepare_with_policy(sl_ctx *ctx, const sl_model *m, const sl_so
     *policy = NULL;
     *value = NULL;
     SL_TRY(sl_problem_from_model(ctx, m, SL_ORDER_AUTO, 0, p));
+    /* the rewards the solution was computed with */
+    if (x != NULL) SL_TRY(sl_problem_visit_adjust(ctx, p, m, x->info.visit_adjust));
     if (x == NULL || x->action == NULL)
         st = SL_ERR(ctx, SL_EUSAGE, "%s: the solution holds no policy (a values file?)", what);
     else if (strcmp(x->info.model_fingerprint, p->meta.fingerprint) != 0)

@@ -28,6 +28,8 @@ typedef struct sl_problem {
     int staged;             /* sweeps run stage by stage on all ranks */
     double direct_time_limit; /* seconds a direct factorization may take (UMFPACK's
                                * estimate); <= 0: no limit */
+    double visit_adjust;    /* c of the reward adjustment r + c/sqrt(visits); 0: none */
+    double *own_reward;     /* the adjusted rewards (blk.reward points here), or NULL */
 } sl_problem;
 
 /* Prepare an assembled model for solving: local columns, halo and sweep
@@ -37,6 +39,12 @@ typedef struct sl_problem {
  * Collective. */
 sl_status sl_problem_from_model(sl_ctx *ctx, const sl_model *m, sl_order order, int allow_any, sl_problem *p);
 void sl_problem_free(sl_problem *p);
+/* Sensitivity to thin data (models from `estimate`, which store the visits
+ * n of every pair): replace r(s,a) by r(s,a) + c / sqrt(n) (c > 0: an
+ * optimistic bonus; c < 0: a pessimistic penalty). Pairs with n = 0 (states
+ * made absorbing for lack of data) keep their reward. c = 0: nothing. The
+ * model's rows are not touched. Collective. */
+sl_status sl_problem_visit_adjust(sl_ctx *ctx, sl_problem *p, const sl_model *m, double c);
 
 /* ---- handles ---------------------------------------------------------------- */
 
@@ -53,6 +61,7 @@ struct sl_solver {
     double memory_limit;        /* pi: bytes; 0 auto */
     int strict_memory;
     double direct_time_limit;   /* pi/evaluate: seconds; <= 0 no limit */
+    double visit_adjust;        /* r + c/sqrt(visits); 0: none */
     char *checkpoint_dir;       /* NULL: none */
     double checkpoint_every;    /* seconds; 0 -> 600 */
     int resume;
