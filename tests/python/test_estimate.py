@@ -168,7 +168,9 @@ def check_thin_and_adjust(chk, binary, work):
     sample_log(true, counts, 404, csv)
     mc.run_sluice(binary, ["estimate", csv, "--discount", gamma, "-o", model, "-q"])
     truth = {(int(true.state_of_pair[k]), int(true.action[k])): int(counts[k]) for k in range(true.n_pairs)}
-    for K in (5, 12):
+    # thresholds equal to counts that occur, so "fewer than" is told from "at most"
+    Ks = (int(np.sort(counts)[len(counts) // 4]), int(np.sort(counts)[len(counts) // 2]))
+    for K in Ks:
         cp = mc.run_sluice(binary, ["info", model, "--json", "--thin-below", K])
         vis = json.loads(cp.stdout)["visits"]
         listed = {(e["state"], e["action"]): e["visits"] for e in vis["thin"]}
@@ -176,8 +178,9 @@ def check_thin_and_adjust(chk, binary, work):
         chk.check(listed == want and vis["thin_pairs"] == len(want),
                   "info --thin-below %d lists exactly the pairs seen fewer than %d times" % (K, K),
                   "listed %s, want %s" % (sorted(listed), sorted(want)))
-    cp = mc.run_sluice(binary, ["info", model, "--thin-below", 12])
-    chk.check("thin pairs    %d seen fewer than 12 times" % sum(c < 12 for c in truth.values()) in cp.stdout,
+    K = Ks[1]
+    cp = mc.run_sluice(binary, ["info", model, "--thin-below", K])
+    chk.check("thin pairs    %d seen fewer than %d times" % (sum(c < K for c in truth.values()), K) in cp.stdout,
               "info (text) states the number of thin pairs")
 
     # bonus and penalty against numpy on the estimated model
@@ -215,11 +218,11 @@ def check_thin_and_adjust(chk, binary, work):
     # report data counts the thin pairs
     data = os.path.join(work, "thin_report.json")
     cp = mc.run_sluice(binary, ["report", model, os.path.join(work, "thin_penalty.h5"), "--data-only",
-                                "--data", data, "--thin-below", 12])
+                                "--data", data, "--thin-below", K])
     if os.path.exists(data):
         vis = json.load(open(data))["model"]["visits"]
-        chk.check(vis["thin_pairs"] == sum(cc < 12 for cc in truth.values()) and vis["thin_below"] == 12,
-                  "report data: thin_pairs is the number of pairs seen fewer than 12 times", "%s" % vis)
+        chk.check(vis["thin_pairs"] == sum(cc < K for cc in truth.values()) and vis["thin_below"] == K,
+                  "report data: thin_pairs is the number of pairs seen fewer than K = %d times" % K, "%s" % vis)
     else:
         chk.fail("report data written", cp.stderr[-500:])
 
