@@ -79,4 +79,39 @@ expect "setup: staged model with the finite objective" --code 0 -- \
 expect "finite: staged model solves" --code 0 -- "$SLUICE" solve -q "$W/ferry.h5" -o "$W/ferry_sol.h5" --horizon 3
 expect "finite: staged model's solution verifies" --code 0 --out "CERTIFIED" -- \
     "$SLUICE" verify "$W/ferry.h5" "$W/ferry_sol.h5"
+# models estimated from logged experience: visit counts, bonus and penalty
+cat >"$W/log.csv" <<'CSV'
+state,action,reward,next_state
+0,0,1,1
+0,0,1,0
+0,1,0,1
+1,0,2,0
+1,1,0,1
+CSV
+expect "setup: estimated model" --code 0 -- "$SLUICE" estimate -q "$W/log.csv" --discount 0.9 -o "$W/est.h5"
+expect "estimate: --smoothing negative" --code 64 --err "--smoothing" --gone "$O" -- \
+    "$SLUICE" estimate -q "$W/log.csv" --discount 0.9 -o "$O" --smoothing -1
+expect "solve: --visit-bonus on a model without visit counts" --code 64 --err "visit" --err "disc.h5" --gone "$O" -- \
+    "$SLUICE" solve -q "$W/disc.h5" -o "$O" --visit-bonus 1
+expect "solve: --visit-bonus and --visit-penalty together" --code 64 --err "exclude" --gone "$O" -- \
+    "$SLUICE" solve -q "$W/est.h5" -o "$O" --visit-bonus 1 --visit-penalty 1
+expect "solve: --visit-penalty not positive" --code 64 --err "--visit" --gone "$O" -- \
+    "$SLUICE" solve -q "$W/est.h5" -o "$O" --visit-penalty 0
+expect "solve: --visit-bonus with --checkpoint" --code 64 --err "checkpoint" --gone "$O" -- \
+    "$SLUICE" solve -q "$W/est.h5" -o "$O" --visit-bonus 1 --checkpoint "$W/ck_est"
+expect "solve: --visit-bonus on the average objective" --code 64 --err "--visit-bonus" --err "average" --gone "$O" -- \
+    "$SLUICE" solve -q "$W/avg.h5" -o "$O" --visit-bonus 1
+expect "info: --thin-below 0" --code 64 --err "--thin-below" -- "$SLUICE" info "$W/est.h5" --thin-below 0
+cp "$W/est.h5" "$W/est_neg.h5"
+"$PY" -c "import h5py,sys; f=h5py.File(sys.argv[1],'r+'); v=f['pair/visits'][...]; v[2]=-3; f['pair/visits'][...]=v" "$W/est_neg.h5"
+expect "solve: /pair/visits with a negative count names the state and action" --code 65 --err "pair/visits" --err "state 1" --err "action 0" --gone "$O" -- \
+    "$SLUICE" solve -q "$W/est_neg.h5" -o "$O"
+cp "$W/est.h5" "$W/est_len.h5"
+"$PY" -c "import h5py,sys; f=h5py.File(sys.argv[1],'r+'); del f['pair/visits']; f['pair/visits']=[1,2,3]" "$W/est_len.h5"
+expect "solve: /pair/visits of the wrong length" --code 65 --err "pair/visits" --gone "$O" -- \
+    "$SLUICE" solve -q "$W/est_len.h5" -o "$O"
+cp "$W/est.h5" "$W/est_more.h5"
+"$PY" -c "import h5py,sys; f=h5py.File(sys.argv[1],'r+'); v=f['pair/visits'][...]; v[0]+=5; f['pair/visits'][...]=v" "$W/est_more.h5"
+expect "solve: an edited visit count (fingerprint)" --code 65 --err "fingerprint" --err "est_more.h5" --gone "$O" -- \
+    "$SLUICE" solve -q "$W/est_more.h5" -o "$O"
 sl_finish
