@@ -298,42 +298,25 @@ cleanup:
     return st;
 }
 
+/* The reader for sl_csv_model_load: experience, then what was dropped and
+ * made absorbing. */
+static sl_status read_estimate(sl_ctx *ctx, FILE *fp, const char *name, const void *arg, sl_meta *m, sl_block *b)
+{
+    const sl_estimate_opts *opts = arg;
+    int64_t dropped = 0, absorbed = 0;
+    sl_status st = sl_csv_read_experience(ctx, fp, name, opts, m, b, &dropped, &absorbed);
+    if (st == SL_OK) {
+        sl_log(ctx, "%s: %lld (state, action) pairs seen fewer than %lld times dropped", name, (long long)dropped,
+               (long long)(opts->min_visits > 0 ? opts->min_visits : 1));
+        if (opts->unseen_absorb)
+            sl_log(ctx, "%s: %lld states without data made absorbing (reward 0)", name, (long long)absorbed);
+    }
+    return st;
+}
+
 sl_status sl_model_estimate_csv(sl_ctx *ctx, const sl_estimate_opts *opts, sl_model **out)
 {
-    sl_status st = SL_OK;
-    FILE *fp = NULL;
-    const char *name = "<input>";
-    sl_meta m;
-    sl_block b;
-    memset(&m, 0, sizeof(m));
-    memset(&b, 0, sizeof(b));
-
-    if (out == NULL) return SL_ERR(ctx, SL_EUSAGE, "sl_model_estimate_csv: no output handle");
-    *out = NULL;
-    /* the same checks on every rank, agreed inside sl_csv_adopt_model */
-    if (opts == NULL || opts->input == NULL)
-        st = SL_ERR(ctx, SL_EUSAGE, "estimate needs an experience CSV");
-    else {
-        name = strcmp(opts->input, "-") == 0 ? "<stdin>" : opts->input;
-        st = sl_csv_check_discount(ctx, opts->objective, opts->discount);
-    }
-    if (st == SL_OK && ctx->rank == 0) {
-        int64_t dropped = 0, absorbed = 0;
-        st = sl_csv_open_input(ctx, opts->input, &fp, &name);
-        if (st == SL_OK)
-            st = sl_csv_read_experience(ctx, fp, name, opts, &m, &b, &dropped, &absorbed);
-        sl_csv_close_input(&fp);
-        if (st == SL_OK) {
-            sl_log(ctx, "%s: %lld (state, action) pairs seen fewer than %lld times dropped",
-                   name, (long long)dropped,
-                   (long long)(opts->min_visits > 0 ? opts->min_visits : 1));
-            if (opts->unseen_absorb)
-                sl_log(ctx, "%s: %lld states without data made absorbing (reward 0)", name,
-                       (long long)absorbed);
-        }
-    }
-    st = sl_csv_adopt_model(ctx, st, &m, &b, name, out);
-    sl_block_free(&b);
-    sl_meta_free(&m);
-    return st;
+    return sl_csv_model_load(ctx, "sl_model_estimate_csv", opts ? opts->input : NULL,
+                             "estimate needs an experience CSV", opts ? opts->objective : SL_OBJ_DISCOUNTED,
+                             opts ? opts->discount : 0.0, read_estimate, opts, out);
 }

@@ -275,35 +275,20 @@ cleanup:
     return st;
 }
 
+/* The reader for sl_csv_model_load: triplets, then the renormalization count. */
+static sl_status read_import(sl_ctx *ctx, FILE *fp, const char *name, const void *arg, sl_meta *m, sl_block *b)
+{
+    const sl_import_opts *opts = arg;
+    sl_status st = sl_csv_read_triplets(ctx, fp, name, opts, m, b);
+    if (st == SL_OK && opts->renormalize)
+        sl_log(ctx, "%s: %lld of %lld pairs renormalized (probability sums within 1e-6 of 1)", name,
+               (long long)b->n_renormalized, (long long)m->n_pairs);
+    return st;
+}
+
 sl_status sl_model_import_csv(sl_ctx *ctx, const sl_import_opts *opts, sl_model **out)
 {
-    sl_status st = SL_OK;
-    FILE *fp = NULL;
-    const char *name = "<input>";
-    sl_meta m;
-    sl_block b;
-    memset(&m, 0, sizeof(m));
-    memset(&b, 0, sizeof(b));
-
-    if (out == NULL) return SL_ERR(ctx, SL_EUSAGE, "sl_model_import_csv: no output handle");
-    *out = NULL;
-    /* the same checks on every rank, agreed inside sl_csv_adopt_model */
-    if (opts == NULL || opts->input == NULL)
-        st = SL_ERR(ctx, SL_EUSAGE, "import needs an input CSV");
-    else {
-        name = strcmp(opts->input, "-") == 0 ? "<stdin>" : opts->input;
-        st = sl_csv_check_discount(ctx, opts->objective, opts->discount);
-    }
-    if (st == SL_OK && ctx->rank == 0) {
-        st = sl_csv_open_input(ctx, opts->input, &fp, &name);
-        if (st == SL_OK) st = sl_csv_read_triplets(ctx, fp, name, opts, &m, &b);
-        sl_csv_close_input(&fp);
-        if (st == SL_OK && opts->renormalize)
-            sl_log(ctx, "%s: %lld of %lld pairs renormalized (probability sums within 1e-6 of 1)",
-                   name, (long long)b.n_renormalized, (long long)m.n_pairs);
-    }
-    st = sl_csv_adopt_model(ctx, st, &m, &b, name, out);
-    sl_block_free(&b);
-    sl_meta_free(&m);
-    return st;
+    return sl_csv_model_load(ctx, "sl_model_import_csv", opts ? opts->input : NULL, "import needs an input CSV",
+                             opts ? opts->objective : SL_OBJ_DISCOUNTED, opts ? opts->discount : 0.0, read_import,
+                             opts, out);
 }
