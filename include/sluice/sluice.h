@@ -170,6 +170,9 @@ typedef struct sl_import_opts {
     int64_t n_states;           /* 0: max index + 1 */
     double prob_tolerance;
     int renormalize;
+    const char *terminal_values;    /* finite objective: CSV 'state,terminal_value'
+                                     * with every state once, stored as
+                                     * /terminal_value; NULL: none */
 } sl_import_opts;
 /* A model from a triplet CSV (state,action,next_state,probability,reward).
  * Rank 0 parses; the rows are then spread over the ranks. */

@@ -110,7 +110,9 @@ static const char import_help[] =
     "  --objective NAME     discounted (default), total, average or finite\n"
     "  --states N           number of states (default: largest index + 1)\n"
     "  --prob-tolerance T   allowed |sum of probabilities - 1| per pair (default 1e-9)\n"
-    "  --renormalize        rescale pairs whose sum drifts by at most 1e-6 (reports how many)\n";
+    "  --renormalize        rescale pairs whose sum drifts by at most 1e-6 (reports how many)\n"
+    "  --terminal-values F  finite objective: CSV 'state,terminal_value' (every state once),\n"
+    "                       stored as /terminal_value and covered by the fingerprint\n";
 
 static const char estimate_help[] =
     "usage: sluice estimate EXPERIENCE.csv|- --discount G -o MODEL.h5 [options]\n"
@@ -131,7 +133,7 @@ static const char estimate_help[] =
 static int csv_command(cli_args *a, int estimate)
 {
     const char *help = estimate ? estimate_help : import_help;
-    const char *input = NULL, *output = NULL, *v;
+    const char *input = NULL, *output = NULL, *v, *terminal = NULL;
     double discount = -1, tol = 0, smoothing = 0;
     int have_discount = 0, renorm = 0, absorb = 0, rc = 0;
     int64_t states = 0, min_visits = 1;
@@ -152,6 +154,8 @@ static int csv_command(cli_args *a, int estimate)
             else if (states < 1) rc = cli_usage_error(a, "--states must be at least 1");
         } else if (!estimate && cli_opt(a, "--prob-tolerance")) {
             if ((v = cli_value(a)) == NULL || !cli_double(a, "--prob-tolerance", v, &tol)) rc = SL_EUSAGE;
+        } else if (!estimate && cli_opt(a, "--terminal-values")) {
+            if ((terminal = cli_value(a)) == NULL) rc = SL_EUSAGE;
         } else if (!estimate && cli_opt(a, "--renormalize")) {
             renorm = 1;
         } else if (estimate && cli_opt(a, "--min-visits")) {
@@ -183,7 +187,7 @@ static int csv_command(cli_args *a, int estimate)
         sl_estimate_opts o = {input, discount, obj, states, min_visits, absorb, smoothing};
         rc = cli_fail(a, sl_model_estimate_csv(a->ctx, &o, &m));
     } else {
-        sl_import_opts o = {input, discount, obj, states, tol, renorm};
+        sl_import_opts o = {input, discount, obj, states, tol, renorm, terminal};
         rc = cli_fail(a, sl_model_import_csv(a->ctx, &o, &m));
     }
     if (rc == 0) rc = save_model(a, m, output, t0);

@@ -177,6 +177,7 @@ void sl_block_free(sl_block *b)
     free(b->qmean);
     free(b->qpos);
     free(b->visits);
+    free(b->terminal);
     memset(b, 0, sizeof(*b));
 }
 
@@ -512,7 +513,7 @@ void sl_fingerprint_quantity(uint64_t acc[2], int q, int64_t p0, int64_t n, cons
     }
 }
 
-void sl_fingerprint_terminal(uint64_t acc[2], int64_t s0, int64_t n, const double *value)
+static void sl_fingerprint_terminal(uint64_t acc[2], int64_t s0, int64_t n, const double *value)
 {
     for (int64_t i = 0; i < n; i++) acc_entry(acc, 29, s0 + i, dbits(value[i]));
 }
@@ -569,6 +570,7 @@ sl_status sl_fingerprint(sl_ctx *ctx, const sl_meta *m, const sl_block *b, char 
     /* entries a reader hashed without keeping them (0 for built blocks) */
     acc[0] += b->qacc[0];
     acc[1] += b->qacc[1];
+    if (m->has_terminal && b->terminal != NULL) sl_fingerprint_terminal(acc, b->s_begin, ns, b->terminal);
     if (m->has_visits && b->visits != NULL)
         for (int64_t k = 0; k < np; k++) acc_entry(acc, 30, b->p_begin + k, (uint64_t)b->visits[k]);
     MPI_Allreduce(acc, tot, 2, MPI_UINT64_T, MPI_SUM, ctx->comm);

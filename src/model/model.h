@@ -81,9 +81,10 @@ typedef struct sl_block {
     int nq;                     /* outcome quantities per pair (0: none) */
     double *qmean;              /* [n_pairs_local * nq], pair-major: E[q | s,a] */
     double *qpos;               /* [n_pairs_local * nq]: P(q > 0 | s,a) */
-    uint64_t qacc[2];           /* fingerprint sum of the quantity entries (and
-                                 * of /terminal_value) when a reader hashed
-                                 * them without keeping them */
+    uint64_t qacc[2];           /* fingerprint sum of the quantity entries when
+                                 * a reader hashed them without keeping them */
+    double *terminal;           /* [n_states_local] finite-horizon terminal values
+                                 * (/terminal_value), or NULL */
     int64_t *visits;            /* [n_pairs_local] logged visits of each pair
                                  * (models from `estimate`), or NULL */
     uint32_t *col;              /* after sl_halo_build: local columns into
@@ -143,8 +144,6 @@ sl_status sl_fingerprint(sl_ctx *ctx, const sl_meta *m, const sl_block *b, char 
  * p0+k. Used by the in-memory fingerprint and by streaming readers. Local. */
 void sl_fingerprint_quantity(uint64_t acc[2], int q, int64_t p0, int64_t n, const double *mean,
                              const double *pos, int stride);
-/* Add terminal values of states [s0, s0+n) to a fingerprint accumulator. Local. */
-void sl_fingerprint_terminal(uint64_t acc[2], int64_t s0, int64_t n, const double *value);
 
 /* ---- the public model handle -------------------------------------------- */
 

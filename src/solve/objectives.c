@@ -308,7 +308,7 @@ cleanup:
 
 /* Absorbing: every action returns to the state with probability 1 and
  * reward 0. flag[i] = 1 for absorbing owned states. Local. */
-static int64_t find_absorbing(const sl_problem *p, char *flag)
+int64_t sl_obj_find_absorbing(const sl_problem *p, char *flag)
 {
     const sl_block *b = &p->blk;
     int64_t count = 0;
@@ -540,7 +540,7 @@ sl_status sl_obj_certify_total(sl_ctx *ctx, const sl_problem *p, double *v, doub
     char *abs = NULL;
     if (SL_ALLOC(ctx, abs, n + 1, "absorbing states") == NULL) st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
-    int64_t nabs = sl_sum_i64(ctx, find_absorbing(p, abs));
+    int64_t nabs = sl_sum_i64(ctx, sl_obj_find_absorbing(p, abs));
     SL_TRY(sl_halo_exchange(ctx, &p->halo, v));
     SL_TRY(sl_halo_exchange(ctx, &p->halo, w));
     double vmax = sl_max(ctx, local_absmax(v, n + p->halo.n_halo)), wmax = sl_max(ctx, local_absmax(w, n));
@@ -615,7 +615,7 @@ static sl_status solve_total(sl_ctx *ctx, const sl_problem *p, const sl_obj_opts
         SL_ZALLOC(ctx, res->policy, n + 1, "policy") == NULL)
         st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
-    int64_t nabs = sl_sum_i64(ctx, find_absorbing(p, abs));
+    int64_t nabs = sl_sum_i64(ctx, sl_obj_find_absorbing(p, abs));
     if (nabs == 0)
         SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EDATA,
                                     "%s: no absorbing state (a state whose every action stays with probability 1 "

@@ -159,12 +159,6 @@ sl_status sl_store_model_write(sl_ctx *ctx, const char *path, const sl_meta *m,
     uint32_t *t32 = NULL;
     int64_t ns = sl_block_states(b), np = sl_block_pairs(b), nt = sl_block_trans(b);
     int use32 = m->n_states <= (int64_t)UINT32_MAX;
-    /* terminal values are read for the fingerprint, not kept: such a model
-     * cannot be written back whole */
-    if (m->has_terminal)
-        return sl_agree(ctx, SL_ERR(ctx, SL_EUSAGE, "%s: the model's /terminal_value is not held in memory, so the "
-                                                    "model cannot be written again",
-                                    path));
 
     /* uncompressed bound: pointers, actions, rewards, targets, probabilities */
     SL_TRY(sl_h5_space_check(ctx, path, 8.0 * (double)(m->n_states + 1) + 20.0 * (double)m->n_pairs + 8.0 +
@@ -209,6 +203,12 @@ sl_status sl_store_model_write(sl_ctx *ctx, const char *path, const sl_meta *m,
                               b->t_begin, nt, b->target, 1, p));
     SL_TRY(sl_h5_write_1d(ctx, f, "/transition/probability", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE,
                           m->n_trans, b->t_begin, nt, b->prob, 1, p));
+    if (m->has_terminal) {
+        if (ns > 0 && b->terminal == NULL)
+            SL_FAIL(SL_EINTERNAL, "%s: terminal values declared but the rows hold none", p);
+        SL_TRY(sl_h5_write_1d(ctx, f, "/terminal_value", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, m->n_states, s_off, ns,
+                              b->terminal, 1, p));
+    }
     if (m->has_visits) {
         if (np > 0 && b->visits == NULL)
             SL_FAIL(SL_EINTERNAL, "%s: visit counts declared but the rows hold none", p);
@@ -563,15 +563,12 @@ sl_status sl_store_model_read(sl_ctx *ctx, const char *path, const sl_meta *m, i
                             (long long)s, (int)b->action[k], (long long)b->visits[k]);
             }
     }
-    /* terminal values are hashed for the fingerprint, not kept (the
-     * finite-horizon solver reads them again: sl_store_terminal_read) */
+    /* terminal values are kept with the rows (fingerprint, writing back) */
     if (st == SL_OK && m->has_terminal) {
-        double *tv = NULL;
-        if (SL_ALLOC(ctx, tv, ns + 1, "terminal values") == NULL) st = SL_ENOMEM;
+        if (SL_ALLOC(ctx, b->terminal, ns + 1, "terminal values") == NULL) st = SL_ENOMEM;
         if (st == SL_OK)
-            st = sl_h5_read_1d(ctx, f, "/terminal_value", H5T_NATIVE_DOUBLE, m->n_states, s_begin, ns, tv, path);
-        if (st == SL_OK) sl_fingerprint_terminal(b->qacc, s_begin, ns, tv);
-        free(tv);
+            st = sl_h5_read_1d(ctx, f, "/terminal_value", H5T_NATIVE_DOUBLE, m->n_states, s_begin, ns, b->terminal,
+                               path);
     }
     /* quantities are hashed for the fingerprint, not kept */
     for (int q = 0; st == SL_OK && q < m->n_quantities; q++) {

@@ -55,10 +55,27 @@ expect "total: no absorbing state" --code 65 --err "no absorbing state" --err "t
     "$SLUICE" solve -q "$W/tot_bad.h5" -o "$O"
 expect "total: discount below 1 refused" --code 65 --err "discount" --gone "$O" -- \
     bash -c "'$SLUICE' import -q '$W/ssp.csv' --discount 0.5 --objective total -o '$W/tot_half.h5' && '$SLUICE' solve -q '$W/tot_half.h5' -o '$O'"
-# a broken finite terminal dataset in the model
+# optional datasets are fingerprinted only when present: a model without them
+# keeps the fingerprint it had before (value recorded with sluice at commit
+# 5c84444, before /pair/visits and /terminal_value were fingerprinted)
+expect "fingerprint of a model without optional datasets is unchanged" --code 0 --out "7d0ea00cf279e10e3747d0794afacf7f" -- \
+    "$SLUICE" info "$W/fin.h5"
+# terminal values: given to import (covered by the fingerprint), or edited in
+printf 'state,terminal_value\n1,2.5\n0,nan\n' >"$W/term_nan.csv"
+expect "import: a terminal value that is not a number names the line" --code 65 --err "term_nan.csv:3" --err "terminal_value" --gone "$O" -- \
+    "$SLUICE" import -q "$W/plant.csv" --discount 1 --objective finite -o "$O" --terminal-values "$W/term_nan.csv"
+printf 'state,terminal_value\n0,2.5\n' >"$W/term_short.csv"
+expect "import: a state without a terminal value" --code 65 --err "term_short.csv" --err "state 1" --gone "$O" -- \
+    "$SLUICE" import -q "$W/plant.csv" --discount 1 --objective finite -o "$O" --terminal-values "$W/term_short.csv"
+printf 'state,terminal_value\n0,2.5\n1,1\n0,3\n' >"$W/term_twice.csv"
+expect "import: a state given two terminal values" --code 65 --err "term_twice.csv:4" --err "state 0" --gone "$O" -- \
+    "$SLUICE" import -q "$W/plant.csv" --discount 1 --objective finite -o "$O" --terminal-values "$W/term_twice.csv"
+printf 'state,terminal_value\n0,2.5\n1,1\n' >"$W/term.csv"
+expect "import: terminal values for the discounted objective" --code 64 --err "finite" --gone "$O" -- \
+    "$SLUICE" import -q "$W/plant.csv" --discount 0.9 -o "$O" --terminal-values "$W/term.csv"
 cp "$W/fin.h5" "$W/fin_term.h5"
-"$PY" -c "import h5py,sys; f=h5py.File(sys.argv[1],'r+'); f['terminal_value']=[1.0,float('nan')]" "$W/fin_term.h5"
-expect "finite: non-finite /terminal_value names the state" --code 65 --err "terminal_value" --err "state 1" --gone "$O" -- \
+"$PY" -c "import h5py,sys; f=h5py.File(sys.argv[1],'r+'); f['terminal_value']=[1.0,2.0]" "$W/fin_term.h5"
+expect "finite: /terminal_value added by hand (fingerprint)" --code 65 --err "fingerprint" --err "fin_term.h5" --gone "$O" -- \
     "$SLUICE" solve -q "$W/fin_term.h5" -o "$O" --horizon 2
 cp "$W/fin.h5" "$W/fin_term3.h5"
 "$PY" -c "import h5py,sys; f=h5py.File(sys.argv[1],'r+'); f['terminal_value']=[1.0,2.0,3.0]" "$W/fin_term3.h5"

@@ -30,6 +30,7 @@ fails on tampered files.
 usage: [OBJ_PARTS=finite,total,average,ranks] test_objectives.py SLUICE_BINARY WORKDIR
 """
 
+import json
 import os
 import shutil
 import sys
@@ -44,13 +45,20 @@ import objectives_ref as R  # noqa: E402
 from test_published import howard_toymaker, to_float_model  # noqa: E402
 
 
-def imp(binary, mdp, work, name, objective):
+def imp(binary, mdp, work, name, objective, terminal=None):
     csv = os.path.join(work, name + ".csv")
     h5 = os.path.join(work, name + ".h5")
     mc.write_csv(mdp, csv)
+    extra = []
+    if terminal is not None:
+        tcsv = os.path.join(work, name + "_terminal.csv")
+        with open(tcsv, "w") as f:
+            f.write("state,terminal_value\n")
+            f.write("".join("%d,%r\n" % (s, float(v)) for s, v in reversed(list(enumerate(terminal)))))
+        extra = ["--terminal-values", tcsv]
     mc.run_sluice(binary, ["import", csv, "--discount", repr(mdp.gamma),
                            "--objective", objective, "-o", h5,
-                           "--states", mdp.n])
+                           "--states", mdp.n] + extra)
     return h5
 
 
@@ -134,14 +142,35 @@ def check_finite(chk, binary, work):
     for seed, gamma, H in ((11, 0.95, 7), (12, 1.0, 12)):
         mdp = mc.random_mdp(seed, 60, gamma, actions=(1, 4), successors=(1, 4))
         tag = "finite seed %d H %d" % (seed, H)
-        model = imp(binary, mdp, work, "fin%d" % seed, "finite")
-        # terminal values stored in the model (invented numbers)
+        # terminal values stored in the model (invented numbers), given to
+        # import in reverse state order
         term = np.random.default_rng(seed + 100).uniform(-3, 3, mdp.n)
-        with h5py.File(model, "r+") as f:
-            f["terminal_value"] = term
+        model = imp(binary, mdp, work, "fin%d" % seed, "finite", terminal=term)
+        with h5py.File(model, "r") as f:
+            stored = f["terminal_value"][...]
+        chk.check(np.array_equal(stored, term), "%s: /terminal_value holds the imported values (h5py)" % (
+            "finite seed %d" % seed))
+        # the fingerprint covers /terminal_value: an edited value is refused
+        bad = os.path.join(work, "fin%d_termedit.h5" % seed)
+        shutil.copyfile(model, bad)
+        with h5py.File(bad, "r+") as f:
+            f["terminal_value"][0] = f["terminal_value"][0] + 1.0
+        cp = mc.run_sluice(binary, ["solve", bad, "-o", os.path.join(work, "x.h5"), "--horizon", H],
+                           expect=(mc.EXIT_DATAERR,))
+        chk.check("fingerprint" in cp.stderr, "finite seed %d: an edited /terminal_value is caught by the "
+                  "fingerprint" % seed, cp.stderr[-300:])
+        # the objective's facts in info
+        info = json.loads(mc.run_sluice(binary, ["info", model, "--json"]).stdout)
+        chk.check(info["objective"] == "finite" and info["terminal_values"] is True
+                  and info["terminal_value_min"] == term.min() and info["terminal_value_max"] == term.max(),
+                  "finite seed %d: info reports the objective and the terminal values' range" % seed, "%s" % info)
         sol = os.path.join(work, "fin%d_sol.h5" % seed)
         mc.run_sluice(binary, ["solve", model, "-o", sol, "--horizon", H])
         s = mc.read_solution(sol)
+        si = json.loads(mc.run_sluice(binary, ["info", sol, "--json"]).stdout)
+        chk.check(si["objective"] == "finite" and si["horizon"] == H and si["terminal"] == "model /terminal_value",
+                  "%s: info reports the objective, the horizon and where the terminal values came from" % tag,
+                  "%s" % si)
         V, pol = R.backward_induction(mdp, H, term)
         with h5py.File(sol, "r") as f:
             SV = np.array([f["stage/value_%06d" % t][...] for t in range(H + 1)])
@@ -252,6 +281,14 @@ def check_total(chk, binary, work):
         sol = os.path.join(work, "ssp%d_sol.h5" % seed)
         mc.run_sluice(binary, ["solve", model, "-o", sol, "--tolerance", "1e-9"])
         s = mc.read_solution(sol)
+        # info: the objective's facts of the model and of the solution
+        n_abs = int(np.sum(R.absorbing_states(mdp)))
+        mi = json.loads(mc.run_sluice(binary, ["info", model, "--json"]).stdout)
+        si = json.loads(mc.run_sluice(binary, ["info", sol, "--json"]).stdout)
+        chk.check(mi["objective"] == "total" and mi["n_absorbing"] == n_abs and si["objective"] == "total"
+                  and si["n_absorbing"] == n_abs and si["steps_bound_max"] == s["steps_bound_max"],
+                  "%s: info reports the objective and %d absorbing states (numpy count) for model and "
+                  "solution" % (tag, n_abs), "model %s / solution %s" % (mi.get("n_absorbing"), si.get("n_absorbing")))
         lp = R.total_lp(mdp)
         err = np.max(np.abs(s["value"] - lp))
         chk.check(err <= 1e-9 and err <= s["value_error_bound"] + 1e-9,
@@ -353,6 +390,10 @@ def check_average(chk, binary, work):
               "%r [%r, %r]" % (s["gain"], s["gain_lower"], s["gain_upper"]))
     chk.check(list(s["policy"]) == [2, 2],
               "toymaker: policy advertise/research", str(s["policy"]))
+    si = json.loads(mc.run_sluice(binary, ["info", sol, "--json"]).stdout)
+    chk.check(si["objective"] == "average" and si["gain"] == s["gain"] and si["gain_lower"] == s["gain_lower"]
+              and si["gain_upper"] == s["gain_upper"], "toymaker: info reports the objective and the gain bounds",
+              "%s" % si)
     mc.run_sluice(binary, ["verify", model, sol])
     bad_sol = os.path.join(work, "toy_bad.h5")
     shutil.copy(sol, bad_sol)
