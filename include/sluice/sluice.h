@@ -402,6 +402,9 @@ typedef struct sl_objective_opts {
     const char *terminal;       /* finite: solution file whose /value closes the horizon;
                                  * NULL: the model's /terminal_value, else 0 */
     double aperiodicity;        /* average: tau in (0, 1); <= 0 -> 0.5 */
+    sl_method method;           /* total/average: SL_METHOD_PI for policy iteration
+                                 * (exact evaluation by UMFPACK); otherwise value
+                                 * iteration. Finite: ignored */
 } sl_objective_opts;
 
 /* Solve m (objective finite, total or average) and write o->output.

@@ -310,10 +310,14 @@ static int run_solve(cli_args *a, const solve_args *o)
         oo.horizon = o->horizon;
         oo.terminal = o->terminal;
         oo.aperiodicity = o->aperiodicity;
-        if (o->method != SL_METHOD_GS && sl_ctx_rank(ctx) == 0)
-            fprintf(stderr, "sluice solve: warning: --method applies to the discounted objective; ignored for "
-                            "objective %s\n",
-                    sl_objective_name(sl_model_objective(m)));
+        oo.method = o->method;
+        sl_objective obj = sl_model_objective(m);
+        int pi_ok = o->method == SL_METHOD_PI && obj != SL_OBJ_FINITE;
+        if (o->method != SL_METHOD_GS && !pi_ok && sl_ctx_rank(ctx) == 0)
+            fprintf(stderr, "sluice solve: warning: --method %s does not apply to objective %s (value iteration%s "
+                            "is used)\n",
+                    sl_method_name(o->method), sl_objective_name(obj),
+                    obj == SL_OBJ_FINITE ? ": backward induction" : "; --method pi also applies");
         rc = cli_fail(a, sl_objective_solve(m, &oo));
         sl_model_free(&m);
         return rc;

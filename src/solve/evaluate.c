@@ -22,6 +22,63 @@ static inline int64_t global_col(const sl_problem *p, int64_t c)
     return c < p->n_local ? p->blk.s_begin + c : p->halo.halo_global[c - p->n_local];
 }
 
+/* Root: adapt A = I - gamma P (CSR, columns ascending) to the problem's
+ * system (solve.h, eval_average): unit diagonal on zero rows; or column
+ * `ref` replaced by ones (inserted in order where a row lacks it). May
+ * reallocate the arrays. Local. */
+static sl_status adapt_system(sl_ctx *ctx, const sl_problem *p, int64_t N, int64_t **arp, int64_t **acol,
+                              double **aval)
+{
+    int64_t *rp = *arp, *c = *acol;
+    double *v = *aval;
+    if (!p->eval_average) {
+        for (int64_t i = 0; i < N; i++) {
+            int zero = 1;
+            for (int64_t t = rp[i]; t < rp[i + 1] && zero; t++) zero = v[t] == 0.0;
+            if (!zero) continue;
+            for (int64_t t = rp[i]; t < rp[i + 1]; t++)
+                if (c[t] == i) v[t] = 1.0;
+        }
+        return SL_OK;
+    }
+    int64_t ref = p->eval_ref, nnz = rp[N], *nrp = NULL, *nc = NULL;
+    double *nv = NULL;
+    if (SL_ALLOC(ctx, nrp, N + 1, "gain and bias system") == NULL || SL_ALLOC(ctx, nc, nnz + N, "gain and bias system") == NULL ||
+        SL_ALLOC(ctx, nv, nnz + N, "gain and bias system") == NULL) {
+        free(nrp);
+        free(nc);
+        free(nv);
+        return SL_ENOMEM;
+    }
+    int64_t w = 0;
+    for (int64_t i = 0; i < N; i++) {
+        nrp[i] = w;
+        int done = 0;
+        for (int64_t t = rp[i]; t < rp[i + 1]; t++) {
+            if (!done && c[t] >= ref) {
+                nc[w] = ref;
+                nv[w++] = 1.0;
+                done = 1;
+                if (c[t] == ref) continue;
+            }
+            nc[w] = c[t];
+            nv[w++] = v[t];
+        }
+        if (!done) {
+            nc[w] = ref;
+            nv[w++] = 1.0;
+        }
+    }
+    nrp[N] = w;
+    free(rp);
+    free(c);
+    free(v);
+    *arp = nrp;
+    *acol = nc;
+    *aval = nv;
+    return SL_OK;
+}
+
 void sl_evaluate_direct_free(void **lu_cache)
 {
     sl_lu *lu = *lu_cache;
@@ -225,6 +282,7 @@ sl_status sl_evaluate_direct(sl_ctx *ctx, const sl_problem *p, const int32_t *po
         *lu_cache = lu;
         if (st == SL_OK)
             st = sl_lu_build_evaluation_matrix(ctx, N, rowptr, all_cols, all_probs, p->gamma, &arp, &acol, &aval);
+        if (st == SL_OK && (p->gamma == 1.0 || p->eval_average)) st = adapt_system(ctx, p, N, &arp, &acol, &aval);
         int reused = 0;
         /* time guard: the factorization should not take longer than
          * SL_DIRECT_TIME_LIMIT nor run past the deadline */

@@ -602,6 +602,80 @@ cleanup:
     return st;
 }
 
+/* Policy iteration (Howard 1960, "Dynamic Programming and Markov
+ * Processes"; for the total reward to absorption Bertsekas & Tsitsiklis
+ * 1991, Math. Oper. Res. 16, and for the average reward of unichain models
+ * Puterman 1994, Section 8.6; recalled from memory): exact evaluation of
+ * the policy by UMFPACK (sl_evaluate_direct: total, I - P_pi with v = 0 on
+ * absorbing states; average, gain and bias with h(0) = 0), then the greedy
+ * improvement on the evaluated values, keeping the current action unless
+ * another is better by more than the tie margin (kernel.c), which makes it
+ * stop; it stops when no action changes. *gain receives the last policy's
+ * gain (average). A factorization that does not fit in half the memory is
+ * refused (SL_EUSAGE: use value iteration). No checkpoints: a signal or the
+ * walltime stops it with the last evaluated policy (SL_ESTOPPED). The
+ * certificate is then computed from the values as for value iteration.
+ * Collective. */
+static sl_status policy_iteration(sl_ctx *ctx, const sl_problem *p0, const sl_obj_opts *o, int average, double *x,
+                                  double *y, int32_t *policy, int64_t *iterations, double *gain)
+{
+    sl_status st = SL_OK;
+    sl_problem q = *p0; /* shallow: only the evaluation system differs */
+    q.eval_average = average;
+    q.eval_ref = 0;
+    const sl_problem *p = &q;
+    void *lu = NULL;
+    double t0 = sl_now(), last = t0, mem = 0.5 * sl_physical_memory();
+    int owner = p->blk.s_begin == 0 && p->n_local > 0;
+    *iterations = 0;
+    for (;;) {
+        int pr = poll_stop(ctx, o, t0, &last);
+        if (pr == 2 || (o->max_iterations > 0 && *iterations >= o->max_iterations)) {
+            st = SL_ESTOPPED;
+            break;
+        }
+        int used = 0, abandoned = 0;
+        double est = 0;
+        st = sl_evaluate_direct(ctx, p, policy, mem > 0 ? mem : 0, 0, x, &used, &abandoned, &est, &lu);
+        if (st == SL_EDATA && average) {
+            char msg[SL_MSG_MAX];
+            snprintf(msg, sizeof(msg), "%s", ctx->err);
+            sl_error_clear(ctx);
+            st = SL_ERR(ctx, SL_EDATA,
+                        "%s: policy iteration: the gain and bias equations of the policy of iteration %lld cannot be "
+                        "solved (%s): the policy's chain has more than one closed class (multichain), which this "
+                        "solver refuses",
+                        p->path, (long long)*iterations + 1, msg);
+        }
+        if (st != SL_OK) break;
+        if (!used) {
+            st = SL_ERR(ctx, SL_EUSAGE,
+                        "%s: policy iteration needs the direct solve, which does not fit (estimated %.2f GB, limit "
+                        "%.2f GB, or over the time limit); use value iteration (--method gs)",
+                        p->path, est / 1e9, mem / 1e9);
+            break;
+        }
+        double g = owner ? x[0] : 0.0;
+        MPI_Allreduce(MPI_IN_PLACE, &g, 1, MPI_DOUBLE, MPI_SUM, ctx->comm);
+        if (average && owner) x[0] = 0.0; /* h(0) = 0; the solve put g there */
+        *gain = g;
+        (*iterations)++;
+        st = sl_halo_exchange(ctx, &p->halo, x);
+        if (st != SL_OK) break;
+        sl_check c;
+        sl_bellman_check(p, x, y, policy, &c);
+        int64_t changed = sl_sum_i64(ctx, c.changed);
+        sl_log(ctx, "solve: policy iteration %lld: %lld actions changed%s", (long long)*iterations,
+               (long long)changed, average ? "" : "");
+        if (average) sl_log(ctx, "solve: policy iteration %lld: gain of the evaluated policy %.12g",
+                            (long long)*iterations, g);
+        if (changed == 0) break;
+    }
+    st = sl_agree(ctx, st);
+    sl_evaluate_direct_free(&lu);
+    return st;
+}
+
 static sl_status solve_total(sl_ctx *ctx, const sl_problem *p, const sl_obj_opts *o, sl_obj_result *res)
 {
     sl_status st = SL_OK;
@@ -638,6 +712,27 @@ static sl_status solve_total(sl_ctx *ctx, const sl_problem *p, const sl_obj_opts
                 "sweeps)",
            (long long)nabs, wmax, (long long)wsweeps);
     res->cert.sweeps = wsweeps;
+    if (o->policy_iteration) {
+        int64_t it = 0;
+        double g = 0;
+        sl_status keep = policy_iteration(ctx, p, o, 0, res->value, y, res->policy, &it, &g);
+        if (keep != SL_OK && keep != SL_ESTOPPED) {
+            st = keep;
+            goto cleanup;
+        }
+        SL_TRY(sl_halo_exchange(ctx, &p->halo, res->value));
+        SL_TRY(sl_obj_certify_total(ctx, p, res->value, res->steps, res->policy, &res->cert));
+        res->cert.converged = keep == SL_OK && res->cert.value_error_bound <= tol && res->cert.policy_loss_bound <= tol;
+        if (keep == SL_OK && !res->cert.converged) {
+            sl_warn(ctx, "policy iteration ended but the certificate (%.1e, %.1e) exceeds the tolerance %.1e",
+                    res->cert.value_error_bound, res->cert.policy_loss_bound, tol);
+            keep = SL_EUSAGE;
+        }
+        res->cert.iterations = it;
+        res->cert.sweeps = wsweeps;
+        st = keep;
+        goto cleanup;
+    }
     /* resume */
     sl_solver_state S;
     sl_history hist;
@@ -789,6 +884,28 @@ static sl_status solve_average(sl_ctx *ctx, const sl_problem *p, const sl_obj_op
         st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
     res->cert.aperiodicity = tau;
+    if (o->policy_iteration) {
+        int64_t it = 0;
+        double g = 0;
+        sl_status keep = policy_iteration(ctx, p, o, 1, res->value, y, res->policy, &it, &g);
+        if (keep != SL_OK && keep != SL_ESTOPPED) {
+            st = keep;
+            goto cleanup;
+        }
+        SL_TRY(sl_obj_certify_average(ctx, p, res->value, res->policy, &res->cert));
+        res->cert.converged = keep == SL_OK && res->cert.gain_upper - res->cert.gain_lower <= tol &&
+                              res->cert.policy_loss_bound <= tol;
+        if (keep == SL_OK && !res->cert.converged) {
+            sl_warn(ctx, "policy iteration ended but the gain bounds [%.12g, %.12g] are wider than the tolerance %.1e",
+                    res->cert.gain_lower, res->cert.gain_upper, tol);
+            keep = SL_EUSAGE;
+        }
+        res->cert.aperiodicity = 0;
+        res->cert.iterations = it;
+        res->cert.sweeps = it;
+        st = keep;
+        goto cleanup;
+    }
     if (o->resume && o->checkpoint_dir) {
         int found = 0;
         SL_TRY(sl_ckpt_load(ctx, o->checkpoint_dir, o->fingerprint, p->meta.n_states, p->blk.s_begin, n, res->value,

@@ -29,6 +29,8 @@ typedef struct sl_obj_opts {
     int resume;
     double walltime;            /* seconds from start; 0: none */
     const char *fingerprint;    /* model fingerprint (checkpoint identity) */
+    int policy_iteration;       /* total/average: policy iteration (UMFPACK
+                                 * evaluation) instead of value iteration */
 } sl_obj_opts;
 
 /* What a solve certifies (and what verify recomputes). */

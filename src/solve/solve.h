@@ -29,6 +29,14 @@ typedef struct sl_problem {
     double direct_time_limit; /* seconds a direct factorization may take (UMFPACK's
                                * estimate); <= 0: no limit */
     double visit_adjust;    /* c of the reward adjustment r + c/sqrt(visits); 0: none */
+    /* the system sl_evaluate_direct solves: 0 (I - gamma P_pi) v = r_pi; with
+     * gamma = 1 a row of I - P_pi that is all zero (an absorbing state, whose
+     * reward is 0) gets a unit diagonal, so v = 0 there. 1 (average reward):
+     * gain and bias, h + g 1 = r_pi + P_pi h with h(eval_ref) = 0, solved as
+     * (I - P_pi) with column eval_ref replaced by ones; the solution holds g
+     * at eval_ref (callers put it back). */
+    int eval_average;
+    int64_t eval_ref;       /* global state */
     double *own_reward;     /* the adjusted rewards (blk.reward points here), or NULL */
 } sl_problem;
 

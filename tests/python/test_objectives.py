@@ -489,6 +489,21 @@ def check_ranks_and_resume(chk, binary, work):
             run_ranks(binary, nr, ["verify", model, out])
         d = max(np.max(np.abs(s["value"] - sols[0]["value"])) for s in sols)
         lim = 0.0 if obj == "finite" else 2e-9
+        if obj != "finite":
+            # policy iteration: the matrix gathered on rank 0 is the same for
+            # any rank count, so the answers agree to roundoff
+            pis = []
+            for nr in (1, 2, 3):
+                out = os.path.join(work, "rkpi_%s_%d.h5" % (obj, nr))
+                run_ranks(binary, nr, ["solve", model, "-o", out, "--method", "pi", "--tolerance", "1e-9"])
+                pis.append(mc.read_solution(out))
+                run_ranks(binary, nr, ["verify", model, out])
+            dp = max(np.max(np.abs(s["value"] - pis[0]["value"])) for s in pis)
+            same = all(np.array_equal(s["policy"], pis[0]["policy"]) for s in pis)
+            dv = np.max(np.abs(pis[0]["value"] - sols[0]["value"]))
+            chk.check(dp <= 1e-12 * (1 + np.max(np.abs(pis[0]["value"]))) and same and dv <= 2e-9,
+                      "%s --method pi: 1, 2 and 3 ranks agree (policy equal, values within 1e-12) and match "
+                      "value iteration" % obj, "max diff %.3g, vs VI %.3g" % (dp, dv))
         chk.check(d <= lim, "%s: 1, 2 and 3 ranks agree (%s)" % (obj,
                   "bitwise" if lim == 0 else "within 2 tolerances"),
                   "max diff %.3g" % d)
@@ -514,13 +529,72 @@ def check_ranks_and_resume(chk, binary, work):
         run_ranks(binary, 3, ["verify", model, res])
 
 
+def check_policy_iteration(chk, binary, work):
+    """--method pi for total and average (UMFPACK evaluation) against LPs
+    solved by HiGHS (scipy linprog): the LP of stochastic shortest paths
+    (Bertsekas & Tsitsiklis 1991, recalled) and the dual LP of the average
+    reward (Puterman 1994, Section 8.8, recalled); verify certifies the output
+    and rejects it once a value is changed."""
+    for seed in (51, 52, 53):
+        tag = "pi total random seed %d" % seed
+        mdp = float_states(random_ssp(seed, 90), 1.0)
+        model = imp(binary, mdp, work, "pit%d" % seed, "total")
+        sol = os.path.join(work, "pit%d_sol.h5" % seed)
+        cp = mc.run_sluice(binary, ["solve", model, "-o", sol, "--method", "pi", "--tolerance", "1e-9"])
+        s = mc.read_solution(sol)
+        lp = R.total_lp(mdp)
+        err = float(np.max(np.abs(s["value"] - lp)))
+        # HiGHS solves to its default feasibility tolerance of 1e-7 (recalled from memory)
+        chk.check(s["method"] == "pi-total" and err <= 1e-7 * (1 + np.max(np.abs(lp))),
+                  "%s: value equals the HiGHS LP optimum" % tag, "err %.3g, method %s" % (err, s["method"]))
+        pairs, _ = mdp.pairs_of_policy(s["policy"])
+        vpi = R.total_policy_value(mdp, pairs)
+        d = float(np.max(np.abs(vpi - s["value"])))
+        chk.check(d <= 1e-9 * (1 + np.max(np.abs(vpi))) and s["value_error_bound"] <= 1e-9,
+                  "%s: the value is the policy's own (scipy spsolve) and certified" % tag,
+                  "diff %.3g, bound %.3g" % (d, s["value_error_bound"]))
+        chk.check("policy iteration" in cp.stderr, "%s: the log shows the policy iterations" % tag)
+        mc.run_sluice(binary, ["verify", model, sol])
+        bad = os.path.join(work, "pit%d_bad.h5" % seed)
+        shutil.copy(sol, bad)
+        with h5py.File(bad, "r+") as f:
+            f["value"][5] += 1e-4
+        mc.run_sluice(binary, ["verify", model, bad], expect=(65,))
+        chk.check(True, "%s: verify certifies the output and rejects a changed value" % tag)
+    for seed in (54, 55, 56):
+        tag = "pi average random seed %d" % seed
+        mdp = float_states(random_unichain(seed, 70), 1.0)
+        model = imp(binary, mdp, work, "pia%d" % seed, "average")
+        sol = os.path.join(work, "pia%d_sol.h5" % seed)
+        mc.run_sluice(binary, ["solve", model, "-o", sol, "--method", "pi", "--tolerance", "1e-9"])
+        s = mc.read_solution(sol)
+        g_lp, _ = R.average_dual_lp(mdp)
+        g_pi, _, _ = R.average_policy_iteration(mdp)
+        chk.check(s["method"] == "pi-average" and abs(s["gain"] - g_lp) <= 1e-7 and abs(s["gain"] - g_pi) <= 1e-10,
+                  "%s: gain equals the dual LP (HiGHS, 1e-7) and numpy policy iteration (1e-10)" % tag,
+                  "%r vs LP %r, numpy %r" % (s["gain"], g_lp, g_pi))
+        chk.check(s["gain_lower"] <= g_pi + 1e-12 and g_pi - 1e-12 <= s["gain_upper"]
+                  and s["gain_upper"] - s["gain_lower"] <= 1e-9,
+                  "%s: the exact gain lies in the certified bounds" % tag,
+                  "[%r, %r]" % (s["gain_lower"], s["gain_upper"]))
+        chk.check(s["value"][0] == 0.0, "%s: the bias is normalised h(0) = 0" % tag)
+        mc.run_sluice(binary, ["verify", model, sol])
+        bad = os.path.join(work, "pia%d_bad.h5" % seed)
+        shutil.copy(sol, bad)
+        with h5py.File(bad, "r+") as f:
+            f["value"][3] += 1e-4
+        mc.run_sluice(binary, ["verify", model, bad], expect=(65,))
+        chk.check(True, "%s: verify certifies the output and rejects a changed bias" % tag)
+
+
 def main():
     # optional: OBJ_PARTS=finite,total,average,ranks (default: all)
-    want = os.environ.get("OBJ_PARTS", "finite,total,average,ranks").split(",")
+    want = os.environ.get("OBJ_PARTS", "finite,total,average,pi,ranks").split(",")
     binary, work = mc.parse_args(sys.argv, "test_objectives.py SLUICE WORKDIR")
     chk = mc.Checker("test_objectives")
     parts = {"finite": check_finite, "total": check_total,
-             "average": check_average, "ranks": check_ranks_and_resume}
+             "average": check_average, "ranks": check_ranks_and_resume,
+             "pi": check_policy_iteration}
     for name in want:
         part = parts[name]
         try:

@@ -43,7 +43,7 @@ else()
     COMMAND ${SLUICE_TEST_PYTHON} ${_sluice_py_dir}/test_objectives.py
             $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/py_objectives)
   set_tests_properties(py_objectives PROPERTIES LABELS python TIMEOUT 600
-    ENVIRONMENT "OBJ_PARTS=finite,total,average")
+    ENVIRONMENT "OBJ_PARTS=finite,total,average,pi")
   add_test(NAME py_objectives_ranks
     COMMAND ${SLUICE_TEST_PYTHON} ${_sluice_py_dir}/test_objectives.py
             $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/py_objectives_ranks)
