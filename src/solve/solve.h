@@ -139,6 +139,19 @@ sl_status sl_problem_ckpt_write(sl_ctx *ctx, const sl_problem *p, const char *di
 sl_status sl_problem_ckpt_load(sl_ctx *ctx, const sl_problem *p, const char *dir, double *value, int32_t *actions,
                                sl_solver_state *state, sl_history *hist, int *found);
 
+/* The rows of P_pi (global columns ascending within each row) and r_pi
+ * gathered on rank 0: rowptr[N+1], cols, probs, rew (NULL elsewhere);
+ * scnt/sdsp: every rank's state count and offset (rank 0), for scattering
+ * back. */
+typedef struct sl_policy_rows {
+    int64_t N;
+    int64_t *rowptr, *cols;
+    double *probs, *rew;
+    int *scnt, *sdsp;
+} sl_policy_rows;
+sl_status sl_gather_policy_rows(sl_ctx *ctx, const sl_problem *p, const int32_t *policy, sl_policy_rows *out);
+void sl_policy_rows_free(sl_policy_rows *r);
+
 /* Exact value of a fixed policy: gather P_pi to rank 0, UMFPACK, scatter.
  * *used_direct = 0 (and x untouched) when the factorization would exceed
  * memory_limit or take longer than SL_DIRECT_TIME_LIMIT (or run past

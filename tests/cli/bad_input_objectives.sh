@@ -131,4 +131,26 @@ cp "$W/est.h5" "$W/est_more.h5"
 "$PY" -c "import h5py,sys; f=h5py.File(sys.argv[1],'r+'); v=f['pair/visits'][...]; v[0]+=5; f['pair/visits'][...]=v" "$W/est_more.h5"
 expect "solve: an edited visit count (fingerprint)" --code 65 --err "fingerprint" --err "est_more.h5" --gone "$O" -- \
     "$SLUICE" solve -q "$W/est_more.h5" -o "$O"
+# a definitely multichain model: {0, 1} and {2, 3} are closed under every
+# policy (state 4 is transient); invented numbers
+cat >"$W/multi.csv" <<'CSV'
+state,action,next_state,probability,reward
+0,0,1,1,1
+1,0,0,0.5,0
+1,0,1,0.5,2
+2,0,3,1,0
+3,0,2,1,0.5
+3,1,3,1,0.25
+4,0,0,0.5,0
+4,0,2,0.5,1
+CSV
+expect "setup: multichain average model" --code 0 -- "$SLUICE" import -q "$W/multi.csv" --discount 1 --objective average -o "$W/multi.h5"
+expect "average: multichain model refused, naming states of two closed classes" --code 65 --err "multichain" --err "state 0" --err "state 2" --gone "$O" -- \
+    "$SLUICE" solve -q "$W/multi.h5" -o "$O"
+expect "average --method pi: multichain model refused, naming states of two closed classes" --code 65 --err "multichain" --err "state 0" --err "state 2" --gone "$O" -- \
+    "$SLUICE" solve -q "$W/multi.h5" -o "$O" --method pi
+if [ -n "${SLUICE_MPIEXEC:-}" ] && [ -x "$SLUICE_MPIEXEC" ]; then
+expect "average on 3 ranks: multichain model refused the same way" --code 65 --err "multichain" --err "state 0" --err "state 2" --gone "$O" -- \
+    "$SLUICE_MPIEXEC" --oversubscribe -n 3 "$SLUICE" solve -q "$W/multi.h5" -o "$O" --method pi
+fi
 sl_finish
