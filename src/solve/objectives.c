@@ -612,14 +612,14 @@ static sl_status check_closed_classes(sl_ctx *ctx, const sl_problem *p, const in
  * absorbing states; average, gain and bias with h(0) = 0), then the greedy
  * improvement on the evaluated values, keeping the current action unless
  * another is better by more than the tie margin (kernel.c), which makes it
- * stop; it stops when no action changes. *gain receives the last policy's
- * gain (average). A factorization that does not fit in half the memory is
+ * stop; it stops when no action changes (the average gain of each
+ * evaluated policy is logged). A factorization that does not fit in half the memory is
  * refused (SL_EUSAGE: use value iteration). No checkpoints: a signal or the
  * walltime stops it with the last evaluated policy (SL_ESTOPPED). The
  * certificate is then computed from the values as for value iteration.
  * Collective. */
 static sl_status policy_iteration(sl_ctx *ctx, const sl_problem *p0, const sl_obj_opts *o, int average, double *x,
-                                  double *y, int32_t *policy, int64_t *iterations, double *gain)
+                                  double *y, int32_t *policy, int64_t *iterations)
 {
     sl_status st = SL_OK;
     sl_problem q = *p0; /* shallow: only the evaluation system differs */
@@ -666,17 +666,17 @@ static sl_status policy_iteration(sl_ctx *ctx, const sl_problem *p0, const sl_ob
         double g = owner ? x[0] : 0.0;
         MPI_Allreduce(MPI_IN_PLACE, &g, 1, MPI_DOUBLE, MPI_SUM, ctx->comm);
         if (average && owner) x[0] = 0.0; /* h(0) = 0; the solve put g there */
-        *gain = g;
         (*iterations)++;
         st = sl_halo_exchange(ctx, &p->halo, x);
         if (st != SL_OK) break;
         sl_check c;
         sl_bellman_check(p, x, y, policy, &c);
         int64_t changed = sl_sum_i64(ctx, c.changed);
-        sl_log(ctx, "solve: policy iteration %lld: %lld actions changed%s", (long long)*iterations,
-               (long long)changed, average ? "" : "");
-        if (average) sl_log(ctx, "solve: policy iteration %lld: gain of the evaluated policy %.12g",
-                            (long long)*iterations, g);
+        if (average)
+            sl_log(ctx, "solve: policy iteration %lld: gain of the evaluated policy %.12g, %lld actions changed",
+                   (long long)*iterations, g, (long long)changed);
+        else
+            sl_log(ctx, "solve: policy iteration %lld: %lld actions changed", (long long)*iterations, (long long)changed);
         if (changed == 0) break;
     }
     st = sl_agree(ctx, st);
@@ -722,8 +722,7 @@ static sl_status solve_total(sl_ctx *ctx, const sl_problem *p, const sl_obj_opts
     res->cert.sweeps = wsweeps;
     if (o->policy_iteration) {
         int64_t it = 0;
-        double g = 0;
-        sl_status keep = policy_iteration(ctx, p, o, 0, res->value, y, res->policy, &it, &g);
+        sl_status keep = policy_iteration(ctx, p, o, 0, res->value, y, res->policy, &it);
         if (keep != SL_OK && keep != SL_ESTOPPED) {
             st = keep;
             goto cleanup;
@@ -1002,8 +1001,7 @@ static sl_status solve_average(sl_ctx *ctx, const sl_problem *p, const sl_obj_op
     res->cert.aperiodicity = tau;
     if (o->policy_iteration) {
         int64_t it = 0;
-        double g = 0;
-        sl_status keep = policy_iteration(ctx, p, o, 1, res->value, y, res->policy, &it, &g);
+        sl_status keep = policy_iteration(ctx, p, o, 1, res->value, y, res->policy, &it);
         if (keep != SL_OK && keep != SL_ESTOPPED) {
             st = keep;
             goto cleanup;
