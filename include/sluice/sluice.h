@@ -170,6 +170,9 @@ typedef struct sl_import_opts {
     int64_t n_states;           /* 0: max index + 1 */
     double prob_tolerance;
     int renormalize;
+    const char *terminal_values;    /* finite objective: CSV 'state,terminal_value'
+                                     * with every state once, stored as
+                                     * /terminal_value; NULL: none */
 } sl_import_opts;
 /* A model from a triplet CSV (state,action,next_state,probability,reward).
  * Rank 0 parses; the rows are then spread over the ranks. */
@@ -182,6 +185,8 @@ typedef struct sl_estimate_opts {
     int64_t n_states;           /* 0: max index + 1 */
     int64_t min_visits;         /* pairs seen fewer times are dropped (>=1) */
     int unseen_absorb;          /* states with no data become absorbing, reward 0 */
+    double smoothing;           /* additive (Dirichlet) pseudo-count per observed
+                                 * successor of the state; 0: none */
 } sl_estimate_opts;
 /* The maximum-likelihood model of logged experience. */
 SLUICE_API sl_status sl_model_estimate_csv(sl_ctx *ctx, const sl_estimate_opts *opts, sl_model **m);
@@ -236,6 +241,14 @@ SLUICE_API sl_status sl_solver_set_direct_time_limit(sl_solver *s, double second
 /* Checkpoints into dir every every_s seconds (0 -> 600) and when asked by
  * the context's signal flag; resume: start from the newest valid one. */
 SLUICE_API sl_status sl_solver_set_checkpoint(sl_solver *s, const char *dir, double every_s, int resume);
+/* Sensitivity to thin data, for models from `estimate` (which store the
+ * visits n of each (state, action)): solve with r(s,a) + c/sqrt(n) (bonus,
+ * optimistic) or r(s,a) - c/sqrt(n) (penalty, pessimistic); pairs with
+ * n = 0 keep their reward. c >= 0; 0 (default) turns it off; the later call
+ * wins. The solution records the adjustment and verify applies it. Not with
+ * checkpoints. */
+SLUICE_API sl_status sl_solver_set_visit_bonus(sl_solver *s, double c);
+SLUICE_API sl_status sl_solver_set_visit_penalty(sl_solver *s, double c);
 
 /* Monitor: called on every rank with the same numbers (print on rank 0). */
 typedef enum sl_event {
@@ -298,6 +311,7 @@ typedef struct sl_solution_info {
     double seconds;
     double discount;
     int64_t checkpoints_written;
+    double visit_adjust;        /* c of r + c/sqrt(visits) the solve used (0: none) */
 } sl_solution_info;
 
 /* This rank's slice: states [s_begin, s_begin + n); action ids (NULL for a
@@ -344,7 +358,12 @@ typedef struct sl_info_opts {
     int json;
     int partition;              /* > 0: print predicted partition for N ranks */
     FILE *out;
+    int64_t thin_below;         /* models with visit counts: pairs seen fewer
+                                 * times are listed; 0 -> SLUICE_THIN_BELOW */
 } sl_info_opts;
+/* Default threshold of a thin (state, action): seen fewer than this many
+ * times in the logged experience (rule of thumb, common practice, no source). */
+#define SLUICE_THIN_BELOW 10
 /* Describe a model, solution or checkpoint file. */
 SLUICE_API sl_status sl_info(sl_ctx *ctx, const sl_info_opts *opts);
 
@@ -383,6 +402,9 @@ typedef struct sl_objective_opts {
     const char *terminal;       /* finite: solution file whose /value closes the horizon;
                                  * NULL: the model's /terminal_value, else 0 */
     double aperiodicity;        /* average: tau in (0, 1); <= 0 -> 0.5 */
+    sl_method method;           /* total/average: SL_METHOD_PI for policy iteration
+                                 * (exact evaluation by UMFPACK); otherwise value
+                                 * iteration. Finite: ignored */
 } sl_objective_opts;
 
 /* Solve m (objective finite, total or average) and write o->output.

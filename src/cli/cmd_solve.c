@@ -29,6 +29,7 @@ typedef struct solve_args {
     int64_t horizon;            /* finite */
     const char *terminal;       /* finite */
     double aperiodicity;        /* average */
+    double visit_bonus, visit_penalty;  /* estimated models: r +- c/sqrt(visits) */
 } solve_args;
 
 /* The CLI's one piece of process state: what the last signal asked for, and
@@ -109,6 +110,9 @@ static const char solve_help[] =
     "                        (default: the model's /terminal_value, else 0)\n"
     "  --aperiodicity TAU    average: weight of staying put in the transform, in (0, 1)\n"
     "                        (default 0.5); --tolerance bounds the gain\n"
+    "models from `sluice estimate` (discounted): sensitivity to thin data\n"
+    "  --visit-bonus C       solve with r(s,a) + C/sqrt(visits(s,a)) (optimistic)\n"
+    "  --visit-penalty C     solve with r(s,a) - C/sqrt(visits(s,a)) (pessimistic)\n"
     "signals: USR1 = checkpoint now and continue; TERM, INT, USR2 = checkpoint and exit 75.\n";
 
 /* ---- progress lines (rank 0) ------------------------------------------------------ */
@@ -204,6 +208,7 @@ static int write_report(cli_args *a, const solve_args *o, const sl_model *m, con
     sl_json_int(&j, "n_states", sl_model_n_states(m));
     sl_json_int(&j, "n_transitions", sl_model_n_transitions(m));
     sl_json_num(&j, "discount", sl_model_discount(m));
+    if (in.visit_adjust != 0.0) sl_json_num(&j, "visit_adjust", in.visit_adjust);
     sl_json_bool(&j, "converged", c.converged);
     sl_json_int(&j, "exit_code", (int64_t)exit_code);
     sl_json_num(&j, "tolerance", c.tolerance);
@@ -267,6 +272,14 @@ static void print_summary(cli_args *a, const solve_args *o, const sl_model *m, c
                "               and local regulations.\n");
 }
 
+/* --visit-bonus / --visit-penalty: C > 0, and not both. */
+static int visit_check(cli_args *a, double c, double other)
+{
+    if (!(c > 0) || !isfinite(c)) return cli_usage_error(a, "--visit-bonus/--visit-penalty: C must be a positive number");
+    if (other > 0) return cli_usage_error(a, "--visit-bonus and --visit-penalty exclude each other");
+    return 0;
+}
+
 static int run_solve(cli_args *a, const solve_args *o)
 {
     sl_ctx *ctx = a->ctx;
@@ -276,6 +289,10 @@ static int run_solve(cli_args *a, const solve_args *o)
     monitor_state ms = {a, o, 0, -1e300};
     ms.every = o->progress_every > 0 ? o->progress_every : (a->stderr_tty ? 1.0 : 30.0);
     int rc = cli_fail(a, sl_model_load(ctx, o->model, &m));
+    if (rc == 0 && sl_model_objective(m) != SL_OBJ_DISCOUNTED && (o->visit_bonus > 0 || o->visit_penalty > 0))
+        rc = cli_usage_error(a, "--visit-bonus and --visit-penalty apply to the discounted objective; %s records "
+                                "objective \"%s\"",
+                             o->model, sl_objective_name(sl_model_objective(m)));
     if (rc == 0 && sl_model_objective(m) != SL_OBJ_DISCOUNTED) {
         /* finite, total, average: docs/objectives.md */
         sl_objective_opts oo;
@@ -293,10 +310,14 @@ static int run_solve(cli_args *a, const solve_args *o)
         oo.horizon = o->horizon;
         oo.terminal = o->terminal;
         oo.aperiodicity = o->aperiodicity;
-        if (o->method != SL_METHOD_GS && sl_ctx_rank(ctx) == 0)
-            fprintf(stderr, "sluice solve: warning: --method applies to the discounted objective; ignored for "
-                            "objective %s\n",
-                    sl_objective_name(sl_model_objective(m)));
+        oo.method = o->method;
+        sl_objective obj = sl_model_objective(m);
+        int pi_ok = o->method == SL_METHOD_PI && obj != SL_OBJ_FINITE;
+        if (o->method != SL_METHOD_GS && !pi_ok && sl_ctx_rank(ctx) == 0)
+            fprintf(stderr, "sluice solve: warning: --method %s does not apply to objective %s (value iteration%s "
+                            "is used)\n",
+                    sl_method_name(o->method), sl_objective_name(obj),
+                    obj == SL_OBJ_FINITE ? ": backward induction" : "; --method pi also applies");
         rc = cli_fail(a, sl_objective_solve(m, &oo));
         sl_model_free(&m);
         return rc;
@@ -316,6 +337,8 @@ static int run_solve(cli_args *a, const solve_args *o)
         if (st == SL_OK) st = sl_solver_set_sweeps(s, o->sweeps);
         if (st == SL_OK) st = sl_solver_set_memory_limit(s, o->memory_limit, o->strict_memory);
         if (st == SL_OK && o->direct_time_limit >= 0) st = sl_solver_set_direct_time_limit(s, o->direct_time_limit);
+        if (st == SL_OK && o->visit_bonus > 0) st = sl_solver_set_visit_bonus(s, o->visit_bonus);
+        if (st == SL_OK && o->visit_penalty > 0) st = sl_solver_set_visit_penalty(s, o->visit_penalty);
         if (st == SL_OK && o->checkpoint_dir)
             st = sl_solver_set_checkpoint(s, o->checkpoint_dir, o->checkpoint_every, o->resume);
         if (st == SL_OK) st = sl_solver_set_monitor(s, on_progress, &ms);
@@ -381,6 +404,12 @@ int cmd_solve(cli_args *a)
             if (!num_opt(a, "--direct-time-limit", &o.direct_time_limit)) rc = SL_EUSAGE;
             else if (!(o.direct_time_limit >= 0))
                 rc = cli_usage_error(a, "--direct-time-limit must be 0 (no limit) or a number of seconds");
+        } else if (cli_opt(a, "--visit-bonus")) {
+            if (!num_opt(a, "--visit-bonus", &o.visit_bonus)) rc = SL_EUSAGE;
+            else rc = visit_check(a, o.visit_bonus, o.visit_penalty);
+        } else if (cli_opt(a, "--visit-penalty")) {
+            if (!num_opt(a, "--visit-penalty", &o.visit_penalty)) rc = SL_EUSAGE;
+            else rc = visit_check(a, o.visit_penalty, o.visit_bonus);
         } else if (cli_opt(a, "--checkpoint")) {
             if ((o.checkpoint_dir = cli_value(a)) == NULL) rc = SL_EUSAGE;
         } else if (cli_opt(a, "--checkpoint-every")) {

@@ -138,6 +138,7 @@ static void to_record(const sl_solution *x, sl_solution_record *r)
     r->residual_max = x->cert.residual_max;
     r->value_error_bound = x->cert.value_error;
     r->policy_loss_bound = x->cert.policy_loss;
+    r->visit_adjust = x->info.visit_adjust;
 }
 
 static void from_record(sl_solution *x, const sl_solution_record *r)
@@ -159,6 +160,7 @@ static void from_record(sl_solution *x, const sl_solution_record *r)
     x->cert.residual_max = r->residual_max;
     x->cert.value_error = r->value_error_bound;
     x->cert.policy_loss = r->policy_loss_bound;
+    x->info.visit_adjust = r->visit_adjust;
 }
 
 sl_status sl_solution_save(const sl_solution *x, const char *path)
