@@ -210,6 +210,22 @@ SLUICE_API int sl_model_n_params(const sl_model *m);
 SLUICE_API const char *sl_model_param_name(const sl_model *m, int i);
 SLUICE_API const char *sl_model_param_unit(const sl_model *m, int i);
 SLUICE_API double sl_model_param_value(const sl_model *m, int i);
+/* Format 2 annotations (docs/formats.md). Local; "" or 0 when the model has
+ * none. Units of the reward and of one discount period: */
+SLUICE_API const char *sl_model_reward_unit(const sl_model *m);
+SLUICE_API const char *sl_model_period_unit(const sl_model *m);
+/* Factor f: its unit; the numeric value of index i (returns 0 when the
+ * factor has no values); the label of index i ("" when it has none). */
+SLUICE_API const char *sl_model_factor_unit(const sl_model *m, int f);
+SLUICE_API int sl_model_factor_value(const sl_model *m, int f, int64_t i, double *value);
+SLUICE_API const char *sl_model_factor_label(const sl_model *m, int f, int64_t i);
+/* Numeric value of action id a (0 when actions have no values) and its unit. */
+SLUICE_API int sl_model_action_value(const sl_model *m, int32_t a, double *value);
+SLUICE_API const char *sl_model_action_unit(const sl_model *m);
+/* Outcome quantities: count, names and units of one period's quantity. */
+SLUICE_API int sl_model_n_quantities(const sl_model *m);
+SLUICE_API const char *sl_model_quantity_name(const sl_model *m, int q);
+SLUICE_API const char *sl_model_quantity_unit(const sl_model *m, int q);
 
 /* ---- solvers ---------------------------------------------------------------- */
 
@@ -316,6 +332,17 @@ typedef struct sl_history_view {
 SLUICE_API sl_status sl_solution_get_history(const sl_solution *x, sl_history_view *h);
 /* Whole vectors on rank `root` (malloc'ed there, NULL elsewhere; free()). */
 SLUICE_API sl_status sl_solution_gather(const sl_solution *x, int root, double **value, int32_t **action);
+/* Smallest and largest value and smallest |value| over all states.
+ * Collective. */
+SLUICE_API sl_status sl_solution_value_extent(const sl_solution *x, double *vmin, double *vmax, double *min_abs);
+/* A certificate bound relative to the smallest |value| (NaN when some value
+ * is 0 or min_abs is not finite). Local. */
+SLUICE_API double sl_bound_relative(double bound, double min_abs);
+/* The bound in words, in the reward unit and relative to the smallest
+ * |value|: "4.9e-07 kCU, 3e-12 of the smallest value in magnitude" (or
+ * "..., no relative figure: the smallest value is 0"). `unit` may be "".
+ * Local. */
+SLUICE_API void sl_bound_words(double bound, const char *unit, double min_abs, char *buf, size_t n);
 
 /* Write atomically; load distributed like m, checking that x was computed
  * for m (fingerprint). A values file (from evaluate) loads without actions. */

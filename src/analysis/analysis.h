@@ -54,4 +54,8 @@ sl_status sl_state_parse(sl_ctx *ctx, const sl_meta *m, const char *text, const 
 /* Stride of factor f in the state number (product of the earlier sizes). */
 int64_t sl_factor_stride(const sl_meta *m, int f);
 
+/* Smallest and largest of v[0..n) and the smallest |v| (INFINITY, -INFINITY,
+ * INFINITY when n = 0). Local. */
+void sl_value_extent_local(const double *v, int64_t n, double *vmin, double *vmax, double *min_abs);
+
 #endif /* SL_ANALYSIS_H */

@@ -174,7 +174,29 @@ static void on_progress(const sl_progress *p, void *user)
 
 /* ---- report and summary --------------------------------------------------------- */
 
-static int write_report(cli_args *a, const solve_args *o, const sl_model *m, const sl_solution *x, int exit_code)
+/* The values' extent, for bounds relative to the smallest value. */
+typedef struct value_extent {
+    double vmin, vmax, min_abs;
+} value_extent;
+
+/* Units of the model in a report: "units": {"reward", "period"}, and the
+ * bounds relative to the smallest value in magnitude (null if it is 0). */
+static void json_units_and_relative(sl_json *j, const sl_model *m, const value_extent *e, double value_error,
+                                    double policy_loss)
+{
+    sl_json_obj_open(j, "units");
+    sl_json_str(j, "reward", sl_model_reward_unit(m));
+    sl_json_str(j, "period", sl_model_period_unit(m));
+    sl_json_close_obj(j);
+    sl_json_num(j, "value_min", e->vmin);
+    sl_json_num(j, "value_max", e->vmax);
+    sl_json_num(j, "value_min_abs", e->min_abs);
+    sl_json_num(j, "value_error_relative", sl_bound_relative(value_error, e->min_abs));
+    sl_json_num(j, "policy_loss_relative", sl_bound_relative(policy_loss, e->min_abs));
+}
+
+static int write_report(cli_args *a, const solve_args *o, const sl_model *m, const sl_solution *x, int exit_code,
+                        const value_extent *e)
 {
     sl_ctx *ctx = a->ctx;
     if (o->report == NULL || sl_ctx_rank(ctx) != 0) return 0;
@@ -216,6 +238,7 @@ static int write_report(cli_args *a, const solve_args *o, const sl_model *m, con
     sl_json_num(&j, "residual_max", c.residual_max);
     sl_json_num(&j, "value_error_bound", c.value_error);
     sl_json_num(&j, "policy_loss_bound", c.policy_loss);
+    json_units_and_relative(&j, m, e, c.value_error, c.policy_loss);
     sl_json_int(&j, "checkpoints_written", in.checkpoints_written);
     sl_json_arr_open(&j, "history");
     for (int64_t i = 0; i < h.n; i++) {
@@ -243,7 +266,8 @@ static int write_report(cli_args *a, const solve_args *o, const sl_model *m, con
     return 0;
 }
 
-static void print_summary(cli_args *a, const solve_args *o, const sl_model *m, const sl_solution *x)
+static void print_summary(cli_args *a, const solve_args *o, const sl_model *m, const sl_solution *x,
+                          const value_extent *e)
 {
     sl_ctx *ctx = a->ctx;
     if (sl_ctx_rank(ctx) != 0 || sl_ctx_verbosity(ctx) < 1) return;
@@ -259,9 +283,14 @@ static void print_summary(cli_args *a, const solve_args *o, const sl_model *m, c
             in.evaluation[0] ? ", evaluation " : "", in.evaluation, sl_ctx_size(ctx));
     fprintf(f, "  result       %s after %lld iterations, %lld sweeps, %.2f s\n",
             c.converged ? "CERTIFIED" : "NOT converged", (long long)in.iterations, (long long)in.sweeps, in.seconds);
-    fprintf(f, "  residual     sup|Tv - v| = %.3e, span = %.3e\n", c.residual_sup, c.residual_span);
-    fprintf(f, "  certificate  |value - v*| <= %.3e in every state; policy within %.3e of optimal (tolerance %.1e)\n",
-            c.value_error, c.policy_loss, c.tolerance);
+    const char *ru = sl_model_reward_unit(m);
+    char vw[160], pw[160];
+    sl_bound_words(c.value_error, ru, e->min_abs, vw, sizeof(vw));
+    sl_bound_words(c.policy_loss, ru, e->min_abs, pw, sizeof(pw));
+    fprintf(f, "  values       %.6g .. %.6g %s\n", e->vmin, e->vmax, ru[0] ? ru : "(reward units)");
+    fprintf(f, "  residual     sup|Tv - v| = %.3e, span = %.3e %s\n", c.residual_sup, c.residual_span, ru);
+    fprintf(f, "  certificate  |value - v*| <= %s, in every state\n", vw);
+    fprintf(f, "               v* - v_policy <= %s, in every state (tolerance %.1e %s)\n", pw, c.tolerance, ru);
     fprintf(f, "  written      %s\n", o->output);
     fprintf(f, "  caution      results support, and never replace, licensed engineering judgement\n"
                "               and local regulations.\n");
@@ -326,9 +355,11 @@ static int run_solve(cli_args *a, const solve_args *o)
         if (x != NULL) {
             /* certified, stopped early or below the roundoff floor: the
              * solution is honest either way; write it, then say how it ended */
+            value_extent e;
             int wrc = cli_fail(a, sl_solution_save(x, o->output));
-            if (wrc == 0) wrc = write_report(a, o, m, x, (int)st);
-            if (wrc == 0) print_summary(a, o, m, x);
+            if (wrc == 0) wrc = cli_fail(a, sl_solution_value_extent(x, &e.vmin, &e.vmax, &e.min_abs));
+            if (wrc == 0) wrc = write_report(a, o, m, x, (int)st, &e);
+            if (wrc == 0) print_summary(a, o, m, x, &e);
             rc = wrc != 0 ? wrc : cli_fail(a, st);
         } else {
             rc = cli_fail(a, st);
@@ -465,13 +496,19 @@ static int run_evaluate(cli_args *a, const evaluate_args *o)
     if (rc == 0) rc = cli_fail(a, sl_solver_evaluate(s, m, pol, &v));
     if (rc == 0) rc = cli_fail(a, sl_solution_save(v, o->output));
     if (rc == 0) rc = cli_quantity_totals(a, s, m, pol, o->model, o->policy, o->compare, o->totals);
+    value_extent e;
+    if (rc == 0) rc = cli_fail(a, sl_solution_value_extent(v, &e.vmin, &e.vmax, &e.min_abs));
     if (rc == 0 && sl_ctx_rank(ctx) == 0 && sl_ctx_verbosity(ctx) >= 1) {
         sl_solution_info in;
         sl_certificate c;
+        char w[160];
+        const char *ru = sl_model_reward_unit(m);
         sl_solution_get_info(v, &in);
         sl_solution_get_certificate(v, &c);
-        fprintf(stderr, "evaluate: %s evaluation of the policy in %s: |value - v_policy| <= %.3e; wrote %s\n",
-                in.evaluation, o->policy, c.value_error, o->output);
+        sl_bound_words(c.value_error, ru, e.min_abs, w, sizeof(w));
+        fprintf(stderr, "evaluate: %s evaluation of the policy in %s: values %.6g .. %.6g %s; "
+                        "|value - v_policy| <= %s; wrote %s\n",
+                in.evaluation, o->policy, e.vmin, e.vmax, ru[0] ? ru : "(reward units)", w, o->output);
     }
     sl_solution_free(&v);
     sl_solution_free(&pol);
@@ -545,8 +582,11 @@ static int run_verify(cli_args *a, const verify_args *o)
         return rc;
     }
     if (rc == 0) rc = cli_fail(a, sl_solution_load(ctx, o->solution, m, &x));
+    value_extent e;
+    if (rc == 0) rc = cli_fail(a, sl_solution_value_extent(x, &e.vmin, &e.vmax, &e.min_abs));
     if (rc == 0) {
         sl_status st = sl_verify(m, x, o->tolerance, &r);
+        const char *ru = sl_model_reward_unit(m);
         if ((st == SL_OK || st == SL_EDATA) && sl_ctx_rank(ctx) == 0) {
             sl_solution_info in;
             sl_solution_get_info(x, &in);
@@ -562,17 +602,22 @@ static int run_verify(cli_args *a, const verify_args *o)
                 sl_json_num(&j, "policy_loss_bound", r.policy_loss);
                 sl_json_num(&j, "tolerance", r.tolerance);
                 sl_json_bool(&j, "certified", r.certified);
+                json_units_and_relative(&j, m, &e, r.value_error, r.policy_loss);
                 sl_json_end(&j);
             } else {
                 fprintf(out, "verify %s against %s\n", o->solution, o->model);
-                fprintf(out, "  residual      sup|Tv - v| = %.3e, span = %.3e (recomputed)\n", r.residual_sup,
-                        r.residual_span);
-                fprintf(out, "  value         |value - v*| <= %.3e in every state\n", r.value_error);
-                fprintf(out, "  policy        v* - v_policy <= %.3e in every state\n", r.policy_loss);
-                fprintf(out, "  claimed       value %.3e, policy %.3e (by %s)\n", r.claimed.value_error,
-                        r.claimed.policy_loss, in.method);
-                fprintf(out, "  result        %s at tolerance %.1e\n", r.certified ? "CERTIFIED" : "NOT certified",
-                        r.tolerance);
+                char vw[160], pw[160];
+                sl_bound_words(r.value_error, ru, e.min_abs, vw, sizeof(vw));
+                sl_bound_words(r.policy_loss, ru, e.min_abs, pw, sizeof(pw));
+                fprintf(out, "  values        %.6g .. %.6g %s\n", e.vmin, e.vmax, ru[0] ? ru : "(reward units)");
+                fprintf(out, "  residual      sup|Tv - v| = %.3e, span = %.3e %s (recomputed)\n", r.residual_sup,
+                        r.residual_span, ru);
+                fprintf(out, "  value         |value - v*| <= %s, in every state\n", vw);
+                fprintf(out, "  policy        v* - v_policy <= %s, in every state\n", pw);
+                fprintf(out, "  claimed       value %.3e, policy %.3e %s (by %s)\n", r.claimed.value_error,
+                        r.claimed.policy_loss, ru, in.method);
+                fprintf(out, "  result        %s at tolerance %.1e %s\n", r.certified ? "CERTIFIED" : "NOT certified",
+                        r.tolerance, ru);
             }
             fflush(out);
         }

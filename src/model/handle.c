@@ -383,3 +383,42 @@ double sl_model_param_value(const sl_model *m, int i)
 {
     return m && i >= 0 && i < m->meta.n_params ? m->meta.param_value[i] : NAN;
 }
+
+/* ---- format 2 annotations (docs/formats.md); "" / 0 when the model has none ---- */
+const char *sl_model_reward_unit(const sl_model *m) { return m ? m->meta.reward_unit : ""; }
+const char *sl_model_period_unit(const sl_model *m) { return m ? m->meta.period_unit : ""; }
+const char *sl_model_factor_unit(const sl_model *m, int f)
+{
+    return m && f >= 0 && f < m->meta.n_factors ? m->meta.factor_unit[f] : "";
+}
+int sl_model_factor_value(const sl_model *m, int f, int64_t i, double *value)
+{
+    if (m == NULL || f < 0 || f >= m->meta.n_factors || m->meta.factor_value[f] == NULL || i < 0 ||
+        i >= m->meta.factor_size[f])
+        return 0;
+    if (value) *value = m->meta.factor_value[f][i];
+    return 1;
+}
+const char *sl_model_factor_label(const sl_model *m, int f, int64_t i)
+{
+    if (m == NULL || f < 0 || f >= m->meta.n_factors || m->meta.factor_label[f] == NULL || i < 0 ||
+        i >= m->meta.factor_size[f])
+        return "";
+    return m->meta.factor_label[f][i];
+}
+int sl_model_action_value(const sl_model *m, int32_t a, double *value)
+{
+    if (m == NULL || a < 0 || a >= m->meta.n_action_values) return 0;
+    if (value) *value = m->meta.action_value[a];
+    return 1;
+}
+const char *sl_model_action_unit(const sl_model *m) { return m ? m->meta.action_unit : ""; }
+int sl_model_n_quantities(const sl_model *m) { return m ? m->meta.n_quantities : 0; }
+const char *sl_model_quantity_name(const sl_model *m, int q)
+{
+    return m && q >= 0 && q < m->meta.n_quantities ? m->meta.quantity_name[q] : "";
+}
+const char *sl_model_quantity_unit(const sl_model *m, int q)
+{
+    return m && q >= 0 && q < m->meta.n_quantities ? m->meta.quantity_unit[q] : "";
+}
