@@ -384,7 +384,17 @@ typedef struct sl_simulate_opts {
     uint64_t seed;
     int json;
     FILE *out;
+    /* per-stage figures (docs/results.md), as sl_outlook_compute reports them
+     * exactly: for stages 0..stages, the sample mean of each numeric factor,
+     * of each quantity's per-pair mean and P(q > 0) at the visited pair, and
+     * of the discounted reward so far, each with a confidence interval */
+    int64_t stages;             /* 0: only the discounted return */
+    int interval;               /* SL_INTERVAL_NORMAL or SL_INTERVAL_HOEFFDING */
+    double confidence;          /* of each interval, in (0, 1); 0 -> 0.95 */
+    const char *trajectories;   /* CSV of every sampled step (written atomically), or NULL */
 } sl_simulate_opts;
+#define SL_INTERVAL_NORMAL 0    /* mean +- z s / sqrt(n), the central limit theorem */
+#define SL_INTERVAL_HOEFFDING 1 /* mean +- (b - a) sqrt(ln(2/alpha) / (2n)), for values in [a, b] */
 /* Monte Carlo rollouts of the solution's policy from one start state. */
 SLUICE_API sl_status sl_simulate(sl_ctx *ctx, const sl_simulate_opts *opts);
 

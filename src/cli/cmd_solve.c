@@ -665,7 +665,17 @@ static const char simulate_help[] =
     "  Monte Carlo rollouts of the solution's policy; prints the mean discounted\n"
     "  return with a 95% interval next to the solution's value.\n"
     "  --horizon T           steps per episode (default: until discount^T < 1e-6)\n"
-    "  --json                machine-readable output\n";
+    "  --stages N            also per stage 0..N the figures 'sluice outlook' computes exactly:\n"
+    "                        each numeric factor's mean, each quantity's mean and P(>0), the\n"
+    "                        discounted reward so far, as sample means with intervals\n"
+    "  --interval M          normal (default; central limit theorem, approximate) or hoeffding\n"
+    "                        (Hoeffding 1963: guaranteed for the bounded figures, wider)\n"
+    "  --confidence C        of each interval (default 0.95)\n"
+    "  --replicates K        K independent runs with seeds S, S+1, ..., S+K-1 (with --json: an array)\n"
+    "  --trajectories F.csv  every sampled step: episode, stage, state, factors, action,\n"
+    "                        reward, quantities, discounted reward so far (atomically)\n"
+    "  --json                machine-readable output\n"
+    "Results support, never replace, licensed engineering judgement and local regulations.\n";
 
 int cmd_simulate(cli_args *a)
 {
@@ -675,7 +685,7 @@ int cmd_simulate(cli_args *a)
     o.episodes = 1000;
     int have_start = 0, rc = 0;
     const char *start_text = NULL;
-    int64_t seed = 1;
+    int64_t seed = 1, replicates = 1;
     while (a->i < a->argc && rc == 0) {
         int c = cli_common_opt(a, simulate_help);
         if (c < 0) return 0;
@@ -692,6 +702,23 @@ int cmd_simulate(cli_args *a)
         } else if (cli_opt(a, "--horizon")) {
             if (!int_opt(a, "--horizon", &o.horizon)) rc = SL_EUSAGE;
             else if (o.horizon < 1) rc = cli_usage_error(a, "--horizon must be at least 1");
+        } else if (cli_opt(a, "--stages")) {
+            if (!int_opt(a, "--stages", &o.stages)) rc = SL_EUSAGE;
+            else if (o.stages < 1 || o.stages > 100000000) rc = cli_usage_error(a, "--stages must be in [1, 1e8]");
+        } else if (cli_opt(a, "--interval")) {
+            const char *v = cli_value(a);
+            if (v == NULL) rc = SL_EUSAGE;
+            else if (strcmp(v, "normal") == 0) o.interval = SL_INTERVAL_NORMAL;
+            else if (strcmp(v, "hoeffding") == 0) o.interval = SL_INTERVAL_HOEFFDING;
+            else rc = cli_usage_error(a, "--interval: '%s' is not one of normal, hoeffding", v);
+        } else if (cli_opt(a, "--confidence")) {
+            if (!num_opt(a, "--confidence", &o.confidence)) rc = SL_EUSAGE;
+            else if (!(o.confidence > 0 && o.confidence < 1)) rc = cli_usage_error(a, "--confidence must be in (0, 1)");
+        } else if (cli_opt(a, "--trajectories")) {
+            if ((o.trajectories = cli_value(a)) == NULL) rc = SL_EUSAGE;
+        } else if (cli_opt(a, "--replicates")) {
+            if (!int_opt(a, "--replicates", &replicates)) rc = SL_EUSAGE;
+            else if (replicates < 1 || replicates > 1000000) rc = cli_usage_error(a, "--replicates must be in [1, 1e6]");
         } else if (cli_opt(a, "--json")) {
             o.json = 1;
         } else if (a->argv[a->i][0] == '-') {
@@ -709,6 +736,16 @@ int cmd_simulate(cli_args *a)
     if (!have_start) return cli_usage_error(a, "--start STATE is required");
     rc = cli_fail(a, sl_state_lookup(a->ctx, o.model, start_text, "--start", &o.start));
     if (rc) return rc;
-    o.seed = (uint64_t)seed;
-    return cli_fail(a, sl_simulate(a->ctx, &o));
+    if (replicates > 1 && o.trajectories)
+        return cli_usage_error(a, "--trajectories writes one run: leave out --replicates");
+    int root = sl_ctx_rank(a->ctx) == 0, many = replicates > 1 && o.json;
+    if (many && root) printf("[\n");
+    for (int64_t r = 0; r < replicates && rc == 0; r++) {
+        if (many && root && r > 0) printf(",\n");
+        fflush(stdout);
+        o.seed = (uint64_t)(seed + r);
+        rc = cli_fail(a, sl_simulate(a->ctx, &o));
+    }
+    if (many && root && rc == 0) printf("]\n");
+    return rc;
 }
