@@ -348,6 +348,14 @@ SLUICE_API void sl_bound_words(double bound, const char *unit, double min_abs, c
  * for m (fingerprint). A values file (from evaluate) loads without actions. */
 SLUICE_API sl_status sl_solution_save(const sl_solution *x, const char *path);
 SLUICE_API sl_status sl_solution_load(sl_ctx *ctx, const char *path, const sl_model *m, sl_solution **x);
+/* A policy from a CSV of actions by state (a rule operated today), for
+ * evaluation: header `state,action` or every factor name then `action`;
+ * states by number or by factor labels / values / @INDEX, actions by name,
+ * value as printed, or @ID; every state exactly once, each action available
+ * in its state. Errors name the file and line (or the first missing state).
+ * The solution holds the policy (values 0), distributed like m.
+ * Collective. */
+SLUICE_API sl_status sl_policy_read_csv(const sl_model *m, const char *path, sl_solution **x);
 SLUICE_API void sl_solution_free(sl_solution **x);
 
 /* ---- independent checks ------------------------------------------------------ */

@@ -469,7 +469,11 @@ static const char evaluate_help[] =
     "  For a model with outcome quantities it also prints each quantity's expected\n"
     "  discounted total under the policy (policy evaluation with the quantity as reward):\n"
     "  --totals FILE.csv     those totals per state, with units in the header\n"
-    "  --compare OTHER.h5    the same for the policy in OTHER.h5, and the difference\n";
+    "  --compare OTHER       the same for another policy, and the difference: a solution\n"
+    "                        file, or a CSV of actions by state (a rule operated today):\n"
+    "                        header 'state,action' or every factor name then 'action',\n"
+    "                        e.g. 'storage,inflow,month,action' / '600,140,Jan,release_150';\n"
+    "                        factors by label, value or @INDEX, actions by name, value or @ID\n";
 
 typedef struct evaluate_args {
     const char *model, *policy, *output;
@@ -494,8 +498,9 @@ static int run_evaluate(cli_args *a, const evaluate_args *o)
         rc = cli_fail(a, st);
     }
     if (rc == 0) rc = cli_fail(a, sl_solver_evaluate(s, m, pol, &v));
-    if (rc == 0) rc = cli_fail(a, sl_solution_save(v, o->output));
+    /* totals (and --compare's policy) first: bad input there leaves no values file */
     if (rc == 0) rc = cli_quantity_totals(a, s, m, pol, o->model, o->policy, o->compare, o->totals);
+    if (rc == 0) rc = cli_fail(a, sl_solution_save(v, o->output));
     value_extent e;
     if (rc == 0) rc = cli_fail(a, sl_solution_value_extent(v, &e.vmin, &e.vmax, &e.min_abs));
     if (rc == 0 && sl_ctx_rank(ctx) == 0 && sl_ctx_verbosity(ctx) >= 1) {
