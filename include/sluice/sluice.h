@@ -139,7 +139,9 @@ SLUICE_API sl_status sl_model_assemble(sl_model *m);
 /* Load a model file, each rank reading a range of states balanced by
  * transitions; checks the fingerprint. */
 SLUICE_API sl_status sl_model_load(sl_ctx *ctx, const char *path, sl_model **m);
-/* Write the model file atomically (temporary name, then rename). */
+/* Write the model file atomically (temporary name, then rename). A loaded
+ * model with outcome quantities copies them from the file it was loaded from
+ * (checked against their hash at load; SL_EDATA if that file changed). */
 SLUICE_API sl_status sl_model_save(const sl_model *m, const char *path);
 
 /* Compile (for .c), load and enumerate a generator (see sluice/generator.h),

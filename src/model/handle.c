@@ -318,11 +318,53 @@ cleanup:
     return st;
 }
 
+/* A loaded model keeps only a hash of its outcome quantities (they can be
+ * larger than the transitions): saving it copies them from the file it was
+ * loaded from, after checking that they still hash to what was loaded. */
+static sl_status save_copying_quantities(const sl_model *m, const char *path)
+{
+    sl_ctx *ctx = m->ctx;
+    sl_status st = SL_OK;
+    sl_block b = m->blk; /* shallow: the rows are only read */
+    int nq = m->meta.n_quantities;
+    int64_t np = sl_block_pairs(&m->blk);
+    double *qm = NULL, *qp = NULL, *mean = NULL, *pos = NULL;
+    uint64_t acc[2] = {0, 0};
+    if (SL_ALLOC(ctx, qm, np * nq, "quantities") == NULL || SL_ALLOC(ctx, qp, np * nq, "quantities") == NULL ||
+        SL_ALLOC(ctx, mean, np, "quantities") == NULL || SL_ALLOC(ctx, pos, np, "quantities") == NULL)
+        st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    for (int q = 0; q < nq; q++) {
+        SL_TRY(sl_store_quantity_read(ctx, m->name, &m->meta, q, m->blk.p_begin, np, mean, pos));
+        sl_fingerprint_quantity(acc, q, m->blk.p_begin, np, mean, pos, 1);
+        for (int64_t k = 0; k < np; k++) {
+            qm[k * nq + q] = mean[k];
+            qp[k * nq + q] = pos[k];
+        }
+    }
+    if (acc[0] != m->blk.qacc[0] || acc[1] != m->blk.qacc[1])
+        st = SL_ERR(ctx, SL_EDATA,
+                    "%s: its outcome quantities changed since the model was loaded from it; %s not written", m->name,
+                    path);
+    SL_TRY(sl_agree(ctx, st));
+    b.nq = nq;
+    b.qmean = qm;
+    b.qpos = qp;
+    st = sl_store_model_write(ctx, path, &m->meta, &b);
+cleanup:
+    free(qm);
+    free(qp);
+    free(mean);
+    free(pos);
+    return st;
+}
+
 sl_status sl_model_save(const sl_model *m, const char *path)
 {
     if (m == NULL) return SL_EUSAGE;
     sl_status st = sl_agree(m->ctx, sl_model_check_ready(m->ctx, m, "sl_model_save"));
     if (st != SL_OK) return st;
+    if (m->meta.n_quantities > 0 && m->blk.nq == 0) return save_copying_quantities(m, path);
     return sl_store_model_write(m->ctx, path, &m->meta, &m->blk);
 }
 
