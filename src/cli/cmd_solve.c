@@ -435,12 +435,8 @@ int cmd_solve(cli_args *a)
             if (!num_opt(a, "--aperiodicity", &o.aperiodicity)) rc = SL_EUSAGE;
             else if (!(o.aperiodicity > 0 && o.aperiodicity < 1))
                 rc = cli_usage_error(a, "--aperiodicity must be in (0, 1)");
-        } else if (a->argv[a->i][0] == '-') {
-            rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
-        } else if (o.model == NULL) {
-            o.model = a->argv[a->i++];
         } else {
-            rc = cli_usage_error(a, "unexpected argument '%s'", a->argv[a->i]);
+            rc = cli_positional(a, (const char **[]){&o.model}, 1);
         }
     }
     if (rc) return rc;
@@ -546,12 +542,8 @@ int cmd_evaluate(cli_args *a)
             else if (!(o.tolerance > 0)) rc = cli_usage_error(a, "--tolerance must be positive");
         } else if (cli_opt(a, "--memory-limit")) {
             if (!num_opt(a, "--memory-limit", &o.memory_limit)) rc = SL_EUSAGE;
-        } else if (a->argv[a->i][0] == '-') {
-            rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
-        } else if (o.model == NULL) {
-            o.model = a->argv[a->i++];
         } else {
-            rc = cli_usage_error(a, "unexpected argument '%s'", a->argv[a->i]);
+            rc = cli_positional(a, (const char **[]){&o.model}, 1);
         }
     }
     if (rc) return rc;
@@ -649,14 +641,8 @@ int cmd_verify(cli_args *a)
             else if (!(o.tolerance > 0)) rc = cli_usage_error(a, "--tolerance must be positive");
         } else if (cli_opt(a, "--json")) {
             o.json = 1;
-        } else if (a->argv[a->i][0] == '-') {
-            rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
-        } else if (o.model == NULL) {
-            o.model = a->argv[a->i++];
-        } else if (o.solution == NULL) {
-            o.solution = a->argv[a->i++];
         } else {
-            rc = cli_usage_error(a, "unexpected argument '%s'", a->argv[a->i]);
+            rc = cli_positional(a, (const char **[]){&o.model, &o.solution}, 2);
         }
     }
     if (rc) return rc;
@@ -726,14 +712,8 @@ int cmd_simulate(cli_args *a)
             else if (replicates < 1 || replicates > 1000000) rc = cli_usage_error(a, "--replicates must be in [1, 1e6]");
         } else if (cli_opt(a, "--json")) {
             o.json = 1;
-        } else if (a->argv[a->i][0] == '-') {
-            rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
-        } else if (o.model == NULL) {
-            o.model = a->argv[a->i++];
-        } else if (o.solution == NULL) {
-            o.solution = a->argv[a->i++];
         } else {
-            rc = cli_usage_error(a, "unexpected argument '%s'", a->argv[a->i]);
+            rc = cli_positional(a, (const char **[]){&o.model, &o.solution}, 2);
         }
     }
     if (rc) return rc;

@@ -87,12 +87,8 @@ int cmd_export(cli_args *a)
             if ((output = cli_value(a)) == NULL) rc = SL_EUSAGE;
         } else if (cli_opt(a, "--model")) {
             if ((model = cli_value(a)) == NULL) rc = SL_EUSAGE;
-        } else if (a->argv[a->i][0] == '-') {
-            rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
-        } else if (solution == NULL) {
-            solution = a->argv[a->i++];
         } else {
-            rc = cli_usage_error(a, "unexpected argument '%s'", a->argv[a->i]);
+            rc = cli_positional(a, (const char **[]){&solution}, 1);
         }
     }
     if (rc) return rc;

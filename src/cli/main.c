@@ -82,6 +82,19 @@ int cli_usage_error(cli_args *a, const char *fmt, ...)
     return SL_EUSAGE;
 }
 
+int cli_positional(cli_args *a, const char **slots[], int n)
+{
+    const char *arg = a->argv[a->i];
+    if (arg[0] == '-' && arg[1] != '\0') return cli_usage_error(a, "unknown option '%s'", arg);
+    for (int k = 0; k < n; k++)
+        if (*slots[k] == NULL) {
+            *slots[k] = arg;
+            a->i++;
+            return 0;
+        }
+    return cli_usage_error(a, "unexpected argument '%s'", arg);
+}
+
 int cli_fail(cli_args *a, sl_status st)
 {
     if (st != SL_OK && st != SL_ESTOPPED && sl_ctx_rank(a->ctx) == 0) {

@@ -63,4 +63,12 @@ expect "simulate: trajectories into a missing directory" --code 73 --err "nodir/
     "${S[@]}" --stages 3 --trajectories "$W/nodir/t.csv"
 expect "simulate: --trajectories with --replicates" --code 64 --err "--replicates" --gone "$W/t.csv" -- \
     "${S[@]}" --stages 3 --trajectories "$W/t.csv" --replicates 3
+# positional arguments (one helper, cli_positional, for every command)
+expect "verify: an extra argument" --code 64 --err "unexpected argument 'extra.h5'" -- \
+    "$SLUICE" verify "$W/res.h5" "$W/sol.h5" extra.h5
+expect "simulate: an unknown option" --code 64 --err "unknown option '--episode'" -- "${S[@]}" --episode 5
+expect "outlook: MODEL and SOLUTION in order" --code 0 --out "exact, no sampling" -- \
+    "$SLUICE" outlook "$W/res.h5" "$W/sol.h5" --start 0 --stages 2
+expect "outlook: SOLUTION and MODEL swapped" --code 65 --err "sol.h5" -- \
+    "$SLUICE" outlook "$W/sol.h5" "$W/res.h5" --start 0 --stages 2
 sl_finish
