@@ -1,7 +1,7 @@
 #!/usr/bin/python3
 """compare_models.py - two sluice model files hold the same datasets with the
 same contents and the same fingerprint, read independently with h5py
-(Debian python3-h5py) and numpy. Used by tests/unit/test_resave.c.
+(Debian python3-h5py) and numpy. Used by tests/unit/test_handles.c (test_resave).
 
 usage: compare_models.py A.h5 B.h5   (exit 0 same, 1 different)
 """
