@@ -139,7 +139,9 @@ SLUICE_API sl_status sl_model_assemble(sl_model *m);
 /* Load a model file, each rank reading a range of states balanced by
  * transitions; checks the fingerprint. */
 SLUICE_API sl_status sl_model_load(sl_ctx *ctx, const char *path, sl_model **m);
-/* Write the model file atomically (temporary name, then rename). */
+/* Write the model file atomically (temporary name, then rename). A loaded
+ * model with outcome quantities copies them from the file it was loaded from
+ * (checked against their hash at load; SL_EDATA if that file changed). */
 SLUICE_API sl_status sl_model_save(const sl_model *m, const char *path);
 
 /* Compile (for .c), load and enumerate a generator (see sluice/generator.h),
@@ -215,6 +217,22 @@ SLUICE_API int sl_model_n_params(const sl_model *m);
 SLUICE_API const char *sl_model_param_name(const sl_model *m, int i);
 SLUICE_API const char *sl_model_param_unit(const sl_model *m, int i);
 SLUICE_API double sl_model_param_value(const sl_model *m, int i);
+/* Format 2 annotations (docs/formats.md). Local; "" or 0 when the model has
+ * none. Units of the reward and of one discount period: */
+SLUICE_API const char *sl_model_reward_unit(const sl_model *m);
+SLUICE_API const char *sl_model_period_unit(const sl_model *m);
+/* Factor f: its unit; the numeric value of index i (returns 0 when the
+ * factor has no values); the label of index i ("" when it has none). */
+SLUICE_API const char *sl_model_factor_unit(const sl_model *m, int f);
+SLUICE_API int sl_model_factor_value(const sl_model *m, int f, int64_t i, double *value);
+SLUICE_API const char *sl_model_factor_label(const sl_model *m, int f, int64_t i);
+/* Numeric value of action id a (0 when actions have no values) and its unit. */
+SLUICE_API int sl_model_action_value(const sl_model *m, int32_t a, double *value);
+SLUICE_API const char *sl_model_action_unit(const sl_model *m);
+/* Outcome quantities: count, names and units of one period's quantity. */
+SLUICE_API int sl_model_n_quantities(const sl_model *m);
+SLUICE_API const char *sl_model_quantity_name(const sl_model *m, int q);
+SLUICE_API const char *sl_model_quantity_unit(const sl_model *m, int q);
 
 /* ---- solvers ---------------------------------------------------------------- */
 
@@ -330,11 +348,30 @@ typedef struct sl_history_view {
 SLUICE_API sl_status sl_solution_get_history(const sl_solution *x, sl_history_view *h);
 /* Whole vectors on rank `root` (malloc'ed there, NULL elsewhere; free()). */
 SLUICE_API sl_status sl_solution_gather(const sl_solution *x, int root, double **value, int32_t **action);
+/* Smallest and largest value and smallest |value| over all states.
+ * Collective. */
+SLUICE_API sl_status sl_solution_value_extent(const sl_solution *x, double *vmin, double *vmax, double *min_abs);
+/* A certificate bound relative to the smallest |value| (NaN when some value
+ * is 0 or min_abs is not finite). Local. */
+SLUICE_API double sl_bound_relative(double bound, double min_abs);
+/* The bound in words, in the reward unit and relative to the smallest
+ * |value|: "4.9e-07 kCU, 3e-12 of the smallest value in magnitude" (or
+ * "..., no relative figure: the smallest value is 0"). `unit` may be "".
+ * Local. */
+SLUICE_API void sl_bound_words(double bound, const char *unit, double min_abs, char *buf, size_t n);
 
 /* Write atomically; load distributed like m, checking that x was computed
  * for m (fingerprint). A values file (from evaluate) loads without actions. */
 SLUICE_API sl_status sl_solution_save(const sl_solution *x, const char *path);
 SLUICE_API sl_status sl_solution_load(sl_ctx *ctx, const char *path, const sl_model *m, sl_solution **x);
+/* A policy from a CSV of actions by state (a rule operated today), for
+ * evaluation: header `state,action` or every factor name then `action`;
+ * states by number or by factor labels / values / @INDEX, actions by name,
+ * value as printed, or @ID; every state exactly once, each action available
+ * in its state. Errors name the file and line (or the first missing state).
+ * The solution holds the policy (values 0), distributed like m.
+ * Collective. */
+SLUICE_API sl_status sl_policy_read_csv(const sl_model *m, const char *path, sl_solution **x);
 SLUICE_API void sl_solution_free(sl_solution **x);
 
 /* ---- independent checks ------------------------------------------------------ */
@@ -376,7 +413,17 @@ typedef struct sl_simulate_opts {
     uint64_t seed;
     int json;
     FILE *out;
+    /* per-stage figures (docs/results.md), as sl_outlook_compute reports them
+     * exactly: for stages 0..stages, the sample mean of each numeric factor,
+     * of each quantity's per-pair mean and P(q > 0) at the visited pair, and
+     * of the discounted reward so far, each with a confidence interval */
+    int64_t stages;             /* 0: only the discounted return */
+    int interval;               /* SL_INTERVAL_NORMAL or SL_INTERVAL_HOEFFDING */
+    double confidence;          /* of each interval, in (0, 1); 0 -> 0.95 */
+    const char *trajectories;   /* CSV of every sampled step (written atomically), or NULL */
 } sl_simulate_opts;
+#define SL_INTERVAL_NORMAL 0    /* mean +- z s / sqrt(n), the central limit theorem */
+#define SL_INTERVAL_HOEFFDING 1 /* mean +- (b - a) sqrt(ln(2/alpha) / (2n)), for values in [a, b] */
 /* Monte Carlo rollouts of the solution's policy from one start state. */
 SLUICE_API sl_status sl_simulate(sl_ctx *ctx, const sl_simulate_opts *opts);
 

@@ -552,13 +552,8 @@ static sl_status write_doc(sl_ctx *ctx, const sl_report_data_opts *o, const repo
     sl_json_close_obj(j);
 
     /* solution and certificate */
-    double vmin = INFINITY, vmax = -INFINITY, vabs = INFINITY;
-    for (int64_t s = 0; s < m->n_states; s++) {
-        double x = r->value[s];
-        if (x < vmin) vmin = x;
-        if (x > vmax) vmax = x;
-        if (fabs(x) < vabs) vabs = fabs(x);
-    }
+    double vmin, vmax, vabs;
+    sl_value_extent_local(r->value, m->n_states, &vmin, &vmax, &vabs);
     sl_json_obj_open(j, "solution");
     sl_json_str(j, "path", o->solution);
     sl_json_str(j, "method", in->method);
@@ -585,8 +580,8 @@ static sl_status write_doc(sl_ctx *ctx, const sl_report_data_opts *o, const repo
     sl_json_num(j, "residual_span", c->residual_span);
     sl_json_bool(j, "certified", c->converged && c->value_error <= c->tolerance && c->policy_loss <= c->tolerance);
     /* relative to the smallest |value| (null when some value is 0) */
-    sl_json_num(j, "value_error_relative", vabs > 0 ? c->value_error / vabs : NAN);
-    sl_json_num(j, "policy_loss_relative", vabs > 0 ? c->policy_loss / vabs : NAN);
+    sl_json_num(j, "value_error_relative", sl_bound_relative(c->value_error, vabs));
+    sl_json_num(j, "policy_loss_relative", sl_bound_relative(c->policy_loss, vabs));
     sl_json_close_obj(j);
 
     sl_json_obj_open(j, "verify");

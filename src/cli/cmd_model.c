@@ -81,12 +81,8 @@ int cmd_build(cli_args *a)
             if ((o.cache_dir = cli_value(a)) == NULL) rc = SL_EUSAGE;
         } else if (cli_opt(a, "--cc")) {
             if ((o.cc = cli_value(a)) == NULL) rc = SL_EUSAGE;
-        } else if (a->argv[a->i][0] == '-' && a->argv[a->i][1] != '\0') {
-            rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
-        } else if (o.generator == NULL) {
-            o.generator = a->argv[a->i++];
         } else {
-            rc = cli_usage_error(a, "unexpected argument '%s'", a->argv[a->i]);
+            rc = cli_positional(a, (const char **[]){&o.generator}, 1);
         }
     }
     if (rc == 0 && o.generator == NULL) rc = cli_usage_error(a, "no generator given");
@@ -169,12 +165,8 @@ static int csv_command(cli_args *a, int estimate)
             else if (strcmp(v, "absorb") == 0) absorb = 1;
             else if (strcmp(v, "error") == 0) absorb = 0;
             else rc = cli_usage_error(a, "--unseen: expected 'absorb' or 'error', got '%s'", v);
-        } else if (strcmp(a->argv[a->i], "-") != 0 && a->argv[a->i][0] == '-') {
-            rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
-        } else if (input == NULL) {
-            input = a->argv[a->i++];
         } else {
-            rc = cli_usage_error(a, "unexpected argument '%s'", a->argv[a->i]);
+            rc = cli_positional(a, (const char **[]){&input}, 1);
         }
     }
     if (rc) return rc;
@@ -229,12 +221,8 @@ int cmd_info(cli_args *a)
             if ((v = cli_value(a)) == NULL || !cli_int64(a, "--partition", v, &n)) rc = SL_EUSAGE;
             else if (n < 1 || n > 1000000) rc = cli_usage_error(a, "--partition: N must be in [1, 1000000]");
             else o.partition = (int)n;
-        } else if (a->argv[a->i][0] == '-') {
-            rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
-        } else if (o.path == NULL) {
-            o.path = a->argv[a->i++];
         } else {
-            rc = cli_usage_error(a, "unexpected argument '%s'", a->argv[a->i]);
+            rc = cli_positional(a, (const char **[]){&o.path}, 1);
         }
     }
     if (rc) return rc;

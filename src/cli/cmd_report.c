@@ -190,14 +190,8 @@ int cmd_report(cli_args *a)
             const char *v = cli_value(a);
             if (v == NULL || !cli_int64(a, "--outlook-stages", v, &stages)) rc = SL_EUSAGE;
             else if (stages < 1 || stages > 100000) rc = cli_usage_error(a, "--outlook-stages must be in [1, 100000]");
-        } else if (a->argv[a->i][0] == '-') {
-            rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
-        } else if (model == NULL) {
-            model = a->argv[a->i++];
-        } else if (solution == NULL) {
-            solution = a->argv[a->i++];
         } else {
-            rc = cli_usage_error(a, "unexpected argument '%s'", a->argv[a->i]);
+            rc = cli_positional(a, (const char **[]){&model, &solution}, 2);
         }
     }
     if (rc) return rc;

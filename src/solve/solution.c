@@ -2,6 +2,7 @@
 #include <math.h>
 #include <string.h>
 
+#include "analysis/analysis.h"
 #include "solve/solve.h"
 
 sl_status sl_solution_new(sl_ctx *ctx, int64_t n_states, int64_t s_begin, int64_t n, int with_actions,
@@ -73,6 +74,20 @@ sl_status sl_solution_get_history(const sl_solution *x, sl_history_view *h)
     h->span = x->hist.span;
     h->value_error = x->hist.value_error;
     h->policy_loss = x->hist.policy_loss;
+    return SL_OK;
+}
+
+sl_status sl_solution_value_extent(const sl_solution *x, double *vmin, double *vmax, double *min_abs)
+{
+    if (x == NULL) return SL_EUSAGE;
+    double e[3];
+    sl_value_extent_local(x->value, x->n, &e[0], &e[1], &e[2]);
+    e[1] = -e[1]; /* one MIN reduction for all three */
+    if (MPI_Allreduce(MPI_IN_PLACE, e, 3, MPI_DOUBLE, MPI_MIN, x->ctx->comm) != MPI_SUCCESS)
+        return SL_ERR(x->ctx, SL_EINTERNAL, "sl_solution_value_extent: MPI_Allreduce failed");
+    if (vmin) *vmin = e[0];
+    if (vmax) *vmax = -e[1];
+    if (min_abs) *min_abs = e[2];
     return SL_OK;
 }
 

@@ -22,7 +22,7 @@ if(NOT _sluice_py_ok EQUAL 0)
   set_tests_properties(py_prerequisites PROPERTIES LABELS python)
 else()
   set(_sluice_py_dir ${PROJECT_SOURCE_DIR}/tests/python)
-  foreach(_t lp evaluate published certificate estimate)
+  foreach(_t lp evaluate published certificate estimate units simulate)
     add_test(NAME py_${_t}
       COMMAND ${SLUICE_TEST_PYTHON} ${_sluice_py_dir}/test_${_t}.py
               $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/py_${_t})
