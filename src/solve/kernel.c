@@ -17,6 +17,7 @@ void sl_problem_free(sl_problem *p)
     free(p->order);
     sl_stage_map_free(&p->stages);
     sl_io_plan_free(&p->io);
+    free(p->own_reward);
     memset(p, 0, sizeof(*p));
 }
 
@@ -112,6 +113,37 @@ sl_status sl_problem_from_model(sl_ctx *ctx, const sl_model *m, sl_order order, 
     SL_TRY(sl_agree(ctx, build_order(ctx, p, order)));
 cleanup:
     if (st != SL_OK) sl_problem_free(p);
+    return st;
+}
+
+sl_status sl_problem_visit_adjust(sl_ctx *ctx, sl_problem *p, const sl_model *m, double c)
+{
+    sl_status st = SL_OK;
+    if (c == 0.0) return SL_OK;
+    int64_t np = sl_block_pairs(&p->blk);
+    if (!isfinite(c))
+        st = SL_ERR(ctx, SL_EUSAGE, "visit bonus/penalty %g is not a finite number", c);
+    else if (!m->meta.has_visits)
+        st = SL_ERR(ctx, SL_EUSAGE,
+                    "%s holds no visit counts (/pair/visits): a bonus or penalty for thin data needs a model "
+                    "from `sluice estimate`",
+                    p->path);
+    else if (p->owns_rows || (np > 0 && m->blk.visits == NULL))
+        st = SL_ERR(ctx, SL_EUSAGE, "%s: the visit counts cannot follow this model's row layout (stage factor)",
+                    p->path);
+    SL_TRY(sl_agree(ctx, st));
+    if (SL_ALLOC(ctx, p->own_reward, np + 1, "adjusted rewards") == NULL) st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    double rmax = 0;
+    for (int64_t k = 0; k < np; k++) {
+        int64_t n = m->blk.visits[k];
+        p->own_reward[k] = p->blk.reward[k] + (n > 0 ? c / sqrt((double)n) : 0.0);
+        if (fabs(p->own_reward[k]) > rmax) rmax = fabs(p->own_reward[k]);
+    }
+    p->blk.reward = p->own_reward;
+    p->rmax_abs = sl_max(ctx, rmax);
+    p->visit_adjust = c;
+cleanup:
     return st;
 }
 

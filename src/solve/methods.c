@@ -131,6 +131,7 @@ static sl_status form_solution(run *r, int converged)
     x->info.sweeps = r->S.sweeps;
     x->info.seconds = elapsed(r);
     x->info.discount = r->P.gamma;
+    x->info.visit_adjust = r->P.visit_adjust;
     x->info.checkpoints_written = r->n_ckpt;
     x->cert.converged = converged;
     x->cert.tolerance = r->tol;
@@ -402,6 +403,10 @@ sl_status sl_solver_solve(sl_solver *o, const sl_model *m, sl_solution **xout)
     if (o->checkpoint_dir) SL_TRY(sl_ckpt_lock(ctx, o->checkpoint_dir, &r->lock_fd));
     SL_TRY(sl_problem_from_model(ctx, m, o->order, 0, &r->P));
     r->P.direct_time_limit = o->direct_time_limit;
+    if (o->visit_adjust != 0.0 && o->checkpoint_dir)
+        SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EUSAGE, "a visit bonus or penalty cannot be combined with checkpoints "
+                                                    "(a checkpoint identifies the model, not the adjustment)")));
+    SL_TRY(sl_problem_visit_adjust(ctx, &r->P, m, o->visit_adjust));
     int64_t n = r->P.n_local, nx = n + r->P.halo.n_halo;
     if (SL_ZALLOC(ctx, r->x, nx, "values") == NULL || SL_ZALLOC(ctx, r->y, nx, "values") == NULL ||
         SL_ZALLOC(ctx, r->pol, n, "policy") == NULL || SL_ZALLOC(ctx, r->actions, n, "policy") == NULL)
@@ -613,6 +618,26 @@ sl_status sl_solver_set_direct_time_limit(sl_solver *s, double seconds)
         return SL_ERR(s->ctx, SL_EUSAGE, "sl_solver_set_direct_time_limit: %g is not a number of seconds", seconds);
     s->direct_time_limit = seconds;
     return SL_OK;
+}
+
+static sl_status set_visit_adjust(sl_solver *s, double c, const char *what)
+{
+    if (s == NULL) return SL_EUSAGE;
+    if (!(c >= 0) || !isfinite(c)) return SL_ERR(s->ctx, SL_EUSAGE, "%s: %g is not a number >= 0", what, c);
+    s->visit_adjust = c;
+    return SL_OK;
+}
+
+sl_status sl_solver_set_visit_bonus(sl_solver *s, double c)
+{
+    return set_visit_adjust(s, c, "sl_solver_set_visit_bonus");
+}
+
+sl_status sl_solver_set_visit_penalty(sl_solver *s, double c)
+{
+    sl_status st = set_visit_adjust(s, c, "sl_solver_set_visit_penalty");
+    if (st == SL_OK) s->visit_adjust = -c;
+    return st;
 }
 
 sl_status sl_solver_set_checkpoint(sl_solver *s, const char *dir, double every_s, int resume)
