@@ -27,6 +27,7 @@ typedef struct run {
     sl_check last;
     int have_check;
     void *lu;               /* PI: cached factorization */
+    sl_policy_rows prow;    /* MPI: the stable policy's transitions, contiguous (first == NULL: none) */
     char evaluation[16];
     double lu_estimate;
     int64_t n_ckpt;
@@ -299,7 +300,7 @@ static int step_jacobi(run *r)
     return 0;
 }
 
-static int step_mpi(run *r)
+static int step_mpi(run *r, sl_status *st)
 {
     int c = check(r, r->pol); /* improvement: greedy policy + certificate */
     r->S.sweeps++;
@@ -307,9 +308,18 @@ static int step_mpi(run *r)
     double *t = r->x;
     r->x = r->y;
     r->y = t;
+    /* once no action changed, the evaluation sweeps run over the policy's
+     * own transitions, laid out contiguously; a change drops them (the
+     * count of changes is global, so all ranks decide alike) */
+    if (r->last.changed > 0) sl_policy_rows_free(&r->prow);
+    else if (r->prow.first == NULL) {
+        *st = sl_agree(r->ctx, sl_policy_rows_build(r->ctx, &r->P, r->pol, &r->prow));
+        if (*st != SL_OK) return -1;
+    }
     int64_t m = r->o->sweeps > 0 ? r->o->sweeps : r->S.mpi_m;
     for (int64_t j = 0; j < m; j++) {
-        sl_sweep(r->ctx, &r->P, r->x, r->pol, 1);
+        if (r->prow.first != NULL) sl_sweep_rows(r->ctx, &r->P, r->x, &r->prow);
+        else sl_sweep(r->ctx, &r->P, r->x, r->pol, 1);
         r->S.sweeps++;
     }
     /* adapt m: a stable policy deserves longer evaluation (Puterman & Shin 1978
@@ -461,7 +471,7 @@ sl_status sl_solver_solve(sl_solver *o, const sl_model *m, sl_solution **xout)
         switch (o->method) {
         case SL_METHOD_GS: c = step_gs(r); break;
         case SL_METHOD_JACOBI: c = step_jacobi(r); break;
-        case SL_METHOD_MPI: c = step_mpi(r); break;
+        case SL_METHOD_MPI: c = step_mpi(r, &st); break;
         case SL_METHOD_PI: c = step_pi(r, &st); break;
         }
         st = sl_agree(ctx, st);
@@ -496,6 +506,7 @@ sl_status sl_solver_solve(sl_solver *o, const sl_model *m, sl_solution **xout)
 cleanup:
     sl_solution_free(&r->out);
     sl_evaluate_direct_free(&r->lu);
+    sl_policy_rows_free(&r->prow);
     free(r->x);
     free(r->y);
     free(r->pol);

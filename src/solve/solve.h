@@ -111,6 +111,26 @@ double sl_sweep_gs(const sl_problem *p, double *x, int32_t *policy, int eval);
  * Returns the local largest change (reduce it). Collective. */
 double sl_sweep(sl_ctx *ctx, const sl_problem *p, double *x, int32_t *policy, int eval);
 
+/* The transitions of one fixed policy, copied out of the model's rows in
+ * sweep order (entry j is state order[j]) so that a fixed-policy sweep
+ * streams through them contiguously instead of jumping over the other
+ * actions' rows. Arithmetic is the same as the sweep over the model's rows
+ * (same terms, same order), so the iterates are bitwise equal. */
+typedef struct sl_policy_rows {
+    int64_t n;              /* owned states; 0: not built */
+    uint32_t *first;        /* [n + 1] offsets into col/prob */
+    uint32_t *col;          /* local columns into [owned | halo] */
+    double *prob;
+    double *reward;         /* [n] */
+} sl_policy_rows;
+/* Build the rows of `policy` (pair offsets). Fails with SL_EDATA if the
+ * policy's transitions on this rank do not fit 32-bit offsets. Local. */
+sl_status sl_policy_rows_build(sl_ctx *ctx, const sl_problem *p, const int32_t *policy, sl_policy_rows *rows);
+void sl_policy_rows_free(sl_policy_rows *rows);
+/* sl_sweep(ctx, p, x, policy, 1) for the policy the rows were built from.
+ * Collective. */
+double sl_sweep_rows(sl_ctx *ctx, const sl_problem *p, double *x, const sl_policy_rows *rows);
+
 /* File id of owned local state i (for messages). Local. */
 int64_t sl_problem_file_state(const sl_problem *p, int64_t i);
 
