@@ -142,7 +142,7 @@ sl_status sl_stage_runs(sl_ctx *ctx, const sl_stage_map *m, int r, int64_t **run
 static int fits_int(int64_t v) { return v >= 0 && v <= INT32_MAX; }
 
 sl_status sl_stage_redistribute(sl_ctx *ctx, const sl_block *src, const int64_t *src_bounds, const sl_stage_map *m,
-                                sl_block *out)
+                                sl_block *release, sl_block *out)
 {
     sl_status st = SL_OK;
     int P = ctx->size, r = ctx->rank;
@@ -233,6 +233,9 @@ sl_status sl_stage_redistribute(sl_ctx *ctx, const sl_block *src, const int64_t 
     }
     free(asked);
     asked = NULL;
+    /* the source rows are packed: the caller may let them go now */
+    if (release != NULL) sl_block_free(release);
+    src = NULL;
     MPI_Alltoall(pc, 1, MPI_INT, rpc, 1, MPI_INT, ctx->comm);
     MPI_Alltoall(tc, 1, MPI_INT, rtc, 1, MPI_INT, ctx->comm);
     int64_t np = 0, nt = 0;
@@ -255,6 +258,11 @@ sl_status sl_stage_redistribute(sl_ctx *ctx, const sl_block *src, const int64_t 
     MPI_Alltoallv(sntr, pc, pd, MPI_INT64_T, rntr, rpc, rpd, MPI_INT64_T, ctx->comm);
     MPI_Alltoallv(stg, tc, td, MPI_INT64_T, rtg, rtc, rtd, MPI_INT64_T, ctx->comm);
     MPI_Alltoallv(spr, tc, td, MPI_DOUBLE, rpr, rtc, rtd, MPI_DOUBLE, ctx->comm);
+    /* sent: the send buffers go before the output is allocated */
+    free(snp), free(sact), free(srew), free(sntr), free(stg), free(spr);
+    snp = sntr = stg = NULL;
+    sact = NULL;
+    srew = spr = NULL;
     /* 3. received records are in request order; put them in internal order */
     if (SL_ALLOC(ctx, poff, ns + 1, "redistribution") == NULL || SL_ALLOC(ctx, toff, np + 1, "redistribution") == NULL ||
         SL_ALLOC(ctx, out->first_pair, ns + 1, "first_pair") == NULL ||

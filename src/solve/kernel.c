@@ -62,7 +62,9 @@ static sl_status build_order(sl_ctx *ctx, sl_problem *p, sl_order order)
     return SL_OK;
 }
 
-sl_status sl_problem_from_model(sl_ctx *ctx, const sl_model *m, sl_order order, int allow_any, sl_problem *p)
+/* take: m itself (non-const), whose rows may be moved or freed, or NULL */
+static sl_status problem_build(sl_ctx *ctx, const sl_model *m, sl_model *take, sl_order order, int allow_any,
+                               sl_problem *p)
 {
     sl_status st = SL_OK;
     memset(p, 0, sizeof(*p));
@@ -92,8 +94,16 @@ sl_status sl_problem_from_model(sl_ctx *ctx, const sl_model *m, sl_order order, 
     if (p->stages.active)
         for (int r = 0; r <= ctx->size; r++) p->bounds[r] = p->stages.n_stages * p->stages.ub[r];
     if (p->stages.active && !same) {
-        SL_TRY(sl_stage_redistribute(ctx, &m->blk, m->bounds, &p->stages, &p->blk));
+        SL_TRY(sl_stage_redistribute(ctx, &m->blk, m->bounds, &p->stages, take ? &take->blk : NULL, &p->blk));
         p->owns_rows = 1;
+        if (take) take->rows_released = 1;
+    } else if (take) {
+        /* the rows move into the problem */
+        p->blk = take->blk;
+        memset(&take->blk, 0, sizeof(take->blk));
+        take->rows_released = 1;
+        p->owns_rows = 1;
+        memcpy(p->bounds, m->bounds, (size_t)(ctx->size + 1) * sizeof(int64_t));
     } else {
         /* borrow the rows; only the local columns are this problem's own */
         p->blk = m->blk;
@@ -106,13 +116,24 @@ sl_status sl_problem_from_model(sl_ctx *ctx, const sl_model *m, sl_order order, 
     for (int64_t k = 0; k < sl_block_pairs(&p->blk); k++)
         if (fabs(p->blk.reward[k]) > rmax) rmax = fabs(p->blk.reward[k]);
     p->rmax_abs = sl_max(ctx, rmax);
-    SL_TRY(sl_halo_build(ctx, p->bounds, &p->blk, &p->halo));
+    /* rows of the problem's own: the local columns replace the targets */
+    SL_TRY(sl_halo_build(ctx, p->bounds, &p->blk, p->owns_rows, &p->halo));
     if (p->stages.active) SL_TRY(sl_agree(ctx, sl_halo_stage_plan(ctx, &p->stages, &p->halo)));
     SL_TRY(sl_io_plan_build(ctx, &p->stages, p->bounds, m->bounds, &p->io));
     SL_TRY(sl_agree(ctx, build_order(ctx, p, order)));
 cleanup:
     if (st != SL_OK) sl_problem_free(p);
     return st;
+}
+
+sl_status sl_problem_from_model(sl_ctx *ctx, const sl_model *m, sl_order order, int allow_any, sl_problem *p)
+{
+    return problem_build(ctx, m, NULL, order, allow_any, p);
+}
+
+sl_status sl_problem_from_model_taking(sl_ctx *ctx, sl_model *m, sl_order order, sl_problem *p)
+{
+    return problem_build(ctx, m, m, order, 0, p);
 }
 
 /* q(s,a) for local pair k: r + gamma * sum p x[col] */

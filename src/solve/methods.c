@@ -387,7 +387,8 @@ static int step_pi(run *r, sl_status *st)
     return 0;
 }
 
-sl_status sl_solver_solve(sl_solver *o, const sl_model *m, sl_solution **xout)
+/* take: m itself when the solve may take its rows (sl_solver_solve_lean) */
+static sl_status solve_model(sl_solver *o, const sl_model *m, sl_model *take, sl_solution **xout)
 {
     if (o == NULL) return SL_EUSAGE;
     sl_ctx *ctx = o->ctx;
@@ -410,7 +411,8 @@ sl_status sl_solver_solve(sl_solver *o, const sl_model *m, sl_solution **xout)
     *xout = NULL;
 
     if (o->checkpoint_dir) SL_TRY(sl_ckpt_lock(ctx, o->checkpoint_dir, &r->lock_fd));
-    SL_TRY(sl_problem_from_model(ctx, m, o->order, 0, &r->P));
+    if (take != NULL) SL_TRY(sl_problem_from_model_taking(ctx, take, o->order, &r->P));
+    else SL_TRY(sl_problem_from_model(ctx, m, o->order, 0, &r->P));
     r->P.direct_time_limit = o->direct_time_limit;
     int64_t n = r->P.n_local, nx = n + r->P.halo.n_halo;
     if (SL_ZALLOC(ctx, r->x, nx, "values") == NULL || SL_ZALLOC(ctx, r->y, nx, "values") == NULL ||
@@ -516,6 +518,10 @@ cleanup:
     sl_ckpt_unlock(&r->lock_fd);
     return st;
 }
+
+sl_status sl_solver_solve(sl_solver *o, const sl_model *m, sl_solution **xout) { return solve_model(o, m, NULL, xout); }
+
+sl_status sl_solver_solve_lean(sl_solver *o, sl_model *m, sl_solution **xout) { return solve_model(o, m, m, xout); }
 
 /* ---- the solver handle --------------------------------------------------------------- */
 

@@ -10,7 +10,8 @@
  * transition in x = [owned | halo], the halo and the sweep order. */
 typedef struct sl_problem {
     sl_meta meta;
-    sl_block blk;           /* arrays borrowed from the model except col */
+    sl_block blk;           /* arrays borrowed from the model except col,
+                             * unless owns_rows */
     sl_halo halo;
     int64_t *bounds;        /* [size + 1] state ranges of all ranks */
     int64_t n_local;
@@ -37,6 +38,12 @@ typedef struct sl_problem {
  * Collective. */
 sl_status sl_problem_from_model(sl_ctx *ctx, const sl_model *m, sl_order order, int allow_any, sl_problem *p);
 void sl_problem_free(sl_problem *p);
+/* The same for the discounted methods, taking the model's rows: they are
+ * moved into the problem (or freed once copied into the stage-interleaved
+ * layout), and the targets' memory becomes the local columns, so peak
+ * memory holds the rows about once. The model keeps its description and
+ * refuses further use of its rows (sl_model_check_ready). Collective. */
+sl_status sl_problem_from_model_taking(sl_ctx *ctx, sl_model *m, sl_order order, sl_problem *p);
 
 /* ---- handles ---------------------------------------------------------------- */
 

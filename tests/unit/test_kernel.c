@@ -8,7 +8,9 @@
  *    policy is stable) and Gauss-Seidel agree within their certified
  *    bounds, and pick the same action wherever the best action leads the
  *    second by more than 1e-6 (checked against Q-values this test computes
- *    itself from the gathered values, outside the library). */
+ *    itself from the gathered values, outside the library);
+ *  - a solve that takes the model's rows (sl_solver_solve_lean) gives
+ *    bitwise the plain solve's answer. */
 #define _POSIX_C_SOURCE 200809L
 #include <math.h>
 #include <setjmp.h>
@@ -233,12 +235,55 @@ static void mpi_agrees_with_gs(void **state)
     }
 }
 
+/* sl_solver_solve_lean (rows taken, columns built over the targets) gives
+ * bitwise the solution of sl_solver_solve, and the model refuses a second
+ * solve instead of reading freed rows */
+static void lean_solve_is_the_plain_solve(void **state)
+{
+    sl_ctx *ctx = (sl_ctx *)*state;
+    static rows r;
+    make_rows(23, &r);
+    for (int stage = -1; stage <= 1; stage += 2) {
+        for (int mi = 0; mi < 2; mi++) {
+            sl_method meth = mi == 0 ? SL_METHOD_GS : SL_METHOD_MPI;
+            sl_model *m = NULL;
+            sl_solution *xa = NULL, *xb = NULL, *xc = NULL;
+            sl_solver *s = NULL;
+            assert_int_equal(make_model(ctx, &r, stage, &m), SL_OK);
+            assert_int_equal(solve(ctx, m, meth, &xa), SL_OK);
+            assert_int_equal(sl_solver_create(ctx, &s), SL_OK);
+            assert_int_equal(sl_solver_set_method(s, meth), SL_OK);
+            assert_int_equal(sl_solver_set_tolerance(s, 1e-9), SL_OK);
+            assert_int_equal(sl_solver_solve_lean(s, m, &xb), SL_OK);
+            int64_t b1, n1, b2, n2;
+            const double *v1, *v2;
+            const int32_t *a1, *a2;
+            assert_int_equal(sl_solution_get_local(xa, &b1, &n1, &v1, &a1), SL_OK);
+            assert_int_equal(sl_solution_get_local(xb, &b2, &n2, &v2, &a2), SL_OK);
+            assert_int_equal(b1, b2);
+            assert_int_equal(n1, n2);
+            assert_memory_equal(v1, v2, (size_t)n1 * sizeof(double));
+            assert_memory_equal(a1, a2, (size_t)n1 * sizeof(int32_t));
+            /* the description is still there, the rows are not */
+            assert_int_equal(sl_model_n_states(m), NS);
+            assert_int_equal(sl_solver_solve(s, m, &xc), SL_EUSAGE);
+            assert_null(xc);
+            assert_non_null(strstr(sl_ctx_message(ctx), "handed to an earlier solve"));
+            sl_solver_free(&s);
+            sl_solution_free(&xa);
+            sl_solution_free(&xb);
+            sl_model_free(&m);
+        }
+    }
+}
+
 int main(void)
 {
     MPI_Init(NULL, NULL);
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(policy_rows_sweep_is_the_reference_sweep),
         cmocka_unit_test(mpi_agrees_with_gs),
+        cmocka_unit_test(lean_solve_is_the_plain_solve),
     };
     int rc = cmocka_run_group_tests(tests, setup, teardown);
     MPI_Finalize();
