@@ -103,29 +103,11 @@ for m in gs mpi jacobi; do
 done
 load t3-end
 
-"$PYTHON" - "$REPS" "$RANKS_COUNT" "$REF_BIG" <<'EOF'
+bench_python "$REPS" "$RANKS_COUNT" "$REF_BIG" <<'EOF'
 import json, statistics, sys
 
 reps, extra, ref_big = int(sys.argv[1]), [int(x) for x in sys.argv[2].split()], sys.argv[3] == "1"
 
-
-def tv(path):
-    d = {}
-    for line in open(path):
-        line = line.strip()
-        if line.startswith("Elapsed (wall clock)"):
-            w = 0.0
-            for part in line.split()[-1].split(":"):
-                w = w * 60 + float(part)
-            d["wall"] = w
-        elif line.startswith("User time"):
-            d["user"] = float(line.split()[-1])
-        elif line.startswith("System time"):
-            d["sys"] = float(line.split()[-1])
-        elif line.startswith("Maximum resident set size"):
-            d["rss"] = int(line.split()[-1]) * 1024
-    d["cpu"] = d["user"] + d["sys"]
-    return d
 
 
 def cpu_ranks(prefix, np_):
