@@ -94,9 +94,10 @@ static sl_status problem_build(sl_ctx *ctx, const sl_model *m, sl_model *take, s
     if (p->stages.active)
         for (int r = 0; r <= ctx->size; r++) p->bounds[r] = p->stages.n_stages * p->stages.ub[r];
     if (p->stages.active && !same) {
+        /* marked first: a failed move may have freed some of the rows */
+        if (take) take->rows_released = 1;
         SL_TRY(sl_stage_redistribute(ctx, &m->blk, m->bounds, &p->stages, take ? &take->blk : NULL, &p->blk));
         p->owns_rows = 1;
-        if (take) take->rows_released = 1;
     } else if (take) {
         /* the rows move into the problem */
         p->blk = take->blk;
