@@ -38,6 +38,12 @@ endforeach()
 # the allocation-failure sweep runs the CLI about 600 times (every allocation of
 # import, build, solve, pi, verify, export): minutes, not seconds
 set_tests_properties(cli_fault_alloc PROPERTIES TIMEOUT 1800)
+# the kill trials, the signal cases and the 57 extra bad-input cases do a fixed
+# amount of work that takes 3-7 minutes on two idle cores; with both cores kept
+# busy by other work (stress-ng, load average 10) cli_checkpoint_kill needed
+# more than 600 s. A timeout here only catches a hang, so give them 30 minutes.
+set_tests_properties(cli_checkpoint_kill cli_checkpoint_signals cli_bad_input_more cli_direct_stop
+                     PROPERTIES TIMEOUT 1800)
 # instrumented (ASan + UBSan) the CLI scripts run several times slower
 if(SLUICE_SANITIZE)
   foreach(script ${SLUICE_CLI_TESTS})
