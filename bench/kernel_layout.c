@@ -68,48 +68,14 @@ typedef struct model {
     double gamma;
 } model;
 
-/* one sweep; TGT is the target type */
-#define DEFINE_SWEEP(NAME, TGT)                                                                      \
-    static void NAME(const model *m, const TGT *target, const double *x, double *y, int32_t *pol,   \
-                     double *dmin_out, double *dmax_out)                                             \
-    {                                                                                                \
-        double dmin = INFINITY, dmax = -INFINITY;                                                    \
-        for (int64_t i = 0; i < m->S; i++) {                                                         \
-            int64_t p0 = m->first_pair[i], p1 = m->first_pair[i + 1];                                \
-            int32_t cur = pol[i];                                                                    \
-            if (cur < 0 || cur >= p1 - p0) cur = 0;                                                  \
-            double best = -INFINITY, qcur = 0;                                                       \
-            int32_t arg = cur;                                                                       \
-            for (int64_t k = p0; k < p1; k++) {                                                      \
-                double acc = 0;                                                                      \
-                for (int64_t t = m->first_trans[k]; t < m->first_trans[k + 1]; t++)                 \
-                    acc += m->prob[t] * x[target[t]];                                                \
-                double q = m->reward[k] + m->gamma * acc;                                            \
-                if (k - p0 == cur) qcur = q;                                                         \
-                if (q > best) {                                                                      \
-                    best = q;                                                                        \
-                    arg = (int32_t)(k - p0);                                                         \
-                }                                                                                    \
-            }                                                                                        \
-            if (arg != cur && best - qcur <= 1e-13 * (fabs(best) + 1e-300)) arg = cur;               \
-            pol[i] = arg;                                                                            \
-            double d = best - x[i];                                                                  \
-            if (d < dmin) dmin = d;                                                                  \
-            if (d > dmax) dmax = d;                                                                  \
-            y[i] = best;                                                                             \
-        }                                                                                            \
-        *dmin_out = dmin;                                                                            \
-        *dmax_out = dmax;                                                                            \
-    }
-
-DEFINE_SWEEP(sweep_i64, int64_t)
-DEFINE_SWEEP(sweep_u32, uint32_t)
-
-/* the u32 sweep with value-indexed probabilities: PROB(t) replaces m->prob[t] */
-#define DEFINE_SWEEP_V(NAME)                                                                         \
-    static void NAME(const model *m, const uint32_t *target, const uint16_t *pidx, const double *tab, \
+/* one sweep; TGT is the target type, PROB(t) the probability of transition
+ * t (pidx/tab: the value-indexed probabilities, unused by the others) */
+#define DEFINE_SWEEP(NAME, TGT, PROB)                                                                \
+    static void NAME(const model *m, const TGT *target, const uint16_t *pidx, const double *tab,     \
                      const double *x, double *y, int32_t *pol, double *dmin_out, double *dmax_out)  \
     {                                                                                                \
+        (void)pidx;                                                                                  \
+        (void)tab;                                                                                   \
         double dmin = INFINITY, dmax = -INFINITY;                                                    \
         for (int64_t i = 0; i < m->S; i++) {                                                         \
             int64_t p0 = m->first_pair[i], p1 = m->first_pair[i + 1];                                \
@@ -120,7 +86,7 @@ DEFINE_SWEEP(sweep_u32, uint32_t)
             for (int64_t k = p0; k < p1; k++) {                                                      \
                 double acc = 0;                                                                      \
                 for (int64_t t = m->first_trans[k]; t < m->first_trans[k + 1]; t++)                 \
-                    acc += tab[pidx[t]] * x[target[t]];                                              \
+                    acc += (PROB) * x[target[t]];                                                    \
                 double q = m->reward[k] + m->gamma * acc;                                            \
                 if (k - p0 == cur) qcur = q;                                                         \
                 if (q > best) {                                                                      \
@@ -138,7 +104,10 @@ DEFINE_SWEEP(sweep_u32, uint32_t)
         *dmin_out = dmin;                                                                            \
         *dmax_out = dmax;                                                                            \
     }
-DEFINE_SWEEP_V(sweep_u32v)
+
+DEFINE_SWEEP(sweep_i64, int64_t, m->prob[t])
+DEFINE_SWEEP(sweep_u32, uint32_t, m->prob[t])
+DEFINE_SWEEP(sweep_u32v, uint32_t, tab[pidx[t]])
 
 /* pidx/tab for value-indexed probabilities; returns the number of distinct
  * values, or 0 if more than 65,536 (then the variant is skipped) */
@@ -238,15 +207,15 @@ int main(int argc, char **argv)
     /* a value vector with the magnitude of a real iterate (not all zeros) */
     for (int64_t i = 0; i < m.S; i++) x[i] = 1000.0 + (double)(i % 977) * 0.25;
     double dmin, dmax;
-    sweep_i64(&m, t64, x, y1, pol1, &dmin, &dmax); /* warm up, fault pages in */
-    sweep_u32(&m, t32, x, y2, pol2, &dmin, &dmax);
+    sweep_i64(&m, t64, NULL, NULL, x, y1, pol1, &dmin, &dmax); /* warm up, fault pages in */
+    sweep_u32(&m, t32, NULL, NULL, x, y2, pol2, &dmin, &dmax);
     if (nvar == 3) sweep_u32v(&m, t32, pidx, tab, x, y3, pol3, &dmin, &dmax);
     for (int r = 0; r < reps; r++) {
         for (int v = 0; v < nvar; v++) {
             int vv = (v + r) % nvar; /* rotate which variant goes first */
             double w0 = now(CLOCK_MONOTONIC), c0 = now(CLOCK_PROCESS_CPUTIME_ID);
-            if (vv == 0) sweep_i64(&m, t64, x, y1, pol1, &dmin, &dmax);
-            else if (vv == 1) sweep_u32(&m, t32, x, y2, pol2, &dmin, &dmax);
+            if (vv == 0) sweep_i64(&m, t64, NULL, NULL, x, y1, pol1, &dmin, &dmax);
+            else if (vv == 1) sweep_u32(&m, t32, NULL, NULL, x, y2, pol2, &dmin, &dmax);
             else sweep_u32v(&m, t32, pidx, tab, x, y3, pol3, &dmin, &dmax);
             tw[vv][r] = now(CLOCK_MONOTONIC) - w0;
             tc[vv][r] = now(CLOCK_PROCESS_CPUTIME_ID) - c0;
