@@ -24,6 +24,8 @@ typedef struct sl_report_data_opts {
     const char *outlook_start;  /* a state number or NAME=VALUE/NAME@INDEX,...;
                                  * NULL: the middle of every factor, stage 0 */
     int64_t outlook_stages;     /* stages of the outlook; 0 -> 24 */
+    int64_t thin_below;         /* models with visit counts: threshold of a thin
+                                 * pair; 0 -> SLUICE_THIN_BELOW */
 } sl_report_data_opts;
 
 /* Write the report-data document for (model, solution) to opts->out on

@@ -139,7 +139,9 @@ SLUICE_API sl_status sl_model_assemble(sl_model *m);
 /* Load a model file, each rank reading a range of states balanced by
  * transitions; checks the fingerprint. */
 SLUICE_API sl_status sl_model_load(sl_ctx *ctx, const char *path, sl_model **m);
-/* Write the model file atomically (temporary name, then rename). */
+/* Write the model file atomically (temporary name, then rename). A loaded
+ * model with outcome quantities copies them from the file it was loaded from
+ * (checked against their hash at load; SL_EDATA if that file changed). */
 SLUICE_API sl_status sl_model_save(const sl_model *m, const char *path);
 
 /* Compile (for .c), load and enumerate a generator (see sluice/generator.h),
@@ -170,6 +172,9 @@ typedef struct sl_import_opts {
     int64_t n_states;           /* 0: max index + 1 */
     double prob_tolerance;
     int renormalize;
+    const char *terminal_values;    /* finite objective: CSV 'state,terminal_value'
+                                     * with every state once, stored as
+                                     * /terminal_value; NULL: none */
 } sl_import_opts;
 /* A model from a triplet CSV (state,action,next_state,probability,reward).
  * Rank 0 parses; the rows are then spread over the ranks. */
@@ -182,6 +187,8 @@ typedef struct sl_estimate_opts {
     int64_t n_states;           /* 0: max index + 1 */
     int64_t min_visits;         /* pairs seen fewer times are dropped (>=1) */
     int unseen_absorb;          /* states with no data become absorbing, reward 0 */
+    double smoothing;           /* additive (Dirichlet) pseudo-count per observed
+                                 * successor of the state; 0: none */
 } sl_estimate_opts;
 /* The maximum-likelihood model of logged experience. */
 SLUICE_API sl_status sl_model_estimate_csv(sl_ctx *ctx, const sl_estimate_opts *opts, sl_model **m);
@@ -210,6 +217,22 @@ SLUICE_API int sl_model_n_params(const sl_model *m);
 SLUICE_API const char *sl_model_param_name(const sl_model *m, int i);
 SLUICE_API const char *sl_model_param_unit(const sl_model *m, int i);
 SLUICE_API double sl_model_param_value(const sl_model *m, int i);
+/* Format 2 annotations (docs/formats.md). Local; "" or 0 when the model has
+ * none. Units of the reward and of one discount period: */
+SLUICE_API const char *sl_model_reward_unit(const sl_model *m);
+SLUICE_API const char *sl_model_period_unit(const sl_model *m);
+/* Factor f: its unit; the numeric value of index i (returns 0 when the
+ * factor has no values); the label of index i ("" when it has none). */
+SLUICE_API const char *sl_model_factor_unit(const sl_model *m, int f);
+SLUICE_API int sl_model_factor_value(const sl_model *m, int f, int64_t i, double *value);
+SLUICE_API const char *sl_model_factor_label(const sl_model *m, int f, int64_t i);
+/* Numeric value of action id a (0 when actions have no values) and its unit. */
+SLUICE_API int sl_model_action_value(const sl_model *m, int32_t a, double *value);
+SLUICE_API const char *sl_model_action_unit(const sl_model *m);
+/* Outcome quantities: count, names and units of one period's quantity. */
+SLUICE_API int sl_model_n_quantities(const sl_model *m);
+SLUICE_API const char *sl_model_quantity_name(const sl_model *m, int q);
+SLUICE_API const char *sl_model_quantity_unit(const sl_model *m, int q);
 
 /* ---- solvers ---------------------------------------------------------------- */
 
@@ -236,6 +259,14 @@ SLUICE_API sl_status sl_solver_set_direct_time_limit(sl_solver *s, double second
 /* Checkpoints into dir every every_s seconds (0 -> 600) and when asked by
  * the context's signal flag; resume: start from the newest valid one. */
 SLUICE_API sl_status sl_solver_set_checkpoint(sl_solver *s, const char *dir, double every_s, int resume);
+/* Sensitivity to thin data, for models from `estimate` (which store the
+ * visits n of each (state, action)): solve with r(s,a) + c/sqrt(n) (bonus,
+ * optimistic) or r(s,a) - c/sqrt(n) (penalty, pessimistic); pairs with
+ * n = 0 keep their reward. c >= 0; 0 (default) turns it off; the later call
+ * wins. The solution records the adjustment and verify applies it. Not with
+ * checkpoints. */
+SLUICE_API sl_status sl_solver_set_visit_bonus(sl_solver *s, double c);
+SLUICE_API sl_status sl_solver_set_visit_penalty(sl_solver *s, double c);
 
 /* Monitor: called on every rank with the same numbers (print on rank 0). */
 typedef enum sl_event {
@@ -272,7 +303,8 @@ SLUICE_API sl_status sl_solver_solve(sl_solver *s, const sl_model *m, sl_solutio
  * copying them (peak memory about one copy of the rows instead of two).
  * Afterwards m keeps its description (counts, discount, fingerprint,
  * names) but not its rows; solving, saving or evaluating it again fails
- * with SL_EUSAGE. Free it as usual. */
+ * with SL_EUSAGE. Free it as usual. (With a visit bonus or penalty the
+ * rows are left in place, as sl_solver_solve does.) */
 SLUICE_API sl_status sl_solver_solve_lean(sl_solver *s, sl_model *m, sl_solution **x);
 
 /* Value of a fixed policy (the actions of `policy`): exact (UMFPACK) when it
@@ -304,6 +336,7 @@ typedef struct sl_solution_info {
     double seconds;
     double discount;
     int64_t checkpoints_written;
+    double visit_adjust;        /* c of r + c/sqrt(visits) the solve used (0: none) */
 } sl_solution_info;
 
 /* This rank's slice: states [s_begin, s_begin + n); action ids (NULL for a
@@ -322,11 +355,30 @@ typedef struct sl_history_view {
 SLUICE_API sl_status sl_solution_get_history(const sl_solution *x, sl_history_view *h);
 /* Whole vectors on rank `root` (malloc'ed there, NULL elsewhere; free()). */
 SLUICE_API sl_status sl_solution_gather(const sl_solution *x, int root, double **value, int32_t **action);
+/* Smallest and largest value and smallest |value| over all states.
+ * Collective. */
+SLUICE_API sl_status sl_solution_value_extent(const sl_solution *x, double *vmin, double *vmax, double *min_abs);
+/* A certificate bound relative to the smallest |value| (NaN when some value
+ * is 0 or min_abs is not finite). Local. */
+SLUICE_API double sl_bound_relative(double bound, double min_abs);
+/* The bound in words, in the reward unit and relative to the smallest
+ * |value|: "4.9e-07 kCU, 3e-12 of the smallest value in magnitude" (or
+ * "..., no relative figure: the smallest value is 0"). `unit` may be "".
+ * Local. */
+SLUICE_API void sl_bound_words(double bound, const char *unit, double min_abs, char *buf, size_t n);
 
 /* Write atomically; load distributed like m, checking that x was computed
  * for m (fingerprint). A values file (from evaluate) loads without actions. */
 SLUICE_API sl_status sl_solution_save(const sl_solution *x, const char *path);
 SLUICE_API sl_status sl_solution_load(sl_ctx *ctx, const char *path, const sl_model *m, sl_solution **x);
+/* A policy from a CSV of actions by state (a rule operated today), for
+ * evaluation: header `state,action` or every factor name then `action`;
+ * states by number or by factor labels / values / @INDEX, actions by name,
+ * value as printed, or @ID; every state exactly once, each action available
+ * in its state. Errors name the file and line (or the first missing state).
+ * The solution holds the policy (values 0), distributed like m.
+ * Collective. */
+SLUICE_API sl_status sl_policy_read_csv(const sl_model *m, const char *path, sl_solution **x);
 SLUICE_API void sl_solution_free(sl_solution **x);
 
 /* ---- independent checks ------------------------------------------------------ */
@@ -350,7 +402,12 @@ typedef struct sl_info_opts {
     int json;
     int partition;              /* > 0: print predicted partition for N ranks */
     FILE *out;
+    int64_t thin_below;         /* models with visit counts: pairs seen fewer
+                                 * times are listed; 0 -> SLUICE_THIN_BELOW */
 } sl_info_opts;
+/* Default threshold of a thin (state, action): seen fewer than this many
+ * times in the logged experience (rule of thumb, common practice, no source). */
+#define SLUICE_THIN_BELOW 10
 /* Describe a model, solution or checkpoint file. */
 SLUICE_API sl_status sl_info(sl_ctx *ctx, const sl_info_opts *opts);
 
@@ -363,7 +420,17 @@ typedef struct sl_simulate_opts {
     uint64_t seed;
     int json;
     FILE *out;
+    /* per-stage figures (docs/results.md), as sl_outlook_compute reports them
+     * exactly: for stages 0..stages, the sample mean of each numeric factor,
+     * of each quantity's per-pair mean and P(q > 0) at the visited pair, and
+     * of the discounted reward so far, each with a confidence interval */
+    int64_t stages;             /* 0: only the discounted return */
+    int interval;               /* SL_INTERVAL_NORMAL or SL_INTERVAL_HOEFFDING */
+    double confidence;          /* of each interval, in (0, 1); 0 -> 0.95 */
+    const char *trajectories;   /* CSV of every sampled step (written atomically), or NULL */
 } sl_simulate_opts;
+#define SL_INTERVAL_NORMAL 0    /* mean +- z s / sqrt(n), the central limit theorem */
+#define SL_INTERVAL_HOEFFDING 1 /* mean +- (b - a) sqrt(ln(2/alpha) / (2n)), for values in [a, b] */
 /* Monte Carlo rollouts of the solution's policy from one start state. */
 SLUICE_API sl_status sl_simulate(sl_ctx *ctx, const sl_simulate_opts *opts);
 
@@ -389,6 +456,9 @@ typedef struct sl_objective_opts {
     const char *terminal;       /* finite: solution file whose /value closes the horizon;
                                  * NULL: the model's /terminal_value, else 0 */
     double aperiodicity;        /* average: tau in (0, 1); <= 0 -> 0.5 */
+    sl_method method;           /* total/average: SL_METHOD_PI for policy iteration
+                                 * (exact evaluation by UMFPACK); otherwise value
+                                 * iteration. Finite: ignored */
 } sl_objective_opts;
 
 /* Solve m (objective finite, total or average) and write o->output.

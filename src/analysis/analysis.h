@@ -54,4 +54,17 @@ sl_status sl_state_parse(sl_ctx *ctx, const sl_meta *m, const char *text, const 
 /* Stride of factor f in the state number (product of the earlier sizes). */
 int64_t sl_factor_stride(const sl_meta *m, int f);
 
+/* Smallest and largest of v[0..n) and the smallest |v| (INFINITY, -INFINITY,
+ * INFINITY when n = 0). Local. */
+void sl_value_extent_local(const double *v, int64_t n, double *vmin, double *vmax, double *min_abs);
+
+/* A CSV keyed by state (statecsv.c): header `state,LAST` or every factor
+ * name then LAST; each row's state is a number or the factors' labels /
+ * values / @INDEX. fn is called per row with "PATH line N" for messages;
+ * errors name the file and line. Local (rank 0). */
+typedef sl_status (*sl_state_row_fn)(sl_ctx *ctx, void *user, const char *where, int64_t line, int64_t state,
+                                     const char *value);
+sl_status sl_state_csv_read(sl_ctx *ctx, const sl_meta *m, const char *path, const char *last, sl_state_row_fn fn,
+                            void *user);
+
 #endif /* SL_ANALYSIS_H */

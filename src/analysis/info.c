@@ -8,6 +8,7 @@
 #include "core/json.h"
 #include "store/h5.h"
 #include "store/store.h"
+#include "solve/objectives.h"
 
 typedef struct model_stats {
     int64_t tpp_min, tpp_max;   /* transitions per pair */
@@ -250,16 +251,136 @@ cleanup:
     return st;
 }
 
+/* Visit counts of an estimated model: totals and the pairs seen fewer than
+ * K times (rank 0 reads; at most `keep` of them listed). */
+typedef struct visit_stats {
+    int64_t K, total, min, max, thin, listed;
+    int64_t *thin_state;        /* [listed] */
+    int32_t *thin_action;
+    int64_t *thin_visits;
+} visit_stats;
+
+static void visit_stats_free(visit_stats *v)
+{
+    free(v->thin_state);
+    free(v->thin_action);
+    free(v->thin_visits);
+}
+
+static sl_status scan_visits(sl_ctx *ctx, hid_t f, const sl_meta *m, int64_t K, int64_t keep, visit_stats *v,
+                             const char *path)
+{
+    sl_status st = SL_OK;
+    int64_t *fp = NULL, *vis = NULL;
+    int32_t *act = NULL;
+    memset(v, 0, sizeof(*v));
+    v->K = K;
+    v->min = INT64_MAX;
+    if (ctx->rank == 0) {
+        const int64_t CH = 1 << 20;
+        if (SL_ALLOC(ctx, fp, m->n_states + 1, "first_pair") == NULL || SL_ALLOC(ctx, vis, CH, "visits") == NULL ||
+            SL_ALLOC(ctx, act, CH, "actions") == NULL || SL_ALLOC(ctx, v->thin_state, keep, "thin pairs") == NULL ||
+            SL_ALLOC(ctx, v->thin_action, keep, "thin pairs") == NULL ||
+            SL_ALLOC(ctx, v->thin_visits, keep, "thin pairs") == NULL)
+            st = SL_ENOMEM;
+        if (st == SL_OK)
+            st = sl_h5_read_1d(ctx, f, "/state/first_pair", H5T_NATIVE_INT64, m->n_states + 1, 0, m->n_states + 1, fp,
+                               path);
+        int64_t s = 0;
+        for (int64_t a = 0; st == SL_OK && a < m->n_pairs; a += CH) {
+            int64_t c = m->n_pairs - a < CH ? m->n_pairs - a : CH;
+            st = sl_h5_read_1d(ctx, f, "/pair/visits", H5T_NATIVE_INT64, m->n_pairs, a, c, vis, path);
+            if (st == SL_OK) st = sl_h5_read_1d(ctx, f, "/pair/action", H5T_NATIVE_INT32, m->n_pairs, a, c, act, path);
+            for (int64_t k = 0; st == SL_OK && k < c; k++) {
+                while (s < m->n_states && fp[s + 1] <= a + k) s++;
+                int64_t n = vis[k];
+                if (n < 0) {
+                    st = SL_ERR(ctx, SL_EDATA, "%s: /pair/visits: state %lld, action %d: negative count %lld", path,
+                                (long long)s, (int)act[k], (long long)n);
+                    break;
+                }
+                v->total += n;
+                if (n < v->min) v->min = n;
+                if (n > v->max) v->max = n;
+                if (n < K) {
+                    if (v->listed < keep) {
+                        v->thin_state[v->listed] = s;
+                        v->thin_action[v->listed] = act[k];
+                        v->thin_visits[v->listed] = n;
+                        v->listed++;
+                    }
+                    v->thin++;
+                }
+            }
+        }
+    }
+    st = sl_agree(ctx, st);
+    free(fp);
+    free(vis);
+    free(act);
+    return st;
+}
+
+/* The objective's facts of a model: terminal values (range) and, for the
+ * total objective, the number of absorbing states. Collective. */
+typedef struct objective_facts {
+    double term_min, term_max;
+    int64_t n_absorbing;        /* -1: not counted (objective not total) */
+} objective_facts;
+
+static sl_status objective_scan(sl_ctx *ctx, hid_t f, const sl_meta *m, const char *path, objective_facts *of)
+{
+    sl_status st = SL_OK;
+    double *tv = NULL;
+    char *flag = NULL;
+    sl_model *mh = NULL;
+    sl_problem P;
+    memset(&P, 0, sizeof(P));
+    of->term_min = INFINITY;
+    of->term_max = -INFINITY;
+    of->n_absorbing = -1;
+    if (m->has_terminal && ctx->rank == 0) {
+        if (SL_ALLOC(ctx, tv, m->n_states, "terminal values") == NULL) st = SL_ENOMEM;
+        if (st == SL_OK)
+            st = sl_h5_read_1d(ctx, f, "/terminal_value", H5T_NATIVE_DOUBLE, m->n_states, 0, m->n_states, tv, path);
+        for (int64_t i = 0; st == SL_OK && i < m->n_states; i++) {
+            of->term_min = fmin(of->term_min, tv[i]);
+            of->term_max = fmax(of->term_max, tv[i]);
+        }
+    }
+    SL_TRY(sl_agree(ctx, st));
+    if (m->objective == SL_OBJ_TOTAL) {
+        /* the rows are needed: load the model as solve does */
+        SL_TRY(sl_model_load(ctx, path, &mh));
+        SL_TRY(sl_problem_from_model_any(ctx, mh, path, SL_ORDER_NATURAL, &P));
+        if (SL_ALLOC(ctx, flag, P.n_local + 1, "absorbing states") == NULL) st = SL_ENOMEM;
+        SL_TRY(sl_agree(ctx, st));
+        of->n_absorbing = sl_sum_i64(ctx, sl_obj_find_absorbing(&P, flag));
+    }
+cleanup:
+    free(tv);
+    free(flag);
+    sl_problem_free(&P);
+    sl_model_free(&mh);
+    return st;
+}
+
 static sl_status model_info(sl_ctx *ctx, const sl_info_opts *o)
 {
     sl_status st = SL_OK;
     sl_meta m;
     model_stats ms;
+    visit_stats vis;
     hid_t f = H5I_INVALID_HID;
     memset(&ms, 0, sizeof(ms));
+    memset(&vis, 0, sizeof(vis));
     SL_TRY(sl_store_model_meta(ctx, o->path, &m));
     SL_TRY(sl_h5_open(ctx, o->path, 0, &f));
     SL_TRY(scan_counts(ctx, f, &m, &ms, o->path));
+    const int64_t K = o->thin_below > 0 ? o->thin_below : SLUICE_THIN_BELOW;
+    if (m.has_visits) SL_TRY(scan_visits(ctx, f, &m, K, o->json ? 10000 : 20, &vis, o->path));
+    objective_facts of;
+    SL_TRY(objective_scan(ctx, f, &m, o->path, &of));
     for (size_t i = 0; i < sizeof(names) / sizeof(names[0]); i++) {
         double s, r;
         sl_h5_sizes(f, names[i], &s, &r);
@@ -284,6 +405,13 @@ static sl_status model_info(sl_ctx *ctx, const sl_info_opts *o)
             sl_json_int(&j, "n_transitions", m.n_trans);
             sl_json_num(&j, "discount", m.discount);
             sl_json_str(&j, "objective", sl_objective_name(m.objective));
+            sl_json_bool(&j, "terminal_values", m.has_terminal);
+            if (m.has_terminal) {
+                sl_json_num(&j, "terminal_value_min", of.term_min);
+                sl_json_num(&j, "terminal_value_max", of.term_max);
+            }
+            if (of.n_absorbing >= 0) sl_json_int(&j, "n_absorbing", of.n_absorbing);
+            sl_json_bool(&j, "visit_counts", m.has_visits);
             sl_json_str(&j, "fingerprint", m.fingerprint);
             sl_json_obj_open(&j, "transitions_per_pair");
             sl_json_int(&j, "min", ms.tpp_min);
@@ -334,6 +462,25 @@ static sl_status model_info(sl_ctx *ctx, const sl_info_opts *o)
             } else if (m.source[0]) {
                 sl_json_str(&j, "source", m.source);
             }
+            if (m.has_visits) {
+                sl_json_obj_open(&j, "visits");
+                sl_json_int(&j, "total", vis.total);
+                sl_json_int(&j, "min", vis.min);
+                sl_json_int(&j, "max", vis.max);
+                sl_json_int(&j, "thin_below", vis.K);
+                sl_json_int(&j, "thin_pairs", vis.thin);
+                sl_json_int(&j, "thin_listed", vis.listed);
+                sl_json_arr_open(&j, "thin");
+                for (int64_t k = 0; k < vis.listed; k++) {
+                    sl_json_obj_open(&j, NULL);
+                    sl_json_int(&j, "state", vis.thin_state[k]);
+                    sl_json_int(&j, "action", vis.thin_action[k]);
+                    sl_json_int(&j, "visits", vis.thin_visits[k]);
+                    sl_json_close_obj(&j);
+                }
+                sl_json_close_arr(&j);
+                sl_json_close_obj(&j);
+            }
             sl_json_end(&j);
         } else {
             fprintf(out, "%s: sluice model (format %d)\n", o->path, m.format_version);
@@ -343,6 +490,14 @@ static sl_status model_info(sl_ctx *ctx, const sl_info_opts *o)
             fprintf(out, "  transitions   %lld (per pair min %lld, mean %.2f, max %lld)\n", (long long)m.n_trans,
                     (long long)ms.tpp_min, mean, (long long)ms.tpp_max);
             fprintf(out, "  objective     %s, discount %.10g\n", sl_objective_name(m.objective), m.discount);
+            if (m.has_terminal)
+                fprintf(out, "  terminal      /terminal_value present, %.6g .. %.6g (the horizon is given to solve)\n",
+                        of.term_min, of.term_max);
+            else if (m.objective == SL_OBJ_FINITE)
+                fprintf(out, "  terminal      no /terminal_value (0 unless solve --terminal; the horizon is given to "
+                             "solve)\n");
+            if (of.n_absorbing >= 0)
+                fprintf(out, "  absorbing     %lld states (every action stays, reward 0)\n", (long long)of.n_absorbing);
             fprintf(out, "  size          %.3f MB on disk, %.3f MB raw: %.1f%% of raw\n", ms.file_bytes / 1e6,
                     ms.raw / 1e6, ms.raw > 0 ? 100.0 * ms.file_bytes / ms.raw : 0.0);
             fprintf(out, "  fingerprint   %s\n", m.fingerprint);
@@ -386,6 +541,15 @@ static sl_status model_info(sl_ctx *ctx, const sl_info_opts *o)
             } else if (m.source[0]) {
                 fprintf(out, "  source        %s\n", m.source);
             }
+            if (m.has_visits) {
+                fprintf(out, "  visits        %lld logged steps; per (state, action) min %lld, max %lld\n",
+                        (long long)vis.total, (long long)vis.min, (long long)vis.max);
+                fprintf(out, "  thin pairs    %lld seen fewer than %lld times (--thin-below)%s\n", (long long)vis.thin,
+                        (long long)vis.K, vis.thin > vis.listed ? "; the first listed" : "");
+                for (int64_t k = 0; k < vis.listed; k++)
+                    fprintf(out, "    state %lld action %d: %lld visits\n", (long long)vis.thin_state[k],
+                            (int)vis.thin_action[k], (long long)vis.thin_visits[k]);
+            }
         }
     }
     if (o->partition > 0) {
@@ -395,6 +559,7 @@ static sl_status model_info(sl_ctx *ctx, const sl_info_opts *o)
     }
 cleanup:
     if (f >= 0) H5Fclose(f);
+    visit_stats_free(&vis);
     sl_meta_free(&m);
     return st;
 }
@@ -413,14 +578,17 @@ static sl_status solution_info(sl_ctx *ctx, const sl_info_opts *o, sl_file_kind 
 {
     sl_status st = SL_OK;
     sl_solution_record in;
+    sl_obj_file xf;
     hid_t f = H5I_INVALID_HID;
     int64_t n = 0;
+    memset(&xf, 0, sizeof(xf));
     SL_TRY(sl_h5_open(ctx, o->path, 0, &f));
     st = sl_agree(ctx, sl_h5_attr_read_i64(ctx, f, "n_states", &n, 0, o->path));
     if (n == 0) n = sl_h5_length(f, "/value");
     H5Fclose(f);
     SL_TRY(st);
     SL_TRY(sl_store_solution_read(ctx, o->path, kind, n, 0, 0, NULL, NULL, &in));
+    if (kind == SL_FILE_SOLUTION) SL_TRY(sl_store_objective_read(ctx, o->path, n, 0, 0, &xf));
     if (ctx->rank == 0) {
         FILE *out = o->out;
         const char *kn = kind == SL_FILE_VALUES ? "values" : "solution";
@@ -442,6 +610,23 @@ static sl_status solution_info(sl_ctx *ctx, const sl_info_opts *o, sl_file_kind 
             sl_json_num(&j, "residual_span", in.residual_span);
             sl_json_num(&j, "value_error_bound", in.value_error_bound);
             if (kind == SL_FILE_SOLUTION) sl_json_num(&j, "policy_loss_bound", in.policy_loss_bound);
+            if (in.visit_adjust != 0.0) sl_json_num(&j, "visit_adjust", in.visit_adjust);
+            if (kind == SL_FILE_SOLUTION) {
+                sl_json_str(&j, "objective", sl_objective_name(xf.objective));
+                if (xf.objective == SL_OBJ_FINITE) {
+                    sl_json_int(&j, "horizon", xf.horizon);
+                    sl_json_int(&j, "first_stage", xf.first_stage);
+                    sl_json_str(&j, "terminal", xf.terminal);
+                } else if (xf.objective == SL_OBJ_TOTAL) {
+                    sl_json_int(&j, "n_absorbing", xf.n_absorbing);
+                    sl_json_num(&j, "steps_bound_max", xf.steps_max);
+                } else if (xf.objective == SL_OBJ_AVERAGE) {
+                    sl_json_num(&j, "gain", xf.gain);
+                    sl_json_num(&j, "gain_lower", xf.gain_lower);
+                    sl_json_num(&j, "gain_upper", xf.gain_upper);
+                    sl_json_num(&j, "aperiodicity", xf.aperiodicity);
+                }
+            }
             sl_json_end(&j);
         } else {
             fprintf(out, "%s: sluice %s file\n", o->path, kn);
@@ -456,9 +641,25 @@ static sl_status solution_info(sl_ctx *ctx, const sl_info_opts *o, sl_file_kind 
                     in.value_error_bound);
             if (kind == SL_FILE_SOLUTION) fprintf(out, "; policy within %.3e of optimal", in.policy_loss_bound);
             fprintf(out, "\n");
+            if (in.visit_adjust != 0.0)
+                fprintf(out, "  rewards       r %s %g/sqrt(visits) (--visit-%s)\n", in.visit_adjust > 0 ? "+" : "-",
+                        fabs(in.visit_adjust), in.visit_adjust > 0 ? "bonus" : "penalty");
+            if (kind == SL_FILE_SOLUTION) {
+                fprintf(out, "  objective     %s\n", sl_objective_name(xf.objective));
+                if (xf.objective == SL_OBJ_FINITE)
+                    fprintf(out, "  horizon       %lld stages (stored from stage %lld); terminal values: %s\n",
+                            (long long)xf.horizon, (long long)xf.first_stage, xf.terminal);
+                else if (xf.objective == SL_OBJ_TOTAL)
+                    fprintf(out, "  absorbing     %lld states; expected steps to absorption <= %.4g\n",
+                            (long long)xf.n_absorbing, xf.steps_max);
+                else if (xf.objective == SL_OBJ_AVERAGE)
+                    fprintf(out, "  gain          %.10g (%.10g <= optimal gain <= %.10g), aperiodicity %g\n", xf.gain,
+                            xf.gain_lower, xf.gain_upper, xf.aperiodicity);
+            }
         }
     }
 cleanup:
+    sl_obj_file_free(&xf);
     return st;
 }
 

@@ -26,128 +26,53 @@ void sl_outlook_free(sl_outlook *r)
 
 /* ---- start distribution CSV (rank 0) --------------------------------------- */
 
-static char *trim(char *s)
-{
-    while (*s == ' ' || *s == '\t') s++;
-    size_t n = strlen(s);
-    while (n > 0 && (s[n - 1] == ' ' || s[n - 1] == '\t' || s[n - 1] == '\r' || s[n - 1] == '\n')) s[--n] = '\0';
-    return s;
-}
+typedef struct start_rows {
+    int64_t n, cap, *states;
+    double *prob, sum;
+} start_rows;
 
-/* Split a line at commas in place; returns the number of fields (at most max). */
-static int split(char *line, char **field, int max)
+static sl_status start_row(sl_ctx *ctx, void *user, const char *where, int64_t line, int64_t s, const char *text)
 {
-    int n = 0;
-    char *p = line;
-    while (n < max) {
-        char *c = strchr(p, ',');
-        field[n++] = trim(p);
-        if (c == NULL) return n;
-        *c = '\0';
-        p = c + 1;
+    start_rows *r = user;
+    char *end = NULL;
+    (void)line;
+    errno = 0;
+    double p = strtod(text, &end);
+    if (text[0] == '\0' || *end != '\0' || errno == ERANGE || !isfinite(p) || p < 0.0 || p > 1.0)
+        return SL_ERR(ctx, SL_EDATA, "%s: probability '%s' is not a number in [0, 1]", where, text);
+    if (r->n == r->cap) {
+        int64_t nc = r->cap ? 2 * r->cap : 1024;
+        int64_t *ns = realloc(r->states, (size_t)nc * sizeof(*ns));
+        if (ns == NULL) return SL_ERR(ctx, SL_ENOMEM, "%s: out of memory", where);
+        r->states = ns;
+        double *np = realloc(r->prob, (size_t)nc * sizeof(*np));
+        if (np == NULL) return SL_ERR(ctx, SL_ENOMEM, "%s: out of memory", where);
+        r->prob = np;
+        r->cap = nc;
     }
-    return max + 1; /* too many */
+    r->states[r->n] = s;
+    r->prob[r->n++] = p;
+    r->sum += p;
+    return SL_OK;
 }
 
 /* Header `state,probability` or every factor name then `probability`. */
 static sl_status read_start_csv(sl_ctx *ctx, const sl_meta *m, const char *path, int64_t *n_out, int64_t **st_out,
                                 double **p_out)
 {
-    sl_status st = SL_OK;
-    FILE *f = fopen(path, "r");
-    char line[4096], *field[SLUICE_MAX_FACTORS + 2];
-    int64_t n = 0, cap = 0, lineno = 0;
-    int64_t *states = NULL;
-    double *prob = NULL, sum = 0.0;
-    int by_factor = 0, nf = 0, fmap[SLUICE_MAX_FACTORS + 1];
-    if (f == NULL) return SL_ERR(ctx, SL_ENOINPUT, "%s: %s", path, strerror(errno));
-    if (fgets(line, sizeof(line), f) == NULL) SL_FAIL(SL_EDATA, "%s: empty file (expected a header line)", path);
-    lineno = 1;
-    nf = split(line, field, SLUICE_MAX_FACTORS + 1);
-    if (nf == 2 && strcmp(field[0], "state") == 0 && strcmp(field[1], "probability") == 0) {
-        by_factor = 0;
-    } else if (nf == m->n_factors + 1 && m->n_factors > 0 && strcmp(field[nf - 1], "probability") == 0) {
-        by_factor = 1;
-        for (int k = 0; k < nf - 1; k++) {
-            fmap[k] = sl_meta_factor_index(m, field[k]);
-            if (fmap[k] < 0) SL_FAIL(SL_EDATA, "%s line 1: '%s' is not a factor of the model", path, field[k]);
-            for (int j = 0; j < k; j++)
-                if (fmap[j] == fmap[k]) SL_FAIL(SL_EDATA, "%s line 1: factor %s appears twice", path, field[k]);
-        }
-    } else {
-        SL_FAIL(SL_EDATA, "%s line 1: the header must be 'state,probability' or every factor name then "
-                          "'probability'", path);
-    }
-    while (fgets(line, sizeof(line), f) != NULL) {
-        lineno++;
-        if (strchr(line, '\n') == NULL && !feof(f)) SL_FAIL(SL_EDATA, "%s line %lld: line too long", path, (long long)lineno);
-        if (trim(line)[0] == '\0') continue;
-        int k = split(line, field, SLUICE_MAX_FACTORS + 1);
-        if (k != nf) SL_FAIL(SL_EDATA, "%s line %lld: %d fields, the header has %d", path, (long long)lineno, k, nf);
-        int64_t s = 0;
-        if (!by_factor) {
-            char *end = NULL;
-            errno = 0;
-            long long v = strtoll(field[0], &end, 10);
-            if (field[0][0] == '\0' || *end != '\0' || errno == ERANGE || v < 0 || v >= m->n_states)
-                SL_FAIL(SL_EDATA, "%s line %lld: state '%s' is not a state number of the model (0..%lld)", path,
-                        (long long)lineno, field[0], (long long)m->n_states - 1);
-            s = (int64_t)v;
-        } else {
-            int64_t idx[SLUICE_MAX_FACTORS];
-            for (int j = 0; j < nf - 1; j++) {
-                char spec[SL_NAME_MAX + 80];
-                int fi;
-                int64_t ii;
-                const char *v = field[j];
-                if (v[0] == '@') snprintf(spec, sizeof(spec), "%s%s", m->factor_name[fmap[j]], v);
-                else snprintf(spec, sizeof(spec), "%s=%s", m->factor_name[fmap[j]], v);
-                char where[300];
-                snprintf(where, sizeof(where), "%s line %lld:", path, (long long)lineno);
-                sl_status e = sl_factor_parse(ctx, m, spec, where, &fi, &ii);
-                if (e != SL_OK) {
-                    st = SL_EDATA;
-                    goto cleanup;
-                }
-                idx[fi] = ii;
-            }
-            for (int fi = m->n_factors - 1; fi >= 0; fi--) s = s * m->factor_size[fi] + idx[fi];
-        }
-        char *end = NULL;
-        errno = 0;
-        double p = strtod(field[nf - 1], &end);
-        if (field[nf - 1][0] == '\0' || *end != '\0' || errno == ERANGE || !isfinite(p) || p < 0.0 || p > 1.0)
-            SL_FAIL(SL_EDATA, "%s line %lld: probability '%s' is not a number in [0, 1]", path, (long long)lineno,
-                    field[nf - 1]);
-        if (n == cap) {
-            int64_t nc = cap ? 2 * cap : 1024;
-            int64_t *ns = realloc(states, (size_t)nc * sizeof(*ns));
-            if (ns == NULL) SL_FAIL(SL_ENOMEM, "%s: out of memory", path);
-            states = ns;
-            double *np = realloc(prob, (size_t)nc * sizeof(*np));
-            if (np == NULL) SL_FAIL(SL_ENOMEM, "%s: out of memory", path);
-            prob = np;
-            cap = nc;
-        }
-        states[n] = s;
-        prob[n] = p;
-        sum += p;
-        n++;
-    }
-    if (ferror(f)) SL_FAIL(SL_EIO, "%s: read error", path);
-    if (n == 0) SL_FAIL(SL_EDATA, "%s: no start states after the header", path);
-    if (fabs(sum - 1.0) > 1e-9)
-        SL_FAIL(SL_EDATA, "%s: probabilities sum to %.17g, not 1 (tolerance 1e-9)", path, sum);
-cleanup:
-    fclose(f);
+    start_rows r;
+    memset(&r, 0, sizeof(r));
+    sl_status st = sl_state_csv_read(ctx, m, path, "probability", start_row, &r);
+    if (st == SL_OK && fabs(r.sum - 1.0) > 1e-9)
+        st = SL_ERR(ctx, SL_EDATA, "%s: probabilities sum to %.17g, not 1 (tolerance 1e-9)", path, r.sum);
     if (st != SL_OK) {
-        free(states);
-        free(prob);
+        free(r.states);
+        free(r.prob);
         return st;
     }
-    *n_out = n;
-    *st_out = states;
-    *p_out = prob;
+    *n_out = r.n;
+    *st_out = r.states;
+    *p_out = r.prob;
     return SL_OK;
 }
 

@@ -38,6 +38,7 @@ typedef struct report_in {
     int64_t *avail;             /* states where each action id is available (all ranks) */
     int32_t n_actions;          /* 1 + largest action id */
     int64_t aps_min, aps_max;   /* actions per state */
+    int64_t thin_below, thin_pairs, visits_total;   /* models with visit counts */
 } report_in;
 
 static void report_in_free(report_in *r)
@@ -87,6 +88,17 @@ static sl_status load(sl_ctx *ctx, const sl_report_data_opts *o, report_in *r)
     SL_TRY(sl_agree(ctx, st));
     for (int64_t q = 0; q < sl_block_pairs(b); q++) r->avail[b->action[q]]++;
     MPI_Allreduce(MPI_IN_PLACE, r->avail, r->n_actions, MPI_INT64_T, MPI_SUM, ctx->comm);
+    r->thin_below = o->thin_below > 0 ? o->thin_below : SLUICE_THIN_BELOW;
+    if (r->m->has_visits) {
+        int64_t cnt[2] = {0, 0};
+        for (int64_t q = 0; b->visits && q < sl_block_pairs(b); q++) {
+            cnt[0] += b->visits[q] < r->thin_below;
+            cnt[1] += b->visits[q];
+        }
+        MPI_Allreduce(MPI_IN_PLACE, cnt, 2, MPI_INT64_T, MPI_SUM, ctx->comm);
+        r->thin_pairs = cnt[0];
+        r->visits_total = cnt[1];
+    }
 cleanup:
     return st;
 }
@@ -470,6 +482,15 @@ static sl_status write_doc(sl_ctx *ctx, const sl_report_data_opts *o, const repo
     sl_json_int(j, "n_transitions", m->n_trans);
     sl_json_num(j, "discount", m->discount);
     sl_json_str(j, "objective", sl_objective_name(m->objective));
+    if (m->has_visits) {
+        /* a model estimated from logged experience */
+        sl_json_obj_open(j, "visits");
+        sl_json_int(j, "total", r->visits_total);
+        sl_json_int(j, "thin_below", r->thin_below);
+        sl_json_int(j, "thin_pairs", r->thin_pairs);
+        sl_json_num(j, "visit_adjust", in->visit_adjust);
+        sl_json_close_obj(j);
+    }
     unit_json(j, "reward_unit", m->reward_unit);
     unit_json(j, "period_unit", m->period_unit);
     unit_json(j, "action_unit", m->n_action_values > 0 ? m->action_unit : "");
@@ -531,13 +552,8 @@ static sl_status write_doc(sl_ctx *ctx, const sl_report_data_opts *o, const repo
     sl_json_close_obj(j);
 
     /* solution and certificate */
-    double vmin = INFINITY, vmax = -INFINITY, vabs = INFINITY;
-    for (int64_t s = 0; s < m->n_states; s++) {
-        double x = r->value[s];
-        if (x < vmin) vmin = x;
-        if (x > vmax) vmax = x;
-        if (fabs(x) < vabs) vabs = fabs(x);
-    }
+    double vmin, vmax, vabs;
+    sl_value_extent_local(r->value, m->n_states, &vmin, &vmax, &vabs);
     sl_json_obj_open(j, "solution");
     sl_json_str(j, "path", o->solution);
     sl_json_str(j, "method", in->method);
@@ -564,8 +580,8 @@ static sl_status write_doc(sl_ctx *ctx, const sl_report_data_opts *o, const repo
     sl_json_num(j, "residual_span", c->residual_span);
     sl_json_bool(j, "certified", c->converged && c->value_error <= c->tolerance && c->policy_loss <= c->tolerance);
     /* relative to the smallest |value| (null when some value is 0) */
-    sl_json_num(j, "value_error_relative", vabs > 0 ? c->value_error / vabs : NAN);
-    sl_json_num(j, "policy_loss_relative", vabs > 0 ? c->policy_loss / vabs : NAN);
+    sl_json_num(j, "value_error_relative", sl_bound_relative(c->value_error, vabs));
+    sl_json_num(j, "policy_loss_relative", sl_bound_relative(c->policy_loss, vabs));
     sl_json_close_obj(j);
 
     sl_json_obj_open(j, "verify");

@@ -26,6 +26,11 @@ int cli_double(cli_args *a, const char *opt, const char *s, double *out);
 int cli_int64(cli_args *a, const char *opt, const char *s, int64_t *out);
 /* Print a usage error (rank 0) and return SL_EUSAGE. */
 int cli_usage_error(cli_args *a, const char *fmt, ...) __attribute__((format(printf, 2, 3)));
+/* argv[i] matched no option of the command: "-x" is an unknown option; a
+ * file name (or a lone "-") fills the first of the n positional slots still
+ * NULL (e.g. MODEL then SOLUTION) and is consumed; a usage error when every
+ * slot is taken. Returns 0 or SL_EUSAGE. */
+int cli_positional(cli_args *a, const char **slots[], int n);
 /* Report a library failure (rank 0) and return its exit code. */
 int cli_fail(cli_args *a, sl_status st);
 

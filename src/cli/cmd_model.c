@@ -81,12 +81,8 @@ int cmd_build(cli_args *a)
             if ((o.cache_dir = cli_value(a)) == NULL) rc = SL_EUSAGE;
         } else if (cli_opt(a, "--cc")) {
             if ((o.cc = cli_value(a)) == NULL) rc = SL_EUSAGE;
-        } else if (a->argv[a->i][0] == '-' && a->argv[a->i][1] != '\0') {
-            rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
-        } else if (o.generator == NULL) {
-            o.generator = a->argv[a->i++];
         } else {
-            rc = cli_usage_error(a, "unexpected argument '%s'", a->argv[a->i]);
+            rc = cli_positional(a, (const char **[]){&o.generator}, 1);
         }
     }
     if (rc == 0 && o.generator == NULL) rc = cli_usage_error(a, "no generator given");
@@ -110,7 +106,9 @@ static const char import_help[] =
     "  --objective NAME     discounted (default), total, average or finite\n"
     "  --states N           number of states (default: largest index + 1)\n"
     "  --prob-tolerance T   allowed |sum of probabilities - 1| per pair (default 1e-9)\n"
-    "  --renormalize        rescale pairs whose sum drifts by at most 1e-6 (reports how many)\n";
+    "  --renormalize        rescale pairs whose sum drifts by at most 1e-6 (reports how many)\n"
+    "  --terminal-values F  finite objective: CSV 'state,terminal_value' (every state once),\n"
+    "                       stored as /terminal_value and covered by the fingerprint\n";
 
 static const char estimate_help[] =
     "usage: sluice estimate EXPERIENCE.csv|- --discount G -o MODEL.h5 [options]\n"
@@ -121,14 +119,18 @@ static const char estimate_help[] =
     "  --states N           number of states (default: largest index + 1)\n"
     "  --min-visits K       drop pairs seen fewer than K times (default 1)\n"
     "  --unseen absorb      states with no data become absorbing with reward 0\n"
-    "                       (default: such a state is an error)\n";
+    "                       (default: such a state is an error)\n"
+    "  --smoothing A        add A pseudo-visits to every successor the state was seen\n"
+    "                       to reach (additive smoothing; default 0: none)\n"
+    "  The visits of every (state, action) are stored (/pair/visits); `sluice info`\n"
+    "  lists thin pairs and `solve --visit-bonus/--visit-penalty` tests sensitivity.\n";
 
 /* import and estimate share their options */
 static int csv_command(cli_args *a, int estimate)
 {
     const char *help = estimate ? estimate_help : import_help;
-    const char *input = NULL, *output = NULL, *v;
-    double discount = -1, tol = 0;
+    const char *input = NULL, *output = NULL, *v, *terminal = NULL;
+    double discount = -1, tol = 0, smoothing = 0;
     int have_discount = 0, renorm = 0, absorb = 0, rc = 0;
     int64_t states = 0, min_visits = 1;
     sl_objective obj = SL_OBJ_DISCOUNTED;
@@ -148,22 +150,23 @@ static int csv_command(cli_args *a, int estimate)
             else if (states < 1) rc = cli_usage_error(a, "--states must be at least 1");
         } else if (!estimate && cli_opt(a, "--prob-tolerance")) {
             if ((v = cli_value(a)) == NULL || !cli_double(a, "--prob-tolerance", v, &tol)) rc = SL_EUSAGE;
+        } else if (!estimate && cli_opt(a, "--terminal-values")) {
+            if ((terminal = cli_value(a)) == NULL) rc = SL_EUSAGE;
         } else if (!estimate && cli_opt(a, "--renormalize")) {
             renorm = 1;
         } else if (estimate && cli_opt(a, "--min-visits")) {
             if ((v = cli_value(a)) == NULL || !cli_int64(a, "--min-visits", v, &min_visits)) rc = SL_EUSAGE;
             else if (min_visits < 1) rc = cli_usage_error(a, "--min-visits must be at least 1");
+        } else if (estimate && cli_opt(a, "--smoothing")) {
+            if ((v = cli_value(a)) == NULL || !cli_double(a, "--smoothing", v, &smoothing)) rc = SL_EUSAGE;
+            else if (!(smoothing >= 0 && smoothing <= 1e6)) rc = cli_usage_error(a, "--smoothing must be in [0, 1e6]");
         } else if (estimate && cli_opt(a, "--unseen")) {
             if ((v = cli_value(a)) == NULL) rc = SL_EUSAGE;
             else if (strcmp(v, "absorb") == 0) absorb = 1;
             else if (strcmp(v, "error") == 0) absorb = 0;
             else rc = cli_usage_error(a, "--unseen: expected 'absorb' or 'error', got '%s'", v);
-        } else if (strcmp(a->argv[a->i], "-") != 0 && a->argv[a->i][0] == '-') {
-            rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
-        } else if (input == NULL) {
-            input = a->argv[a->i++];
         } else {
-            rc = cli_usage_error(a, "unexpected argument '%s'", a->argv[a->i]);
+            rc = cli_positional(a, (const char **[]){&input}, 1);
         }
     }
     if (rc) return rc;
@@ -173,10 +176,10 @@ static int csv_command(cli_args *a, int estimate)
     sl_model *m = NULL;
     double t0 = sl_clock();
     if (estimate) {
-        sl_estimate_opts o = {input, discount, obj, states, min_visits, absorb};
+        sl_estimate_opts o = {input, discount, obj, states, min_visits, absorb, smoothing};
         rc = cli_fail(a, sl_model_estimate_csv(a->ctx, &o, &m));
     } else {
-        sl_import_opts o = {input, discount, obj, states, tol, renorm};
+        sl_import_opts o = {input, discount, obj, states, tol, renorm, terminal};
         rc = cli_fail(a, sl_model_import_csv(a->ctx, &o, &m));
     }
     if (rc == 0) rc = save_model(a, m, output, t0);
@@ -188,18 +191,20 @@ int cmd_import(cli_args *a) { return csv_command(a, 0); }
 int cmd_estimate(cli_args *a) { return csv_command(a, 1); }
 
 static const char info_help[] =
-    "usage: sluice info FILE.h5 [--json] [--partition N]\n"
+    "usage: sluice info FILE.h5 [--json] [--partition N] [--thin-below K]\n"
     "       sluice info GENERATOR.c|GENERATOR.so\n"
     "  describe a model, solution, values or checkpoint file; or, before building,\n"
     "  a generator: its parameters with defaults, units and help, its factors,\n"
     "  actions and outcome quantities with the defaults.\n"
     "  --json          machine-readable output\n"
     "  --partition N   for a model: predicted rows, transitions, halo entries and\n"
-    "                  bytes exchanged per sweep for each of N ranks\n";
+    "                  bytes exchanged per sweep for each of N ranks\n"
+    "  --thin-below K  for a model from `estimate`: list the (state, action) pairs\n"
+    "                  seen fewer than K times (default 10)\n";
 
 int cmd_info(cli_args *a)
 {
-    sl_info_opts o = {NULL, 0, 0, stdout};
+    sl_info_opts o = {NULL, 0, 0, stdout, 0};
     int rc = 0;
     const char *v;
     while (a->i < a->argc && rc == 0) {
@@ -208,17 +213,16 @@ int cmd_info(cli_args *a)
         if (c > 0) continue;
         if (cli_opt(a, "--json")) {
             o.json = 1;
+        } else if (cli_opt(a, "--thin-below")) {
+            if ((v = cli_value(a)) == NULL || !cli_int64(a, "--thin-below", v, &o.thin_below)) rc = SL_EUSAGE;
+            else if (o.thin_below < 1) rc = cli_usage_error(a, "--thin-below: K must be at least 1");
         } else if (cli_opt(a, "--partition")) {
             int64_t n = 0;
             if ((v = cli_value(a)) == NULL || !cli_int64(a, "--partition", v, &n)) rc = SL_EUSAGE;
             else if (n < 1 || n > 1000000) rc = cli_usage_error(a, "--partition: N must be in [1, 1000000]");
             else o.partition = (int)n;
-        } else if (a->argv[a->i][0] == '-') {
-            rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
-        } else if (o.path == NULL) {
-            o.path = a->argv[a->i++];
         } else {
-            rc = cli_usage_error(a, "unexpected argument '%s'", a->argv[a->i]);
+            rc = cli_positional(a, (const char **[]){&o.path}, 1);
         }
     }
     if (rc) return rc;

@@ -34,8 +34,12 @@ static const char report_help[] =
     "  over two factors, model facts and the caution note. It opens offline.\n"
     "  --figures DIR         also write every plot as a standalone SVG and PNG in DIR\n"
     "  --data FILE.json      also keep the report-data document (docs/report.md)\n"
+    "  --data-only           write only the report-data document (--data; no -o, no\n"
+    "                        renderer needed)\n"
     "  --no-verify           leave out the independent verification run\n"
     "  --outlook-stages N    stages of the outlook (default 24)\n"
+    "  --thin-below K        model from `estimate`: count pairs seen fewer than K times\n"
+    "                        as thin (default 10)\n"
     "  --start STATE         start of the outlook: a state number, or every factor as\n"
     "                        NAME=VALUE or NAME@INDEX separated by commas (default: the\n"
     "                        middle of every factor in the first stage)\n"
@@ -159,7 +163,8 @@ int cmd_report(cli_args *a)
 {
     const char *model = NULL, *solution = NULL, *output = NULL, *figures = NULL, *keep = NULL;
     const char *start = NULL;
-    int64_t stages = 0;
+    int64_t stages = 0, thin_below = 0;
+    int data_only = 0;
     int rc = 0, skip_verify = 0;
     while (a->i < a->argc && rc == 0) {
         int c = cli_common_opt(a, report_help);
@@ -171,33 +176,35 @@ int cmd_report(cli_args *a)
             if ((figures = cli_value(a)) == NULL) rc = SL_EUSAGE;
         } else if (cli_opt(a, "--data")) {
             if ((keep = cli_value(a)) == NULL) rc = SL_EUSAGE;
+        } else if (cli_opt(a, "--data-only")) {
+            data_only = 1;
         } else if (cli_opt(a, "--no-verify")) {
             skip_verify = 1;
         } else if (cli_opt(a, "--start")) {
             if ((start = cli_value(a)) == NULL) rc = SL_EUSAGE;
+        } else if (cli_opt(a, "--thin-below")) {
+            const char *v = cli_value(a);
+            if (v == NULL || !cli_int64(a, "--thin-below", v, &thin_below)) rc = SL_EUSAGE;
+            else if (thin_below < 1) rc = cli_usage_error(a, "--thin-below: K must be at least 1");
         } else if (cli_opt(a, "--outlook-stages")) {
             const char *v = cli_value(a);
             if (v == NULL || !cli_int64(a, "--outlook-stages", v, &stages)) rc = SL_EUSAGE;
             else if (stages < 1 || stages > 100000) rc = cli_usage_error(a, "--outlook-stages must be in [1, 100000]");
-        } else if (a->argv[a->i][0] == '-') {
-            rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
-        } else if (model == NULL) {
-            model = a->argv[a->i++];
-        } else if (solution == NULL) {
-            solution = a->argv[a->i++];
         } else {
-            rc = cli_usage_error(a, "unexpected argument '%s'", a->argv[a->i]);
+            rc = cli_positional(a, (const char **[]){&model, &solution}, 2);
         }
     }
     if (rc) return rc;
     if (model == NULL || solution == NULL) return cli_usage_error(a, "need MODEL.h5 and SOLUTION.h5");
-    if (output == NULL) return cli_usage_error(a, "no output file given (-o REPORT.html)");
+    if (data_only && keep == NULL) return cli_usage_error(a, "--data-only needs --data FILE.json");
+    if (data_only && (output || figures)) return cli_usage_error(a, "--data-only writes no page: leave out -o and --figures");
+    if (output == NULL && !data_only) return cli_usage_error(a, "no output file given (-o REPORT.html)");
 
     int root = sl_ctx_rank(a->ctx) == 0;
     char node[PATH_MAX], dir[PATH_MAX], msg[2 * PATH_MAX + 256], data[PATH_MAX + 64] = "";
     FILE *df = NULL;
     /* 1. the renderer must be there before any work is done */
-    if (root) {
+    if (root && !data_only) {
         if (!find_renderer(node, dir, sizeof(node), figures != NULL, msg, sizeof(msg))) {
             fprintf(stderr, "sluice report: %s\n", msg);
             rc = EX_UNAVAILABLE;
@@ -228,6 +235,7 @@ int cmd_report(cli_args *a)
     o.skip_verify = skip_verify;
     o.outlook_start = start;
     o.outlook_stages = stages;
+    o.thin_below = thin_below;
     sl_status st = sl_report_data(a->ctx, &o);
     if (root) {
         if (fclose(df) != 0 && st == SL_OK) {
@@ -237,7 +245,12 @@ int cmd_report(cli_args *a)
     }
     if (st != SL_OK) rc = cli_fail(a, st);
     /* 4. draw it */
-    if (root && rc == 0) {
+    if (root && rc == 0 && data_only) {
+        if (rename(data, keep) != 0) {
+            fprintf(stderr, "sluice report: %s: cannot move into place: %s\n", keep, strerror(errno));
+            rc = SL_ECANTCREAT;
+        }
+    } else if (root && rc == 0) {
         rc = run_renderer(node, dir, data, output, figures);
         if (rc == 0 && keep && rename(data, keep) != 0) {
             fprintf(stderr, "sluice report: %s: cannot move into place: %s\n", keep, strerror(errno));
@@ -247,6 +260,6 @@ int cmd_report(cli_args *a)
     }
     if (root && data[0] && (rc != 0 || keep == NULL)) remove(data);
     MPI_Bcast(&rc, 1, MPI_INT, 0, MPI_COMM_WORLD);
-    if (root && rc == 0) printf("report: %s\n", output);
+    if (root && rc == 0) printf("report: %s\n", data_only ? keep : output);
     return rc;
 }

@@ -29,6 +29,7 @@ typedef struct solve_args {
     int64_t horizon;            /* finite */
     const char *terminal;       /* finite */
     double aperiodicity;        /* average */
+    double visit_bonus, visit_penalty;  /* estimated models: r +- c/sqrt(visits) */
 } solve_args;
 
 /* The CLI's one piece of process state: what the last signal asked for, and
@@ -109,6 +110,9 @@ static const char solve_help[] =
     "                        (default: the model's /terminal_value, else 0)\n"
     "  --aperiodicity TAU    average: weight of staying put in the transform, in (0, 1)\n"
     "                        (default 0.5); --tolerance bounds the gain\n"
+    "models from `sluice estimate` (discounted): sensitivity to thin data\n"
+    "  --visit-bonus C       solve with r(s,a) + C/sqrt(visits(s,a)) (optimistic)\n"
+    "  --visit-penalty C     solve with r(s,a) - C/sqrt(visits(s,a)) (pessimistic)\n"
     "signals: USR1 = checkpoint now and continue; TERM, INT, USR2 = checkpoint and exit 75.\n";
 
 /* ---- progress lines (rank 0) ------------------------------------------------------ */
@@ -174,7 +178,29 @@ static void on_progress(const sl_progress *p, void *user)
 
 /* ---- report and summary --------------------------------------------------------- */
 
-static int write_report(cli_args *a, const solve_args *o, const sl_model *m, const sl_solution *x, int exit_code)
+/* The values' extent, for bounds relative to the smallest value. */
+typedef struct value_extent {
+    double vmin, vmax, min_abs;
+} value_extent;
+
+/* Units of the model in a report: "units": {"reward", "period"}, and the
+ * bounds relative to the smallest value in magnitude (null if it is 0). */
+static void json_units_and_relative(sl_json *j, const sl_model *m, const value_extent *e, double value_error,
+                                    double policy_loss)
+{
+    sl_json_obj_open(j, "units");
+    sl_json_str(j, "reward", sl_model_reward_unit(m));
+    sl_json_str(j, "period", sl_model_period_unit(m));
+    sl_json_close_obj(j);
+    sl_json_num(j, "value_min", e->vmin);
+    sl_json_num(j, "value_max", e->vmax);
+    sl_json_num(j, "value_min_abs", e->min_abs);
+    sl_json_num(j, "value_error_relative", sl_bound_relative(value_error, e->min_abs));
+    sl_json_num(j, "policy_loss_relative", sl_bound_relative(policy_loss, e->min_abs));
+}
+
+static int write_report(cli_args *a, const solve_args *o, const sl_model *m, const sl_solution *x, int exit_code,
+                        const value_extent *e)
 {
     sl_ctx *ctx = a->ctx;
     if (o->report == NULL || sl_ctx_rank(ctx) != 0) return 0;
@@ -204,6 +230,7 @@ static int write_report(cli_args *a, const solve_args *o, const sl_model *m, con
     sl_json_int(&j, "n_states", sl_model_n_states(m));
     sl_json_int(&j, "n_transitions", sl_model_n_transitions(m));
     sl_json_num(&j, "discount", sl_model_discount(m));
+    if (in.visit_adjust != 0.0) sl_json_num(&j, "visit_adjust", in.visit_adjust);
     sl_json_bool(&j, "converged", c.converged);
     sl_json_int(&j, "exit_code", (int64_t)exit_code);
     sl_json_num(&j, "tolerance", c.tolerance);
@@ -216,6 +243,7 @@ static int write_report(cli_args *a, const solve_args *o, const sl_model *m, con
     sl_json_num(&j, "residual_max", c.residual_max);
     sl_json_num(&j, "value_error_bound", c.value_error);
     sl_json_num(&j, "policy_loss_bound", c.policy_loss);
+    json_units_and_relative(&j, m, e, c.value_error, c.policy_loss);
     sl_json_int(&j, "checkpoints_written", in.checkpoints_written);
     sl_json_arr_open(&j, "history");
     for (int64_t i = 0; i < h.n; i++) {
@@ -243,7 +271,8 @@ static int write_report(cli_args *a, const solve_args *o, const sl_model *m, con
     return 0;
 }
 
-static void print_summary(cli_args *a, const solve_args *o, const sl_model *m, const sl_solution *x)
+static void print_summary(cli_args *a, const solve_args *o, const sl_model *m, const sl_solution *x,
+                          const value_extent *e)
 {
     sl_ctx *ctx = a->ctx;
     if (sl_ctx_rank(ctx) != 0 || sl_ctx_verbosity(ctx) < 1) return;
@@ -259,12 +288,25 @@ static void print_summary(cli_args *a, const solve_args *o, const sl_model *m, c
             in.evaluation[0] ? ", evaluation " : "", in.evaluation, sl_ctx_size(ctx));
     fprintf(f, "  result       %s after %lld iterations, %lld sweeps, %.2f s\n",
             c.converged ? "CERTIFIED" : "NOT converged", (long long)in.iterations, (long long)in.sweeps, in.seconds);
-    fprintf(f, "  residual     sup|Tv - v| = %.3e, span = %.3e\n", c.residual_sup, c.residual_span);
-    fprintf(f, "  certificate  |value - v*| <= %.3e in every state; policy within %.3e of optimal (tolerance %.1e)\n",
-            c.value_error, c.policy_loss, c.tolerance);
+    const char *ru = sl_model_reward_unit(m);
+    char vw[160], pw[160];
+    sl_bound_words(c.value_error, ru, e->min_abs, vw, sizeof(vw));
+    sl_bound_words(c.policy_loss, ru, e->min_abs, pw, sizeof(pw));
+    fprintf(f, "  values       %.6g .. %.6g %s\n", e->vmin, e->vmax, ru[0] ? ru : "(reward units)");
+    fprintf(f, "  residual     sup|Tv - v| = %.3e, span = %.3e %s\n", c.residual_sup, c.residual_span, ru);
+    fprintf(f, "  certificate  |value - v*| <= %s, in every state\n", vw);
+    fprintf(f, "               v* - v_policy <= %s, in every state (tolerance %.1e %s)\n", pw, c.tolerance, ru);
     fprintf(f, "  written      %s\n", o->output);
     fprintf(f, "  caution      results support, and never replace, licensed engineering judgement\n"
                "               and local regulations.\n");
+}
+
+/* --visit-bonus / --visit-penalty: C > 0, and not both. */
+static int visit_check(cli_args *a, double c, double other)
+{
+    if (!(c > 0) || !isfinite(c)) return cli_usage_error(a, "--visit-bonus/--visit-penalty: C must be a positive number");
+    if (other > 0) return cli_usage_error(a, "--visit-bonus and --visit-penalty exclude each other");
+    return 0;
 }
 
 static int run_solve(cli_args *a, const solve_args *o)
@@ -276,6 +318,10 @@ static int run_solve(cli_args *a, const solve_args *o)
     monitor_state ms = {a, o, 0, -1e300};
     ms.every = o->progress_every > 0 ? o->progress_every : (a->stderr_tty ? 1.0 : 30.0);
     int rc = cli_fail(a, sl_model_load(ctx, o->model, &m));
+    if (rc == 0 && sl_model_objective(m) != SL_OBJ_DISCOUNTED && (o->visit_bonus > 0 || o->visit_penalty > 0))
+        rc = cli_usage_error(a, "--visit-bonus and --visit-penalty apply to the discounted objective; %s records "
+                                "objective \"%s\"",
+                             o->model, sl_objective_name(sl_model_objective(m)));
     if (rc == 0 && sl_model_objective(m) != SL_OBJ_DISCOUNTED) {
         /* finite, total, average: docs/objectives.md */
         sl_objective_opts oo;
@@ -293,10 +339,14 @@ static int run_solve(cli_args *a, const solve_args *o)
         oo.horizon = o->horizon;
         oo.terminal = o->terminal;
         oo.aperiodicity = o->aperiodicity;
-        if (o->method != SL_METHOD_GS && sl_ctx_rank(ctx) == 0)
-            fprintf(stderr, "sluice solve: warning: --method applies to the discounted objective; ignored for "
-                            "objective %s\n",
-                    sl_objective_name(sl_model_objective(m)));
+        oo.method = o->method;
+        sl_objective obj = sl_model_objective(m);
+        int pi_ok = o->method == SL_METHOD_PI && obj != SL_OBJ_FINITE;
+        if (o->method != SL_METHOD_GS && !pi_ok && sl_ctx_rank(ctx) == 0)
+            fprintf(stderr, "sluice solve: warning: --method %s does not apply to objective %s (value iteration%s "
+                            "is used)\n",
+                    sl_method_name(o->method), sl_objective_name(obj),
+                    obj == SL_OBJ_FINITE ? ": backward induction" : "; --method pi also applies");
         rc = cli_fail(a, sl_objective_solve(m, &oo));
         sl_model_free(&m);
         return rc;
@@ -316,6 +366,8 @@ static int run_solve(cli_args *a, const solve_args *o)
         if (st == SL_OK) st = sl_solver_set_sweeps(s, o->sweeps);
         if (st == SL_OK) st = sl_solver_set_memory_limit(s, o->memory_limit, o->strict_memory);
         if (st == SL_OK && o->direct_time_limit >= 0) st = sl_solver_set_direct_time_limit(s, o->direct_time_limit);
+        if (st == SL_OK && o->visit_bonus > 0) st = sl_solver_set_visit_bonus(s, o->visit_bonus);
+        if (st == SL_OK && o->visit_penalty > 0) st = sl_solver_set_visit_penalty(s, o->visit_penalty);
         if (st == SL_OK && o->checkpoint_dir)
             st = sl_solver_set_checkpoint(s, o->checkpoint_dir, o->checkpoint_every, o->resume);
         if (st == SL_OK) st = sl_solver_set_monitor(s, on_progress, &ms);
@@ -327,9 +379,11 @@ static int run_solve(cli_args *a, const solve_args *o)
         if (x != NULL) {
             /* certified, stopped early or below the roundoff floor: the
              * solution is honest either way; write it, then say how it ended */
+            value_extent e;
             int wrc = cli_fail(a, sl_solution_save(x, o->output));
-            if (wrc == 0) wrc = write_report(a, o, m, x, (int)st);
-            if (wrc == 0) print_summary(a, o, m, x);
+            if (wrc == 0) wrc = cli_fail(a, sl_solution_value_extent(x, &e.vmin, &e.vmax, &e.min_abs));
+            if (wrc == 0) wrc = write_report(a, o, m, x, (int)st, &e);
+            if (wrc == 0) print_summary(a, o, m, x, &e);
             rc = wrc != 0 ? wrc : cli_fail(a, st);
         } else {
             rc = cli_fail(a, st);
@@ -382,6 +436,12 @@ int cmd_solve(cli_args *a)
             if (!num_opt(a, "--direct-time-limit", &o.direct_time_limit)) rc = SL_EUSAGE;
             else if (!(o.direct_time_limit >= 0))
                 rc = cli_usage_error(a, "--direct-time-limit must be 0 (no limit) or a number of seconds");
+        } else if (cli_opt(a, "--visit-bonus")) {
+            if (!num_opt(a, "--visit-bonus", &o.visit_bonus)) rc = SL_EUSAGE;
+            else rc = visit_check(a, o.visit_bonus, o.visit_penalty);
+        } else if (cli_opt(a, "--visit-penalty")) {
+            if (!num_opt(a, "--visit-penalty", &o.visit_penalty)) rc = SL_EUSAGE;
+            else rc = visit_check(a, o.visit_penalty, o.visit_bonus);
         } else if (cli_opt(a, "--checkpoint")) {
             if ((o.checkpoint_dir = cli_value(a)) == NULL) rc = SL_EUSAGE;
         } else if (cli_opt(a, "--checkpoint-every")) {
@@ -405,12 +465,8 @@ int cmd_solve(cli_args *a)
             if (!num_opt(a, "--aperiodicity", &o.aperiodicity)) rc = SL_EUSAGE;
             else if (!(o.aperiodicity > 0 && o.aperiodicity < 1))
                 rc = cli_usage_error(a, "--aperiodicity must be in (0, 1)");
-        } else if (a->argv[a->i][0] == '-') {
-            rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
-        } else if (o.model == NULL) {
-            o.model = a->argv[a->i++];
         } else {
-            rc = cli_usage_error(a, "unexpected argument '%s'", a->argv[a->i]);
+            rc = cli_positional(a, (const char **[]){&o.model}, 1);
         }
     }
     if (rc) return rc;
@@ -439,7 +495,11 @@ static const char evaluate_help[] =
     "  For a model with outcome quantities it also prints each quantity's expected\n"
     "  discounted total under the policy (policy evaluation with the quantity as reward):\n"
     "  --totals FILE.csv     those totals per state, with units in the header\n"
-    "  --compare OTHER.h5    the same for the policy in OTHER.h5, and the difference\n";
+    "  --compare OTHER       the same for another policy, and the difference: a solution\n"
+    "                        file, or a CSV of actions by state (a rule operated today):\n"
+    "                        header 'state,action' or every factor name then 'action',\n"
+    "                        e.g. 'storage,inflow,month,action' / '600,140,Jan,release_150';\n"
+    "                        factors by label, value or @INDEX, actions by name, value or @ID\n";
 
 typedef struct evaluate_args {
     const char *model, *policy, *output;
@@ -464,15 +524,22 @@ static int run_evaluate(cli_args *a, const evaluate_args *o)
         rc = cli_fail(a, st);
     }
     if (rc == 0) rc = cli_fail(a, sl_solver_evaluate(s, m, pol, &v));
-    if (rc == 0) rc = cli_fail(a, sl_solution_save(v, o->output));
+    /* totals (and --compare's policy) first: bad input there leaves no values file */
     if (rc == 0) rc = cli_quantity_totals(a, s, m, pol, o->model, o->policy, o->compare, o->totals);
+    if (rc == 0) rc = cli_fail(a, sl_solution_save(v, o->output));
+    value_extent e;
+    if (rc == 0) rc = cli_fail(a, sl_solution_value_extent(v, &e.vmin, &e.vmax, &e.min_abs));
     if (rc == 0 && sl_ctx_rank(ctx) == 0 && sl_ctx_verbosity(ctx) >= 1) {
         sl_solution_info in;
         sl_certificate c;
+        char w[160];
+        const char *ru = sl_model_reward_unit(m);
         sl_solution_get_info(v, &in);
         sl_solution_get_certificate(v, &c);
-        fprintf(stderr, "evaluate: %s evaluation of the policy in %s: |value - v_policy| <= %.3e; wrote %s\n",
-                in.evaluation, o->policy, c.value_error, o->output);
+        sl_bound_words(c.value_error, ru, e.min_abs, w, sizeof(w));
+        fprintf(stderr, "evaluate: %s evaluation of the policy in %s: values %.6g .. %.6g %s; "
+                        "|value - v_policy| <= %s; wrote %s\n",
+                in.evaluation, o->policy, e.vmin, e.vmax, ru[0] ? ru : "(reward units)", w, o->output);
     }
     sl_solution_free(&v);
     sl_solution_free(&pol);
@@ -505,12 +572,8 @@ int cmd_evaluate(cli_args *a)
             else if (!(o.tolerance > 0)) rc = cli_usage_error(a, "--tolerance must be positive");
         } else if (cli_opt(a, "--memory-limit")) {
             if (!num_opt(a, "--memory-limit", &o.memory_limit)) rc = SL_EUSAGE;
-        } else if (a->argv[a->i][0] == '-') {
-            rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
-        } else if (o.model == NULL) {
-            o.model = a->argv[a->i++];
         } else {
-            rc = cli_usage_error(a, "unexpected argument '%s'", a->argv[a->i]);
+            rc = cli_positional(a, (const char **[]){&o.model}, 1);
         }
     }
     if (rc) return rc;
@@ -546,8 +609,11 @@ static int run_verify(cli_args *a, const verify_args *o)
         return rc;
     }
     if (rc == 0) rc = cli_fail(a, sl_solution_load(ctx, o->solution, m, &x));
+    value_extent e;
+    if (rc == 0) rc = cli_fail(a, sl_solution_value_extent(x, &e.vmin, &e.vmax, &e.min_abs));
     if (rc == 0) {
         sl_status st = sl_verify(m, x, o->tolerance, &r);
+        const char *ru = sl_model_reward_unit(m);
         if ((st == SL_OK || st == SL_EDATA) && sl_ctx_rank(ctx) == 0) {
             sl_solution_info in;
             sl_solution_get_info(x, &in);
@@ -563,17 +629,22 @@ static int run_verify(cli_args *a, const verify_args *o)
                 sl_json_num(&j, "policy_loss_bound", r.policy_loss);
                 sl_json_num(&j, "tolerance", r.tolerance);
                 sl_json_bool(&j, "certified", r.certified);
+                json_units_and_relative(&j, m, &e, r.value_error, r.policy_loss);
                 sl_json_end(&j);
             } else {
                 fprintf(out, "verify %s against %s\n", o->solution, o->model);
-                fprintf(out, "  residual      sup|Tv - v| = %.3e, span = %.3e (recomputed)\n", r.residual_sup,
-                        r.residual_span);
-                fprintf(out, "  value         |value - v*| <= %.3e in every state\n", r.value_error);
-                fprintf(out, "  policy        v* - v_policy <= %.3e in every state\n", r.policy_loss);
-                fprintf(out, "  claimed       value %.3e, policy %.3e (by %s)\n", r.claimed.value_error,
-                        r.claimed.policy_loss, in.method);
-                fprintf(out, "  result        %s at tolerance %.1e\n", r.certified ? "CERTIFIED" : "NOT certified",
-                        r.tolerance);
+                char vw[160], pw[160];
+                sl_bound_words(r.value_error, ru, e.min_abs, vw, sizeof(vw));
+                sl_bound_words(r.policy_loss, ru, e.min_abs, pw, sizeof(pw));
+                fprintf(out, "  values        %.6g .. %.6g %s\n", e.vmin, e.vmax, ru[0] ? ru : "(reward units)");
+                fprintf(out, "  residual      sup|Tv - v| = %.3e, span = %.3e %s (recomputed)\n", r.residual_sup,
+                        r.residual_span, ru);
+                fprintf(out, "  value         |value - v*| <= %s, in every state\n", vw);
+                fprintf(out, "  policy        v* - v_policy <= %s, in every state\n", pw);
+                fprintf(out, "  claimed       value %.3e, policy %.3e %s (by %s)\n", r.claimed.value_error,
+                        r.claimed.policy_loss, ru, in.method);
+                fprintf(out, "  result        %s at tolerance %.1e %s\n", r.certified ? "CERTIFIED" : "NOT certified",
+                        r.tolerance, ru);
             }
             fflush(out);
         }
@@ -600,14 +671,8 @@ int cmd_verify(cli_args *a)
             else if (!(o.tolerance > 0)) rc = cli_usage_error(a, "--tolerance must be positive");
         } else if (cli_opt(a, "--json")) {
             o.json = 1;
-        } else if (a->argv[a->i][0] == '-') {
-            rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
-        } else if (o.model == NULL) {
-            o.model = a->argv[a->i++];
-        } else if (o.solution == NULL) {
-            o.solution = a->argv[a->i++];
         } else {
-            rc = cli_usage_error(a, "unexpected argument '%s'", a->argv[a->i]);
+            rc = cli_positional(a, (const char **[]){&o.model, &o.solution}, 2);
         }
     }
     if (rc) return rc;
@@ -621,7 +686,17 @@ static const char simulate_help[] =
     "  Monte Carlo rollouts of the solution's policy; prints the mean discounted\n"
     "  return with a 95% interval next to the solution's value.\n"
     "  --horizon T           steps per episode (default: until discount^T < 1e-6)\n"
-    "  --json                machine-readable output\n";
+    "  --stages N            also per stage 0..N the figures 'sluice outlook' computes exactly:\n"
+    "                        each numeric factor's mean, each quantity's mean and P(>0), the\n"
+    "                        discounted reward so far, as sample means with intervals\n"
+    "  --interval M          normal (default; central limit theorem, approximate) or hoeffding\n"
+    "                        (Hoeffding 1963: guaranteed for the bounded figures, wider)\n"
+    "  --confidence C        of each interval (default 0.95)\n"
+    "  --replicates K        K independent runs with seeds S, S+1, ..., S+K-1 (with --json: an array)\n"
+    "  --trajectories F.csv  every sampled step: episode, stage, state, factors, action,\n"
+    "                        reward, quantities, discounted reward so far (atomically)\n"
+    "  --json                machine-readable output\n"
+    "Results support, never replace, licensed engineering judgement and local regulations.\n";
 
 int cmd_simulate(cli_args *a)
 {
@@ -631,7 +706,7 @@ int cmd_simulate(cli_args *a)
     o.episodes = 1000;
     int have_start = 0, rc = 0;
     const char *start_text = NULL;
-    int64_t seed = 1;
+    int64_t seed = 1, replicates = 1;
     while (a->i < a->argc && rc == 0) {
         int c = cli_common_opt(a, simulate_help);
         if (c < 0) return 0;
@@ -648,16 +723,27 @@ int cmd_simulate(cli_args *a)
         } else if (cli_opt(a, "--horizon")) {
             if (!int_opt(a, "--horizon", &o.horizon)) rc = SL_EUSAGE;
             else if (o.horizon < 1) rc = cli_usage_error(a, "--horizon must be at least 1");
+        } else if (cli_opt(a, "--stages")) {
+            if (!int_opt(a, "--stages", &o.stages)) rc = SL_EUSAGE;
+            else if (o.stages < 1 || o.stages > 100000000) rc = cli_usage_error(a, "--stages must be in [1, 1e8]");
+        } else if (cli_opt(a, "--interval")) {
+            const char *v = cli_value(a);
+            if (v == NULL) rc = SL_EUSAGE;
+            else if (strcmp(v, "normal") == 0) o.interval = SL_INTERVAL_NORMAL;
+            else if (strcmp(v, "hoeffding") == 0) o.interval = SL_INTERVAL_HOEFFDING;
+            else rc = cli_usage_error(a, "--interval: '%s' is not one of normal, hoeffding", v);
+        } else if (cli_opt(a, "--confidence")) {
+            if (!num_opt(a, "--confidence", &o.confidence)) rc = SL_EUSAGE;
+            else if (!(o.confidence > 0 && o.confidence < 1)) rc = cli_usage_error(a, "--confidence must be in (0, 1)");
+        } else if (cli_opt(a, "--trajectories")) {
+            if ((o.trajectories = cli_value(a)) == NULL) rc = SL_EUSAGE;
+        } else if (cli_opt(a, "--replicates")) {
+            if (!int_opt(a, "--replicates", &replicates)) rc = SL_EUSAGE;
+            else if (replicates < 1 || replicates > 1000000) rc = cli_usage_error(a, "--replicates must be in [1, 1e6]");
         } else if (cli_opt(a, "--json")) {
             o.json = 1;
-        } else if (a->argv[a->i][0] == '-') {
-            rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
-        } else if (o.model == NULL) {
-            o.model = a->argv[a->i++];
-        } else if (o.solution == NULL) {
-            o.solution = a->argv[a->i++];
         } else {
-            rc = cli_usage_error(a, "unexpected argument '%s'", a->argv[a->i]);
+            rc = cli_positional(a, (const char **[]){&o.model, &o.solution}, 2);
         }
     }
     if (rc) return rc;
@@ -665,6 +751,16 @@ int cmd_simulate(cli_args *a)
     if (!have_start) return cli_usage_error(a, "--start STATE is required");
     rc = cli_fail(a, sl_state_lookup(a->ctx, o.model, start_text, "--start", &o.start));
     if (rc) return rc;
-    o.seed = (uint64_t)seed;
-    return cli_fail(a, sl_simulate(a->ctx, &o));
+    if (replicates > 1 && o.trajectories)
+        return cli_usage_error(a, "--trajectories writes one run: leave out --replicates");
+    int root = sl_ctx_rank(a->ctx) == 0, many = replicates > 1 && o.json;
+    if (many && root) printf("[\n");
+    for (int64_t r = 0; r < replicates && rc == 0; r++) {
+        if (many && root && r > 0) printf(",\n");
+        fflush(stdout);
+        o.seed = (uint64_t)(seed + r);
+        rc = cli_fail(a, sl_simulate(a->ctx, &o));
+    }
+    if (many && root && rc == 0) printf("]\n");
+    return rc;
 }

@@ -194,12 +194,8 @@ int cmd_table(cli_args *a)
             if ((o.show = cli_value(a)) == NULL) rc = SL_EUSAGE;
         } else if (cli_opt(a, "-o") || cli_opt(a, "--output")) {
             if ((out = cli_value(a)) == NULL) rc = SL_EUSAGE;
-        } else if (a->argv[a->i][0] == '-' && a->argv[a->i][1] != '\0') {
-            rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
-        } else if (o.solution == NULL) {
-            o.solution = a->argv[a->i++];
         } else {
-            rc = cli_usage_error(a, "unexpected argument '%s'", a->argv[a->i]);
+            rc = cli_positional(a, (const char **[]){&o.solution}, 1);
         }
     }
     if (rc == 0 && o.solution == NULL) rc = cli_usage_error(a, "no solution file given");

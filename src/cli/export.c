@@ -8,7 +8,9 @@
 
 static const char export_help[] =
     "usage: sluice export SOLUTION.h5 --model MODEL.h5 -o FILE.csv|-\n"
-    "  one CSV row per state: state, factor values, action id, action name, value.\n";
+    "  one CSV row per state: state; per factor its index (NAME@) and, when the model\n"
+    "  gives them, its label or value (NAME [unit]); action id, action name, action\n"
+    "  value [unit] when actions have values; value [reward unit].\n";
 
 static int write_csv(cli_args *a, const char *output, const sl_model *m, const double *v, const int32_t *act)
 {
@@ -20,16 +22,40 @@ static int write_csv(cli_args *a, const char *output, const sl_model *m, const d
         fprintf(stderr, "sluice %s: %s: cannot create: %s\n", a->cmd, output, strerror(errno));
         return SL_ECANTCREAT;
     }
+    /* header: each factor's index as NAME@ and, when it has values or
+     * labels, NAME [unit] with them; the action's value with its unit; the
+     * value with the reward unit (docs/results.md) */
     int nf = sl_model_n_factors(m);
+    int has_av = sl_model_action_value(m, 0, NULL);
+    const char *ru = sl_model_reward_unit(m), *au = sl_model_action_unit(m);
     fprintf(f, "state");
-    for (int k = 0; k < nf; k++) fprintf(f, ",%s", sl_model_factor_name(m, k));
-    fprintf(f, ",action,action_name,value\n");
+    for (int k = 0; k < nf; k++) {
+        const char *u = sl_model_factor_unit(m, k);
+        fprintf(f, ",%s@", sl_model_factor_name(m, k));
+        if (sl_model_factor_value(m, k, 0, NULL) || sl_model_factor_label(m, k, 0)[0])
+            fprintf(f, ",%s%s%s%s", sl_model_factor_name(m, k), u[0] ? " [" : "", u, u[0] ? "]" : "");
+    }
+    fprintf(f, ",action,action_name");
+    if (has_av) fprintf(f, ",action_value%s%s%s", au[0] ? " [" : "", au, au[0] ? "]" : "");
+    fprintf(f, ",value%s%s%s\n", ru[0] ? " [" : "", ru, ru[0] ? "]" : "");
     int64_t fv[SLUICE_MAX_FACTORS];
     for (int64_t s = 0; s < sl_model_n_states(m); s++) {
         sl_model_decode_state(m, s, fv);
         fprintf(f, "%lld", (long long)s);
-        for (int k = 0; k < nf; k++) fprintf(f, ",%lld", (long long)fv[k]);
-        fprintf(f, ",%d,%s,%.17g\n", (int)act[s], sl_model_action_name(m, act[s]), v[s]);
+        for (int k = 0; k < nf; k++) {
+            double x;
+            const char *lab = sl_model_factor_label(m, k, fv[k]);
+            fprintf(f, ",%lld", (long long)fv[k]);
+            if (lab[0]) fprintf(f, ",%s", lab);
+            else if (sl_model_factor_value(m, k, fv[k], &x)) fprintf(f, ",%.15g", x);
+        }
+        fprintf(f, ",%d,%s", (int)act[s], sl_model_action_name(m, act[s]));
+        double av;
+        if (has_av) {
+            if (sl_model_action_value(m, act[s], &av)) fprintf(f, ",%.15g", av);
+            else fprintf(f, ",");
+        }
+        fprintf(f, ",%.17g\n", v[s]);
     }
     int bad = ferror(f) != 0;
     if (to_stdout) bad |= fflush(f) != 0;
@@ -61,12 +87,8 @@ int cmd_export(cli_args *a)
             if ((output = cli_value(a)) == NULL) rc = SL_EUSAGE;
         } else if (cli_opt(a, "--model")) {
             if ((model = cli_value(a)) == NULL) rc = SL_EUSAGE;
-        } else if (a->argv[a->i][0] == '-') {
-            rc = cli_usage_error(a, "unknown option '%s'", a->argv[a->i]);
-        } else if (solution == NULL) {
-            solution = a->argv[a->i++];
         } else {
-            rc = cli_usage_error(a, "unexpected argument '%s'", a->argv[a->i]);
+            rc = cli_positional(a, (const char **[]){&solution}, 1);
         }
     }
     if (rc) return rc;

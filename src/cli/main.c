@@ -26,8 +26,9 @@ static const char usage_text[] =
     "                                                           release rule, water values, quantities\n"
     "  outlook MODEL.h5 SOLUTION.h5 --start S --stages N [--json]  exact forward distribution under the policy\n"
     "  report MODEL.h5 SOLUTION.h5 -o REPORT.html [--figures DIR]   one HTML page for a reviewer\n"
+    "  help COMMAND                                             the options of one command\n"
     "\n"
-    "Run 'sluice COMMAND --help' for the options of one command. Under 'mpirun -np N'\n"
+    "Run 'sluice help COMMAND' (or 'sluice COMMAND --help') for the options of one command. Under 'mpirun -np N'\n"
     "every command that reads or writes a model uses all N ranks.\n"
     "Exit codes: 0 done, 64 usage, 65 bad data, 66 missing input, 70 internal error,\n"
     "73 cannot create output, 74 I/O error, 75 stopped early with a valid checkpoint.\n";
@@ -81,6 +82,19 @@ int cli_usage_error(cli_args *a, const char *fmt, ...)
     return SL_EUSAGE;
 }
 
+int cli_positional(cli_args *a, const char **slots[], int n)
+{
+    const char *arg = a->argv[a->i];
+    if (arg[0] == '-' && arg[1] != '\0') return cli_usage_error(a, "unknown option '%s'", arg);
+    for (int k = 0; k < n; k++)
+        if (*slots[k] == NULL) {
+            *slots[k] = arg;
+            a->i++;
+            return 0;
+        }
+    return cli_usage_error(a, "unexpected argument '%s'", arg);
+}
+
 int cli_fail(cli_args *a, sl_status st)
 {
     if (st != SL_OK && st != SL_ESTOPPED && sl_ctx_rank(a->ctx) == 0) {
@@ -127,6 +141,13 @@ int main(int argc, char **argv)
     int rank = 0;
     MPI_Comm_rank(MPI_COMM_WORLD, &rank);
     int rc = 0;
+    /* `sluice help COMMAND` is `sluice COMMAND --help` */
+    char *help_argv[4] = {argv[0], NULL, "--help", NULL};
+    if (argc >= 3 && strcmp(argv[1], "help") == 0) {
+        help_argv[1] = argv[2];
+        argc = 3;
+        argv = help_argv;
+    }
     if (argc < 2 || strcmp(argv[1], "--help") == 0 || strcmp(argv[1], "-h") == 0 ||
         strcmp(argv[1], "help") == 0) {
         if (rank == 0) fputs(usage_text, argc < 2 ? stderr : stdout);

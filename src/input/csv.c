@@ -606,6 +606,36 @@ sl_status sl_csv_check_discount(sl_ctx *ctx, sl_objective obj, double discount)
     return SL_OK;
 }
 
+sl_status sl_csv_model_load(sl_ctx *ctx, const char *fn, const char *input, const char *needs, sl_objective obj,
+                            double discount, sl_csv_model_reader read, const void *opts, sl_model **out)
+{
+    sl_status st = SL_OK;
+    FILE *fp = NULL;
+    const char *name = "<input>";
+    sl_meta m;
+    sl_block b;
+    memset(&m, 0, sizeof(m));
+    memset(&b, 0, sizeof(b));
+    if (out == NULL) return SL_ERR(ctx, SL_EUSAGE, "%s: no output handle", fn);
+    *out = NULL;
+    /* the same checks on every rank, agreed inside sl_csv_adopt_model */
+    if (input == NULL)
+        st = SL_ERR(ctx, SL_EUSAGE, "%s", needs);
+    else {
+        name = strcmp(input, "-") == 0 ? "<stdin>" : input;
+        st = sl_csv_check_discount(ctx, obj, discount);
+    }
+    if (st == SL_OK && ctx->rank == 0) {
+        st = sl_csv_open_input(ctx, input, &fp, &name);
+        if (st == SL_OK) st = read(ctx, fp, name, opts, &m, &b);
+        sl_csv_close_input(&fp);
+    }
+    st = sl_csv_adopt_model(ctx, st, &m, &b, name, out);
+    sl_block_free(&b);
+    sl_meta_free(&m);
+    return st;
+}
+
 sl_status sl_csv_adopt_model(sl_ctx *ctx, sl_status st, sl_meta *meta, sl_block *block, const char *where,
                              sl_model **out)
 {

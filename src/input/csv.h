@@ -82,6 +82,19 @@ sl_status sl_csv_check_discount(sl_ctx *ctx, sl_objective obj, double discount);
 sl_status sl_csv_adopt_model(sl_ctx *ctx, sl_status st, sl_meta *meta, sl_block *block, const char *where,
                              sl_model **out);
 
+/* A CSV model reader: parse `fp` (named `name`) with options `opts` into
+ * meta and block on rank 0, logging what it has to say. Local. */
+typedef sl_status (*sl_csv_model_reader)(sl_ctx *ctx, FILE *fp, const char *name, const void *opts, sl_meta *m,
+                                         sl_block *b);
+
+/* The entry point shared by import and estimate: check the output handle,
+ * the input (NULL: SL_EUSAGE with `needs` as the message) and the discount
+ * for the objective on every rank; open the input and run `read` on rank 0;
+ * then adopt the model on every rank (sl_csv_adopt_model). `fn` names the
+ * public function in messages. Collective. */
+sl_status sl_csv_model_load(sl_ctx *ctx, const char *fn, const char *input, const char *needs, sl_objective obj,
+                            double discount, sl_csv_model_reader read, const void *opts, sl_model **out);
+
 /* Records of `size` bytes (a multiple of 8, at most 64) whose first member is an int64_t
  * state in [0, n_states): sort them by state in place (American flag sort:
  * 16 bytes of scratch per state, the records themselves are not copied),

@@ -28,6 +28,26 @@ static int cmp_step(const void *x, const void *y)
     return (a->reward > b->reward) - (a->reward < b->reward);
 }
 
+static int cmp_i64(const void *x, const void *y)
+{
+    int64_t a = *(const int64_t *)x, b = *(const int64_t *)y;
+    return (a > b) - (a < b);
+}
+
+/* Append one pair's visit count. */
+static sl_status push_visits(sl_ctx *ctx, int64_t **vis, size_t *n, size_t *cap, int64_t count, const char *name)
+{
+    if (*n == *cap) {
+        size_t ncap = *cap ? 2 * *cap : 1024;
+        int64_t *nv = realloc(*vis, ncap * sizeof(*nv));
+        if (nv == NULL) return SL_ERR(ctx, SL_ENOMEM, "%s: out of memory for the visit counts", name);
+        *vis = nv;
+        *cap = ncap;
+    }
+    (*vis)[(*n)++] = count;
+    return SL_OK;
+}
+
 /* End of the (state, action) group starting at i. */
 static size_t group_end(const step *v, size_t n, size_t i)
 {
@@ -44,6 +64,8 @@ sl_status sl_csv_read_experience(sl_ctx *ctx, FILE *fp, const char *name,
     sl_csv *c = NULL;
     step *v = NULL;
     size_t n = 0, cap = 0;
+    int64_t *vis = NULL, *sup = NULL;   /* visits per built pair; a state's successors */
+    size_t n_vis = 0, vis_cap = 0, sup_cap = 0;
     int sorted = 1;
     int64_t max_index = -1, dropped = 0, absorbed = 0;
     double t0 = sl_now();
@@ -56,6 +78,8 @@ sl_status sl_csv_read_experience(sl_ctx *ctx, FILE *fp, const char *name,
         SL_FAIL(SL_EUSAGE, "number of states %lld is negative", (long long)opts->n_states);
     if (opts->min_visits < 0)
         SL_FAIL(SL_EUSAGE, "minimum visits %lld is negative", (long long)opts->min_visits);
+    if (!(opts->smoothing >= 0.0 && opts->smoothing <= 1e6))
+        SL_FAIL(SL_EUSAGE, "smoothing %g is not in [0, 1e6]", opts->smoothing);
     SL_TRY(sl_csv_check_discount(ctx, opts->objective, opts->discount));
     const int64_t min_visits = opts->min_visits > 0 ? opts->min_visits : 1;
     const int64_t limit = opts->n_states > 0 ? opts->n_states : INT64_MAX;
@@ -164,19 +188,54 @@ sl_status sl_csv_read_experience(sl_ctx *ctx, FILE *fp, const char *name,
     }
 
     SL_TRY(sl_block_init(ctx, b, 0, n_states, name));
+    const double alpha = opts->smoothing;
     size_t i = 0;
     for (int64_t s = 0; s < n_states; s++) {
         SL_TRY(sl_block_begin_state(ctx, b));
         int64_t kept = 0;
+        size_t n_sup = 0;
+        if (alpha > 0) {
+            /* the state's observed successors (under any action), sorted */
+            size_t e = i;
+            while (e < n && v[e].state == s) e++;
+            if (e - i > sup_cap) {
+                int64_t *ns = realloc(sup, (e - i) * sizeof(*ns));
+                if (ns == NULL) SL_FAIL(SL_ENOMEM, "%s: out of memory for the successors of state %lld", name,
+                                        (long long)s);
+                sup = ns;
+                sup_cap = e - i;
+            }
+            for (size_t k = i; k < e; k++) sup[k - i] = v[k].next;
+            qsort(sup, e - i, sizeof(*sup), cmp_i64);
+            for (size_t k = 0; k < e - i; k++)
+                if (n_sup == 0 || sup[n_sup - 1] != sup[k]) sup[n_sup++] = sup[k];
+        }
         while (i < n && v[i].state == s) {
             size_t e = group_end(v, n, i);
-            const double visits = (double)(e - i);
-            if ((int64_t)(e - i) < min_visits) {
+            const int64_t count = (int64_t)(e - i);
+            if (count < min_visits) {
                 dropped++;
                 i = e;
                 continue;
             }
             SL_TRY(sl_block_begin_pair(ctx, b, v[i].action));
+            SL_TRY(push_visits(ctx, &vis, &n_vis, &vis_cap, count, name));
+            if (alpha > 0) {
+                /* additive smoothing over the state's observed successors:
+                 * p_j = (c_j + alpha) / (n + alpha m); an unseen successor
+                 * gets the pair's mean reward, a seen one its rewards plus
+                 * alpha times that mean, so sum p*r stays the mean reward */
+                double total = 0.0;
+                for (size_t k = i; k < e; k++) total += v[k].reward;
+                const double mean = total / (double)count, den = (double)count + alpha * (double)n_sup;
+                size_t k = i;
+                for (size_t q = 0; q < n_sup; q++) {
+                    double sum = 0.0, cnt = 0.0;
+                    for (; k < e && v[k].next == sup[q]; k++, cnt += 1.0) sum += v[k].reward;
+                    SL_TRY(sl_block_add(ctx, b, sup[q], (cnt + alpha) / den, (sum + alpha * mean) / (cnt + alpha)));
+                }
+                i = e;
+            }
             /* one transition per distinct next state: its frequency, and
              * the mean reward of those steps, so that the builder's
              * sum p*r is the mean reward of the pair */
@@ -185,7 +244,7 @@ sl_status sl_csv_read_experience(sl_ctx *ctx, FILE *fp, const char *name,
                 double sum = 0.0;
                 for (; k < e && v[k].next == v[i].next; k++) sum += v[k].reward;
                 const double cnt = (double)(k - i);
-                SL_TRY(sl_block_add(ctx, b, v[i].next, cnt / visits, sum / cnt));
+                SL_TRY(sl_block_add(ctx, b, v[i].next, cnt / (double)count, sum / cnt));
                 i = k;
             }
             SL_TRY(sl_block_end_pair(ctx, b));
@@ -198,10 +257,16 @@ sl_status sl_csv_read_experience(sl_ctx *ctx, FILE *fp, const char *name,
             SL_TRY(sl_block_begin_pair(ctx, b, 0));
             SL_TRY(sl_block_add(ctx, b, s, 1.0, 0.0));
             SL_TRY(sl_block_end_pair(ctx, b));
+            SL_TRY(push_visits(ctx, &vis, &n_vis, &vis_cap, 0, name));
             absorbed++;
         }
         SL_TRY(sl_block_end_state(ctx, b));
     }
+    if ((int64_t)n_vis != sl_block_pairs(b))
+        SL_FAIL(SL_EINTERNAL, "%s: %zu visit counts for %lld pairs", name, n_vis, (long long)sl_block_pairs(b));
+    b->visits = vis;
+    vis = NULL;
+    m->has_visits = 1;
 
     m->format_version = SLUICE_FORMAT_VERSION;
     m->n_states = n_states;
@@ -227,46 +292,31 @@ cleanup:
         memset(m, 0, sizeof(*m));
     }
     free(v);
+    free(vis);
+    free(sup);
     sl_csv_free(&c);
+    return st;
+}
+
+/* The reader for sl_csv_model_load: experience, then what was dropped and
+ * made absorbing. */
+static sl_status read_estimate(sl_ctx *ctx, FILE *fp, const char *name, const void *arg, sl_meta *m, sl_block *b)
+{
+    const sl_estimate_opts *opts = arg;
+    int64_t dropped = 0, absorbed = 0;
+    sl_status st = sl_csv_read_experience(ctx, fp, name, opts, m, b, &dropped, &absorbed);
+    if (st == SL_OK) {
+        sl_log(ctx, "%s: %lld (state, action) pairs seen fewer than %lld times dropped", name, (long long)dropped,
+               (long long)(opts->min_visits > 0 ? opts->min_visits : 1));
+        if (opts->unseen_absorb)
+            sl_log(ctx, "%s: %lld states without data made absorbing (reward 0)", name, (long long)absorbed);
+    }
     return st;
 }
 
 sl_status sl_model_estimate_csv(sl_ctx *ctx, const sl_estimate_opts *opts, sl_model **out)
 {
-    sl_status st = SL_OK;
-    FILE *fp = NULL;
-    const char *name = "<input>";
-    sl_meta m;
-    sl_block b;
-    memset(&m, 0, sizeof(m));
-    memset(&b, 0, sizeof(b));
-
-    if (out == NULL) return SL_ERR(ctx, SL_EUSAGE, "sl_model_estimate_csv: no output handle");
-    *out = NULL;
-    /* the same checks on every rank, agreed inside sl_csv_adopt_model */
-    if (opts == NULL || opts->input == NULL)
-        st = SL_ERR(ctx, SL_EUSAGE, "estimate needs an experience CSV");
-    else {
-        name = strcmp(opts->input, "-") == 0 ? "<stdin>" : opts->input;
-        st = sl_csv_check_discount(ctx, opts->objective, opts->discount);
-    }
-    if (st == SL_OK && ctx->rank == 0) {
-        int64_t dropped = 0, absorbed = 0;
-        st = sl_csv_open_input(ctx, opts->input, &fp, &name);
-        if (st == SL_OK)
-            st = sl_csv_read_experience(ctx, fp, name, opts, &m, &b, &dropped, &absorbed);
-        sl_csv_close_input(&fp);
-        if (st == SL_OK) {
-            sl_log(ctx, "%s: %lld (state, action) pairs seen fewer than %lld times dropped",
-                   name, (long long)dropped,
-                   (long long)(opts->min_visits > 0 ? opts->min_visits : 1));
-            if (opts->unseen_absorb)
-                sl_log(ctx, "%s: %lld states without data made absorbing (reward 0)", name,
-                       (long long)absorbed);
-        }
-    }
-    st = sl_csv_adopt_model(ctx, st, &m, &b, name, out);
-    sl_block_free(&b);
-    sl_meta_free(&m);
-    return st;
+    return sl_csv_model_load(ctx, "sl_model_estimate_csv", opts ? opts->input : NULL,
+                             "estimate needs an experience CSV", opts ? opts->objective : SL_OBJ_DISCOUNTED,
+                             opts ? opts->discount : 0.0, read_estimate, opts, out);
 }

@@ -275,35 +275,75 @@ cleanup:
     return st;
 }
 
-sl_status sl_model_import_csv(sl_ctx *ctx, const sl_import_opts *opts, sl_model **out)
+/* Terminal values 'state,terminal_value' for every state of b exactly once
+ * into b->terminal (rank 0 holds every state). Local. */
+static sl_status read_terminal(sl_ctx *ctx, const char *path, sl_meta *m, sl_block *b)
 {
+    static const char *const cols[] = {"state", "terminal_value"};
     sl_status st = SL_OK;
     FILE *fp = NULL;
-    const char *name = "<input>";
-    sl_meta m;
-    sl_block b;
-    memset(&m, 0, sizeof(m));
-    memset(&b, 0, sizeof(b));
-
-    if (out == NULL) return SL_ERR(ctx, SL_EUSAGE, "sl_model_import_csv: no output handle");
-    *out = NULL;
-    /* the same checks on every rank, agreed inside sl_csv_adopt_model */
-    if (opts == NULL || opts->input == NULL)
-        st = SL_ERR(ctx, SL_EUSAGE, "import needs an input CSV");
-    else {
-        name = strcmp(opts->input, "-") == 0 ? "<stdin>" : opts->input;
-        st = sl_csv_check_discount(ctx, opts->objective, opts->discount);
+    sl_csv *c = NULL;
+    char *seen = NULL;
+    const char *name = path;
+    int64_t n = sl_block_states(b);
+    if (m->objective != SL_OBJ_FINITE)
+        return SL_ERR(ctx, SL_EUSAGE, "%s: terminal values apply to the finite objective, not \"%s\"", path,
+                      sl_objective_name(m->objective));
+    if (SL_ALLOC(ctx, b->terminal, n + 1, "terminal values") == NULL || SL_ZALLOC(ctx, seen, n + 1, "flags") == NULL)
+        SL_TRY(SL_ENOMEM);
+    SL_TRY(sl_csv_open_input(ctx, path, &fp, &name));
+    SL_TRY(sl_csv_open(ctx, fp, name, &c));
+    SL_TRY(sl_csv_read_header(ctx, c, cols, 2));
+    for (;;) {
+        int more = 0;
+        int64_t s;
+        double v;
+        SL_TRY(sl_csv_next(ctx, c, &more));
+        if (!more) break;
+        SL_TRY(sl_csv_int(ctx, c, 0, 0, INT64_MAX - 1, &s));
+        SL_TRY(sl_csv_double(ctx, c, 1, &v));
+        if (s >= n) {
+            st = sl_csv_error(ctx, c, 0, SL_EDATA, "state %lld is out of range: the model has %lld states",
+                              (long long)s, (long long)n);
+            goto cleanup;
+        }
+        if (seen[s]) {
+            st = sl_csv_error(ctx, c, 0, SL_EDATA, "state %lld is given twice", (long long)s);
+            goto cleanup;
+        }
+        seen[s] = 1;
+        b->terminal[s] = v;
     }
-    if (st == SL_OK && ctx->rank == 0) {
-        st = sl_csv_open_input(ctx, opts->input, &fp, &name);
-        if (st == SL_OK) st = sl_csv_read_triplets(ctx, fp, name, opts, &m, &b);
-        sl_csv_close_input(&fp);
-        if (st == SL_OK && opts->renormalize)
-            sl_log(ctx, "%s: %lld of %lld pairs renormalized (probability sums within 1e-6 of 1)",
-                   name, (long long)b.n_renormalized, (long long)m.n_pairs);
+    for (int64_t s = 0; s < n; s++)
+        if (!seen[s]) SL_FAIL(SL_EDATA, "%s: state %lld has no terminal value (every state needs one)", name, (long long)s);
+    m->has_terminal = 1;
+cleanup:
+    if (st != SL_OK) {
+        free(b->terminal);
+        b->terminal = NULL;
     }
-    st = sl_csv_adopt_model(ctx, st, &m, &b, name, out);
-    sl_block_free(&b);
-    sl_meta_free(&m);
+    free(seen);
+    sl_csv_free(&c);
+    sl_csv_close_input(&fp);
     return st;
+}
+
+/* The reader for sl_csv_model_load: triplets, terminal values, then the
+ * renormalization count. */
+static sl_status read_import(sl_ctx *ctx, FILE *fp, const char *name, const void *arg, sl_meta *m, sl_block *b)
+{
+    const sl_import_opts *opts = arg;
+    sl_status st = sl_csv_read_triplets(ctx, fp, name, opts, m, b);
+    if (st == SL_OK && opts->terminal_values) st = read_terminal(ctx, opts->terminal_values, m, b);
+    if (st == SL_OK && opts->renormalize)
+        sl_log(ctx, "%s: %lld of %lld pairs renormalized (probability sums within 1e-6 of 1)", name,
+               (long long)b->n_renormalized, (long long)m->n_pairs);
+    return st;
+}
+
+sl_status sl_model_import_csv(sl_ctx *ctx, const sl_import_opts *opts, sl_model **out)
+{
+    return sl_csv_model_load(ctx, "sl_model_import_csv", opts ? opts->input : NULL, "import needs an input CSV",
+                             opts ? opts->objective : SL_OBJ_DISCOUNTED, opts ? opts->discount : 0.0, read_import,
+                             opts, out);
 }

@@ -322,11 +322,53 @@ cleanup:
     return st;
 }
 
+/* A loaded model keeps only a hash of its outcome quantities (they can be
+ * larger than the transitions): saving it copies them from the file it was
+ * loaded from, after checking that they still hash to what was loaded. */
+static sl_status save_copying_quantities(const sl_model *m, const char *path)
+{
+    sl_ctx *ctx = m->ctx;
+    sl_status st = SL_OK;
+    sl_block b = m->blk; /* shallow: the rows are only read */
+    int nq = m->meta.n_quantities;
+    int64_t np = sl_block_pairs(&m->blk);
+    double *qm = NULL, *qp = NULL, *mean = NULL, *pos = NULL;
+    uint64_t acc[2] = {0, 0};
+    if (SL_ALLOC(ctx, qm, np * nq, "quantities") == NULL || SL_ALLOC(ctx, qp, np * nq, "quantities") == NULL ||
+        SL_ALLOC(ctx, mean, np, "quantities") == NULL || SL_ALLOC(ctx, pos, np, "quantities") == NULL)
+        st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    for (int q = 0; q < nq; q++) {
+        SL_TRY(sl_store_quantity_read(ctx, m->name, &m->meta, q, m->blk.p_begin, np, mean, pos));
+        sl_fingerprint_quantity(acc, q, m->blk.p_begin, np, mean, pos, 1);
+        for (int64_t k = 0; k < np; k++) {
+            qm[k * nq + q] = mean[k];
+            qp[k * nq + q] = pos[k];
+        }
+    }
+    if (acc[0] != m->blk.qacc[0] || acc[1] != m->blk.qacc[1])
+        st = SL_ERR(ctx, SL_EDATA,
+                    "%s: its outcome quantities changed since the model was loaded from it; %s not written", m->name,
+                    path);
+    SL_TRY(sl_agree(ctx, st));
+    b.nq = nq;
+    b.qmean = qm;
+    b.qpos = qp;
+    st = sl_store_model_write(ctx, path, &m->meta, &b);
+cleanup:
+    free(qm);
+    free(qp);
+    free(mean);
+    free(pos);
+    return st;
+}
+
 sl_status sl_model_save(const sl_model *m, const char *path)
 {
     if (m == NULL) return SL_EUSAGE;
     sl_status st = sl_agree(m->ctx, sl_model_check_ready(m->ctx, m, "sl_model_save"));
     if (st != SL_OK) return st;
+    if (m->meta.n_quantities > 0 && m->blk.nq == 0) return save_copying_quantities(m, path);
     return sl_store_model_write(m->ctx, path, &m->meta, &m->blk);
 }
 
@@ -386,4 +428,43 @@ const char *sl_model_param_unit(const sl_model *m, int i)
 double sl_model_param_value(const sl_model *m, int i)
 {
     return m && i >= 0 && i < m->meta.n_params ? m->meta.param_value[i] : NAN;
+}
+
+/* ---- format 2 annotations (docs/formats.md); "" / 0 when the model has none ---- */
+const char *sl_model_reward_unit(const sl_model *m) { return m ? m->meta.reward_unit : ""; }
+const char *sl_model_period_unit(const sl_model *m) { return m ? m->meta.period_unit : ""; }
+const char *sl_model_factor_unit(const sl_model *m, int f)
+{
+    return m && f >= 0 && f < m->meta.n_factors ? m->meta.factor_unit[f] : "";
+}
+int sl_model_factor_value(const sl_model *m, int f, int64_t i, double *value)
+{
+    if (m == NULL || f < 0 || f >= m->meta.n_factors || m->meta.factor_value[f] == NULL || i < 0 ||
+        i >= m->meta.factor_size[f])
+        return 0;
+    if (value) *value = m->meta.factor_value[f][i];
+    return 1;
+}
+const char *sl_model_factor_label(const sl_model *m, int f, int64_t i)
+{
+    if (m == NULL || f < 0 || f >= m->meta.n_factors || m->meta.factor_label[f] == NULL || i < 0 ||
+        i >= m->meta.factor_size[f])
+        return "";
+    return m->meta.factor_label[f][i];
+}
+int sl_model_action_value(const sl_model *m, int32_t a, double *value)
+{
+    if (m == NULL || a < 0 || a >= m->meta.n_action_values) return 0;
+    if (value) *value = m->meta.action_value[a];
+    return 1;
+}
+const char *sl_model_action_unit(const sl_model *m) { return m ? m->meta.action_unit : ""; }
+int sl_model_n_quantities(const sl_model *m) { return m ? m->meta.n_quantities : 0; }
+const char *sl_model_quantity_name(const sl_model *m, int q)
+{
+    return m && q >= 0 && q < m->meta.n_quantities ? m->meta.quantity_name[q] : "";
+}
+const char *sl_model_quantity_unit(const sl_model *m, int q)
+{
+    return m && q >= 0 && q < m->meta.n_quantities ? m->meta.quantity_unit[q] : "";
 }

@@ -176,6 +176,8 @@ void sl_block_free(sl_block *b)
     free(b->col);
     free(b->qmean);
     free(b->qpos);
+    free(b->visits);
+    free(b->terminal);
     memset(b, 0, sizeof(*b));
 }
 
@@ -511,6 +513,11 @@ void sl_fingerprint_quantity(uint64_t acc[2], int q, int64_t p0, int64_t n, cons
     }
 }
 
+static void sl_fingerprint_terminal(uint64_t acc[2], int64_t s0, int64_t n, const double *value)
+{
+    for (int64_t i = 0; i < n; i++) acc_entry(acc, 29, s0 + i, dbits(value[i]));
+}
+
 static uint64_t hash_str(uint64_t h, const char *s)
 {
     for (; *s; s++) h = sl_mix64(h ^ (unsigned char)*s);
@@ -557,18 +564,24 @@ sl_status sl_fingerprint(sl_ctx *ctx, const sl_meta *m, const sl_block *b, char 
         acc_entry(acc, 5, b->t_begin + t, (uint64_t)b->target[t]);
         acc_entry(acc, 6, b->t_begin + t, dbits(b->prob[t]));
     }
-    if (b->nq > 0 && b->qmean != NULL) {
+    if (b->nq > 0 && b->qmean != NULL)
         for (int q = 0; q < b->nq; q++)
             sl_fingerprint_quantity(acc, q, b->p_begin, np, b->qmean + q, b->qpos + q, b->nq);
-    } else {
-        acc[0] += b->qacc[0];
-        acc[1] += b->qacc[1];
-    }
+    /* entries a reader hashed without keeping them (0 for built blocks) */
+    acc[0] += b->qacc[0];
+    acc[1] += b->qacc[1];
+    if (m->has_terminal && b->terminal != NULL) sl_fingerprint_terminal(acc, b->s_begin, ns, b->terminal);
+    if (m->has_visits && b->visits != NULL)
+        for (int64_t k = 0; k < np; k++) acc_entry(acc, 30, b->p_begin + k, (uint64_t)b->visits[k]);
     MPI_Allreduce(acc, tot, 2, MPI_UINT64_T, MPI_SUM, ctx->comm);
     uint64_t head = sl_mix64((uint64_t)m->n_states) ^ sl_mix64((uint64_t)m->n_pairs * 3u) ^
                     sl_mix64((uint64_t)m->n_trans * 7u) ^ sl_mix64(dbits(m->discount)) ^
                     sl_mix64((uint64_t)m->objective + 11u);
     if (m->format_version >= 2) head ^= sl_mix64(annotation_hash(m) + 13u);
+    /* optional datasets: mixed in only when present, so older files keep
+     * their fingerprint */
+    if (m->has_visits) head ^= sl_mix64(0x7669736974730001ULL);
+    if (m->has_terminal) head ^= sl_mix64(0x7465726d696e0002ULL);
     uint64_t h0 = sl_mix64(tot[0] ^ head), h1 = sl_mix64(tot[1] + head);
     snprintf(out, 40, "%016llx%016llx", (unsigned long long)h0, (unsigned long long)h1);
     return SL_OK;

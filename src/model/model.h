@@ -40,6 +40,10 @@ typedef struct sl_meta {
     int n_quantities;
     char quantity_name[SLUICE_MAX_QUANTITIES][SL_NAME_MAX];
     char quantity_unit[SLUICE_MAX_QUANTITIES][SL_NAME_MAX];
+    /* optional datasets of any format version, covered by the fingerprint
+     * only when present (so files without them keep theirs) */
+    int has_visits;                     /* /pair/visits: logged visits per pair */
+    int has_terminal;                   /* /terminal_value: finite-horizon terminal values */
 } sl_meta;
 
 /* Largest model format version this build reads and writes. A model is
@@ -79,6 +83,10 @@ typedef struct sl_block {
     double *qpos;               /* [n_pairs_local * nq]: P(q > 0 | s,a) */
     uint64_t qacc[2];           /* fingerprint sum of the quantity entries when
                                  * a reader hashed them without keeping them */
+    double *terminal;           /* [n_states_local] finite-horizon terminal values
+                                 * (/terminal_value), or NULL */
+    int64_t *visits;            /* [n_pairs_local] logged visits of each pair
+                                 * (models from `estimate`), or NULL */
     uint32_t *col;              /* after sl_halo_build: local columns into
                                  * [owned | halo]; `target` is then freed */
     /* builder state */

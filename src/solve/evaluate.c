@@ -22,6 +22,63 @@ static inline int64_t global_col(const sl_problem *p, int64_t c)
     return c < p->n_local ? p->blk.s_begin + c : p->halo.halo_global[c - p->n_local];
 }
 
+/* Root: adapt A = I - gamma P (CSR, columns ascending) to the problem's
+ * system (solve.h, eval_average): unit diagonal on zero rows; or column
+ * `ref` replaced by ones (inserted in order where a row lacks it). May
+ * reallocate the arrays. Local. */
+static sl_status adapt_system(sl_ctx *ctx, const sl_problem *p, int64_t N, int64_t **arp, int64_t **acol,
+                              double **aval)
+{
+    int64_t *rp = *arp, *c = *acol;
+    double *v = *aval;
+    if (!p->eval_average) {
+        for (int64_t i = 0; i < N; i++) {
+            int zero = 1;
+            for (int64_t t = rp[i]; t < rp[i + 1] && zero; t++) zero = v[t] == 0.0;
+            if (!zero) continue;
+            for (int64_t t = rp[i]; t < rp[i + 1]; t++)
+                if (c[t] == i) v[t] = 1.0;
+        }
+        return SL_OK;
+    }
+    int64_t ref = p->eval_ref, nnz = rp[N], *nrp = NULL, *nc = NULL;
+    double *nv = NULL;
+    if (SL_ALLOC(ctx, nrp, N + 1, "gain and bias system") == NULL || SL_ALLOC(ctx, nc, nnz + N, "gain and bias system") == NULL ||
+        SL_ALLOC(ctx, nv, nnz + N, "gain and bias system") == NULL) {
+        free(nrp);
+        free(nc);
+        free(nv);
+        return SL_ENOMEM;
+    }
+    int64_t w = 0;
+    for (int64_t i = 0; i < N; i++) {
+        nrp[i] = w;
+        int done = 0;
+        for (int64_t t = rp[i]; t < rp[i + 1]; t++) {
+            if (!done && c[t] >= ref) {
+                nc[w] = ref;
+                nv[w++] = 1.0;
+                done = 1;
+                if (c[t] == ref) continue;
+            }
+            nc[w] = c[t];
+            nv[w++] = v[t];
+        }
+        if (!done) {
+            nc[w] = ref;
+            nv[w++] = 1.0;
+        }
+    }
+    nrp[N] = w;
+    free(rp);
+    free(c);
+    free(v);
+    *arp = nrp;
+    *acol = nc;
+    *aval = nv;
+    return SL_OK;
+}
+
 void sl_evaluate_direct_free(void **lu_cache)
 {
     sl_lu *lu = *lu_cache;
@@ -128,34 +185,28 @@ done:
     return st;
 }
 
-sl_status sl_evaluate_direct(sl_ctx *ctx, const sl_problem *p, const int32_t *policy, double memory_limit,
-                             double deadline, double *x, int *used_direct, int *abandoned, double *estimate_bytes,
-                             void **lu_cache)
+void sl_policy_rows_free(sl_policy_rows *r)
+{
+    free(r->rowptr);
+    free(r->cols);
+    free(r->probs);
+    free(r->rew);
+    free(r->scnt);
+    free(r->sdsp);
+    memset(r, 0, sizeof(*r));
+}
+
+sl_status sl_gather_policy_rows(sl_ctx *ctx, const sl_problem *p, const int32_t *policy, sl_policy_rows *out)
 {
     sl_status st = SL_OK;
     const sl_block *b = &p->blk;
     int P = ctx->size, root = ctx->rank == 0;
     int64_t n = p->n_local, N = p->meta.n_states;
-    int *cnt = NULL, *dsp = NULL, *scnt = NULL, *sdsp = NULL;
-    int64_t *rowlen = NULL, *cols = NULL, *all_len = NULL, *all_cols = NULL, *rowptr = NULL;
-    double *probs = NULL, *rew = NULL, *all_probs = NULL, *all_rew = NULL, *v = NULL;
-    int64_t *arp = NULL, *acol = NULL;
-    double *aval = NULL;
-    *used_direct = 0;
-    *abandoned = 0;
-    *estimate_bytes = 0;
-    /* once a guard has refused a factorization, stay iterative: no gather
-     * and no re-analysis for every later policy */
-    int skip = root && sl_lu_declined(*lu_cache);
-    MPI_Bcast(&skip, 1, MPI_INT, 0, ctx->comm);
-    if (skip) {
-        sl_lu_stats ls;
-        if (root) sl_lu_get_stats(*lu_cache, &ls);
-        MPI_Bcast(root ? &ls.peak_bytes : estimate_bytes, 1, MPI_DOUBLE, 0, ctx->comm);
-        if (root) *estimate_bytes = ls.peak_bytes;
-        return SL_OK;
-    }
-
+    int *cnt = NULL, *dsp = NULL;
+    int64_t *rowlen = NULL, *cols = NULL, *all_len = NULL;
+    double *probs = NULL, *rew = NULL;
+    memset(out, 0, sizeof(*out));
+    out->N = N;
     /* rows of P_pi with global columns, sorted within each row */
     int64_t nnz = 0;
     for (int64_t i = 0; i < n; i++) {
@@ -190,41 +241,85 @@ sl_status sl_evaluate_direct(sl_ctx *ctx, const sl_problem *p, const int32_t *po
     if (nnz > INT32_MAX || n > INT32_MAX)
         st = SL_ERR(ctx, SL_EDATA, "a rank's share of P_pi is too large to gather for a direct solve");
     if (SL_ZALLOC(ctx, cnt, P, "gather") == NULL || SL_ZALLOC(ctx, dsp, P, "gather") == NULL ||
-        SL_ZALLOC(ctx, scnt, P, "gather") == NULL || SL_ZALLOC(ctx, sdsp, P, "gather") == NULL)
+        SL_ZALLOC(ctx, out->scnt, P, "gather") == NULL || SL_ZALLOC(ctx, out->sdsp, P, "gather") == NULL)
         st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
     int ni = (int)n, nz = (int)nnz;
-    MPI_Gather(&ni, 1, MPI_INT, scnt, 1, MPI_INT, 0, ctx->comm);
+    MPI_Gather(&ni, 1, MPI_INT, out->scnt, 1, MPI_INT, 0, ctx->comm);
     MPI_Gather(&nz, 1, MPI_INT, cnt, 1, MPI_INT, 0, ctx->comm);
     int64_t tot_nz = 0;
     if (root) {
         int64_t sn = 0;
         for (int r = 0; r < P; r++) {
-            sdsp[r] = (int)sn;
+            out->sdsp[r] = (int)sn;
             dsp[r] = (int)tot_nz;
-            sn += scnt[r];
+            sn += out->scnt[r];
             tot_nz += cnt[r];
         }
         if (tot_nz > INT32_MAX) st = SL_ERR(ctx, SL_EDATA, "P_pi has %lld entries: too many to gather for a direct solve", (long long)tot_nz);
-        else if (SL_ALLOC(ctx, all_len, N, "P_pi") == NULL || SL_ALLOC(ctx, all_cols, tot_nz, "P_pi") == NULL ||
-                 SL_ALLOC(ctx, all_probs, tot_nz, "P_pi") == NULL || SL_ALLOC(ctx, all_rew, N, "P_pi") == NULL ||
-                 SL_ALLOC(ctx, rowptr, N + 1, "P_pi") == NULL || SL_ALLOC(ctx, v, N, "values") == NULL)
+        else if (SL_ALLOC(ctx, all_len, N, "P_pi") == NULL || SL_ALLOC(ctx, out->cols, tot_nz, "P_pi") == NULL ||
+                 SL_ALLOC(ctx, out->probs, tot_nz, "P_pi") == NULL || SL_ALLOC(ctx, out->rew, N, "P_pi") == NULL ||
+                 SL_ALLOC(ctx, out->rowptr, N + 1, "P_pi") == NULL)
             st = SL_ENOMEM;
     }
     SL_TRY(sl_agree(ctx, st));
-    MPI_Gatherv(rowlen, ni, MPI_INT64_T, all_len, scnt, sdsp, MPI_INT64_T, 0, ctx->comm);
-    MPI_Gatherv(rew, ni, MPI_DOUBLE, all_rew, scnt, sdsp, MPI_DOUBLE, 0, ctx->comm);
-    MPI_Gatherv(cols, nz, MPI_INT64_T, all_cols, cnt, dsp, MPI_INT64_T, 0, ctx->comm);
-    MPI_Gatherv(probs, nz, MPI_DOUBLE, all_probs, cnt, dsp, MPI_DOUBLE, 0, ctx->comm);
+    MPI_Gatherv(rowlen, ni, MPI_INT64_T, all_len, out->scnt, out->sdsp, MPI_INT64_T, 0, ctx->comm);
+    MPI_Gatherv(rew, ni, MPI_DOUBLE, out->rew, out->scnt, out->sdsp, MPI_DOUBLE, 0, ctx->comm);
+    MPI_Gatherv(cols, nz, MPI_INT64_T, out->cols, cnt, dsp, MPI_INT64_T, 0, ctx->comm);
+    MPI_Gatherv(probs, nz, MPI_DOUBLE, out->probs, cnt, dsp, MPI_DOUBLE, 0, ctx->comm);
+    if (root) {
+        out->rowptr[0] = 0;
+        for (int64_t i = 0; i < N; i++) out->rowptr[i + 1] = out->rowptr[i] + all_len[i];
+    }
+cleanup:
+    if (st != SL_OK) sl_policy_rows_free(out);
+    free(cnt);
+    free(dsp);
+    free(rowlen);
+    free(cols);
+    free(probs);
+    free(rew);
+    free(all_len);
+    return st;
+}
+
+sl_status sl_evaluate_direct(sl_ctx *ctx, const sl_problem *p, const int32_t *policy, double memory_limit,
+                             double deadline, double *x, int *used_direct, int *abandoned, double *estimate_bytes,
+                             void **lu_cache)
+{
+    sl_status st = SL_OK;
+    int root = ctx->rank == 0;
+    int64_t n = p->n_local, N = p->meta.n_states;
+    sl_policy_rows G;
+    double *v = NULL;
+    int64_t *arp = NULL, *acol = NULL;
+    double *aval = NULL;
+    memset(&G, 0, sizeof(G));
+    *used_direct = 0;
+    *abandoned = 0;
+    *estimate_bytes = 0;
+    /* once a guard has refused a factorization, stay iterative: no gather
+     * and no re-analysis for every later policy */
+    int skip = root && sl_lu_declined(*lu_cache);
+    MPI_Bcast(&skip, 1, MPI_INT, 0, ctx->comm);
+    if (skip) {
+        sl_lu_stats ls;
+        if (root) sl_lu_get_stats(*lu_cache, &ls);
+        MPI_Bcast(root ? &ls.peak_bytes : estimate_bytes, 1, MPI_DOUBLE, 0, ctx->comm);
+        if (root) *estimate_bytes = ls.peak_bytes;
+        return SL_OK;
+    }
+    SL_TRY(sl_gather_policy_rows(ctx, p, policy, &G));
+    if (root && SL_ALLOC(ctx, v, N, "values") == NULL) st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
     int fits = 0;
     if (root) {
-        rowptr[0] = 0;
-        for (int64_t i = 0; i < N; i++) rowptr[i + 1] = rowptr[i] + all_len[i];
         sl_lu *lu = *lu_cache;
         if (lu == NULL) st = sl_lu_new(ctx, &lu);
         *lu_cache = lu;
         if (st == SL_OK)
-            st = sl_lu_build_evaluation_matrix(ctx, N, rowptr, all_cols, all_probs, p->gamma, &arp, &acol, &aval);
+            st = sl_lu_build_evaluation_matrix(ctx, N, G.rowptr, G.cols, G.probs, p->gamma, &arp, &acol, &aval);
+        if (st == SL_OK && (p->gamma == 1.0 || p->eval_average)) st = adapt_system(ctx, p, N, &arp, &acol, &aval);
         int reused = 0;
         /* time guard: the factorization should not take longer than
          * SL_DIRECT_TIME_LIMIT nor run past the deadline */
@@ -246,7 +341,7 @@ sl_status sl_evaluate_direct(sl_ctx *ctx, const sl_problem *p, const int32_t *po
                         ls.seconds_estimate, ls.flops_estimate, ls.flop_rate, tlim);
         }
         int ab = 0;
-        if (st == SL_OK && fits) st = numeric_abandonable(ctx, lu, N, all_rew, v, deadline, &ab);
+        if (st == SL_OK && fits) st = numeric_abandonable(ctx, lu, N, G.rew, v, deadline, &ab);
         if (ab) fits = 0;
         *abandoned = ab;
     }
@@ -255,23 +350,11 @@ sl_status sl_evaluate_direct(sl_ctx *ctx, const sl_problem *p, const int32_t *po
     MPI_Bcast(abandoned, 1, MPI_INT, 0, ctx->comm);
     MPI_Bcast(estimate_bytes, 1, MPI_DOUBLE, 0, ctx->comm);
     if (fits) {
-        MPI_Scatterv(v, scnt, sdsp, MPI_DOUBLE, x, ni, MPI_DOUBLE, 0, ctx->comm);
+        MPI_Scatterv(v, G.scnt, G.sdsp, MPI_DOUBLE, x, (int)n, MPI_DOUBLE, 0, ctx->comm);
         *used_direct = 1;
     }
 cleanup:
-    free(cnt);
-    free(dsp);
-    free(scnt);
-    free(sdsp);
-    free(rowlen);
-    free(cols);
-    free(probs);
-    free(rew);
-    free(all_len);
-    free(all_cols);
-    free(all_probs);
-    free(all_rew);
-    free(rowptr);
+    sl_policy_rows_free(&G);
     free(v);
     free(arp);
     free(acol);
@@ -283,12 +366,12 @@ sl_status sl_evaluate_iterative(sl_ctx *ctx, const sl_problem *p, const int32_t 
                                 int64_t max_sweeps, double *x, double *y, sl_check *c, int64_t *sweeps)
 {
     sl_status st = SL_OK;
-    sl_policy_rows rows;
+    sl_eval_rows rows;
     *sweeps = 0;
     int64_t since = 0, interval = 1;
     /* the sweeps run over the policy's transitions laid out contiguously;
      * the checks (and so the certificate) use the model's rows */
-    SL_TRY(sl_agree(ctx, sl_policy_rows_build(ctx, p, policy, &rows)));
+    SL_TRY(sl_agree(ctx, sl_eval_rows_build(ctx, p, policy, &rows)));
     for (;;) {
         sl_sweep_rows(ctx, p, x, &rows);
         (*sweeps)++;
@@ -313,7 +396,7 @@ sl_status sl_evaluate_iterative(sl_ctx *ctx, const sl_problem *p, const int32_t 
         }
     }
 cleanup:
-    sl_policy_rows_free(&rows);
+    sl_eval_rows_free(&rows);
     return st;
 }
 
@@ -328,6 +411,8 @@ static sl_status prepare_with_policy(sl_ctx *ctx, const sl_model *m, const sl_so
     *policy = NULL;
     *value = NULL;
     SL_TRY(sl_problem_from_model(ctx, m, SL_ORDER_AUTO, 0, p));
+    /* the rewards the solution was computed with */
+    if (x != NULL) SL_TRY(sl_problem_visit_adjust(ctx, p, m, x->info.visit_adjust));
     if (x == NULL || x->action == NULL)
         st = SL_ERR(ctx, SL_EUSAGE, "%s: the solution holds no policy (a values file?)", what);
     else if (strcmp(x->info.model_fingerprint, p->meta.fingerprint) != 0)

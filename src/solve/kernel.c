@@ -17,6 +17,7 @@ void sl_problem_free(sl_problem *p)
     free(p->order);
     sl_stage_map_free(&p->stages);
     sl_io_plan_free(&p->io);
+    free(p->own_reward);
     memset(p, 0, sizeof(*p));
 }
 
@@ -135,6 +136,37 @@ sl_status sl_problem_from_model(sl_ctx *ctx, const sl_model *m, sl_order order, 
 sl_status sl_problem_from_model_taking(sl_ctx *ctx, sl_model *m, sl_order order, sl_problem *p)
 {
     return problem_build(ctx, m, m, order, 0, p);
+}
+
+sl_status sl_problem_visit_adjust(sl_ctx *ctx, sl_problem *p, const sl_model *m, double c)
+{
+    sl_status st = SL_OK;
+    if (c == 0.0) return SL_OK;
+    int64_t np = sl_block_pairs(&p->blk);
+    if (!isfinite(c))
+        st = SL_ERR(ctx, SL_EUSAGE, "visit bonus/penalty %g is not a finite number", c);
+    else if (!m->meta.has_visits)
+        st = SL_ERR(ctx, SL_EUSAGE,
+                    "%s holds no visit counts (/pair/visits): a bonus or penalty for thin data needs a model "
+                    "from `sluice estimate`",
+                    p->path);
+    else if (p->owns_rows || (np > 0 && m->blk.visits == NULL))
+        st = SL_ERR(ctx, SL_EUSAGE, "%s: the visit counts cannot follow this model's row layout (stage factor)",
+                    p->path);
+    SL_TRY(sl_agree(ctx, st));
+    if (SL_ALLOC(ctx, p->own_reward, np + 1, "adjusted rewards") == NULL) st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    double rmax = 0;
+    for (int64_t k = 0; k < np; k++) {
+        int64_t n = m->blk.visits[k];
+        p->own_reward[k] = p->blk.reward[k] + (n > 0 ? c / sqrt((double)n) : 0.0);
+        if (fabs(p->own_reward[k]) > rmax) rmax = fabs(p->own_reward[k]);
+    }
+    p->blk.reward = p->own_reward;
+    p->rmax_abs = sl_max(ctx, rmax);
+    p->visit_adjust = c;
+cleanup:
+    return st;
 }
 
 /* q(s,a) for local pair k: r + gamma * sum p x[col] */
@@ -269,7 +301,7 @@ static double sweep_part(const sl_problem *p, double *x, int32_t *policy, int ev
 
 /* The fixed-policy sweep over the policy's own rows: the same sums as
  * qval() over the model's rows, term by term. */
-static double sweep_rows_part(const sl_problem *p, const sl_policy_rows *r, double *x, int64_t j0, int64_t j1)
+static double sweep_rows_part(const sl_problem *p, const sl_eval_rows *r, double *x, int64_t j0, int64_t j1)
 {
     const uint32_t *restrict first = r->first, *restrict col = r->col;
     const double *restrict prob = r->prob, *restrict rew = r->reward;
@@ -287,7 +319,7 @@ static double sweep_rows_part(const sl_problem *p, const sl_policy_rows *r, doub
     return delta;
 }
 
-void sl_policy_rows_free(sl_policy_rows *rows)
+void sl_eval_rows_free(sl_eval_rows *rows)
 {
     if (rows == NULL) return;
     free(rows->first);
@@ -297,7 +329,7 @@ void sl_policy_rows_free(sl_policy_rows *rows)
     memset(rows, 0, sizeof(*rows));
 }
 
-sl_status sl_policy_rows_build(sl_ctx *ctx, const sl_problem *p, const int32_t *policy, sl_policy_rows *rows)
+sl_status sl_eval_rows_build(sl_ctx *ctx, const sl_problem *p, const int32_t *policy, sl_eval_rows *rows)
 {
     const sl_block *b = &p->blk;
     int64_t n = p->n_local, nt = 0;
@@ -311,7 +343,7 @@ sl_status sl_policy_rows_build(sl_ctx *ctx, const sl_problem *p, const int32_t *
                       p->path, (long long)nt, ctx->rank);
     if (SL_ALLOC(ctx, rows->first, n + 1, "policy rows") == NULL || SL_ALLOC(ctx, rows->col, nt, "policy rows") == NULL ||
         SL_ALLOC(ctx, rows->prob, nt, "policy rows") == NULL || SL_ALLOC(ctx, rows->reward, n, "policy rows") == NULL) {
-        sl_policy_rows_free(rows);
+        sl_eval_rows_free(rows);
         return SL_ENOMEM;
     }
     uint32_t w = 0;
@@ -338,7 +370,7 @@ double sl_sweep_gs(const sl_problem *p, double *x, int32_t *policy, int eval)
 /* Both sweeps: with rows, the fixed-policy sweep over them; else over the
  * model's rows. */
 static double sweep_any(sl_ctx *ctx, const sl_problem *p, double *x, int32_t *policy, int eval,
-                        const sl_policy_rows *rows)
+                        const sl_eval_rows *rows)
 {
     sl_halo_exchange(ctx, &p->halo, x);
     int64_t S = p->staged ? p->stages.n_stages : 1, w = p->n_local / S;
@@ -359,7 +391,7 @@ double sl_sweep(sl_ctx *ctx, const sl_problem *p, double *x, int32_t *policy, in
     return sweep_any(ctx, p, x, policy, eval, NULL);
 }
 
-double sl_sweep_rows(sl_ctx *ctx, const sl_problem *p, double *x, const sl_policy_rows *rows)
+double sl_sweep_rows(sl_ctx *ctx, const sl_problem *p, double *x, const sl_eval_rows *rows)
 {
     return sweep_any(ctx, p, x, NULL, 1, rows);
 }

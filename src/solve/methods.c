@@ -27,7 +27,7 @@ typedef struct run {
     sl_check last;
     int have_check;
     void *lu;               /* PI: cached factorization */
-    sl_policy_rows prow;    /* MPI: the stable policy's transitions, contiguous (first == NULL: none) */
+    sl_eval_rows prow;    /* MPI: the stable policy's transitions, contiguous (first == NULL: none) */
     char evaluation[16];
     double lu_estimate;
     int64_t n_ckpt;
@@ -132,6 +132,7 @@ static sl_status form_solution(run *r, int converged)
     x->info.sweeps = r->S.sweeps;
     x->info.seconds = elapsed(r);
     x->info.discount = r->P.gamma;
+    x->info.visit_adjust = r->P.visit_adjust;
     x->info.checkpoints_written = r->n_ckpt;
     x->cert.converged = converged;
     x->cert.tolerance = r->tol;
@@ -311,9 +312,9 @@ static int step_mpi(run *r, sl_status *st)
     /* once no action changed, the evaluation sweeps run over the policy's
      * own transitions, laid out contiguously; a change drops them (the
      * count of changes is global, so all ranks decide alike) */
-    if (r->last.changed > 0) sl_policy_rows_free(&r->prow);
+    if (r->last.changed > 0) sl_eval_rows_free(&r->prow);
     else if (r->prow.first == NULL) {
-        *st = sl_agree(r->ctx, sl_policy_rows_build(r->ctx, &r->P, r->pol, &r->prow));
+        *st = sl_agree(r->ctx, sl_eval_rows_build(r->ctx, &r->P, r->pol, &r->prow));
         if (*st != SL_OK) return -1;
     }
     int64_t m = r->o->sweeps > 0 ? r->o->sweeps : r->S.mpi_m;
@@ -411,9 +412,15 @@ static sl_status solve_model(sl_solver *o, const sl_model *m, sl_model *take, sl
     *xout = NULL;
 
     if (o->checkpoint_dir) SL_TRY(sl_ckpt_lock(ctx, o->checkpoint_dir, &r->lock_fd));
-    if (take != NULL) SL_TRY(sl_problem_from_model_taking(ctx, take, o->order, &r->P));
+    /* the visit adjustment reads the model's visit counts in its own
+     * layout: with it the rows stay where they are */
+    if (take != NULL && o->visit_adjust == 0.0) SL_TRY(sl_problem_from_model_taking(ctx, take, o->order, &r->P));
     else SL_TRY(sl_problem_from_model(ctx, m, o->order, 0, &r->P));
     r->P.direct_time_limit = o->direct_time_limit;
+    if (o->visit_adjust != 0.0 && o->checkpoint_dir)
+        SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EUSAGE, "a visit bonus or penalty cannot be combined with checkpoints "
+                                                    "(a checkpoint identifies the model, not the adjustment)")));
+    SL_TRY(sl_problem_visit_adjust(ctx, &r->P, m, o->visit_adjust));
     int64_t n = r->P.n_local, nx = n + r->P.halo.n_halo;
     if (SL_ZALLOC(ctx, r->x, nx, "values") == NULL || SL_ZALLOC(ctx, r->y, nx, "values") == NULL ||
         SL_ZALLOC(ctx, r->pol, n, "policy") == NULL || SL_ZALLOC(ctx, r->actions, n, "policy") == NULL)
@@ -508,7 +515,7 @@ static sl_status solve_model(sl_solver *o, const sl_model *m, sl_model *take, sl
 cleanup:
     sl_solution_free(&r->out);
     sl_evaluate_direct_free(&r->lu);
-    sl_policy_rows_free(&r->prow);
+    sl_eval_rows_free(&r->prow);
     free(r->x);
     free(r->y);
     free(r->pol);
@@ -630,6 +637,26 @@ sl_status sl_solver_set_direct_time_limit(sl_solver *s, double seconds)
         return SL_ERR(s->ctx, SL_EUSAGE, "sl_solver_set_direct_time_limit: %g is not a number of seconds", seconds);
     s->direct_time_limit = seconds;
     return SL_OK;
+}
+
+static sl_status set_visit_adjust(sl_solver *s, double c, const char *what)
+{
+    if (s == NULL) return SL_EUSAGE;
+    if (!(c >= 0) || !isfinite(c)) return SL_ERR(s->ctx, SL_EUSAGE, "%s: %g is not a number >= 0", what, c);
+    s->visit_adjust = c;
+    return SL_OK;
+}
+
+sl_status sl_solver_set_visit_bonus(sl_solver *s, double c)
+{
+    return set_visit_adjust(s, c, "sl_solver_set_visit_bonus");
+}
+
+sl_status sl_solver_set_visit_penalty(sl_solver *s, double c)
+{
+    sl_status st = set_visit_adjust(s, c, "sl_solver_set_visit_penalty");
+    if (st == SL_OK) s->visit_adjust = -c;
+    return st;
 }
 
 sl_status sl_solver_set_checkpoint(sl_solver *s, const char *dir, double every_s, int resume)

@@ -308,7 +308,7 @@ cleanup:
 
 /* Absorbing: every action returns to the state with probability 1 and
  * reward 0. flag[i] = 1 for absorbing owned states. Local. */
-static int64_t find_absorbing(const sl_problem *p, char *flag)
+int64_t sl_obj_find_absorbing(const sl_problem *p, char *flag)
 {
     const sl_block *b = &p->blk;
     int64_t count = 0;
@@ -540,7 +540,7 @@ sl_status sl_obj_certify_total(sl_ctx *ctx, const sl_problem *p, double *v, doub
     char *abs = NULL;
     if (SL_ALLOC(ctx, abs, n + 1, "absorbing states") == NULL) st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
-    int64_t nabs = sl_sum_i64(ctx, find_absorbing(p, abs));
+    int64_t nabs = sl_sum_i64(ctx, sl_obj_find_absorbing(p, abs));
     SL_TRY(sl_halo_exchange(ctx, &p->halo, v));
     SL_TRY(sl_halo_exchange(ctx, &p->halo, w));
     double vmax = sl_max(ctx, local_absmax(v, n + p->halo.n_halo)), wmax = sl_max(ctx, local_absmax(w, n));
@@ -602,6 +602,88 @@ cleanup:
     return st;
 }
 
+static sl_status check_closed_classes(sl_ctx *ctx, const sl_problem *p, const int32_t *policy, const char *which);
+
+/* Policy iteration (Howard 1960, "Dynamic Programming and Markov
+ * Processes"; for the total reward to absorption Bertsekas & Tsitsiklis
+ * 1991, Math. Oper. Res. 16, and for the average reward of unichain models
+ * Puterman 1994, Section 8.6; recalled from memory): exact evaluation of
+ * the policy by UMFPACK (sl_evaluate_direct: total, I - P_pi with v = 0 on
+ * absorbing states; average, gain and bias with h(0) = 0), then the greedy
+ * improvement on the evaluated values, keeping the current action unless
+ * another is better by more than the tie margin (kernel.c), which makes it
+ * stop; it stops when no action changes (the average gain of each
+ * evaluated policy is logged). A factorization that does not fit in half the memory is
+ * refused (SL_EUSAGE: use value iteration). No checkpoints: a signal or the
+ * walltime stops it with the last evaluated policy (SL_ESTOPPED). The
+ * certificate is then computed from the values as for value iteration.
+ * Collective. */
+static sl_status policy_iteration(sl_ctx *ctx, const sl_problem *p0, const sl_obj_opts *o, int average, double *x,
+                                  double *y, int32_t *policy, int64_t *iterations)
+{
+    sl_status st = SL_OK;
+    sl_problem q = *p0; /* shallow: only the evaluation system differs */
+    q.eval_average = average;
+    q.eval_ref = 0;
+    const sl_problem *p = &q;
+    void *lu = NULL;
+    double t0 = sl_now(), last = t0, mem = 0.5 * sl_physical_memory();
+    int owner = p->blk.s_begin == 0 && p->n_local > 0;
+    *iterations = 0;
+    for (;;) {
+        int pr = poll_stop(ctx, o, t0, &last);
+        if (pr == 2 || (o->max_iterations > 0 && *iterations >= o->max_iterations)) {
+            st = SL_ESTOPPED;
+            break;
+        }
+        int used = 0, abandoned = 0;
+        double est = 0;
+        if (average) {
+            char which[64];
+            snprintf(which, sizeof(which), "policy of policy iteration %lld", (long long)*iterations + 1);
+            st = check_closed_classes(ctx, p, policy, which);
+            if (st != SL_OK) break;
+        }
+        st = sl_evaluate_direct(ctx, p, policy, mem > 0 ? mem : 0, 0, x, &used, &abandoned, &est, &lu);
+        if (st == SL_EDATA && average) {
+            char msg[SL_MSG_MAX];
+            snprintf(msg, sizeof(msg), "%s", ctx->err);
+            sl_error_clear(ctx);
+            st = SL_ERR(ctx, SL_EDATA,
+                        "%s: policy iteration: the gain and bias equations of the policy of iteration %lld cannot be "
+                        "solved (%s): the policy's chain has more than one closed class (multichain), which this "
+                        "solver refuses",
+                        p->path, (long long)*iterations + 1, msg);
+        }
+        if (st != SL_OK) break;
+        if (!used) {
+            st = SL_ERR(ctx, SL_EUSAGE,
+                        "%s: policy iteration needs the direct solve, which does not fit (estimated %.2f GB, limit "
+                        "%.2f GB, or over the time limit); use value iteration (--method gs)",
+                        p->path, est / 1e9, mem / 1e9);
+            break;
+        }
+        double g = owner ? x[0] : 0.0;
+        MPI_Allreduce(MPI_IN_PLACE, &g, 1, MPI_DOUBLE, MPI_SUM, ctx->comm);
+        if (average && owner) x[0] = 0.0; /* h(0) = 0; the solve put g there */
+        (*iterations)++;
+        st = sl_halo_exchange(ctx, &p->halo, x);
+        if (st != SL_OK) break;
+        sl_check c;
+        sl_bellman_check(p, x, y, policy, &c);
+        int64_t changed = sl_sum_i64(ctx, c.changed);
+        if (average)
+            sl_log(ctx, "solve: policy iteration %lld: gain of the evaluated policy %.12g, %lld actions changed",
+                   (long long)*iterations, g, (long long)changed);
+        else
+            sl_log(ctx, "solve: policy iteration %lld: %lld actions changed", (long long)*iterations, (long long)changed);
+        if (changed == 0) break;
+    }
+    st = sl_agree(ctx, st);
+    sl_evaluate_direct_free(&lu);
+    return st;
+}
+
 static sl_status solve_total(sl_ctx *ctx, const sl_problem *p, const sl_obj_opts *o, sl_obj_result *res)
 {
     sl_status st = SL_OK;
@@ -615,7 +697,7 @@ static sl_status solve_total(sl_ctx *ctx, const sl_problem *p, const sl_obj_opts
         SL_ZALLOC(ctx, res->policy, n + 1, "policy") == NULL)
         st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
-    int64_t nabs = sl_sum_i64(ctx, find_absorbing(p, abs));
+    int64_t nabs = sl_sum_i64(ctx, sl_obj_find_absorbing(p, abs));
     if (nabs == 0)
         SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EDATA,
                                     "%s: no absorbing state (a state whose every action stays with probability 1 "
@@ -638,6 +720,26 @@ static sl_status solve_total(sl_ctx *ctx, const sl_problem *p, const sl_obj_opts
                 "sweeps)",
            (long long)nabs, wmax, (long long)wsweeps);
     res->cert.sweeps = wsweeps;
+    if (o->policy_iteration) {
+        int64_t it = 0;
+        sl_status keep = policy_iteration(ctx, p, o, 0, res->value, y, res->policy, &it);
+        if (keep != SL_OK && keep != SL_ESTOPPED) {
+            st = keep;
+            goto cleanup;
+        }
+        SL_TRY(sl_halo_exchange(ctx, &p->halo, res->value));
+        SL_TRY(sl_obj_certify_total(ctx, p, res->value, res->steps, res->policy, &res->cert));
+        res->cert.converged = keep == SL_OK && res->cert.value_error_bound <= tol && res->cert.policy_loss_bound <= tol;
+        if (keep == SL_OK && !res->cert.converged) {
+            sl_warn(ctx, "policy iteration ended but the certificate (%.1e, %.1e) exceeds the tolerance %.1e",
+                    res->cert.value_error_bound, res->cert.policy_loss_bound, tol);
+            keep = SL_EUSAGE;
+        }
+        res->cert.iterations = it;
+        res->cert.sweeps = wsweeps;
+        st = keep;
+        goto cleanup;
+    }
     /* resume */
     sl_solver_state S;
     sl_history hist;
@@ -727,6 +829,114 @@ cleanup:
 
 /* ---- average reward ----------------------------------------------------------- */
 
+/* Closed classes of the chain of `policy`: the strongly connected
+ * components of the graph of P_pi (edges of positive probability) that no
+ * edge leaves (Tarjan 1972, "Depth-first search and linear graph
+ * algorithms", SIAM J. Comput. 1(2); iterative form). Every finite chain
+ * has at least one; more than one means the policy is multichain, and so is
+ * the model (Puterman 1994, Section 8.3; recalled from memory). The rows are
+ * gathered on rank 0, as for the direct evaluation. SL_EDATA naming the
+ * smallest state of two closed classes when there are several. Collective. */
+static sl_status check_closed_classes(sl_ctx *ctx, const sl_problem *p, const int32_t *policy, const char *which)
+{
+    sl_status st = SL_OK;
+    sl_policy_rows G;
+    int64_t *index = NULL, *low = NULL, *comp = NULL, *stk = NULL, *cv = NULL, *ce = NULL, *minst = NULL;
+    char *on = NULL, *closed = NULL;
+    int64_t found[3] = {0, -1, -1}; /* closed classes, a state of the first two */
+    SL_TRY(sl_gather_policy_rows(ctx, p, policy, &G));
+    if (ctx->rank == 0) {
+        int64_t N = G.N;
+        if (SL_ALLOC(ctx, index, N, "classes") == NULL || SL_ALLOC(ctx, low, N, "classes") == NULL ||
+            SL_ALLOC(ctx, comp, N, "classes") == NULL || SL_ALLOC(ctx, stk, N, "classes") == NULL ||
+            SL_ALLOC(ctx, cv, N, "classes") == NULL || SL_ALLOC(ctx, ce, N, "classes") == NULL ||
+            SL_ALLOC(ctx, minst, N, "classes") == NULL || SL_ZALLOC(ctx, on, N, "classes") == NULL ||
+            SL_ALLOC(ctx, closed, N, "classes") == NULL)
+            st = SL_ENOMEM;
+        int64_t next = 0, sp = 0, ncomp = 0;
+        for (int64_t i = 0; st == SL_OK && i < N; i++) index[i] = -1;
+        for (int64_t s0 = 0; st == SL_OK && s0 < N; s0++) {
+            if (index[s0] >= 0) continue;
+            int64_t depth = 0;
+            cv[0] = s0;
+            ce[0] = G.rowptr[s0];
+            index[s0] = low[s0] = next++;
+            stk[sp++] = s0;
+            on[s0] = 1;
+            depth = 1;
+            while (depth > 0) {
+                int64_t v = cv[depth - 1];
+                if (ce[depth - 1] < G.rowptr[v + 1]) {
+                    int64_t e = ce[depth - 1]++;
+                    int64_t w = G.cols[e];
+                    if (!(G.probs[e] > 0.0)) continue;
+                    if (index[w] < 0) {
+                        index[w] = low[w] = next++;
+                        stk[sp++] = w;
+                        on[w] = 1;
+                        cv[depth] = w;
+                        ce[depth] = G.rowptr[w];
+                        depth++;
+                    } else if (on[w] && index[w] < low[v]) {
+                        low[v] = index[w];
+                    }
+                } else {
+                    depth--;
+                    if (low[v] == index[v]) {
+                        int64_t w, m = v;
+                        do {
+                            w = stk[--sp];
+                            on[w] = 0;
+                            comp[w] = ncomp;
+                            if (w < m) m = w;
+                        } while (w != v);
+                        minst[ncomp] = m;
+                        closed[ncomp] = 1;
+                        ncomp++;
+                    }
+                    if (depth > 0 && low[v] < low[cv[depth - 1]]) low[cv[depth - 1]] = low[v];
+                }
+            }
+        }
+        for (int64_t u = 0; st == SL_OK && u < N; u++)
+            for (int64_t e = G.rowptr[u]; e < G.rowptr[u + 1]; e++)
+                if (G.probs[e] > 0.0 && comp[G.cols[e]] != comp[u]) closed[comp[u]] = 0;
+        /* the two closed classes with the smallest states */
+        for (int64_t c = 0; st == SL_OK && c < ncomp; c++) {
+            if (!closed[c]) continue;
+            found[0]++;
+            int64_t m = minst[c];
+            if (found[1] < 0 || m < found[1]) {
+                found[2] = found[1];
+                found[1] = m;
+            } else if (found[2] < 0 || m < found[2]) {
+                found[2] = m;
+            }
+        }
+    }
+    SL_TRY(sl_agree(ctx, st));
+    MPI_Bcast(found, 3, MPI_INT64_T, 0, ctx->comm);
+    if (found[0] > 1)
+        st = SL_ERR(ctx, SL_EDATA,
+                    "%s: the %s has %lld closed classes of states, e.g. one holding state %lld and another holding "
+                    "state %lld (neither reaches the other): the model is multichain, which the average-reward "
+                    "solver refuses",
+                    p->path, which, (long long)found[0], (long long)found[1], (long long)found[2]);
+    st = sl_agree(ctx, st);
+cleanup:
+    sl_policy_rows_free(&G);
+    free(index);
+    free(low);
+    free(comp);
+    free(stk);
+    free(cv);
+    free(ce);
+    free(minst);
+    free(on);
+    free(closed);
+    return st;
+}
+
 /* Gain bounds from any h and policy pi (d = Th - h, d_pi = T_pi h - h):
  * for every policy pi', g_pi' = P*_pi' d_pi' <= max d, so g* <= max d; and
  * g_pi = P*_pi d_pi >= min d_pi (P*_pi the limiting matrix, stochastic).
@@ -789,6 +999,27 @@ static sl_status solve_average(sl_ctx *ctx, const sl_problem *p, const sl_obj_op
         st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
     res->cert.aperiodicity = tau;
+    if (o->policy_iteration) {
+        int64_t it = 0;
+        sl_status keep = policy_iteration(ctx, p, o, 1, res->value, y, res->policy, &it);
+        if (keep != SL_OK && keep != SL_ESTOPPED) {
+            st = keep;
+            goto cleanup;
+        }
+        SL_TRY(sl_obj_certify_average(ctx, p, res->value, res->policy, &res->cert));
+        res->cert.converged = keep == SL_OK && res->cert.gain_upper - res->cert.gain_lower <= tol &&
+                              res->cert.policy_loss_bound <= tol;
+        if (keep == SL_OK && !res->cert.converged) {
+            sl_warn(ctx, "policy iteration ended but the gain bounds [%.12g, %.12g] are wider than the tolerance %.1e",
+                    res->cert.gain_lower, res->cert.gain_upper, tol);
+            keep = SL_EUSAGE;
+        }
+        res->cert.aperiodicity = 0;
+        res->cert.iterations = it;
+        res->cert.sweeps = it;
+        st = keep;
+        goto cleanup;
+    }
     if (o->resume && o->checkpoint_dir) {
         int found = 0;
         SL_TRY(sl_ckpt_load(ctx, o->checkpoint_dir, o->fingerprint, p->meta.n_states, p->blk.s_begin, n, res->value,
@@ -822,6 +1053,7 @@ static sl_status solve_average(sl_ctx *ctx, const sl_problem *p, const sl_obj_op
         double dmin = sl_min(ctx, c.dmin), dmax = sl_max(ctx, c.dmax);
         S.iteration++;
         S.sweeps++;
+        if (S.iteration == 1) SL_TRY(check_closed_classes(ctx, p, res->policy, "first greedy policy"));
         if (S.iteration % 16 == 1 || dmax - dmin <= tol) {
             SL_TRY(sl_obj_certify_average(ctx, p, res->value, res->policy, &res->cert));
             SL_TRY(sl_agree(ctx, sl_history_push(ctx, &hist, S.iteration, S.sweeps, sl_now() - t0,
@@ -841,6 +1073,8 @@ static sl_status solve_average(sl_ctx *ctx, const sl_problem *p, const sl_obj_op
         if (S.iteration - mark_iter >= K) {
             double span = dmax - dmin;
             if (span > 0.999 * span_mark) {
+                /* a definite answer where the current policy shows it */
+                SL_TRY(check_closed_classes(ctx, p, res->policy, "current greedy policy"));
                 st = SL_ERR(ctx, SL_EDATA,
                             "%s: the gain bounds stopped narrowing (span of Th - h %.6g after %lld iterations, "
                             "%.6g %lld iterations earlier): the optimal gain differs between states, i.e. the "
@@ -865,6 +1099,7 @@ static sl_status solve_average(sl_ctx *ctx, const sl_problem *p, const sl_obj_op
         SL_TRY(sl_obj_certify_average(ctx, p, res->value, res->policy, &res->cert));
         st = keep;
     }
+    if (res->cert.converged) SL_TRY(check_closed_classes(ctx, p, res->policy, "final policy"));
     res->cert.aperiodicity = tau;
     res->cert.iterations = S.iteration;
     res->cert.sweeps = S.sweeps;

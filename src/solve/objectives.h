@@ -29,6 +29,8 @@ typedef struct sl_obj_opts {
     int resume;
     double walltime;            /* seconds from start; 0: none */
     const char *fingerprint;    /* model fingerprint (checkpoint identity) */
+    int policy_iteration;       /* total/average: policy iteration (UMFPACK
+                                 * evaluation) instead of value iteration */
 } sl_obj_opts;
 
 /* What a solve certifies (and what verify recomputes). */
@@ -62,6 +64,10 @@ typedef struct sl_obj_result {
 } sl_obj_result;
 
 void sl_obj_result_free(sl_obj_result *r);
+
+/* Flag the owned absorbing states (every action stays with probability 1
+ * and reward 0) in flag[n_local]; returns how many. Local. */
+int64_t sl_obj_find_absorbing(const sl_problem *p, char *flag);
 
 /* Solve the problem's objective. Returns SL_OK when certified, SL_ESTOPPED
  * when stopped early (result filled, converged = 0), SL_EDATA for models

@@ -7,8 +7,10 @@
 #include "core/json.h"
 #include "solve/objectives.h"
 
-static const char *obj_method(sl_objective o)
+static const char *obj_method(sl_objective o, int pi)
 {
+    if (pi && o == SL_OBJ_TOTAL) return "pi-total";
+    if (pi && o == SL_OBJ_AVERAGE) return "pi-average";
     return o == SL_OBJ_FINITE ? "backward" : o == SL_OBJ_TOTAL ? "gs-total" : "rvi";
 }
 
@@ -32,7 +34,7 @@ static sl_status write_report(sl_ctx *ctx, const sl_objective_opts *o, const sl_
             sl_json_str(&j, "model_fingerprint", p->meta.fingerprint);
             sl_json_str(&j, "solution", o->output);
             sl_json_str(&j, "objective", sl_objective_name(r->objective));
-            sl_json_str(&j, "method", obj_method(r->objective));
+            sl_json_str(&j, "method", obj_method(r->objective, o->method == SL_METHOD_PI));
             sl_json_int(&j, "ranks", ctx->size);
             sl_json_int(&j, "n_states", p->meta.n_states);
             sl_json_int(&j, "n_transitions", p->meta.n_trans);
@@ -84,7 +86,7 @@ static void summary(sl_ctx *ctx, const sl_objective_opts *o, const sl_problem *p
     fprintf(f, "\nsluice solve summary\n");
     fprintf(f, "  model        %s (%lld states, %lld transitions, objective %s)\n", o->model_path,
             (long long)p->meta.n_states, (long long)p->meta.n_trans, sl_objective_name(r->objective));
-    fprintf(f, "  method       %s on %d rank(s), %lld iterations, %.2f s\n", obj_method(r->objective), ctx->size,
+    fprintf(f, "  method       %s on %d rank(s), %lld iterations, %.2f s\n", obj_method(r->objective, o->method == SL_METHOD_PI), ctx->size,
             (long long)c->iterations, secs);
     if (r->objective == SL_OBJ_FINITE) {
         fprintf(f, "  result       EXACT up to roundoff: %lld stages by backward induction (discount %g)\n",
@@ -155,6 +157,9 @@ sl_status sl_objective_solve(const sl_model *m, const sl_objective_opts *o)
     oo.resume = o->resume;
     oo.walltime = o->walltime;
     oo.fingerprint = P.meta.fingerprint;
+    oo.policy_iteration = o->method == SL_METHOD_PI && obj != SL_OBJ_FINITE;
+    if (oo.policy_iteration && o->checkpoint_dir)
+        sl_warn(ctx, "policy iteration writes no checkpoints (it takes few iterations); --checkpoint is ignored");
     sl_log(ctx, "solve: %s, %lld states, objective %s, %d rank(s), tolerance %.1e", model,
            (long long)P.meta.n_states, sl_objective_name(obj), ctx->size, oo.tolerance);
     outcome = sl_obj_solve(ctx, &P, &oo, &R);
@@ -196,7 +201,7 @@ sl_status sl_objective_solve(const sl_model *m, const sl_objective_opts *o)
     sl_solution_record in;
     memset(&in, 0, sizeof(in));
     snprintf(in.model_fingerprint, sizeof(in.model_fingerprint), "%s", P.meta.fingerprint);
-    snprintf(in.method, sizeof(in.method), "%s", obj_method(obj));
+    snprintf(in.method, sizeof(in.method), "%s", obj_method(obj, o->method == SL_METHOD_PI));
     in.converged = R.cert.converged;
     in.iterations = R.cert.iterations;
     in.sweeps = R.cert.sweeps;

@@ -2,6 +2,7 @@
 #include <math.h>
 #include <string.h>
 
+#include "analysis/analysis.h"
 #include "solve/solve.h"
 
 sl_status sl_solution_new(sl_ctx *ctx, int64_t n_states, int64_t s_begin, int64_t n, int with_actions,
@@ -76,6 +77,20 @@ sl_status sl_solution_get_history(const sl_solution *x, sl_history_view *h)
     return SL_OK;
 }
 
+sl_status sl_solution_value_extent(const sl_solution *x, double *vmin, double *vmax, double *min_abs)
+{
+    if (x == NULL) return SL_EUSAGE;
+    double e[3];
+    sl_value_extent_local(x->value, x->n, &e[0], &e[1], &e[2]);
+    e[1] = -e[1]; /* one MIN reduction for all three */
+    if (MPI_Allreduce(MPI_IN_PLACE, e, 3, MPI_DOUBLE, MPI_MIN, x->ctx->comm) != MPI_SUCCESS)
+        return SL_ERR(x->ctx, SL_EINTERNAL, "sl_solution_value_extent: MPI_Allreduce failed");
+    if (vmin) *vmin = e[0];
+    if (vmax) *vmax = -e[1];
+    if (min_abs) *min_abs = e[2];
+    return SL_OK;
+}
+
 sl_status sl_solution_gather(const sl_solution *x, int root, double **value, int32_t **action)
 {
     if (x == NULL) return SL_EUSAGE;
@@ -138,6 +153,7 @@ static void to_record(const sl_solution *x, sl_solution_record *r)
     r->residual_max = x->cert.residual_max;
     r->value_error_bound = x->cert.value_error;
     r->policy_loss_bound = x->cert.policy_loss;
+    r->visit_adjust = x->info.visit_adjust;
 }
 
 static void from_record(sl_solution *x, const sl_solution_record *r)
@@ -159,6 +175,7 @@ static void from_record(sl_solution *x, const sl_solution_record *r)
     x->cert.residual_max = r->residual_max;
     x->cert.value_error = r->value_error_bound;
     x->cert.policy_loss = r->policy_loss_bound;
+    x->info.visit_adjust = r->visit_adjust;
 }
 
 sl_status sl_solution_save(const sl_solution *x, const char *path)

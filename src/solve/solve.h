@@ -29,6 +29,16 @@ typedef struct sl_problem {
     int staged;             /* sweeps run stage by stage on all ranks */
     double direct_time_limit; /* seconds a direct factorization may take (UMFPACK's
                                * estimate); <= 0: no limit */
+    double visit_adjust;    /* c of the reward adjustment r + c/sqrt(visits); 0: none */
+    /* the system sl_evaluate_direct solves: 0 (I - gamma P_pi) v = r_pi; with
+     * gamma = 1 a row of I - P_pi that is all zero (an absorbing state, whose
+     * reward is 0) gets a unit diagonal, so v = 0 there. 1 (average reward):
+     * gain and bias, h + g 1 = r_pi + P_pi h with h(eval_ref) = 0, solved as
+     * (I - P_pi) with column eval_ref replaced by ones; the solution holds g
+     * at eval_ref (callers put it back). */
+    int eval_average;
+    int64_t eval_ref;       /* global state */
+    double *own_reward;     /* the adjusted rewards (blk.reward points here), or NULL */
 } sl_problem;
 
 /* Prepare an assembled model for solving: local columns, halo and sweep
@@ -44,6 +54,12 @@ void sl_problem_free(sl_problem *p);
  * memory holds the rows about once. The model keeps its description and
  * refuses further use of its rows (sl_model_check_ready). Collective. */
 sl_status sl_problem_from_model_taking(sl_ctx *ctx, sl_model *m, sl_order order, sl_problem *p);
+/* Sensitivity to thin data (models from `estimate`, which store the visits
+ * n of every pair): replace r(s,a) by r(s,a) + c / sqrt(n) (c > 0: an
+ * optimistic bonus; c < 0: a pessimistic penalty). Pairs with n = 0 (states
+ * made absorbing for lack of data) keep their reward. c = 0: nothing. The
+ * model's rows are not touched. Collective. */
+sl_status sl_problem_visit_adjust(sl_ctx *ctx, sl_problem *p, const sl_model *m, double c);
 
 /* ---- handles ---------------------------------------------------------------- */
 
@@ -60,6 +76,7 @@ struct sl_solver {
     double memory_limit;        /* pi: bytes; 0 auto */
     int strict_memory;
     double direct_time_limit;   /* pi/evaluate: seconds; <= 0 no limit */
+    double visit_adjust;        /* r + c/sqrt(visits); 0: none */
     char *checkpoint_dir;       /* NULL: none */
     double checkpoint_every;    /* seconds; 0 -> 600 */
     int resume;
@@ -123,20 +140,20 @@ double sl_sweep(sl_ctx *ctx, const sl_problem *p, double *x, int32_t *policy, in
  * streams through them contiguously instead of jumping over the other
  * actions' rows. Arithmetic is the same as the sweep over the model's rows
  * (same terms, same order), so the iterates are bitwise equal. */
-typedef struct sl_policy_rows {
+typedef struct sl_eval_rows {
     int64_t n;              /* owned states; 0: not built */
     uint32_t *first;        /* [n + 1] offsets into col/prob */
     uint32_t *col;          /* local columns into [owned | halo] */
     double *prob;
     double *reward;         /* [n] */
-} sl_policy_rows;
+} sl_eval_rows;
 /* Build the rows of `policy` (pair offsets). Fails with SL_EDATA if the
  * policy's transitions on this rank do not fit 32-bit offsets. Local. */
-sl_status sl_policy_rows_build(sl_ctx *ctx, const sl_problem *p, const int32_t *policy, sl_policy_rows *rows);
-void sl_policy_rows_free(sl_policy_rows *rows);
+sl_status sl_eval_rows_build(sl_ctx *ctx, const sl_problem *p, const int32_t *policy, sl_eval_rows *rows);
+void sl_eval_rows_free(sl_eval_rows *rows);
 /* sl_sweep(ctx, p, x, policy, 1) for the policy the rows were built from.
  * Collective. */
-double sl_sweep_rows(sl_ctx *ctx, const sl_problem *p, double *x, const sl_policy_rows *rows);
+double sl_sweep_rows(sl_ctx *ctx, const sl_problem *p, double *x, const sl_eval_rows *rows);
 
 /* File id of owned local state i (for messages). Local. */
 int64_t sl_problem_file_state(const sl_problem *p, int64_t i);
@@ -148,6 +165,19 @@ sl_status sl_problem_ckpt_write(sl_ctx *ctx, const sl_problem *p, const char *di
                                 const int32_t *actions, const sl_solver_state *state, const sl_history *hist);
 sl_status sl_problem_ckpt_load(sl_ctx *ctx, const sl_problem *p, const char *dir, double *value, int32_t *actions,
                                sl_solver_state *state, sl_history *hist, int *found);
+
+/* The rows of P_pi (global columns ascending within each row) and r_pi
+ * gathered on rank 0: rowptr[N+1], cols, probs, rew (NULL elsewhere);
+ * scnt/sdsp: every rank's state count and offset (rank 0), for scattering
+ * back. */
+typedef struct sl_policy_rows {
+    int64_t N;
+    int64_t *rowptr, *cols;
+    double *probs, *rew;
+    int *scnt, *sdsp;
+} sl_policy_rows;
+sl_status sl_gather_policy_rows(sl_ctx *ctx, const sl_problem *p, const int32_t *policy, sl_policy_rows *out);
+void sl_policy_rows_free(sl_policy_rows *r);
 
 /* Exact value of a fixed policy: gather P_pi to rank 0, UMFPACK, scatter.
  * *used_direct = 0 (and x untouched) when the factorization would exceed

@@ -203,6 +203,18 @@ sl_status sl_store_model_write(sl_ctx *ctx, const char *path, const sl_meta *m,
                               b->t_begin, nt, b->target, 1, p));
     SL_TRY(sl_h5_write_1d(ctx, f, "/transition/probability", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE,
                           m->n_trans, b->t_begin, nt, b->prob, 1, p));
+    if (m->has_terminal) {
+        if (ns > 0 && b->terminal == NULL)
+            SL_FAIL(SL_EINTERNAL, "%s: terminal values declared but the rows hold none", p);
+        SL_TRY(sl_h5_write_1d(ctx, f, "/terminal_value", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, m->n_states, s_off, ns,
+                              b->terminal, 1, p));
+    }
+    if (m->has_visits) {
+        if (np > 0 && b->visits == NULL)
+            SL_FAIL(SL_EINTERNAL, "%s: visit counts declared but the rows hold none", p);
+        SL_TRY(sl_h5_write_1d(ctx, f, "/pair/visits", H5T_STD_I64LE, H5T_NATIVE_INT64, m->n_pairs, p_off, np,
+                              b->visits, 1, p));
+    }
     SL_TRY(write_labels(ctx, f, m, p));
     if (m->format_version >= 2) SL_TRY(write_annotations(ctx, f, m, b, p));
     st = sl_h5_close(ctx, &f, p);
@@ -397,6 +409,15 @@ static sl_status read_meta_open(sl_ctx *ctx, hid_t f, const char *path, sl_meta 
     }
     if (!(m->discount >= 0.0 && m->discount <= 1.0))
         SL_FAIL(SL_EDATA, "%s: discount %g is not in [0, 1]", path, m->discount);
+    /* optional datasets of any version */
+    if (sl_h5_exists(f, "/pair/visits")) {
+        SL_TRY(sl_h5_check_1d(ctx, f, "/pair/visits", H5T_INTEGER, m->n_pairs, path));
+        m->has_visits = 1;
+    }
+    if (sl_h5_exists(f, "/terminal_value")) {
+        SL_TRY(sl_h5_check_1d(ctx, f, "/terminal_value", H5T_FLOAT, m->n_states, path));
+        m->has_terminal = 1;
+    }
     SL_TRY(read_labels(ctx, f, m, path));
     if (m->format_version >= 2) SL_TRY(read_annotations(ctx, f, m, path));
 cleanup:
@@ -539,6 +560,25 @@ sl_status sl_store_model_read(sl_ctx *ctx, const char *path, const sl_meta *m, i
         st = sl_h5_read_1d(ctx, f, "/transition/probability", H5T_NATIVE_DOUBLE, m->n_trans, b->t_begin, nt,
                            b->prob, path);
     if (st == SL_OK) st = sl_block_validate(ctx, b, m, 1e-6, path);
+    if (st == SL_OK && m->has_visits) {
+        if (SL_ALLOC(ctx, b->visits, np + 1, "visit counts") == NULL) st = SL_ENOMEM;
+        if (st == SL_OK)
+            st = sl_h5_read_1d(ctx, f, "/pair/visits", H5T_NATIVE_INT64, m->n_pairs, b->p_begin, np, b->visits, path);
+        for (int64_t k = 0; st == SL_OK && k < np; k++)
+            if (b->visits[k] < 0) {
+                int64_t s = s_begin;
+                while (s + 1 < s_end && b->first_pair[s + 1 - s_begin] <= b->p_begin + k) s++;
+                st = SL_ERR(ctx, SL_EDATA, "%s: /pair/visits: state %lld, action %d: negative count %lld", path,
+                            (long long)s, (int)b->action[k], (long long)b->visits[k]);
+            }
+    }
+    /* terminal values are kept with the rows (fingerprint, writing back) */
+    if (st == SL_OK && m->has_terminal) {
+        if (SL_ALLOC(ctx, b->terminal, ns + 1, "terminal values") == NULL) st = SL_ENOMEM;
+        if (st == SL_OK)
+            st = sl_h5_read_1d(ctx, f, "/terminal_value", H5T_NATIVE_DOUBLE, m->n_states, s_begin, ns, b->terminal,
+                               path);
+    }
     /* quantities are hashed for the fingerprint, not kept */
     for (int q = 0; st == SL_OK && q < m->n_quantities; q++) {
         const int64_t CH = SL_H5_CHUNK;

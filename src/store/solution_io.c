@@ -138,6 +138,8 @@ sl_status sl_store_solution_write_ex(sl_ctx *ctx, const char *path, sl_file_kind
     if (st == SL_OK) st = sl_h5_attr_write_f64(ctx, f, "value_error_bound", in->value_error_bound, p);
     if (st == SL_OK && kind != SL_FILE_VALUES)
         st = sl_h5_attr_write_f64(ctx, f, "policy_loss_bound", in->policy_loss_bound, p);
+    if (st == SL_OK && in->visit_adjust != 0.0)
+        st = sl_h5_attr_write_f64(ctx, f, "visit_adjust", in->visit_adjust, p);
     if (st == SL_OK) st = sl_h5_attr_write_str(ctx, f, "created_by", "sluice " SLUICE_VERSION, p);
     SL_TRY(sl_agree(ctx, st));
     SL_TRY(sl_h5_write_1d(ctx, f, "/value", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, n_states, s_begin, n_local, value, 1, p));
@@ -194,6 +196,9 @@ sl_status sl_store_solution_read(sl_ctx *ctx, const char *path, sl_file_kind kin
     if (st == SL_OK) st = sl_h5_attr_read_f64(ctx, f, "residual_max", &in->residual_max, 0, path);
     if (st == SL_OK) st = sl_h5_attr_read_f64(ctx, f, "value_error_bound", &in->value_error_bound, 0, path);
     if (st == SL_OK) st = sl_h5_attr_read_f64(ctx, f, "policy_loss_bound", &in->policy_loss_bound, 0, path);
+    if (st == SL_OK) st = sl_h5_attr_read_f64(ctx, f, "visit_adjust", &in->visit_adjust, 0, path);
+    if (st == SL_OK && !isfinite(in->visit_adjust))
+        st = SL_ERR(ctx, SL_EDATA, "%s: /visit_adjust is not finite", path);
     in->converged = conv != 0;
     if (st == SL_OK && sl_h5_length(f, "/value") != n_states)
         st = SL_ERR(ctx, SL_EDATA, "%s: /value has %lld entries but the model has %lld states", path,

@@ -71,6 +71,7 @@ typedef struct sl_solution_record {
     double tolerance, discount;
     double residual_sup, residual_span, residual_min, residual_max;
     double value_error_bound, policy_loss_bound;
+    double visit_adjust;        /* r + c/sqrt(visits) used (0: none; attr only when set) */
 } sl_solution_record;
 
 /* Write a solution (kind SL_FILE_SOLUTION; value + policy) or a values file

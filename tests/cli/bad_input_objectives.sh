@@ -55,10 +55,27 @@ expect "total: no absorbing state" --code 65 --err "no absorbing state" --err "t
     "$SLUICE" solve -q "$W/tot_bad.h5" -o "$O"
 expect "total: discount below 1 refused" --code 65 --err "discount" --gone "$O" -- \
     bash -c "'$SLUICE' import -q '$W/ssp.csv' --discount 0.5 --objective total -o '$W/tot_half.h5' && '$SLUICE' solve -q '$W/tot_half.h5' -o '$O'"
-# a broken finite terminal dataset in the model
+# optional datasets are fingerprinted only when present: a model without them
+# keeps the fingerprint it had before (value recorded with sluice at commit
+# 5c84444, before /pair/visits and /terminal_value were fingerprinted)
+expect "fingerprint of a model without optional datasets is unchanged" --code 0 --out "7d0ea00cf279e10e3747d0794afacf7f" -- \
+    "$SLUICE" info "$W/fin.h5"
+# terminal values: given to import (covered by the fingerprint), or edited in
+printf 'state,terminal_value\n1,2.5\n0,nan\n' >"$W/term_nan.csv"
+expect "import: a terminal value that is not a number names the line" --code 65 --err "term_nan.csv:3" --err "terminal_value" --gone "$O" -- \
+    "$SLUICE" import -q "$W/plant.csv" --discount 1 --objective finite -o "$O" --terminal-values "$W/term_nan.csv"
+printf 'state,terminal_value\n0,2.5\n' >"$W/term_short.csv"
+expect "import: a state without a terminal value" --code 65 --err "term_short.csv" --err "state 1" --gone "$O" -- \
+    "$SLUICE" import -q "$W/plant.csv" --discount 1 --objective finite -o "$O" --terminal-values "$W/term_short.csv"
+printf 'state,terminal_value\n0,2.5\n1,1\n0,3\n' >"$W/term_twice.csv"
+expect "import: a state given two terminal values" --code 65 --err "term_twice.csv:4" --err "state 0" --gone "$O" -- \
+    "$SLUICE" import -q "$W/plant.csv" --discount 1 --objective finite -o "$O" --terminal-values "$W/term_twice.csv"
+printf 'state,terminal_value\n0,2.5\n1,1\n' >"$W/term.csv"
+expect "import: terminal values for the discounted objective" --code 64 --err "finite" --gone "$O" -- \
+    "$SLUICE" import -q "$W/plant.csv" --discount 0.9 -o "$O" --terminal-values "$W/term.csv"
 cp "$W/fin.h5" "$W/fin_term.h5"
-"$PY" -c "import h5py,sys; f=h5py.File(sys.argv[1],'r+'); f['terminal_value']=[1.0,float('nan')]" "$W/fin_term.h5"
-expect "finite: non-finite /terminal_value names the state" --code 65 --err "terminal_value" --err "state 1" --gone "$O" -- \
+"$PY" -c "import h5py,sys; f=h5py.File(sys.argv[1],'r+'); f['terminal_value']=[1.0,2.0]" "$W/fin_term.h5"
+expect "finite: /terminal_value added by hand (fingerprint)" --code 65 --err "fingerprint" --err "fin_term.h5" --gone "$O" -- \
     "$SLUICE" solve -q "$W/fin_term.h5" -o "$O" --horizon 2
 cp "$W/fin.h5" "$W/fin_term3.h5"
 "$PY" -c "import h5py,sys; f=h5py.File(sys.argv[1],'r+'); f['terminal_value']=[1.0,2.0,3.0]" "$W/fin_term3.h5"
@@ -79,4 +96,61 @@ expect "setup: staged model with the finite objective" --code 0 -- \
 expect "finite: staged model solves" --code 0 -- "$SLUICE" solve -q "$W/ferry.h5" -o "$W/ferry_sol.h5" --horizon 3
 expect "finite: staged model's solution verifies" --code 0 --out "CERTIFIED" -- \
     "$SLUICE" verify "$W/ferry.h5" "$W/ferry_sol.h5"
+# models estimated from logged experience: visit counts, bonus and penalty
+cat >"$W/log.csv" <<'CSV'
+state,action,reward,next_state
+0,0,1,1
+0,0,1,0
+0,1,0,1
+1,0,2,0
+1,1,0,1
+CSV
+expect "setup: estimated model" --code 0 -- "$SLUICE" estimate -q "$W/log.csv" --discount 0.9 -o "$W/est.h5"
+expect "estimate: --smoothing negative" --code 64 --err "--smoothing" --gone "$O" -- \
+    "$SLUICE" estimate -q "$W/log.csv" --discount 0.9 -o "$O" --smoothing -1
+expect "solve: --visit-bonus on a model without visit counts" --code 64 --err "visit" --err "disc.h5" --gone "$O" -- \
+    "$SLUICE" solve -q "$W/disc.h5" -o "$O" --visit-bonus 1
+expect "solve: --visit-bonus and --visit-penalty together" --code 64 --err "exclude" --gone "$O" -- \
+    "$SLUICE" solve -q "$W/est.h5" -o "$O" --visit-bonus 1 --visit-penalty 1
+expect "solve: --visit-penalty not positive" --code 64 --err "--visit" --gone "$O" -- \
+    "$SLUICE" solve -q "$W/est.h5" -o "$O" --visit-penalty 0
+expect "solve: --visit-bonus with --checkpoint" --code 64 --err "checkpoint" --gone "$O" -- \
+    "$SLUICE" solve -q "$W/est.h5" -o "$O" --visit-bonus 1 --checkpoint "$W/ck_est"
+expect "solve: --visit-bonus on the average objective" --code 64 --err "--visit-bonus" --err "average" --gone "$O" -- \
+    "$SLUICE" solve -q "$W/avg.h5" -o "$O" --visit-bonus 1
+expect "info: --thin-below 0" --code 64 --err "--thin-below" -- "$SLUICE" info "$W/est.h5" --thin-below 0
+cp "$W/est.h5" "$W/est_neg.h5"
+"$PY" -c "import h5py,sys; f=h5py.File(sys.argv[1],'r+'); v=f['pair/visits'][...]; v[2]=-3; f['pair/visits'][...]=v" "$W/est_neg.h5"
+expect "solve: /pair/visits with a negative count names the state and action" --code 65 --err "pair/visits" --err "state 1" --err "action 0" --gone "$O" -- \
+    "$SLUICE" solve -q "$W/est_neg.h5" -o "$O"
+cp "$W/est.h5" "$W/est_len.h5"
+"$PY" -c "import h5py,sys; f=h5py.File(sys.argv[1],'r+'); del f['pair/visits']; f['pair/visits']=[1,2,3]" "$W/est_len.h5"
+expect "solve: /pair/visits of the wrong length" --code 65 --err "pair/visits" --gone "$O" -- \
+    "$SLUICE" solve -q "$W/est_len.h5" -o "$O"
+cp "$W/est.h5" "$W/est_more.h5"
+"$PY" -c "import h5py,sys; f=h5py.File(sys.argv[1],'r+'); v=f['pair/visits'][...]; v[0]+=5; f['pair/visits'][...]=v" "$W/est_more.h5"
+expect "solve: an edited visit count (fingerprint)" --code 65 --err "fingerprint" --err "est_more.h5" --gone "$O" -- \
+    "$SLUICE" solve -q "$W/est_more.h5" -o "$O"
+# a definitely multichain model: {0, 1} and {2, 3} are closed under every
+# policy (state 4 is transient); invented numbers
+cat >"$W/multi.csv" <<'CSV'
+state,action,next_state,probability,reward
+0,0,1,1,1
+1,0,0,0.5,0
+1,0,1,0.5,2
+2,0,3,1,0
+3,0,2,1,0.5
+3,1,3,1,0.25
+4,0,0,0.5,0
+4,0,2,0.5,1
+CSV
+expect "setup: multichain average model" --code 0 -- "$SLUICE" import -q "$W/multi.csv" --discount 1 --objective average -o "$W/multi.h5"
+expect "average: multichain model refused, naming states of two closed classes" --code 65 --err "multichain" --err "state 0" --err "state 2" --gone "$O" -- \
+    "$SLUICE" solve -q "$W/multi.h5" -o "$O"
+expect "average --method pi: multichain model refused, naming states of two closed classes" --code 65 --err "multichain" --err "state 0" --err "state 2" --gone "$O" -- \
+    "$SLUICE" solve -q "$W/multi.h5" -o "$O" --method pi
+if [ -n "${SLUICE_MPIEXEC:-}" ] && [ -x "$SLUICE_MPIEXEC" ]; then
+expect "average on 3 ranks: multichain model refused the same way" --code 65 --err "multichain" --err "state 0" --err "state 2" --gone "$O" -- \
+    "$SLUICE_MPIEXEC" --oversubscribe -n 3 "$SLUICE" solve -q "$W/multi.h5" -o "$O" --method pi
+fi
 sl_finish

@@ -6,9 +6,17 @@
 # injected allocation named, no crash, no output file and no temporary, and an
 # existing output (or checkpoint) kept byte-identical. In the sanitizer stage
 # LeakSanitizer also fails the run on any leak on those error paths.
-# usage: bash fault_alloc.sh SLUICE_BINARY WORKDIR SOURCE_DIR
+# usage: bash fault_alloc.sh SLUICE_BINARY WORKDIR SOURCE_DIR [STEP]
+# STEP (import, build, solve, pi, verify or export) runs one sweep only; CTest
+# registers one test per step (cli_fault_alloc_STEP), so that each sweep's
+# hundreds of runs have a timeout of their own and two can run side by side.
+# Without STEP every sweep runs.
 . "$(dirname "$0")/lib.sh"
-sl_setup "$@"
+step=${4:-all}
+case $step in all|import|build|solve|pi|verify|export) ;;
+    *) echo "fault_alloc.sh: unknown step '$step'" >&2; exit 64 ;; esac
+sl_setup "$1" "$2" "$3"
+want() { [ "$step" = all ] || [ "$step" = "$1" ]; }
 
 cat >"$W/ok.csv" <<'CSV'
 state,action,next_state,probability,reward
@@ -71,15 +79,15 @@ sweep() {
     fi
 }
 
-sweep "import" "$W/m_imp.h5" 0 -- "$SLUICE" import -q "$W/ok.csv" --discount 0.9 -o "$W/m_imp.h5"
-sweep "build" "$W/m_build.h5" 0 -- "$SLUICE" build -q "$SRC/examples/reservoir.c" --param storage_levels=20 \
-    --param inflow_classes=3 -o "$W/m_build.h5"
+want import && sweep "import" "$W/m_imp.h5" 0 -- "$SLUICE" import -q "$W/ok.csv" --discount 0.9 -o "$W/m_imp.h5"
+want build && sweep "build" "$W/m_build.h5" 0 -- "$SLUICE" build -q "$SRC/examples/reservoir.c" \
+    --param storage_levels=20 --param inflow_classes=3 -o "$W/m_build.h5"
 # 3 iterations, a checkpoint at each: ends with 75 (stopped, valid checkpoint)
-sweep "solve (gs, checkpoints, resume)" "$W/s1.h5" 75 -- "$SLUICE" solve -q "$G" -o "$W/s1.h5" --checkpoint "$W/ck" \
-    --resume --checkpoint-every 0.000001 --max-iterations 3
+want solve && sweep "solve (gs, checkpoints, resume)" "$W/s1.h5" 75 -- "$SLUICE" solve -q "$G" -o "$W/s1.h5" \
+    --checkpoint "$W/ck" --resume --checkpoint-every 0.000001 --max-iterations 3
 rm -rf "$W/ck"
-sweep "solve (pi)" "$W/s2.h5" 0 -- "$SLUICE" solve -q "$G" -o "$W/s2.h5" --method pi
-sweep "verify" "$W/none.out" 0 -- "$SLUICE" verify -q "$G" "$W/good_sol.h5"
-sweep "export" "$W/p.csv" 0 -- "$SLUICE" export "$W/good_sol.h5" --model "$G" -o "$W/p.csv"
+want pi && sweep "solve (pi)" "$W/s2.h5" 0 -- "$SLUICE" solve -q "$G" -o "$W/s2.h5" --method pi
+want verify && sweep "verify" "$W/none.out" 0 -- "$SLUICE" verify -q "$G" "$W/good_sol.h5"
+want export && sweep "export" "$W/p.csv" 0 -- "$SLUICE" export "$W/good_sol.h5" --model "$G" -o "$W/p.csv"
 echo "# $total allocation failures injected"
 sl_finish

@@ -30,6 +30,7 @@ fails on tampered files.
 usage: [OBJ_PARTS=finite,total,average,ranks] test_objectives.py SLUICE_BINARY WORKDIR
 """
 
+import json
 import os
 import shutil
 import sys
@@ -44,13 +45,20 @@ import objectives_ref as R  # noqa: E402
 from test_published import howard_toymaker, to_float_model  # noqa: E402
 
 
-def imp(binary, mdp, work, name, objective):
+def imp(binary, mdp, work, name, objective, terminal=None):
     csv = os.path.join(work, name + ".csv")
     h5 = os.path.join(work, name + ".h5")
     mc.write_csv(mdp, csv)
+    extra = []
+    if terminal is not None:
+        tcsv = os.path.join(work, name + "_terminal.csv")
+        with open(tcsv, "w") as f:
+            f.write("state,terminal_value\n")
+            f.write("".join("%d,%r\n" % (s, float(v)) for s, v in reversed(list(enumerate(terminal)))))
+        extra = ["--terminal-values", tcsv]
     mc.run_sluice(binary, ["import", csv, "--discount", repr(mdp.gamma),
                            "--objective", objective, "-o", h5,
-                           "--states", mdp.n])
+                           "--states", mdp.n] + extra)
     return h5
 
 
@@ -134,14 +142,35 @@ def check_finite(chk, binary, work):
     for seed, gamma, H in ((11, 0.95, 7), (12, 1.0, 12)):
         mdp = mc.random_mdp(seed, 60, gamma, actions=(1, 4), successors=(1, 4))
         tag = "finite seed %d H %d" % (seed, H)
-        model = imp(binary, mdp, work, "fin%d" % seed, "finite")
-        # terminal values stored in the model (invented numbers)
+        # terminal values stored in the model (invented numbers), given to
+        # import in reverse state order
         term = np.random.default_rng(seed + 100).uniform(-3, 3, mdp.n)
-        with h5py.File(model, "r+") as f:
-            f["terminal_value"] = term
+        model = imp(binary, mdp, work, "fin%d" % seed, "finite", terminal=term)
+        with h5py.File(model, "r") as f:
+            stored = f["terminal_value"][...]
+        chk.check(np.array_equal(stored, term), "%s: /terminal_value holds the imported values (h5py)" % (
+            "finite seed %d" % seed))
+        # the fingerprint covers /terminal_value: an edited value is refused
+        bad = os.path.join(work, "fin%d_termedit.h5" % seed)
+        shutil.copyfile(model, bad)
+        with h5py.File(bad, "r+") as f:
+            f["terminal_value"][0] = f["terminal_value"][0] + 1.0
+        cp = mc.run_sluice(binary, ["solve", bad, "-o", os.path.join(work, "x.h5"), "--horizon", H],
+                           expect=(mc.EXIT_DATAERR,))
+        chk.check("fingerprint" in cp.stderr, "finite seed %d: an edited /terminal_value is caught by the "
+                  "fingerprint" % seed, cp.stderr[-300:])
+        # the objective's facts in info
+        info = json.loads(mc.run_sluice(binary, ["info", model, "--json"]).stdout)
+        chk.check(info["objective"] == "finite" and info["terminal_values"] is True
+                  and info["terminal_value_min"] == term.min() and info["terminal_value_max"] == term.max(),
+                  "finite seed %d: info reports the objective and the terminal values' range" % seed, "%s" % info)
         sol = os.path.join(work, "fin%d_sol.h5" % seed)
         mc.run_sluice(binary, ["solve", model, "-o", sol, "--horizon", H])
         s = mc.read_solution(sol)
+        si = json.loads(mc.run_sluice(binary, ["info", sol, "--json"]).stdout)
+        chk.check(si["objective"] == "finite" and si["horizon"] == H and si["terminal"] == "model /terminal_value",
+                  "%s: info reports the objective, the horizon and where the terminal values came from" % tag,
+                  "%s" % si)
         V, pol = R.backward_induction(mdp, H, term)
         with h5py.File(sol, "r") as f:
             SV = np.array([f["stage/value_%06d" % t][...] for t in range(H + 1)])
@@ -252,6 +281,14 @@ def check_total(chk, binary, work):
         sol = os.path.join(work, "ssp%d_sol.h5" % seed)
         mc.run_sluice(binary, ["solve", model, "-o", sol, "--tolerance", "1e-9"])
         s = mc.read_solution(sol)
+        # info: the objective's facts of the model and of the solution
+        n_abs = int(np.sum(R.absorbing_states(mdp)))
+        mi = json.loads(mc.run_sluice(binary, ["info", model, "--json"]).stdout)
+        si = json.loads(mc.run_sluice(binary, ["info", sol, "--json"]).stdout)
+        chk.check(mi["objective"] == "total" and mi["n_absorbing"] == n_abs and si["objective"] == "total"
+                  and si["n_absorbing"] == n_abs and si["steps_bound_max"] == s["steps_bound_max"],
+                  "%s: info reports the objective and %d absorbing states (numpy count) for model and "
+                  "solution" % (tag, n_abs), "model %s / solution %s" % (mi.get("n_absorbing"), si.get("n_absorbing")))
         lp = R.total_lp(mdp)
         err = np.max(np.abs(s["value"] - lp))
         chk.check(err <= 1e-9 and err <= s["value_error_bound"] + 1e-9,
@@ -353,6 +390,10 @@ def check_average(chk, binary, work):
               "%r [%r, %r]" % (s["gain"], s["gain_lower"], s["gain_upper"]))
     chk.check(list(s["policy"]) == [2, 2],
               "toymaker: policy advertise/research", str(s["policy"]))
+    si = json.loads(mc.run_sluice(binary, ["info", sol, "--json"]).stdout)
+    chk.check(si["objective"] == "average" and si["gain"] == s["gain"] and si["gain_lower"] == s["gain_lower"]
+              and si["gain_upper"] == s["gain_upper"], "toymaker: info reports the objective and the gain bounds",
+              "%s" % si)
     mc.run_sluice(binary, ["verify", model, sol])
     bad_sol = os.path.join(work, "toy_bad.h5")
     shutil.copy(sol, bad_sol)
@@ -448,6 +489,24 @@ def check_ranks_and_resume(chk, binary, work):
             run_ranks(binary, nr, ["verify", model, out])
         d = max(np.max(np.abs(s["value"] - sols[0]["value"])) for s in sols)
         lim = 0.0 if obj == "finite" else 2e-9
+        if obj != "finite":
+            # policy iteration: the matrix gathered on rank 0 is the same for
+            # any rank count, so the answers agree to roundoff
+            pis = []
+            for nr in (1, 2, 3):
+                out = os.path.join(work, "rkpi_%s_%d.h5" % (obj, nr))
+                run_ranks(binary, nr, ["solve", model, "-o", out, "--method", "pi", "--tolerance", "1e-9"])
+                pis.append(mc.read_solution(out))
+                run_ranks(binary, nr, ["verify", model, out])
+            dp = max(np.max(np.abs(s["value"] - pis[0]["value"])) for s in pis)
+            same = all(np.array_equal(s["policy"], pis[0]["policy"]) for s in pis)
+            # total: the values; average: the gains (the bias of value iteration
+            # is normalised differently)
+            dv = (np.max(np.abs(pis[0]["value"] - sols[0]["value"])) if obj == "total"
+                  else abs(pis[0]["gain"] - sols[0]["gain"]))
+            chk.check(dp <= 1e-12 * (1 + np.max(np.abs(pis[0]["value"]))) and same and dv <= 2e-9,
+                      "%s --method pi: 1, 2 and 3 ranks agree (policy equal, values within 1e-12) and match "
+                      "value iteration" % obj, "max diff %.3g, vs VI %.3g" % (dp, dv))
         chk.check(d <= lim, "%s: 1, 2 and 3 ranks agree (%s)" % (obj,
                   "bitwise" if lim == 0 else "within 2 tolerances"),
                   "max diff %.3g" % d)
@@ -473,13 +532,72 @@ def check_ranks_and_resume(chk, binary, work):
         run_ranks(binary, 3, ["verify", model, res])
 
 
+def check_policy_iteration(chk, binary, work):
+    """--method pi for total and average (UMFPACK evaluation) against LPs
+    solved by HiGHS (scipy linprog): the LP of stochastic shortest paths
+    (Bertsekas & Tsitsiklis 1991, recalled) and the dual LP of the average
+    reward (Puterman 1994, Section 8.8, recalled); verify certifies the output
+    and rejects it once a value is changed."""
+    for seed in (51, 52, 53):
+        tag = "pi total random seed %d" % seed
+        mdp = float_states(random_ssp(seed, 90), 1.0)
+        model = imp(binary, mdp, work, "pit%d" % seed, "total")
+        sol = os.path.join(work, "pit%d_sol.h5" % seed)
+        cp = mc.run_sluice(binary, ["solve", model, "-o", sol, "--method", "pi", "--tolerance", "1e-9"])
+        s = mc.read_solution(sol)
+        lp = R.total_lp(mdp)
+        err = float(np.max(np.abs(s["value"] - lp)))
+        # HiGHS solves to its default feasibility tolerance of 1e-7 (recalled from memory)
+        chk.check(s["method"] == "pi-total" and err <= 1e-7 * (1 + np.max(np.abs(lp))),
+                  "%s: value equals the HiGHS LP optimum" % tag, "err %.3g, method %s" % (err, s["method"]))
+        pairs, _ = mdp.pairs_of_policy(s["policy"])
+        vpi = R.total_policy_value(mdp, pairs)
+        d = float(np.max(np.abs(vpi - s["value"])))
+        chk.check(d <= 1e-9 * (1 + np.max(np.abs(vpi))) and s["value_error_bound"] <= 1e-9,
+                  "%s: the value is the policy's own (scipy spsolve) and certified" % tag,
+                  "diff %.3g, bound %.3g" % (d, s["value_error_bound"]))
+        chk.check("policy iteration" in cp.stderr, "%s: the log shows the policy iterations" % tag)
+        mc.run_sluice(binary, ["verify", model, sol])
+        bad = os.path.join(work, "pit%d_bad.h5" % seed)
+        shutil.copy(sol, bad)
+        with h5py.File(bad, "r+") as f:
+            f["value"][5] += 1e-4
+        mc.run_sluice(binary, ["verify", model, bad], expect=(65,))
+        chk.check(True, "%s: verify certifies the output and rejects a changed value" % tag)
+    for seed in (54, 55, 56):
+        tag = "pi average random seed %d" % seed
+        mdp = float_states(random_unichain(seed, 70), 1.0)
+        model = imp(binary, mdp, work, "pia%d" % seed, "average")
+        sol = os.path.join(work, "pia%d_sol.h5" % seed)
+        mc.run_sluice(binary, ["solve", model, "-o", sol, "--method", "pi", "--tolerance", "1e-9"])
+        s = mc.read_solution(sol)
+        g_lp, _ = R.average_dual_lp(mdp)
+        g_pi, _, _ = R.average_policy_iteration(mdp)
+        chk.check(s["method"] == "pi-average" and abs(s["gain"] - g_lp) <= 1e-7 and abs(s["gain"] - g_pi) <= 1e-10,
+                  "%s: gain equals the dual LP (HiGHS, 1e-7) and numpy policy iteration (1e-10)" % tag,
+                  "%r vs LP %r, numpy %r" % (s["gain"], g_lp, g_pi))
+        chk.check(s["gain_lower"] <= g_pi + 1e-12 and g_pi - 1e-12 <= s["gain_upper"]
+                  and s["gain_upper"] - s["gain_lower"] <= 1e-9,
+                  "%s: the exact gain lies in the certified bounds" % tag,
+                  "[%r, %r]" % (s["gain_lower"], s["gain_upper"]))
+        chk.check(s["value"][0] == 0.0, "%s: the bias is normalised h(0) = 0" % tag)
+        mc.run_sluice(binary, ["verify", model, sol])
+        bad = os.path.join(work, "pia%d_bad.h5" % seed)
+        shutil.copy(sol, bad)
+        with h5py.File(bad, "r+") as f:
+            f["value"][3] += 1e-4
+        mc.run_sluice(binary, ["verify", model, bad], expect=(65,))
+        chk.check(True, "%s: verify certifies the output and rejects a changed bias" % tag)
+
+
 def main():
     # optional: OBJ_PARTS=finite,total,average,ranks (default: all)
-    want = os.environ.get("OBJ_PARTS", "finite,total,average,ranks").split(",")
+    want = os.environ.get("OBJ_PARTS", "finite,total,average,pi,ranks").split(",")
     binary, work = mc.parse_args(sys.argv, "test_objectives.py SLUICE WORKDIR")
     chk = mc.Checker("test_objectives")
     parts = {"finite": check_finite, "total": check_total,
-             "average": check_average, "ranks": check_ranks_and_resume}
+             "average": check_average, "ranks": check_ranks_and_resume,
+             "pi": check_policy_iteration}
     for name in want:
         part = parts[name]
         try:

@@ -134,7 +134,45 @@ def main():
                 worst = max(worst, float(np.max(np.abs(g2[:, 1 + 3 * i] - got[:, 1 + 3 * i]))) / tol)
             chk.check(g2.shape == got.shape and worst <= 1.0, "%d ranks agree with 1 rank within the certificates"
                       % ranks, "worst %.3g of the allowance" % worst)
+    rule_csv(binary, work, model, sol, chk)
     return chk.finish()
+
+
+def rule_csv(binary, work, model, sol, chk):
+    """--compare with a CSV of actions by state labels (a rule operated today):
+    the same totals as scipy's for that policy, and as the same policy given
+    as a solution file."""
+    with h5py.File(model, "r") as f:
+        fp, act = f["state/first_pair"][...], f["pair/action"][...]
+        names = [x.decode() for x in f["labels/factor_name"][...]]
+        size = f["labels/factor_size"][...]
+        sval = f["factor/storage/value"][...]
+        months = [x.decode() for x in f["factor/month/label"][...]]
+        anames = [x.decode() for x in f["labels/action_name"][...]]
+    n = len(fp) - 1
+    # the rule: the largest release offered when the storage index is odd, else the smallest
+    rule = np.array([act[fp[s + 1] - 1] if (s % size[0]) % 2 else act[fp[s]] for s in range(n)])
+    path = os.path.join(work, "rule.csv")
+    with open(path, "w") as f:
+        f.write("month,storage,inflow,action\n")   # any factor order
+        for s in range(n):
+            i, j, k = s % size[0], (s // size[0]) % size[1], s // (size[0] * size[1])
+            f.write("%s,%.6g,@%d,%s\n" % (months[k], sval[i], j, anames[rule[s]]))
+    chk.check(names == ["storage", "inflow", "month"], "factor order of the reservoir", str(names))
+    ruleh5 = os.path.join(work, "rule.h5")
+    shutil.copy(sol, ruleh5)
+    with h5py.File(ruleh5, "r+") as f:
+        f["policy"][...] = rule
+    qn, _, rr = reference(model, rule)
+    _, got, bounds, text = evaluate(binary, work, model, sol, path, "rule")
+    _, goth, _, _ = evaluate(binary, work, model, sol, ruleh5, "ruleh5")
+    chk.check("the policy in %s" % path in text, "the summary names the rule's CSV")
+    for i, q in enumerate(qn):
+        tol = bounds.get(q, 0.0) + 1e-9 * max(1.0, float(np.max(np.abs(rr[q]))))
+        e = float(np.max(np.abs(got[:, 2 + 3 * i] - rr[q])))
+        chk.check(e <= tol, "%s: totals of the CSV rule = scipy spsolve" % q, "max error %.3g, allowed %.3g" % (e, tol))
+        chk.check(np.array_equal(got[:, 2 + 3 * i], goth[:, 2 + 3 * i]),
+                  "%s: the CSV rule gives the same totals as the same policy in a solution file" % q)
 
 
 if __name__ == "__main__":

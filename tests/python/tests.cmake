@@ -22,7 +22,7 @@ if(NOT _sluice_py_ok EQUAL 0)
   set_tests_properties(py_prerequisites PROPERTIES LABELS python)
 else()
   set(_sluice_py_dir ${PROJECT_SOURCE_DIR}/tests/python)
-  foreach(_t lp evaluate published certificate)
+  foreach(_t lp evaluate published certificate estimate units simulate)
     add_test(NAME py_${_t}
       COMMAND ${SLUICE_TEST_PYTHON} ${_sluice_py_dir}/test_${_t}.py
               $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/py_${_t})
@@ -43,7 +43,7 @@ else()
     COMMAND ${SLUICE_TEST_PYTHON} ${_sluice_py_dir}/test_objectives.py
             $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/py_objectives)
   set_tests_properties(py_objectives PROPERTIES LABELS python TIMEOUT 600
-    ENVIRONMENT "OBJ_PARTS=finite,total,average")
+    ENVIRONMENT "OBJ_PARTS=finite,total,average,pi")
   add_test(NAME py_objectives_ranks
     COMMAND ${SLUICE_TEST_PYTHON} ${_sluice_py_dir}/test_objectives.py
             $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/py_objectives_ranks)

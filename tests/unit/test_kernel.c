@@ -127,7 +127,7 @@ static void policy_rows_sweep_is_the_reference_sweep(void **state)
         for (int o = 0; o < 3; o++) {
             sl_model *m = NULL;
             sl_problem P;
-            sl_policy_rows pr;
+            sl_eval_rows pr;
             assert_int_equal(make_model(ctx, &r, stage, &m), SL_OK);
             assert_int_equal(sl_problem_from_model(ctx, m, orders[o], 0, &P), SL_OK);
             if (stage >= 0 && orders[o] == SL_ORDER_AUTO) assert_true(P.staged);
@@ -143,7 +143,7 @@ static void policy_rows_sweep_is_the_reference_sweep(void **state)
                 pol[i] = (int32_t)(next(&s) % (uint64_t)np);
                 x[i] = x2[i] = (double)(next(&s) % 1000) / 7.0;
             }
-            assert_int_equal(sl_policy_rows_build(ctx, &P, pol, &pr), SL_OK);
+            assert_int_equal(sl_eval_rows_build(ctx, &P, pol, &pr), SL_OK);
             for (int sw = 0; sw < 6; sw++) {
                 double d1 = sl_sweep(ctx, &P, x, pol, 1);
                 double d2 = sl_sweep_rows(ctx, &P, x2, &pr);
@@ -157,7 +157,7 @@ static void policy_rows_sweep_is_the_reference_sweep(void **state)
                 nt += P.blk.first_trans[k + 1] - P.blk.first_trans[k];
             }
             assert_int_equal(pr.first[n], nt);
-            sl_policy_rows_free(&pr);
+            sl_eval_rows_free(&pr);
             free(x);
             free(x2);
             free(pol);
