@@ -48,28 +48,10 @@ for r in $(seq 1 "$REPS"); do
     echo "2 ranks, run $r: $(bench_tv "build2.$r.time" wall) s wall"
 done
 
-"$PYTHON" - "$REPS" <<'EOF'
+bench_python "$REPS" <<'EOF'
 import json, re, sys
 
 reps = int(sys.argv[1])
-
-def tv(path):
-    d = {}
-    for line in open(path):
-        line = line.strip()
-        if line.startswith("Elapsed (wall clock)"):
-            w = 0.0
-            for part in line.split()[-1].split(":"):
-                w = w * 60 + float(part)
-            d["wall"] = w
-        elif line.startswith("User time"):
-            d["user"] = float(line.split()[-1])
-        elif line.startswith("System time"):
-            d["sys"] = float(line.split()[-1])
-        elif line.startswith("Maximum resident set size"):
-            d["rss"] = int(line.split()[-1]) * 1024
-    d["cpu"] = d["user"] + d["sys"]
-    return d
 
 def first_json(path):
     text = open(path).read()

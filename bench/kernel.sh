@@ -3,7 +3,8 @@
 # floor for sluice's own sweep (solve.sh), with the targets held two ways:
 # int64 (what the solver held before it switched to 32-bit local columns)
 # and uint32 (what it holds now), side by side in one process
-# (bench/kernel_layout.c).
+# (bench/kernel_layout.c), and uint32 with the probabilities value-indexed
+# (a 2-byte index into the table of distinct values) when there are few.
 #
 # usage: bench/kernel.sh SLUICE_BINARY WORKDIR [SOURCE_DIR]
 #   REPS=15   sweeps per variant;  CC=cc  CFLAGS="-O3"
@@ -49,11 +50,19 @@ for v in d["variants"]:
     print("%-8s %10.3f %10.4f %10.4f %10.4f %10.4f %10.1f %10.1f" % (
         v["targets"], v["bytes_per_sweep"] / 1e9, v["wall_min"], v["wall_median"], v["cpu_min"], v["cpu_median"],
         v["bytes_per_sweep"] / 1e9 / v["wall_min"], v["bytes_per_sweep"] / 1e9 / v["cpu_min"]))
-print("(GB/sweep: 16 or 12 B/transition + 16 B/pair + 28 B/state; GB/s from the minimum times)")
-a, b = d["variants"]
+print("(GB/sweep: 16, 12 or 6 B/transition + 16 B/pair + 28 B/state; GB/s from the minimum times)")
+a, b = d["variants"][:2]
 print()
 print("ratio i64 / u32: wall min %.2f, wall median %.2f, cpu min %.2f, cpu median %.2f" % (
     a["wall_min"] / b["wall_min"], a["wall_median"] / b["wall_median"], a["cpu_min"] / b["cpu_min"],
     a["cpu_median"] / b["cpu_median"]))
+if len(d["variants"]) > 2:
+    c = d["variants"][2]
+    print("ratio u32 / u32v (value-indexed probabilities, %d distinct values): wall min %.2f, wall median %.2f, "
+          "cpu min %.2f, cpu median %.2f" % (d["distinct_probabilities"], b["wall_min"] / c["wall_min"],
+                                             b["wall_median"] / c["wall_median"], b["cpu_min"] / c["cpu_min"],
+                                             b["cpu_median"] / c["cpu_median"]))
+else:
+    print("value-indexed variant skipped: more than 65,536 distinct probabilities")
 print("memory for the targets: i64 %.0f MB, u32 %.0f MB" % (8e-6 * d["transitions"], 4e-6 * d["transitions"]))
 EOF

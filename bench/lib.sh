@@ -96,6 +96,41 @@ bench_tv() {
         }' "$1"
 }
 
+# The Python side of the scripts' reports starts with these definitions
+# (run it with bench_python):
+#   tv(path): a GNU time -v report as a dict: wall, user, sys, cpu (user +
+#   sys) in seconds, rss (peak resident) in bytes, pct (CPU percent, text)
+BENCH_PY_LIB='
+def tv(path):
+    d = {}
+    for line in open(path):
+        line = line.strip()
+        if line.startswith("Elapsed (wall clock)"):
+            w = 0.0
+            for part in line.split()[-1].split(":"):
+                w = w * 60 + float(part)
+            d["wall"] = w
+        elif line.startswith("User time"):
+            d["user"] = float(line.split()[-1])
+        elif line.startswith("System time"):
+            d["sys"] = float(line.split()[-1])
+        elif line.startswith("Maximum resident set size"):
+            d["rss"] = int(line.split()[-1]) * 1024
+        elif line.startswith("Percent of CPU"):
+            d["pct"] = line.split()[-1]
+    d["cpu"] = d["user"] + d["sys"]
+    return d
+'
+
+# bench_python ARGS... <<'EOF' ... EOF: run the Python program on stdin
+# with $PYTHON, BENCH_PY_LIB defined first; ARGS become sys.argv[1:].
+bench_python() {
+    local prog
+    prog=$(cat) || return 70
+    "$PYTHON" -c "$BENCH_PY_LIB
+$prog" "$@"
+}
+
 # bench_big: make sure $BIG (the ~10^6-state reservoir) exists; a file
 # $BIG.params records the parameters it was built with.
 bench_big() {

@@ -39,30 +39,12 @@ for np in $RANKS; do
 done
 
 # shellcheck disable=SC2086  # one argument per method
-"$PYTHON" - "$TOL" "$RANKS" $METHODS <<'EOF'
+bench_python "$TOL" "$RANKS" $METHODS <<'EOF'
 import json, sys
 import numpy as np
 import h5py
 
 tol, ranks, methods = float(sys.argv[1]), [int(r) for r in sys.argv[2].split()], sys.argv[3:]
-
-def tv(path):
-    d = {}
-    for line in open(path):
-        line = line.strip()
-        if line.startswith("Elapsed (wall clock)"):
-            w = 0.0
-            for part in line.split()[-1].split(":"):
-                w = w * 60 + float(part)
-            d["wall"] = w
-        elif line.startswith("User time"):
-            d["user"] = float(line.split()[-1])
-        elif line.startswith("System time"):
-            d["sys"] = float(line.split()[-1])
-        elif line.startswith("Maximum resident set size"):
-            d["rss"] = int(line.split()[-1]) * 1024
-    d["cpu"] = d["user"] + d["sys"]
-    return d
 
 def json_docs(path):
     """sluice info --partition --json prints the model document, then the partition document"""

@@ -37,24 +37,12 @@ for np in $RANKS; do
     done
 done
 
-"$PYTHON" - "$STAGES" $RANKS <<'PYEOF'
+bench_python "$STAGES" $RANKS <<'PYEOF'
 import json, re, sys, glob
 
 stages = int(sys.argv[1])
 ranks = [int(x) for x in sys.argv[2:]]
 
-def tv(path, what):
-    w = u = s = r = 0.0
-    for line in open(path):
-        line = line.strip()
-        if line.startswith("Elapsed (wall clock)"):
-            t = 0.0
-            for part in line.split()[-1].split(":"):
-                t = t * 60 + float(part)
-            w = t
-        elif line.startswith("Maximum resident set size"):
-            r = float(line.split()[-1]) / 1024
-    return {"wall": w, "rss": r}[what]
 
 print("outlook: %d stages; 's/stage' = the stage loop's own clock / N; 'sweep' = one Jacobi sweep from the policy run's report" % stages)
 print("%5s %12s %12s %8s %16s %16s" % ("ranks", "s/stage", "s/sweep", "ratio", "peak RSS/rank MB", "s/stage (wall)"))
@@ -65,10 +53,10 @@ for np_ in ranks:
         sweep = (h[-1]["seconds"] - h[0]["seconds"]) / (h[-1]["sweeps"] - h[0]["sweeps"])
     else:
         sweep = rep["seconds"] / max(1, rep["sweeps"])
-    w0 = tv("ol.%d.0.time" % np_, "wall")
-    wn = tv("ol.%d.%d.time" % (np_, stages), "wall")
+    w0 = tv("ol.%d.0.time" % np_)["wall"]
+    wn = tv("ol.%d.%d.time" % (np_, stages))["wall"]
     per = json.load(open("ol.%d.%d.json" % (np_, stages)))["seconds"] / stages
     perw = (wn - w0) / stages
-    rss = max(tv(p, "rss") for p in glob.glob("ol.%d.%d.time.*" % (np_, stages)))
+    rss = max(tv(p)["rss"] / 1048576 for p in glob.glob("ol.%d.%d.time.*" % (np_, stages)))
     print("%5d %12.4g %12.4g %8.2f %16.0f %16.4g" % (np_, per, sweep, per / sweep if sweep > 0 else float("nan"), rss, perw))
 PYEOF

@@ -35,24 +35,11 @@ bench_record_params
 mem_avail=$(awk '/MemAvailable/ {print $2 * 1024}' /proc/meminfo)
 disk_free=$(df -Pk "$WORK" | awk 'NR == 2 {print $4 * 1024}')
 # shellcheck disable=SC2086  # one argument per size
-choice=$("$PYTHON" - "$mem_avail" "$disk_free" "$MAX_BUILD_SECONDS" $TARGET_STATES 2>part.estimate.txt <<'EOF'
+choice=$(bench_python "$mem_avail" "$disk_free" "$MAX_BUILD_SECONDS" $TARGET_STATES 2>part.estimate.txt <<'EOF'
 import json, sys
 mem_avail, disk_free, max_s = float(sys.argv[1]), float(sys.argv[2]), float(sys.argv[3])
 targets = [int(x) for x in sys.argv[4:]]
-t = {}
-for line in open("part.calib.time"):
-    line = line.strip()
-    if line.startswith("Elapsed (wall clock)"):
-        w = 0.0
-        for part in line.split()[-1].split(":"):
-            w = w * 60 + float(part)
-        t["wall"] = w
-    elif line.startswith("User time"):
-        t["user"] = float(line.split()[-1])
-    elif line.startswith("System time"):
-        t["sys"] = float(line.split()[-1])
-    elif line.startswith("Maximum resident set size"):
-        t["rss"] = int(line.split()[-1]) * 1024
+t = tv("part.calib.time")
 info = json.JSONDecoder().raw_decode(open("part.calib.info.json").read())[0]
 S, T = info["n_states"], info["n_transitions"]
 tr_per_state = T / S
@@ -110,27 +97,9 @@ for n in $PARTS; do
 done
 
 # shellcheck disable=SC2086  # one argument per rank count
-"$PYTHON" - "$LARGE" $PARTS <<'EOF'
+bench_python "$LARGE" $PARTS <<'EOF'
 import json, sys
 large, parts = sys.argv[1], [int(x) for x in sys.argv[2:]]
-
-def tv(path):
-    d = {}
-    for line in open(path):
-        line = line.strip()
-        if line.startswith("Elapsed (wall clock)"):
-            w = 0.0
-            for part in line.split()[-1].split(":"):
-                w = w * 60 + float(part)
-            d["wall"] = w
-        elif line.startswith("User time"):
-            d["user"] = float(line.split()[-1])
-        elif line.startswith("System time"):
-            d["sys"] = float(line.split()[-1])
-        elif line.startswith("Maximum resident set size"):
-            d["rss"] = int(line.split()[-1]) * 1024
-    d["cpu"] = d["user"] + d["sys"]
-    return d
 
 def docs(path):
     text, out, i = open(path).read(), [], 0

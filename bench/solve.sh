@@ -67,32 +67,12 @@ for m in $METHODS; do
 done
 
 # shellcheck disable=SC2086  # one argument per method
-"$PYTHON" - "$BIG" "$TOL" $METHODS <<'EOF'
+bench_python "$BIG" "$TOL" $METHODS <<'EOF'
 import json, os, re, sys
 import numpy as np
 import h5py
 
 big, tol, methods = sys.argv[1], float(sys.argv[2]), sys.argv[3:]
-
-def tv(path):
-    d = {}
-    for line in open(path):
-        line = line.strip()
-        if line.startswith("Elapsed (wall clock)"):
-            w = 0.0
-            for part in line.split()[-1].split(":"):
-                w = w * 60 + float(part)
-            d["wall"] = w
-        elif line.startswith("User time"):
-            d["user"] = float(line.split()[-1])
-        elif line.startswith("System time"):
-            d["sys"] = float(line.split()[-1])
-        elif line.startswith("Maximum resident set size"):
-            d["rss"] = int(line.split()[-1]) * 1024
-        elif line.startswith("Percent of CPU"):
-            d["pct"] = line.split()[-1]
-    d["cpu"] = d["user"] + d["sys"]
-    return d
 
 def last_json_line(path):
     for line in reversed(open(path).read().splitlines()):

@@ -299,6 +299,13 @@ SLUICE_API sl_status sl_solver_set_monitor(sl_solver *s, sl_monitor_fn fn, void 
  * checkpoint was written); SL_EUSAGE when the tolerance is below the
  * model's roundoff floor (*x is set too). On other errors *x is NULL. */
 SLUICE_API sl_status sl_solver_solve(sl_solver *s, const sl_model *m, sl_solution **x);
+/* The same, lean on memory: the solver takes the model's rows instead of
+ * copying them (peak memory about one copy of the rows instead of two).
+ * Afterwards m keeps its description (counts, discount, fingerprint,
+ * names) but not its rows; solving, saving or evaluating it again fails
+ * with SL_EUSAGE. Free it as usual. (With a visit bonus or penalty the
+ * rows are left in place, as sl_solver_solve does.) */
+SLUICE_API sl_status sl_solver_solve_lean(sl_solver *s, sl_model *m, sl_solution **x);
 
 /* Value of a fixed policy (the actions of `policy`): exact (UMFPACK) when it
  * fits the memory limit, else iterative to the solver's tolerance. *values

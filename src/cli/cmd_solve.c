@@ -361,7 +361,8 @@ static int run_solve(cli_args *a, const solve_args *o)
         rc = cli_fail(a, st);
     }
     if (rc == 0) {
-        sl_status st = sl_solver_solve(s, m, &x);
+        /* only the model's description is needed after this */
+        sl_status st = sl_solver_solve_lean(s, m, &x);
         if (x != NULL) {
             /* certified, stopped early or below the roundoff floor: the
              * solution is honest either way; write it, then say how it ended */

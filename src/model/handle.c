@@ -275,6 +275,10 @@ sl_status sl_model_check_ready(sl_ctx *ctx, const sl_model *m, const char *what)
 {
     if (m == NULL) return SL_ERR(ctx, SL_EUSAGE, "%s: no model", what);
     if (!m->assembled) return SL_ERR(ctx, SL_EUSAGE, "%s: the model is not assembled (call sl_model_assemble)", what);
+    if (m->rows_released)
+        return SL_ERR(ctx, SL_EUSAGE,
+                      "%s: the model's rows were handed to an earlier solve (sl_solver_solve_lean); load it again",
+                      what);
     return SL_OK;
 }
 

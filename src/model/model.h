@@ -157,6 +157,8 @@ struct sl_model {
     char name[4096];            /* for messages: the file it was loaded from or its source */
     int have_rows;              /* sl_model_set_rows was called on this rank */
     int assembled;
+    int rows_released;          /* a solve took the rows (sl_solver_solve_lean):
+                                 * only the description is left */
 };
 
 /* Wrap rows that are already validated, rebased to global offsets and

@@ -124,7 +124,7 @@ void sl_halo_free(sl_halo *h)
     memset(h, 0, sizeof(*h));
 }
 
-sl_status sl_halo_build(sl_ctx *ctx, const int64_t *bounds, sl_block *b, sl_halo *h)
+sl_status sl_halo_build(sl_ctx *ctx, const int64_t *bounds, sl_block *b, int in_place, sl_halo *h)
 {
     sl_status st = SL_OK;
     int P = ctx->size;
@@ -154,13 +154,19 @@ sl_status sl_halo_build(sl_ctx *ctx, const int64_t *bounds, sl_block *b, sl_halo
     }
     /* local columns in 32 bits: 12 instead of 16 bytes per transition in the
      * memory-bound sweeps */
-    if (st == SL_OK && SL_ALLOC(ctx, b->col, nt, "local columns") == NULL) st = SL_ENOMEM;
+    if (st == SL_OK && !in_place && SL_ALLOC(ctx, b->col, nt, "local columns") == NULL) st = SL_ENOMEM;
     if (st == SL_OK) {
         int64_t u = h->n_halo;
+        /* in place: column t (bytes 4t..4t+3) overwrites only targets
+         * already read (those at or below t/2); bytes are moved with
+         * memcpy, so no pointer of another type reads them */
+        unsigned char *buf = (unsigned char *)b->target;
         for (int64_t t = 0; t < nt; t++) {
-            int64_t g = b->target[t];
+            int64_t g;
+            memcpy(&g, buf + 8 * t, sizeof(g));
+            uint32_t c;
             if (g >= s0 && g < s1) {
-                b->col[t] = (uint32_t)(g - s0);
+                c = (uint32_t)(g - s0);
             } else {
                 int64_t lo = 0, hi = u - 1;
                 while (lo < hi) {
@@ -168,8 +174,17 @@ sl_status sl_halo_build(sl_ctx *ctx, const int64_t *bounds, sl_block *b, sl_halo
                     if (h->halo_global[mid] < g) lo = mid + 1;
                     else hi = mid;
                 }
-                b->col[t] = (uint32_t)(h->n_local + lo);
+                c = (uint32_t)(h->n_local + lo);
             }
+            if (in_place) memcpy(buf + 4 * t, &c, sizeof(c));
+            else b->col[t] = c;
+        }
+        if (in_place) {
+            /* shrinking cannot fail for lack of memory; if realloc says
+             * no, the larger block stays valid */
+            void *shrunk = nt > 0 ? realloc(buf, (size_t)nt * sizeof(uint32_t)) : NULL;
+            b->col = shrunk != NULL ? (uint32_t *)shrunk : (uint32_t *)(void *)buf;
+            b->target = NULL;
         }
     }
     if (SL_ZALLOC(ctx, cnt_recv, P, "halo") == NULL || SL_ZALLOC(ctx, cnt_send, P, "halo") == NULL ||

@@ -42,9 +42,11 @@ typedef struct sl_halo {
 } sl_halo;
 
 /* Build the halo of a block: b->col gets the local column of every
- * transition in [owned | halo]; b->target (global ids) is left as it is.
- * Collective. */
-sl_status sl_halo_build(sl_ctx *ctx, const int64_t *bounds, sl_block *b, sl_halo *h);
+ * transition in [owned | halo]; b->target (global ids) is left as it is,
+ * or with in_place (the caller owns b) the columns are written over the
+ * targets' memory, which then shrinks to 4 bytes per transition and
+ * b->target becomes NULL (no second array at the peak). Collective. */
+sl_status sl_halo_build(sl_ctx *ctx, const int64_t *bounds, sl_block *b, int in_place, sl_halo *h);
 /* Refresh the halo part of x from the owners. Collective. */
 sl_status sl_halo_exchange(sl_ctx *ctx, const sl_halo *h, double *x);
 void sl_halo_free(sl_halo *h);
@@ -85,9 +87,12 @@ sl_status sl_stage_runs(sl_ctx *ctx, const sl_stage_map *m, int r, int64_t **run
 /* Move rows from their current layout (src: this rank's contiguous file
  * range, src_bounds of all ranks, global file targets) to the
  * stage-interleaved one: out gets this rank's states in internal order
- * with targets as internal ids (out->target kept). Collective. */
+ * with targets as internal ids (out->target kept). release: NULL, or the
+ * block src points to, which is freed as soon as its rows are packed for
+ * sending (lower peak memory when the caller no longer needs them).
+ * Collective. */
 sl_status sl_stage_redistribute(sl_ctx *ctx, const sl_block *src, const int64_t *src_bounds, const sl_stage_map *m,
-                                sl_block *out);
+                                sl_block *release, sl_block *out);
 /* Per-stage exchange plan for a halo built on the stage-interleaved
  * bounds (bounds[r] = S*ub[r]). Local. */
 sl_status sl_halo_stage_plan(sl_ctx *ctx, const sl_stage_map *m, sl_halo *h);

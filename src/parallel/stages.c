@@ -142,7 +142,7 @@ sl_status sl_stage_runs(sl_ctx *ctx, const sl_stage_map *m, int r, int64_t **run
 static int fits_int(int64_t v) { return v >= 0 && v <= INT32_MAX; }
 
 sl_status sl_stage_redistribute(sl_ctx *ctx, const sl_block *src, const int64_t *src_bounds, const sl_stage_map *m,
-                                sl_block *out)
+                                sl_block *release, sl_block *out)
 {
     sl_status st = SL_OK;
     int P = ctx->size, r = ctx->rank;
@@ -152,7 +152,7 @@ sl_status sl_stage_redistribute(sl_ctx *ctx, const sl_block *src, const int64_t 
     int64_t *req = NULL, *reqpos = NULL, *asked = NULL, *cur = NULL;
     int64_t *snp = NULL, *rnp = NULL, *sntr = NULL, *rntr = NULL, *stg = NULL, *rtg = NULL;
     int32_t *sact = NULL, *ract = NULL;
-    double *srew = NULL, *rrew = NULL, *spr = NULL, *rpr = NULL;
+    double *srew = NULL, *rrew = NULL;
     int64_t *poff = NULL, *toff = NULL;
     memset(out, 0, sizeof(*out));
     if (SL_ZALLOC(ctx, qc, P, "redistribution") == NULL || SL_ZALLOC(ctx, qd, P, "redistribution") == NULL ||
@@ -210,29 +210,25 @@ sl_status sl_stage_redistribute(sl_ctx *ctx, const sl_block *src, const int64_t 
         sp += cp;
         stt += ct;
     }
+    /* the pair records go first; then the transitions' two arrays one at a
+     * time (pack, let the source array go if allowed, exchange, put in
+     * order), so about 1.5 copies of the transitions are held at the peak
+     * instead of 2 */
     if (st == SL_OK &&
         (SL_ALLOC(ctx, snp, na, "redistribution") == NULL || SL_ALLOC(ctx, sact, sp, "redistribution") == NULL ||
-         SL_ALLOC(ctx, srew, sp, "redistribution") == NULL || SL_ALLOC(ctx, sntr, sp, "redistribution") == NULL ||
-         SL_ALLOC(ctx, stg, stt, "redistribution") == NULL || SL_ALLOC(ctx, spr, stt, "redistribution") == NULL))
+         SL_ALLOC(ctx, srew, sp, "redistribution") == NULL || SL_ALLOC(ctx, sntr, sp, "redistribution") == NULL))
         st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
-    for (int64_t k = 0, kp = 0, kt = 0; k < na; k++) {
+    for (int64_t k = 0, kp = 0; k < na; k++) {
         int64_t i = asked[k] - src->s_begin;
         int64_t p0 = src->first_pair[i] - src->p_begin, p1 = src->first_pair[i + 1] - src->p_begin;
         snp[k] = p1 - p0;
         for (int64_t q = p0; q < p1; q++, kp++) {
             sact[kp] = src->action[q];
             srew[kp] = src->reward[q];
-            int64_t t0 = src->first_trans[q] - src->t_begin, t1 = src->first_trans[q + 1] - src->t_begin;
-            sntr[kp] = t1 - t0;
-            for (int64_t t = t0; t < t1; t++, kt++) {
-                stg[kt] = sl_stage_internal(m, src->target[t]);
-                spr[kt] = src->prob[t];
-            }
+            sntr[kp] = src->first_trans[q + 1] - src->first_trans[q];
         }
     }
-    free(asked);
-    asked = NULL;
     MPI_Alltoall(pc, 1, MPI_INT, rpc, 1, MPI_INT, ctx->comm);
     MPI_Alltoall(tc, 1, MPI_INT, rtc, 1, MPI_INT, ctx->comm);
     int64_t np = 0, nt = 0;
@@ -245,22 +241,22 @@ sl_status sl_stage_redistribute(sl_ctx *ctx, const sl_block *src, const int64_t 
     }
     if (st == SL_OK &&
         (SL_ALLOC(ctx, rnp, ns, "redistribution") == NULL || SL_ALLOC(ctx, ract, np, "redistribution") == NULL ||
-         SL_ALLOC(ctx, rrew, np, "redistribution") == NULL || SL_ALLOC(ctx, rntr, np, "redistribution") == NULL ||
-         SL_ALLOC(ctx, rtg, nt, "redistribution") == NULL || SL_ALLOC(ctx, rpr, nt, "redistribution") == NULL))
+         SL_ALLOC(ctx, rrew, np, "redistribution") == NULL || SL_ALLOC(ctx, rntr, np, "redistribution") == NULL))
         st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
     MPI_Alltoallv(snp, ac, ad, MPI_INT64_T, rnp, qc, qd, MPI_INT64_T, ctx->comm);
     MPI_Alltoallv(sact, pc, pd, MPI_INT32_T, ract, rpc, rpd, MPI_INT32_T, ctx->comm);
     MPI_Alltoallv(srew, pc, pd, MPI_DOUBLE, rrew, rpc, rpd, MPI_DOUBLE, ctx->comm);
     MPI_Alltoallv(sntr, pc, pd, MPI_INT64_T, rntr, rpc, rpd, MPI_INT64_T, ctx->comm);
-    MPI_Alltoallv(stg, tc, td, MPI_INT64_T, rtg, rtc, rtd, MPI_INT64_T, ctx->comm);
-    MPI_Alltoallv(spr, tc, td, MPI_DOUBLE, rpr, rtc, rtd, MPI_DOUBLE, ctx->comm);
+    free(snp), free(sact), free(srew), free(sntr);
+    snp = sntr = NULL;
+    sact = NULL;
+    srew = NULL;
     /* 3. received records are in request order; put them in internal order */
     if (SL_ALLOC(ctx, poff, ns + 1, "redistribution") == NULL || SL_ALLOC(ctx, toff, np + 1, "redistribution") == NULL ||
         SL_ALLOC(ctx, out->first_pair, ns + 1, "first_pair") == NULL ||
         SL_ALLOC(ctx, out->first_trans, np + 1, "first_transition") == NULL ||
-        SL_ALLOC(ctx, out->action, np, "actions") == NULL || SL_ALLOC(ctx, out->reward, np, "rewards") == NULL ||
-        SL_ALLOC(ctx, out->target, nt, "targets") == NULL || SL_ALLOC(ctx, out->prob, nt, "probabilities") == NULL)
+        SL_ALLOC(ctx, out->action, np, "actions") == NULL || SL_ALLOC(ctx, out->reward, np, "rewards") == NULL)
         st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
     poff[0] = 0;
@@ -281,19 +277,74 @@ sl_status sl_stage_redistribute(sl_ctx *ctx, const sl_block *src, const int64_t 
         for (int64_t q = poff[k]; q < poff[k + 1]; q++, pp++) {
             out->action[pp] = ract[q];
             out->reward[pp] = rrew[q];
-            int64_t n_t = toff[q + 1] - toff[q];
-            memcpy(out->target + tt, rtg + toff[q], (size_t)n_t * sizeof(int64_t));
-            memcpy(out->prob + tt, rpr + toff[q], (size_t)n_t * sizeof(double));
-            tt += n_t;
+            tt += toff[q + 1] - toff[q];
             out->first_trans[pp + 1] = t_begin + tt;
         }
         out->first_pair[j + 1] = p_begin + pp;
     }
+    /* the transitions: pass 0 the targets (as internal ids), pass 1 the
+     * probabilities; both are 8-byte values moved as bytes */
+    MPI_Datatype t8;
+    MPI_Type_contiguous(8, MPI_BYTE, &t8);
+    MPI_Type_commit(&t8);
+    for (int pass = 0; pass < 2 && st == SL_OK; pass++) {
+        if (SL_ALLOC(ctx, stg, stt, "redistribution") == NULL) st = SL_ENOMEM;
+        st = sl_agree(ctx, st);
+        if (st != SL_OK) break;
+        unsigned char *sb = (unsigned char *)stg;
+        for (int64_t k = 0, kt = 0; k < na; k++) {
+            int64_t i = asked[k] - src->s_begin;
+            int64_t p0 = src->first_pair[i] - src->p_begin, p1 = src->first_pair[i + 1] - src->p_begin;
+            int64_t t0 = src->first_trans[p0] - src->t_begin, t1 = src->first_trans[p1] - src->t_begin;
+            if (pass == 0) {
+                for (int64_t t = t0; t < t1; t++, kt++) {
+                    int64_t v = sl_stage_internal(m, src->target[t]);
+                    memcpy(sb + 8 * kt, &v, 8);
+                }
+            } else {
+                memcpy(sb + 8 * kt, src->prob + t0, (size_t)(t1 - t0) * 8);
+                kt += t1 - t0;
+            }
+        }
+        /* packed: the source array may go */
+        if (release != NULL && pass == 0) {
+            free(release->target);
+            release->target = NULL;
+        } else if (release != NULL) {
+            free(release->prob);
+            release->prob = NULL;
+        }
+        if (SL_ALLOC(ctx, rtg, nt, "redistribution") == NULL) st = SL_ENOMEM;
+        st = sl_agree(ctx, st);
+        if (st != SL_OK) break;
+        MPI_Alltoallv(stg, tc, td, t8, rtg, rtc, rtd, t8, ctx->comm);
+        free(stg);
+        stg = NULL;
+        if (pass == 0 && SL_ALLOC(ctx, out->target, nt, "targets") == NULL) st = SL_ENOMEM;
+        if (pass == 1 && SL_ALLOC(ctx, out->prob, nt, "probabilities") == NULL) st = SL_ENOMEM;
+        st = sl_agree(ctx, st);
+        if (st != SL_OK) break;
+        unsigned char *ob = pass == 0 ? (unsigned char *)out->target : (unsigned char *)out->prob;
+        const unsigned char *rb = (const unsigned char *)rtg;
+        for (int64_t j = 0, tt = 0; j < ns; j++) {
+            int64_t k = reqpos[j];
+            for (int64_t q = poff[k]; q < poff[k + 1]; q++) {
+                int64_t n_t = toff[q + 1] - toff[q];
+                memcpy(ob + 8 * tt, rb + 8 * toff[q], (size_t)n_t * 8);
+                tt += n_t;
+            }
+        }
+        free(rtg);
+        rtg = NULL;
+    }
+    MPI_Type_free(&t8);
+    /* the source rows are moved: the caller may let the rest go now */
+    if (st == SL_OK && release != NULL) sl_block_free(release);
 cleanup:
     free(qc), free(qd), free(ac), free(ad), free(pc), free(pd), free(rpc), free(rpd);
     free(tc), free(td), free(rtc), free(rtd), free(cur), free(req), free(reqpos), free(asked);
     free(snp), free(rnp), free(sntr), free(rntr), free(stg), free(rtg), free(sact), free(ract);
-    free(srew), free(rrew), free(spr), free(rpr), free(poff), free(toff);
+    free(srew), free(rrew), free(poff), free(toff);
     if (st != SL_OK) sl_block_free(out);
     return st;
 }

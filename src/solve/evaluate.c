@@ -366,11 +366,15 @@ cleanup:
 sl_status sl_evaluate_iterative(sl_ctx *ctx, const sl_problem *p, const int32_t *policy, double tol,
                                 int64_t max_sweeps, double *x, double *y, sl_check *c, int64_t *sweeps)
 {
-    int32_t *pol = (int32_t *)policy; /* eval sweeps do not modify it */
+    sl_status st = SL_OK;
+    sl_eval_rows rows;
     *sweeps = 0;
     int64_t since = 0, interval = 1;
+    /* the sweeps run over the policy's transitions laid out contiguously;
+     * the checks (and so the certificate) use the model's rows */
+    SL_TRY(sl_agree(ctx, sl_eval_rows_build(ctx, p, policy, &rows)));
     for (;;) {
-        sl_sweep(ctx, p, x, pol, 1);
+        sl_sweep_rows(ctx, p, x, &rows);
         (*sweeps)++;
         if (++since >= interval) {
             since = 0;
@@ -382,14 +386,19 @@ sl_status sl_evaluate_iterative(sl_ctx *ctx, const sl_problem *p, const int32_t 
             /* for a fixed policy the bounds hold with T_pi in place of T */
             if (c->value_error <= tol) {
                 sl_midpoint(p, y, c, x);
-                return SL_OK;
+                break;
             }
             memcpy(x, y, (size_t)p->n_local * sizeof(double));
         }
-        if (max_sweeps > 0 && *sweeps >= max_sweeps)
-            return SL_ERR(ctx, SL_ESTOPPED, "iterative evaluation stopped after %lld sweeps at error bound %.3e",
-                          (long long)*sweeps, c->value_error);
+        if (max_sweeps > 0 && *sweeps >= max_sweeps) {
+            st = SL_ERR(ctx, SL_ESTOPPED, "iterative evaluation stopped after %lld sweeps at error bound %.3e",
+                        (long long)*sweeps, c->value_error);
+            break;
+        }
     }
+cleanup:
+    sl_eval_rows_free(&rows);
+    return st;
 }
 
 /* Prepare a model and the policy of a solution for it: pair offsets of the

@@ -63,7 +63,9 @@ static sl_status build_order(sl_ctx *ctx, sl_problem *p, sl_order order)
     return SL_OK;
 }
 
-sl_status sl_problem_from_model(sl_ctx *ctx, const sl_model *m, sl_order order, int allow_any, sl_problem *p)
+/* take: m itself (non-const), whose rows may be moved or freed, or NULL */
+static sl_status problem_build(sl_ctx *ctx, const sl_model *m, sl_model *take, sl_order order, int allow_any,
+                               sl_problem *p)
 {
     sl_status st = SL_OK;
     memset(p, 0, sizeof(*p));
@@ -93,8 +95,17 @@ sl_status sl_problem_from_model(sl_ctx *ctx, const sl_model *m, sl_order order, 
     if (p->stages.active)
         for (int r = 0; r <= ctx->size; r++) p->bounds[r] = p->stages.n_stages * p->stages.ub[r];
     if (p->stages.active && !same) {
-        SL_TRY(sl_stage_redistribute(ctx, &m->blk, m->bounds, &p->stages, &p->blk));
+        /* marked first: a failed move may have freed some of the rows */
+        if (take) take->rows_released = 1;
+        SL_TRY(sl_stage_redistribute(ctx, &m->blk, m->bounds, &p->stages, take ? &take->blk : NULL, &p->blk));
         p->owns_rows = 1;
+    } else if (take) {
+        /* the rows move into the problem */
+        p->blk = take->blk;
+        memset(&take->blk, 0, sizeof(take->blk));
+        take->rows_released = 1;
+        p->owns_rows = 1;
+        memcpy(p->bounds, m->bounds, (size_t)(ctx->size + 1) * sizeof(int64_t));
     } else {
         /* borrow the rows; only the local columns are this problem's own */
         p->blk = m->blk;
@@ -107,13 +118,24 @@ sl_status sl_problem_from_model(sl_ctx *ctx, const sl_model *m, sl_order order, 
     for (int64_t k = 0; k < sl_block_pairs(&p->blk); k++)
         if (fabs(p->blk.reward[k]) > rmax) rmax = fabs(p->blk.reward[k]);
     p->rmax_abs = sl_max(ctx, rmax);
-    SL_TRY(sl_halo_build(ctx, p->bounds, &p->blk, &p->halo));
+    /* rows of the problem's own: the local columns replace the targets */
+    SL_TRY(sl_halo_build(ctx, p->bounds, &p->blk, p->owns_rows, &p->halo));
     if (p->stages.active) SL_TRY(sl_agree(ctx, sl_halo_stage_plan(ctx, &p->stages, &p->halo)));
     SL_TRY(sl_io_plan_build(ctx, &p->stages, p->bounds, m->bounds, &p->io));
     SL_TRY(sl_agree(ctx, build_order(ctx, p, order)));
 cleanup:
     if (st != SL_OK) sl_problem_free(p);
     return st;
+}
+
+sl_status sl_problem_from_model(sl_ctx *ctx, const sl_model *m, sl_order order, int allow_any, sl_problem *p)
+{
+    return problem_build(ctx, m, NULL, order, allow_any, p);
+}
+
+sl_status sl_problem_from_model_taking(sl_ctx *ctx, sl_model *m, sl_order order, sl_problem *p)
+{
+    return problem_build(ctx, m, m, order, 0, p);
 }
 
 sl_status sl_problem_visit_adjust(sl_ctx *ctx, sl_problem *p, const sl_model *m, double c)
@@ -308,25 +330,101 @@ static double sweep_part(const sl_problem *p, double *x, int32_t *policy, int ev
     return delta;
 }
 
+/* The fixed-policy sweep over the policy's own rows: the same sums as
+ * qval() over the model's rows, term by term. */
+static double sweep_rows_part(const sl_problem *p, const sl_eval_rows *r, double *x, int64_t j0, int64_t j1)
+{
+    const uint32_t *restrict first = r->first, *restrict col = r->col;
+    const double *restrict prob = r->prob, *restrict rew = r->reward;
+    const int64_t *restrict order = p->order;
+    double gamma = p->gamma, delta = 0;
+    for (int64_t j = j0; j < j1; j++) {
+        double acc = 0.0;
+        for (uint32_t t = first[j]; t < first[j + 1]; t++) acc += prob[t] * x[col[t]];
+        double v = rew[j] + gamma * acc;
+        int64_t i = order[j];
+        double dd = fabs(v - x[i]);
+        delta = dd > delta ? dd : delta;
+        x[i] = v;
+    }
+    return delta;
+}
+
+void sl_eval_rows_free(sl_eval_rows *rows)
+{
+    if (rows == NULL) return;
+    free(rows->first);
+    free(rows->col);
+    free(rows->prob);
+    free(rows->reward);
+    memset(rows, 0, sizeof(*rows));
+}
+
+sl_status sl_eval_rows_build(sl_ctx *ctx, const sl_problem *p, const int32_t *policy, sl_eval_rows *rows)
+{
+    const sl_block *b = &p->blk;
+    int64_t n = p->n_local, nt = 0;
+    memset(rows, 0, sizeof(*rows));
+    for (int64_t i = 0; i < n; i++) {
+        int64_t k = b->first_pair[i] - b->p_begin + policy[i];
+        nt += b->first_trans[k + 1] - b->first_trans[k];
+    }
+    if (nt > (int64_t)UINT32_MAX)
+        return SL_ERR(ctx, SL_EDATA, "%s: the policy has %lld transitions on rank %d, more than 32-bit offsets address",
+                      p->path, (long long)nt, ctx->rank);
+    if (SL_ALLOC(ctx, rows->first, n + 1, "policy rows") == NULL || SL_ALLOC(ctx, rows->col, nt, "policy rows") == NULL ||
+        SL_ALLOC(ctx, rows->prob, nt, "policy rows") == NULL || SL_ALLOC(ctx, rows->reward, n, "policy rows") == NULL) {
+        sl_eval_rows_free(rows);
+        return SL_ENOMEM;
+    }
+    uint32_t w = 0;
+    for (int64_t j = 0; j < n; j++) {
+        int64_t i = p->order[j], k = b->first_pair[i] - b->p_begin + policy[i];
+        int64_t t0 = b->first_trans[k] - b->t_begin, t1 = b->first_trans[k + 1] - b->t_begin;
+        rows->first[j] = w;
+        rows->reward[j] = b->reward[k];
+        for (int64_t t = t0; t < t1; t++, w++) {
+            rows->col[w] = b->col[t];
+            rows->prob[w] = b->prob[t];
+        }
+    }
+    rows->first[n] = w;
+    rows->n = n;
+    return SL_OK;
+}
+
 double sl_sweep_gs(const sl_problem *p, double *x, int32_t *policy, int eval)
 {
     return sweep_part(p, x, policy, eval, 0, p->n_local);
 }
 
-double sl_sweep(sl_ctx *ctx, const sl_problem *p, double *x, int32_t *policy, int eval)
+/* Both sweeps: with rows, the fixed-policy sweep over them; else over the
+ * model's rows. */
+static double sweep_any(sl_ctx *ctx, const sl_problem *p, double *x, int32_t *policy, int eval,
+                        const sl_eval_rows *rows)
 {
     sl_halo_exchange(ctx, &p->halo, x);
-    if (!p->staged) return sl_sweep_gs(p, x, policy, eval);
-    int64_t S = p->stages.n_stages, w = p->n_local / S;
+    int64_t S = p->staged ? p->stages.n_stages : 1, w = p->n_local / S;
     double delta = 0;
     for (int64_t k = 0; k < S; k++) {
-        double d = sweep_part(p, x, policy, eval, k * w, (k + 1) * w);
+        double d = rows ? sweep_rows_part(p, rows, x, k * w, (k + 1) * w)
+                        : sweep_part(p, x, policy, eval, k * w, (k + 1) * w);
         if (d > delta) delta = d;
         /* order position k holds stage S-1-k; the next stage reads it (the
          * last one's values are refreshed by the next sweep's exchange) */
         if (k + 1 < S) sl_halo_exchange_stage(ctx, &p->halo, x, S - 1 - k);
     }
     return delta;
+}
+
+double sl_sweep(sl_ctx *ctx, const sl_problem *p, double *x, int32_t *policy, int eval)
+{
+    return sweep_any(ctx, p, x, policy, eval, NULL);
+}
+
+double sl_sweep_rows(sl_ctx *ctx, const sl_problem *p, double *x, const sl_eval_rows *rows)
+{
+    return sweep_any(ctx, p, x, NULL, 1, rows);
 }
 
 int64_t sl_problem_file_state(const sl_problem *p, int64_t i) { return sl_stage_file(&p->stages, p->blk.s_begin + i); }

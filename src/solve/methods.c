@@ -27,6 +27,7 @@ typedef struct run {
     sl_check last;
     int have_check;
     void *lu;               /* PI: cached factorization */
+    sl_eval_rows prow;    /* MPI: the stable policy's transitions, contiguous (first == NULL: none) */
     char evaluation[16];
     double lu_estimate;
     int64_t n_ckpt;
@@ -300,7 +301,7 @@ static int step_jacobi(run *r)
     return 0;
 }
 
-static int step_mpi(run *r)
+static int step_mpi(run *r, sl_status *st)
 {
     int c = check(r, r->pol); /* improvement: greedy policy + certificate */
     r->S.sweeps++;
@@ -308,9 +309,18 @@ static int step_mpi(run *r)
     double *t = r->x;
     r->x = r->y;
     r->y = t;
+    /* once no action changed, the evaluation sweeps run over the policy's
+     * own transitions, laid out contiguously; a change drops them (the
+     * count of changes is global, so all ranks decide alike) */
+    if (r->last.changed > 0) sl_eval_rows_free(&r->prow);
+    else if (r->prow.first == NULL) {
+        *st = sl_agree(r->ctx, sl_eval_rows_build(r->ctx, &r->P, r->pol, &r->prow));
+        if (*st != SL_OK) return -1;
+    }
     int64_t m = r->o->sweeps > 0 ? r->o->sweeps : r->S.mpi_m;
     for (int64_t j = 0; j < m; j++) {
-        sl_sweep(r->ctx, &r->P, r->x, r->pol, 1);
+        if (r->prow.first != NULL) sl_sweep_rows(r->ctx, &r->P, r->x, &r->prow);
+        else sl_sweep(r->ctx, &r->P, r->x, r->pol, 1);
         r->S.sweeps++;
     }
     /* adapt m: a stable policy deserves longer evaluation (Puterman & Shin 1978
@@ -378,7 +388,8 @@ static int step_pi(run *r, sl_status *st)
     return 0;
 }
 
-sl_status sl_solver_solve(sl_solver *o, const sl_model *m, sl_solution **xout)
+/* take: m itself when the solve may take its rows (sl_solver_solve_lean) */
+static sl_status solve_model(sl_solver *o, const sl_model *m, sl_model *take, sl_solution **xout)
 {
     if (o == NULL) return SL_EUSAGE;
     sl_ctx *ctx = o->ctx;
@@ -401,7 +412,10 @@ sl_status sl_solver_solve(sl_solver *o, const sl_model *m, sl_solution **xout)
     *xout = NULL;
 
     if (o->checkpoint_dir) SL_TRY(sl_ckpt_lock(ctx, o->checkpoint_dir, &r->lock_fd));
-    SL_TRY(sl_problem_from_model(ctx, m, o->order, 0, &r->P));
+    /* the visit adjustment reads the model's visit counts in its own
+     * layout: with it the rows stay where they are */
+    if (take != NULL && o->visit_adjust == 0.0) SL_TRY(sl_problem_from_model_taking(ctx, take, o->order, &r->P));
+    else SL_TRY(sl_problem_from_model(ctx, m, o->order, 0, &r->P));
     r->P.direct_time_limit = o->direct_time_limit;
     if (o->visit_adjust != 0.0 && o->checkpoint_dir)
         SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EUSAGE, "a visit bonus or penalty cannot be combined with checkpoints "
@@ -466,7 +480,7 @@ sl_status sl_solver_solve(sl_solver *o, const sl_model *m, sl_solution **xout)
         switch (o->method) {
         case SL_METHOD_GS: c = step_gs(r); break;
         case SL_METHOD_JACOBI: c = step_jacobi(r); break;
-        case SL_METHOD_MPI: c = step_mpi(r); break;
+        case SL_METHOD_MPI: c = step_mpi(r, &st); break;
         case SL_METHOD_PI: c = step_pi(r, &st); break;
         }
         st = sl_agree(ctx, st);
@@ -501,6 +515,7 @@ sl_status sl_solver_solve(sl_solver *o, const sl_model *m, sl_solution **xout)
 cleanup:
     sl_solution_free(&r->out);
     sl_evaluate_direct_free(&r->lu);
+    sl_eval_rows_free(&r->prow);
     free(r->x);
     free(r->y);
     free(r->pol);
@@ -510,6 +525,10 @@ cleanup:
     sl_ckpt_unlock(&r->lock_fd);
     return st;
 }
+
+sl_status sl_solver_solve(sl_solver *o, const sl_model *m, sl_solution **xout) { return solve_model(o, m, NULL, xout); }
+
+sl_status sl_solver_solve_lean(sl_solver *o, sl_model *m, sl_solution **xout) { return solve_model(o, m, m, xout); }
 
 /* ---- the solver handle --------------------------------------------------------------- */
 

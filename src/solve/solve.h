@@ -10,7 +10,8 @@
  * transition in x = [owned | halo], the halo and the sweep order. */
 typedef struct sl_problem {
     sl_meta meta;
-    sl_block blk;           /* arrays borrowed from the model except col */
+    sl_block blk;           /* arrays borrowed from the model except col,
+                             * unless owns_rows */
     sl_halo halo;
     int64_t *bounds;        /* [size + 1] state ranges of all ranks */
     int64_t n_local;
@@ -47,6 +48,12 @@ typedef struct sl_problem {
  * Collective. */
 sl_status sl_problem_from_model(sl_ctx *ctx, const sl_model *m, sl_order order, int allow_any, sl_problem *p);
 void sl_problem_free(sl_problem *p);
+/* The same for the discounted methods, taking the model's rows: they are
+ * moved into the problem (or freed once copied into the stage-interleaved
+ * layout), and the targets' memory becomes the local columns, so peak
+ * memory holds the rows about once. The model keeps its description and
+ * refuses further use of its rows (sl_model_check_ready). Collective. */
+sl_status sl_problem_from_model_taking(sl_ctx *ctx, sl_model *m, sl_order order, sl_problem *p);
 /* Sensitivity to thin data (models from `estimate`, which store the visits
  * n of every pair): replace r(s,a) by r(s,a) + c / sqrt(n) (c > 0: an
  * optimistic bonus; c < 0: a pessimistic penalty). Pairs with n = 0 (states
@@ -130,6 +137,26 @@ double sl_sweep_gs(const sl_problem *p, double *x, int32_t *policy, int eval);
  * iterates whenever no transition stays within a stage across ranks.
  * Returns the local largest change (reduce it). Collective. */
 double sl_sweep(sl_ctx *ctx, const sl_problem *p, double *x, int32_t *policy, int eval);
+
+/* The transitions of one fixed policy, copied out of the model's rows in
+ * sweep order (entry j is state order[j]) so that a fixed-policy sweep
+ * streams through them contiguously instead of jumping over the other
+ * actions' rows. Arithmetic is the same as the sweep over the model's rows
+ * (same terms, same order), so the iterates are bitwise equal. */
+typedef struct sl_eval_rows {
+    int64_t n;              /* owned states; 0: not built */
+    uint32_t *first;        /* [n + 1] offsets into col/prob */
+    uint32_t *col;          /* local columns into [owned | halo] */
+    double *prob;
+    double *reward;         /* [n] */
+} sl_eval_rows;
+/* Build the rows of `policy` (pair offsets). Fails with SL_EDATA if the
+ * policy's transitions on this rank do not fit 32-bit offsets. Local. */
+sl_status sl_eval_rows_build(sl_ctx *ctx, const sl_problem *p, const int32_t *policy, sl_eval_rows *rows);
+void sl_eval_rows_free(sl_eval_rows *rows);
+/* sl_sweep(ctx, p, x, policy, 1) for the policy the rows were built from.
+ * Collective. */
+double sl_sweep_rows(sl_ctx *ctx, const sl_problem *p, double *x, const sl_eval_rows *rows);
 
 /* File id of owned local state i (for messages). Local. */
 int64_t sl_problem_file_state(const sl_problem *p, int64_t i);

@@ -496,7 +496,6 @@ sl_status sl_store_model_read(sl_ctx *ctx, const char *path, const sl_meta *m, i
 {
     sl_status st = SL_OK;
     hid_t f = H5I_INVALID_HID;
-    uint32_t *t32 = NULL;
     int64_t ns = s_end - s_begin;
     memset(b, 0, sizeof(*b));
     b->s_begin = s_begin;
@@ -537,14 +536,24 @@ sl_status sl_store_model_read(sl_ctx *ctx, const char *path, const sl_meta *m, i
     }
     int use32 = st == SL_OK && sl_h5_is_u32(f, "/transition/target");
     if (st == SL_OK && (SL_ALLOC(ctx, b->target, nt, "targets") == NULL ||
-                        SL_ALLOC(ctx, b->prob, nt, "probabilities") == NULL ||
-                        (use32 && SL_ALLOC(ctx, t32, nt, "targets") == NULL)))
+                        SL_ALLOC(ctx, b->prob, nt, "probabilities") == NULL))
         st = SL_ENOMEM;
     if (st == SL_OK) {
         if (use32) {
-            st = sl_h5_read_1d(ctx, f, "/transition/target", H5T_NATIVE_UINT32, m->n_trans, b->t_begin, nt, t32,
-                               path);
-            for (int64_t t = 0; st == SL_OK && t < nt; t++) b->target[t] = (int64_t)t32[t];
+            /* 32-bit targets are read into the upper half of the 64-bit
+             * array and widened in place from the front (no second array at
+             * the load peak): target t (bytes 8t..8t+7) overwrites only
+             * 32-bit entries at or below t, already read. Bytes move by
+             * memcpy, so no pointer of another type reads them. */
+            unsigned char *buf = (unsigned char *)b->target;
+            st = sl_h5_read_1d(ctx, f, "/transition/target", H5T_NATIVE_UINT32, m->n_trans, b->t_begin, nt,
+                               buf + 4 * nt, path);
+            for (int64_t t = 0; st == SL_OK && t < nt; t++) {
+                uint32_t v;
+                memcpy(&v, buf + 4 * nt + 4 * t, sizeof(v));
+                int64_t w = (int64_t)v;
+                memcpy(buf + 8 * t, &w, sizeof(w));
+            }
         } else {
             st = sl_h5_read_1d(ctx, f, "/transition/target", H5T_NATIVE_INT64, m->n_trans, b->t_begin, nt,
                                b->target, path);
@@ -590,7 +599,6 @@ sl_status sl_store_model_read(sl_ctx *ctx, const char *path, const sl_meta *m, i
     st = sl_agree(ctx, st);
 cleanup:
     if (f >= 0) H5Fclose(f);
-    free(t32);
     if (st != SL_OK) sl_block_free(b);
     return st;
 }

@@ -1,0 +1,291 @@
+/* test_kernel.c - the optimised sweep paths against the simple reference
+ * path, on small random models (invented data) with and without a stage
+ * factor, on 1 rank and (tests.cmake) 2 and 3 ranks:
+ *  - the fixed-policy sweep over a policy's own contiguous rows
+ *    (sl_sweep_rows) gives bitwise the iterates of the sweep over the
+ *    model's rows (sl_sweep with eval), in every sweep order;
+ *  - modified policy iteration (which sweeps over those rows once the
+ *    policy is stable) and Gauss-Seidel agree within their certified
+ *    bounds, and pick the same action wherever the best action leads the
+ *    second by more than 1e-6 (checked against Q-values this test computes
+ *    itself from the gathered values, outside the library);
+ *  - a solve that takes the model's rows (sl_solver_solve_lean) gives
+ *    bitwise the plain solve's answer. */
+#define _POSIX_C_SOURCE 200809L
+#include <math.h>
+#include <setjmp.h>
+#include <stdarg.h>
+#include <stddef.h>
+#include <stdint.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+
+#include <cmocka.h>
+
+#include "model/model.h"
+#include "solve/solve.h"
+
+enum { FL = 3, FS = 4, FH = 5, NS = FL * FS * FH, MAXA = 3, MAXK = 4 };
+
+typedef struct rows {
+    int64_t first_pair[NS + 1];
+    int32_t action[NS * MAXA];
+    double reward[NS * MAXA];
+    int64_t first_trans[NS * MAXA + 1];
+    int64_t target[NS * MAXA * MAXK];
+    double prob[NS * MAXA * MAXK];
+} rows;
+
+static uint64_t next(uint64_t *s)
+{
+    /* LCG (Knuth's MMIX constants, recalled from memory) */
+    *s = *s * 6364136223846793005ULL + 1442695040888963407ULL;
+    return *s >> 33;
+}
+
+static int cmp_i64(const void *a, const void *b)
+{
+    int64_t x = *(const int64_t *)a, y = *(const int64_t *)b;
+    return (x > y) - (x < y);
+}
+
+/* Random rows: 1-3 actions per state, 1-4 distinct successors, random
+ * rewards and probabilities. */
+static void make_rows(uint64_t seed, rows *r)
+{
+    uint64_t s = seed;
+    int64_t k = 0, t = 0;
+    r->first_pair[0] = 0;
+    r->first_trans[0] = 0;
+    for (int64_t i = 0; i < NS; i++) {
+        int na = 1 + (int)(next(&s) % MAXA);
+        for (int a = 0; a < na; a++, k++) {
+            r->action[k] = a;
+            r->reward[k] = (double)(next(&s) % 1000) / 100.0 - 3.0;
+            int nk = 1 + (int)(next(&s) % MAXK), got = 0;
+            int64_t tg[MAXK];
+            while (got < nk) {
+                int64_t c = (int64_t)(next(&s) % NS), dup = 0;
+                for (int j = 0; j < got; j++) dup |= tg[j] == c;
+                if (!dup) tg[got++] = c;
+            }
+            qsort(tg, (size_t)nk, sizeof(int64_t), cmp_i64);
+            double w[MAXK], sum = 0;
+            for (int j = 0; j < nk; j++) sum += w[j] = 1.0 + (double)(next(&s) % 97);
+            double acc = 0;
+            for (int j = 0; j < nk; j++, t++) {
+                r->target[t] = tg[j];
+                /* the last one takes the rest so the sum is 1 to roundoff */
+                r->prob[t] = j + 1 < nk ? w[j] / sum : 1.0 - acc;
+                acc += r->prob[t];
+            }
+            r->first_trans[k + 1] = t;
+        }
+        r->first_pair[i + 1] = k;
+    }
+}
+
+/* The model on rank 0's rows (other ranks none); stage factor 1 or none. */
+static sl_status make_model(sl_ctx *ctx, const rows *r, int stage, sl_model **m)
+{
+    const char *names[] = {"level", "season", "zone"};
+    const int64_t sizes[] = {FL, FS, FH};
+    sl_status st = sl_model_create(ctx, NS, 0.95, m);
+    if (st != SL_OK) return st;
+    if (sl_ctx_rank(ctx) == 0)
+        st = sl_model_set_rows(*m, 0, NS, r->first_pair, r->action, r->reward, r->first_trans, r->target, r->prob);
+    if (st == SL_OK) st = sl_model_set_factors(*m, 3, names, sizes, stage);
+    sl_status sa = sl_model_assemble(*m);
+    return st != SL_OK ? st : sa;
+}
+
+static int setup(void **state)
+{
+    sl_ctx *ctx = NULL;
+    if (sl_ctx_new(MPI_COMM_WORLD, 0, &ctx) != SL_OK) return -1;
+    *state = ctx;
+    return 0;
+}
+
+static int teardown(void **state)
+{
+    sl_ctx *ctx = (sl_ctx *)*state;
+    sl_ctx_free(&ctx);
+    return 0;
+}
+
+/* sl_sweep_rows == sl_sweep(eval) bitwise, over 6 sweeps, for every order
+ * and with and without the stage factor. */
+static void policy_rows_sweep_is_the_reference_sweep(void **state)
+{
+    sl_ctx *ctx = (sl_ctx *)*state;
+    static rows r;
+    make_rows(7, &r);
+    const sl_order orders[] = {SL_ORDER_AUTO, SL_ORDER_NATURAL, SL_ORDER_REVERSE};
+    for (int stage = -1; stage <= 1; stage += 2) {
+        for (int o = 0; o < 3; o++) {
+            sl_model *m = NULL;
+            sl_problem P;
+            sl_eval_rows pr;
+            assert_int_equal(make_model(ctx, &r, stage, &m), SL_OK);
+            assert_int_equal(sl_problem_from_model(ctx, m, orders[o], 0, &P), SL_OK);
+            if (stage >= 0 && orders[o] == SL_ORDER_AUTO) assert_true(P.staged);
+            int64_t n = P.n_local, nx = n + P.halo.n_halo;
+            double *x = calloc((size_t)nx + 1, sizeof(double)), *x2 = calloc((size_t)nx + 1, sizeof(double));
+            int32_t *pol = calloc((size_t)n + 1, sizeof(int32_t));
+            assert_non_null(x);
+            assert_non_null(x2);
+            assert_non_null(pol);
+            uint64_t s = 99 + (uint64_t)ctx->rank;
+            for (int64_t i = 0; i < n; i++) {
+                int64_t np = P.blk.first_pair[i + 1] - P.blk.first_pair[i];
+                pol[i] = (int32_t)(next(&s) % (uint64_t)np);
+                x[i] = x2[i] = (double)(next(&s) % 1000) / 7.0;
+            }
+            assert_int_equal(sl_eval_rows_build(ctx, &P, pol, &pr), SL_OK);
+            for (int sw = 0; sw < 6; sw++) {
+                double d1 = sl_sweep(ctx, &P, x, pol, 1);
+                double d2 = sl_sweep_rows(ctx, &P, x2, &pr);
+                assert_memory_equal(&d1, &d2, sizeof(double));
+                assert_memory_equal(x, x2, (size_t)n * sizeof(double));
+            }
+            /* the rows hold exactly the policy's transitions */
+            int64_t nt = 0;
+            for (int64_t i = 0; i < n; i++) {
+                int64_t k = P.blk.first_pair[i] - P.blk.p_begin + pol[i];
+                nt += P.blk.first_trans[k + 1] - P.blk.first_trans[k];
+            }
+            assert_int_equal(pr.first[n], nt);
+            sl_eval_rows_free(&pr);
+            free(x);
+            free(x2);
+            free(pol);
+            sl_problem_free(&P);
+            sl_model_free(&m);
+        }
+    }
+}
+
+static sl_status solve(sl_ctx *ctx, const sl_model *m, sl_method method, sl_solution **x)
+{
+    sl_solver *s = NULL;
+    sl_status st = sl_solver_create(ctx, &s);
+    if (st == SL_OK) st = sl_solver_set_method(s, method);
+    if (st == SL_OK) st = sl_solver_set_tolerance(s, 1e-9);
+    if (st == SL_OK) st = sl_solver_solve(s, m, x);
+    sl_solver_free(&s);
+    return st;
+}
+
+/* mpi (evaluation over the policy's rows) against gs (the reference sweep) */
+static void mpi_agrees_with_gs(void **state)
+{
+    sl_ctx *ctx = (sl_ctx *)*state;
+    static rows r;
+    make_rows(11, &r);
+    for (int stage = -1; stage <= 1; stage += 2) {
+        sl_model *m = NULL;
+        sl_solution *xg = NULL, *xm = NULL;
+        assert_int_equal(make_model(ctx, &r, stage, &m), SL_OK);
+        assert_int_equal(solve(ctx, m, SL_METHOD_GS, &xg), SL_OK);
+        assert_int_equal(solve(ctx, m, SL_METHOD_MPI, &xm), SL_OK);
+        sl_certificate cg, cm;
+        assert_int_equal(sl_solution_get_certificate(xg, &cg), SL_OK);
+        assert_int_equal(sl_solution_get_certificate(xm, &cm), SL_OK);
+        assert_true(cg.converged && cm.converged);
+        double *vg = NULL, *vm = NULL;
+        int32_t *ag = NULL, *am = NULL;
+        assert_int_equal(sl_solution_gather(xg, 0, &vg, &ag), SL_OK);
+        assert_int_equal(sl_solution_gather(xm, 0, &vm, &am), SL_OK);
+        if (ctx->rank == 0) {
+            int64_t compared = 0;
+            for (int64_t i = 0; i < NS; i++) {
+                assert_true(fabs(vg[i] - vm[i]) <= cg.value_error + cm.value_error + 1e-12);
+                /* Q-values from the gs values, computed here */
+                double best = -INFINITY, second = -INFINITY;
+                int32_t arg = -1;
+                for (int64_t k = r.first_pair[i]; k < r.first_pair[i + 1]; k++) {
+                    double q = 0;
+                    for (int64_t t = r.first_trans[k]; t < r.first_trans[k + 1]; t++) q += r.prob[t] * vg[r.target[t]];
+                    q = r.reward[k] + 0.95 * q;
+                    if (q > best) {
+                        second = best;
+                        best = q;
+                        arg = r.action[k];
+                    } else if (q > second) {
+                        second = q;
+                    }
+                }
+                if (best - second > 1e-6) {
+                    assert_int_equal(am[i], arg);
+                    assert_int_equal(ag[i], arg);
+                    compared++;
+                }
+            }
+            assert_true(compared > NS / 2);
+        }
+        free(vg);
+        free(vm);
+        free(ag);
+        free(am);
+        sl_solution_free(&xg);
+        sl_solution_free(&xm);
+        sl_model_free(&m);
+    }
+}
+
+/* sl_solver_solve_lean (rows taken, columns built over the targets) gives
+ * bitwise the solution of sl_solver_solve, and the model refuses a second
+ * solve instead of reading freed rows */
+static void lean_solve_is_the_plain_solve(void **state)
+{
+    sl_ctx *ctx = (sl_ctx *)*state;
+    static rows r;
+    make_rows(23, &r);
+    for (int stage = -1; stage <= 1; stage += 2) {
+        for (int mi = 0; mi < 2; mi++) {
+            sl_method meth = mi == 0 ? SL_METHOD_GS : SL_METHOD_MPI;
+            sl_model *m = NULL;
+            sl_solution *xa = NULL, *xb = NULL, *xc = NULL;
+            sl_solver *s = NULL;
+            assert_int_equal(make_model(ctx, &r, stage, &m), SL_OK);
+            assert_int_equal(solve(ctx, m, meth, &xa), SL_OK);
+            assert_int_equal(sl_solver_create(ctx, &s), SL_OK);
+            assert_int_equal(sl_solver_set_method(s, meth), SL_OK);
+            assert_int_equal(sl_solver_set_tolerance(s, 1e-9), SL_OK);
+            assert_int_equal(sl_solver_solve_lean(s, m, &xb), SL_OK);
+            int64_t b1, n1, b2, n2;
+            const double *v1, *v2;
+            const int32_t *a1, *a2;
+            assert_int_equal(sl_solution_get_local(xa, &b1, &n1, &v1, &a1), SL_OK);
+            assert_int_equal(sl_solution_get_local(xb, &b2, &n2, &v2, &a2), SL_OK);
+            assert_int_equal(b1, b2);
+            assert_int_equal(n1, n2);
+            assert_memory_equal(v1, v2, (size_t)n1 * sizeof(double));
+            assert_memory_equal(a1, a2, (size_t)n1 * sizeof(int32_t));
+            /* the description is still there, the rows are not */
+            assert_int_equal(sl_model_n_states(m), NS);
+            assert_int_equal(sl_solver_solve(s, m, &xc), SL_EUSAGE);
+            assert_null(xc);
+            assert_non_null(strstr(sl_ctx_message(ctx), "handed to an earlier solve"));
+            sl_solver_free(&s);
+            sl_solution_free(&xa);
+            sl_solution_free(&xb);
+            sl_model_free(&m);
+        }
+    }
+}
+
+int main(void)
+{
+    MPI_Init(NULL, NULL);
+    const struct CMUnitTest tests[] = {
+        cmocka_unit_test(policy_rows_sweep_is_the_reference_sweep),
+        cmocka_unit_test(mpi_agrees_with_gs),
+        cmocka_unit_test(lean_solve_is_the_plain_solve),
+    };
+    int rc = cmocka_run_group_tests(tests, setup, teardown);
+    MPI_Finalize();
+    return rc;
+}
