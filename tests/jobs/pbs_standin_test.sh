@@ -188,7 +188,8 @@ run_job() {
     fi
     wait "$pid"
     RUN_RC=$?
-    echo "  run $name: exit $RUN_RC after $(($(now_ms) - t0)) ms (term=$RUN_TERMED kill=$RUN_KILLED)"
+    RUN_MS=$(($(now_ms) - t0))
+    echo "  run $name: exit $RUN_RC after $RUN_MS ms (term=$RUN_TERMED kill=$RUN_KILLED)"
 }
 submissions() { wc -l <"$PBS_TEST_QSUB_LOG"; }
 last_submission() { tail -n 1 "$PBS_TEST_QSUB_LOG"; }
@@ -243,16 +244,18 @@ chunk=$(((ref_iters + 2) / 3))
 
 # ---- chain --------------------------------------------------------------------------
 
-scenario chain
 export SLUICE_MAX_RESTARTS=20 SLUICE_WALLTIME_MARGIN=2
 # The walltime counts from the process start (as a batch job's does), so the
 # budget is twice the reference's start-up (mpirun, loading: its wall time
 # minus the solving seconds of its own summary) plus 40% of its solving time:
 # every run then does real work, and the chain needs a few runs.
-ref_solve_s=$(sed -n 's/.*CERTIFIED after [0-9]* iterations, [0-9]* sweeps, \([0-9.]*\) s.*/\1/p' "$W/runs/reference.log" | tail -n 1)
-budget=$(awk -v m="$ref_ms" -v s="${ref_solve_s:-0}" 'BEGIN { w = m / 1000; up = w - s; if (up < 0) up = 0;
+cal_log=$W/runs/reference.log cal_ms=$ref_ms
+for attempt in 1 2 3; do
+scenario chain
+ref_solve_s=$(sed -n 's/.*CERTIFIED after [0-9]* iterations, [0-9]* sweeps, \([0-9.]*\) s.*/\1/p' "$cal_log" | tail -n 1)
+budget=$(awk -v m="$cal_ms" -v s="${ref_solve_s:-0}" 'BEGIN { w = m / 1000; up = w - s; if (up < 0) up = 0;
     b = int(2 * up + 0.4 * s + 0.999); if (b < 1) b = 1; print b }')
-echo "  chain budget ${budget} s (reference: ${ref_ms} ms in all, ${ref_solve_s:-?} s solving)"
+echo "  chain attempt $attempt: budget ${budget} s (calibrated on a run of ${cal_ms} ms in all, ${ref_solve_s:-?} s solving)"
 hang=$(awk -v b="$budget" 'BEGIN { h = 5 * b; if (h < 300) h = 300; print h }')
 export PBS_TEST_WALLTIME
 PBS_TEST_WALLTIME=$(printf '00:%02d:%02d' $(((budget + 2) / 60)) $(((budget + 2) % 60)))
@@ -294,6 +297,20 @@ for restart in $(seq 0 "$SLUICE_MAX_RESTARTS"); do
     fi
     final=$RUN_RC
     break
+done
+# A first run that converged inside its walltime exercised no stop: the machine
+# was faster than during the calibrating run (load changed; seen once under
+# stress-ng: reference 130 s, the chain's first run done in 66 s). Calibrate on
+# that run's own figures and try again, at most three attempts in all. A solver
+# that ignored its walltime would converge in every attempt and still fail.
+if [ "$ok" = 1 ] && [ "$runs" = 1 ] && [ "${final:-x}" = 0 ] && [ "$attempt" -lt 3 ]; then
+    echo "  chain attempt $attempt: the first run converged before its walltime (machine faster than when calibrated); recalibrating"
+    cp "$RUN_LOG" "$W/runs/calibration-$attempt.log"
+    cal_log=$W/runs/calibration-$attempt.log
+    cal_ms=$RUN_MS
+    continue
+fi
+break
 done
 echo "  chain: $runs runs (iterations per run:$iters), $(submissions) follow-up submissions, final exit ${final:-none}"
 check "chain: each stopped run stopped itself at its walltime (its own log) and submitted one follow-up (depend=afterany, restart+1)" \
