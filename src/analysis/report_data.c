@@ -7,6 +7,7 @@
 #include "analysis/analysis.h"
 #include "core/json.h"
 #include "sluice/report.h"
+#include "solve/objectives.h"
 
 static const char caution_text[] =
     "Water release, grid and safety decisions can hurt people. sluice computes what a model implies; it knows "
@@ -39,6 +40,8 @@ typedef struct report_in {
     int32_t n_actions;          /* 1 + largest action id */
     int64_t aps_min, aps_max;   /* actions per state */
     int64_t thin_below, thin_pairs, visits_total;   /* models with visit counts */
+    sl_obj_file xf;             /* finite/total/average: the objective part of the
+                                 * solution file (its scalars) */
 } report_in;
 
 static void report_in_free(report_in *r)
@@ -46,6 +49,7 @@ static void report_in_free(report_in *r)
     free(r->value);
     free(r->action);
     free(r->avail);
+    sl_obj_file_free(&r->xf);
     sl_solution_free(&r->xh);
     sl_model_free(&r->mh);
     memset(r, 0, sizeof(*r));
@@ -69,6 +73,8 @@ static sl_status load(sl_ctx *ctx, const sl_report_data_opts *o, report_in *r)
                                     o->solution)));
     SL_TRY(sl_solution_gather(r->xh, 0, &r->value, &r->action));
     const sl_block *b = &r->mh->blk;
+    if (r->m->objective != SL_OBJ_DISCOUNTED)
+        SL_TRY(sl_store_objective_read(ctx, o->solution, r->m->n_states, b->s_begin, sl_block_states(b), &r->xf));
     int32_t amax = r->m->n_action_names > 0 ? r->m->n_action_names - 1 : 0;
     int64_t lim[2] = {INT64_MAX, 0};
     for (int64_t q = 0; q < sl_block_pairs(b); q++)
@@ -107,15 +113,23 @@ cleanup:
 
 typedef struct verify_out {
     int ran;
-    sl_verification v;
+    sl_verification v;          /* discounted */
+    sl_obj_check k;             /* finite, total, average */
 } verify_out;
 
 /* sl_verify recomputes the bounds from the model, the value and the policy
  * alone. A solution that fails them is a result for the page, not an error.
  * Collective. */
-static sl_status run_verify(sl_ctx *ctx, const report_in *r, verify_out *v)
+static sl_status run_verify(sl_ctx *ctx, const sl_report_data_opts *o, const report_in *r, verify_out *v)
 {
     memset(v, 0, sizeof(*v));
+    if (r->m->objective != SL_OBJ_DISCOUNTED) {
+        /* the objectives' own verify: SL_OK certified or not, an error for a
+         * file that cannot be checked */
+        sl_status so = sl_obj_verify_check(r->mh, o->model, o->solution, 0, &v->k);
+        v->ran = so == SL_OK;
+        return so;
+    }
     sl_status st = sl_verify(r->mh, r->xh, 0, &v->v);
     if (st == SL_OK || (st == SL_EDATA && !v->v.certified && v->v.tolerance > 0)) {
         sl_error_clear(ctx);
@@ -379,7 +393,7 @@ static sl_status outlook(sl_ctx *ctx, const sl_report_data_opts *o, const sl_met
     return st;
 }
 
-static void outlook_json(sl_json *j, const outlook_in *w)
+static void outlook_json(sl_json *j, const outlook_in *w, int discounted)
 {
     sl_json_obj_open(j, "outlook");
     if (!w->have) {
@@ -419,7 +433,7 @@ static void outlook_json(sl_json *j, const outlook_in *w)
             sl_json_close_obj(j);
         }
         sl_json_close_obj(j);
-        sl_json_num(j, "discounted_reward", r->discounted_reward[t]);
+        if (discounted) sl_json_num(j, "discounted_reward", r->discounted_reward[t]);
         sl_json_num(j, "mass", r->mass[t]);
         sl_json_close_obj(j);
     }
@@ -428,6 +442,53 @@ static void outlook_json(sl_json *j, const outlook_in *w)
 }
 
 /* ---- the document --------------------------------------------------------------- */
+
+/* The certificate keys of the finite, total and average objectives, from the
+ * solution file (docs/report.md). bias_span: max - min of the stored value. */
+static void objective_cert_json(sl_json *j, const sl_meta *m, const sl_obj_file *x, double bias_span)
+{
+    sl_json_str(j, "objective", sl_objective_name(m->objective));
+    if (m->objective == SL_OBJ_FINITE) {
+        sl_json_int(j, "horizon", x->horizon);
+        sl_json_str(j, "terminal", x->terminal);
+        sl_json_num(j, "roundoff_bound", x->roundoff);
+    } else if (m->objective == SL_OBJ_TOTAL) {
+        sl_json_int(j, "n_absorbing", x->n_absorbing);
+        sl_json_num(j, "steps_bound_max", x->steps_max);
+    } else {
+        sl_json_num(j, "gain", x->gain);
+        sl_json_num(j, "gain_lower", x->gain_lower);
+        sl_json_num(j, "gain_upper", x->gain_upper);
+        sl_json_num(j, "bias_span", bias_span);
+        sl_json_num(j, "aperiodicity", x->aperiodicity);
+    }
+}
+
+/* What the objectives' verify recomputed (sl_obj_verify_check). */
+static void objective_verify_json(sl_json *j, const sl_obj_check *k)
+{
+    const sl_obj_cert *c = &k->cert;
+    sl_json_str(j, "objective", sl_objective_name(k->objective));
+    sl_json_bool(j, "certified", k->certified != 0);
+    sl_json_num(j, "tolerance", k->tolerance);
+    sl_json_num(j, "residual_sup", c->residual_sup);
+    sl_json_num(j, "residual_min", c->residual_min);
+    sl_json_num(j, "residual_max", c->residual_max);
+    sl_json_num(j, "residual_span", c->residual_max - c->residual_min);
+    sl_json_num(j, "value_error_bound", c->value_error_bound);
+    sl_json_num(j, "policy_loss_bound", c->policy_loss_bound);
+    if (k->objective == SL_OBJ_FINITE) {
+        sl_json_int(j, "horizon", k->horizon);
+        sl_json_str(j, "terminal", k->terminal);
+        sl_json_bool(j, "terminal_rechecked", k->terminal_rechecked != 0);
+    } else if (k->objective == SL_OBJ_TOTAL) {
+        sl_json_num(j, "steps_bound_max", c->steps_max);
+    } else {
+        sl_json_num(j, "gain", k->gain);
+        sl_json_num(j, "gain_lower", c->gain_lower);
+        sl_json_num(j, "gain_upper", c->gain_upper);
+    }
+}
 
 
 static void hist_array(sl_json *j, const char *key, const report_in *r, int k)
@@ -580,13 +641,24 @@ static sl_status write_doc(sl_ctx *ctx, const sl_report_data_opts *o, const repo
     sl_json_num(j, "residual_span", c->residual_span);
     sl_json_bool(j, "certified", c->converged && c->value_error <= c->tolerance && c->policy_loss <= c->tolerance);
     /* relative to the smallest |value| (null when some value is 0) */
-    sl_json_num(j, "value_error_relative", sl_bound_relative(c->value_error, vabs));
-    sl_json_num(j, "policy_loss_relative", sl_bound_relative(c->policy_loss, vabs));
+    const sl_obj_file *x = &r->xf;
+    if (m->objective == SL_OBJ_AVERAGE) {
+        /* the bias is defined up to a constant: relative to the gain instead */
+        sl_json_num(j, "value_error_relative", sl_bound_relative(c->value_error, fabs(x->gain)));
+        sl_json_num(j, "policy_loss_relative", sl_bound_relative(c->policy_loss, fabs(x->gain)));
+    } else {
+        sl_json_num(j, "value_error_relative", sl_bound_relative(c->value_error, vabs));
+        sl_json_num(j, "policy_loss_relative", sl_bound_relative(c->policy_loss, vabs));
+    }
+    if (m->objective != SL_OBJ_DISCOUNTED) objective_cert_json(j, m, x, vmax - vmin);
     sl_json_close_obj(j);
 
     sl_json_obj_open(j, "verify");
     if (!v->ran) {
         sl_json_str(j, "omitted", "the verification was skipped on request (--no-verify)");
+    } else if (m->objective != SL_OBJ_DISCOUNTED) {
+        objective_verify_json(j, &v->k);
+        sl_json_int(j, "ranks", ctx->size);
     } else {
         sl_json_bool(j, "certified", v->v.certified);
         sl_json_num(j, "tolerance", v->v.tolerance);
@@ -610,7 +682,7 @@ static sl_status write_doc(sl_ctx *ctx, const sl_report_data_opts *o, const repo
 
     st = rule_map_json(ctx, j, o, r);
     water_json(j, m, w);
-    outlook_json(j, ol);
+    outlook_json(j, ol, m->objective == SL_OBJ_DISCOUNTED);
     sl_json_end(j);
     if (ferror(out)) st = SL_ERR(ctx, SL_EIO, "writing the report data failed");
     return st;
@@ -630,7 +702,7 @@ sl_status sl_report_data(sl_ctx *ctx, const sl_report_data_opts *o)
     if (o == NULL || o->model == NULL || o->solution == NULL || (ctx->rank == 0 && o->out == NULL))
         SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EUSAGE, "report data: model, solution and output are required")));
     SL_TRY(load(ctx, o, &r));
-    if (!o->skip_verify) SL_TRY(run_verify(ctx, &r, &v));
+    if (!o->skip_verify) SL_TRY(run_verify(ctx, o, &r, &v));
     SL_TRY(water_values(ctx, o, r.m, &w));
     SL_TRY(outlook(ctx, o, r.m, &ol));
     if (ctx->rank == 0) st = write_doc(ctx, o, &r, &v, &w, &ol);

@@ -86,6 +86,29 @@ sl_status sl_obj_certify_total(sl_ctx *ctx, const sl_problem *p, double *v, doub
 sl_status sl_obj_certify_average(sl_ctx *ctx, const sl_problem *p, double *h, const int32_t *policy,
                                  sl_obj_cert *c);
 
+/* What verify recomputes for a solution file of such a model. */
+typedef struct sl_obj_check {
+    sl_objective objective;
+    sl_obj_cert cert;           /* recomputed; average: value_error_bound is the
+                                 * stored gain's distance to the far end of
+                                 * [gain_lower, gain_upper] */
+    double tolerance;           /* the one applied (given, else the solution's) */
+    int certified;              /* both bounds within tolerance */
+    int64_t horizon;            /* finite */
+    double gain;                /* average: the stored gain */
+    int terminal_rechecked;     /* finite: terminal values compared with their source */
+    char terminal[256];         /* finite: where the terminal values came from */
+    char fingerprint[40];
+} sl_obj_check;
+
+/* Recompute the certificate of a solution file (objective finite, total or
+ * average) into *out. SL_OK whether certified or not (out->certified);
+ * SL_EDATA for a file that cannot be checked (another model, another
+ * objective, inconsistent stages or terminal values), naming it. The
+ * printing entry point is sl_objective_verify. Collective. */
+sl_status sl_obj_verify_check(const sl_model *m, const char *model_path, const char *solution, double tolerance,
+                              sl_obj_check *out);
+
 /* ---- files (src/store/objective_io.c) ------------------------------------ */
 
 /* The objective-specific part of a solution file. */

@@ -234,17 +234,16 @@ cleanup:
     return st;
 }
 
-sl_status sl_objective_verify(const sl_model *m, const char *model_path, const char *solution, double tolerance,
-                              int json, FILE *out_file)
+sl_status sl_obj_verify_check(const sl_model *m, const char *model_path, const char *solution, double tolerance,
+                              sl_obj_check *out)
 {
-    if (m == NULL || solution == NULL) return SL_EUSAGE;
+    if (m == NULL || solution == NULL || out == NULL) return SL_EUSAGE;
     sl_ctx *ctx = m->ctx;
     struct {
         const char *model, *solution;
         double tolerance;
-        int json;
-        FILE *out;
-    } oo = {model_path ? model_path : "model", solution, tolerance, json, out_file}, *o = &oo;
+    } oo = {model_path ? model_path : "model", solution, tolerance}, *o = &oo;
+    memset(out, 0, sizeof(*out));
     sl_status st = SL_OK;
     sl_problem P;
     sl_obj_file xf;
@@ -299,9 +298,8 @@ sl_status sl_objective_verify(const sl_model *m, const char *model_path, const c
                                             o->solution, o->model)));
         } else if (strcmp(xf.terminal, "zero") == 0) {
             found = 1; /* w is zero */
-        } else if (ctx->rank == 0 && o->out && !o->json) {
-            fprintf(o->out, "note: terminal values were taken from %s and are not rechecked here\n", xf.terminal);
         }
+        out->terminal_rechecked = found;
         for (int64_t i = 0; found && i < n && st == SL_OK; i++)
             if (xf.stage_value[H * n + i] != w[i])
                 st = SL_ERR(ctx, SL_EDATA, "%s: state %lld: stored terminal value %.17g differs from its source (%s: %.17g)",
@@ -336,43 +334,14 @@ sl_status sl_objective_verify(const sl_model *m, const char *model_path, const c
     } else {
         ok = c.value_error_bound <= tol && c.policy_loss_bound <= tol;
     }
-    if (ctx->rank == 0 && o->out) {
-        FILE *out = o->out;
-        if (o->json) {
-            fprintf(out, "{\n  \"solution\": \"%s\",\n  \"model_fingerprint\": \"%s\",\n  \"objective\": \"%s\",\n"
-                         "  \"residual_min\": %.17g,\n  \"residual_max\": %.17g,\n",
-                    o->solution, P.meta.fingerprint, sl_objective_name(obj), c.residual_min, c.residual_max);
-            if (obj == SL_OBJ_AVERAGE)
-                fprintf(out, "  \"gain\": %.17g,\n  \"gain_lower\": %.17g,\n  \"gain_upper\": %.17g,\n"
-                             "  \"gain_error_bound\": %.17g,\n  \"policy_gain_loss_bound\": %.17g,\n",
-                        xf.gain, c.gain_lower, c.gain_upper, c.value_error_bound, c.policy_loss_bound);
-            else
-                fprintf(out, "  \"value_error_bound\": %.17g,\n  \"policy_loss_bound\": %.17g,\n",
-                        c.value_error_bound, c.policy_loss_bound);
-            if (obj == SL_OBJ_TOTAL) fprintf(out, "  \"steps_bound_max\": %.17g,\n", c.steps_max);
-            if (obj == SL_OBJ_FINITE) fprintf(out, "  \"horizon\": %lld,\n", (long long)H);
-            fprintf(out, "  \"tolerance\": %.17g,\n  \"certified\": %s\n}\n", tol, ok ? "true" : "false");
-        } else {
-            fprintf(out, "verify %s against %s (objective %s)\n", o->solution, o->model, sl_objective_name(obj));
-            if (obj == SL_OBJ_AVERAGE) {
-                fprintf(out, "  gain          %.10g <= optimal gain <= %.10g (recomputed); stored gain %.10g\n",
-                        c.gain_lower, c.gain_upper, xf.gain);
-                fprintf(out, "  policy        optimal gain - policy gain <= %.3e\n", c.policy_loss_bound);
-            } else {
-                if (obj == SL_OBJ_FINITE)
-                    fprintf(out, "  stages        %lld, residuals recomputed stage by stage\n", (long long)H);
-                if (obj == SL_OBJ_TOTAL)
-                    fprintf(out, "  absorption    expected steps <= %.4g under every policy (bound rechecked)\n",
-                            c.steps_max);
-                fprintf(out, "  value         |value - v*| <= %.3e in every state\n", c.value_error_bound);
-                fprintf(out, "  policy        v* - v_policy <= %.3e in every state\n", c.policy_loss_bound);
-            }
-            fprintf(out, "  result        %s at tolerance %.1e\n", ok ? "CERTIFIED" : "NOT certified", tol);
-        }
-    }
-    if (!ok)
-        st = SL_ERR(ctx, SL_EDATA, "%s: not certified within %.1e (value/gain bound %.3e, policy bound %.3e)",
-                    o->solution, tol, c.value_error_bound, c.policy_loss_bound);
+    out->objective = obj;
+    out->cert = c;
+    out->tolerance = tol;
+    out->certified = ok;
+    out->horizon = obj == SL_OBJ_FINITE ? H : 0;
+    out->gain = xf.gain;
+    snprintf(out->terminal, sizeof(out->terminal), "%s", xf.terminal);
+    snprintf(out->fingerprint, sizeof(out->fingerprint), "%s", P.meta.fingerprint);
     st = sl_agree(ctx, st);
 cleanup:
     free(v);
@@ -382,4 +351,58 @@ cleanup:
     sl_obj_file_free(&xf);
     sl_problem_free(&P);
     return st;
+}
+
+sl_status sl_objective_verify(const sl_model *m, const char *model_path, const char *solution, double tolerance,
+                              int json, FILE *out_file)
+{
+    if (m == NULL || solution == NULL) return SL_EUSAGE;
+    sl_ctx *ctx = m->ctx;
+    const char *model = model_path ? model_path : "model";
+    sl_obj_check k;
+    sl_status st = sl_obj_verify_check(m, model_path, solution, tolerance, &k);
+    if (st != SL_OK) return st;
+    const sl_obj_cert *c = &k.cert;
+    sl_objective obj = k.objective;
+    if (ctx->rank == 0 && out_file) {
+        FILE *out = out_file;
+        if (json) {
+            fprintf(out, "{\n  \"solution\": \"%s\",\n  \"model_fingerprint\": \"%s\",\n  \"objective\": \"%s\",\n"
+                         "  \"residual_min\": %.17g,\n  \"residual_max\": %.17g,\n",
+                    solution, k.fingerprint, sl_objective_name(obj), c->residual_min, c->residual_max);
+            if (obj == SL_OBJ_AVERAGE)
+                fprintf(out, "  \"gain\": %.17g,\n  \"gain_lower\": %.17g,\n  \"gain_upper\": %.17g,\n"
+                             "  \"gain_error_bound\": %.17g,\n  \"policy_gain_loss_bound\": %.17g,\n",
+                        k.gain, c->gain_lower, c->gain_upper, c->value_error_bound, c->policy_loss_bound);
+            else
+                fprintf(out, "  \"value_error_bound\": %.17g,\n  \"policy_loss_bound\": %.17g,\n",
+                        c->value_error_bound, c->policy_loss_bound);
+            if (obj == SL_OBJ_TOTAL) fprintf(out, "  \"steps_bound_max\": %.17g,\n", c->steps_max);
+            if (obj == SL_OBJ_FINITE) fprintf(out, "  \"horizon\": %lld,\n", (long long)k.horizon);
+            fprintf(out, "  \"tolerance\": %.17g,\n  \"certified\": %s\n}\n", k.tolerance, k.certified ? "true" : "false");
+        } else {
+            if (obj == SL_OBJ_FINITE && !k.terminal_rechecked)
+                fprintf(out, "note: terminal values were taken from %s and are not rechecked here\n", k.terminal);
+            fprintf(out, "verify %s against %s (objective %s)\n", solution, model, sl_objective_name(obj));
+            if (obj == SL_OBJ_AVERAGE) {
+                fprintf(out, "  gain          %.10g <= optimal gain <= %.10g (recomputed); stored gain %.10g\n",
+                        c->gain_lower, c->gain_upper, k.gain);
+                fprintf(out, "  policy        optimal gain - policy gain <= %.3e\n", c->policy_loss_bound);
+            } else {
+                if (obj == SL_OBJ_FINITE)
+                    fprintf(out, "  stages        %lld, residuals recomputed stage by stage\n", (long long)k.horizon);
+                if (obj == SL_OBJ_TOTAL)
+                    fprintf(out, "  absorption    expected steps <= %.4g under every policy (bound rechecked)\n",
+                            c->steps_max);
+                fprintf(out, "  value         |value - v*| <= %.3e in every state\n", c->value_error_bound);
+                fprintf(out, "  policy        v* - v_policy <= %.3e in every state\n", c->policy_loss_bound);
+            }
+            fprintf(out, "  result        %s at tolerance %.1e\n", k.certified ? "CERTIFIED" : "NOT certified",
+                    k.tolerance);
+        }
+    }
+    if (!k.certified)
+        st = SL_ERR(ctx, SL_EDATA, "%s: not certified within %.1e (value/gain bound %.3e, policy bound %.3e)",
+                    solution, k.tolerance, c->value_error_bound, c->policy_loss_bound);
+    return sl_agree(ctx, st);
 }
