@@ -97,10 +97,39 @@ const num = (x) => (x === null || x === undefined ? 'n/a' : Number.isInteger(x) 
 // A number shown in the page keeps its full value in data-value so a test
 // (or a reviewer's script) can compare it with the file it came from.
 const cert = (key, x, d = 2) => `<span class="num" data-cert="${esc(key)}" data-value="${esc(JSON.stringify(x))}">${esc(sci(x, d))}</span>`;
+const certCount = (key, x) => `<span class="num" data-cert="${esc(key)}" data-value="${esc(JSON.stringify(x))}">${esc(num(x))}</span>`;
 const unitOf = (u, fallback) => (u && u.length ? u : fallback);
+
+// The finite, total and average objectives (certificate.objective present):
+// their own certificate in words; the discounted page is untouched.
+function objectiveWords(doc) {
+  const c = doc.certificate;
+  const ru = esc(unitOf(doc.model.reward_unit, 'reward units'));
+  const per = doc.model.period_unit ? ` per ${esc(doc.model.period_unit)}` : ' per period';
+  const what = esc(doc.model.action_noun || 'policy');
+  const tol = `against a tolerance of ${cert('tolerance', c.tolerance, 1)}`;
+  if (c.objective === 'average') {
+    return `The optimal gain (long-run average reward) lies between ${cert('gain_lower', c.gain_lower, 9)} and ` +
+      `${cert('gain_upper', c.gain_upper, 9)} ${ru}${per} (the smallest and largest change T h − h over the states); ` +
+      `the stored gain ${cert('gain', c.gain, 9)} ${ru}${per} is within ${cert('value_error_bound', c.value_error_bound)} of every gain those bounds allow, ` +
+      `and the ${what}'s gain is within ${cert('policy_loss_bound', c.policy_loss_bound)} ${ru}${per} of the optimal gain, ${tol} ${ru}${per}. ` +
+      `The stored values are the bias (relative values, defined up to a constant); their span, largest minus smallest, is ${cert('bias_span', c.bias_span, 4)} ${ru}.`;
+  }
+  if (c.objective === 'total') {
+    return `Total reward until absorption, undiscounted: ${certCount('n_absorbing', c.n_absorbing)} absorbing states; under every policy the expected number of steps ` +
+      `before absorption is at most ${cert('steps_bound_max', c.steps_bound_max, 4)} in any state. ` +
+      `Every value is within ${cert('value_error_bound', c.value_error_bound)} ${ru} of the optimal total; ` +
+      `the ${what} loses at most ${cert('policy_loss_bound', c.policy_loss_bound)} ${ru} in any state, ${tol} ${ru}.`;
+  }
+  return `Finite horizon of ${certCount('horizon', c.horizon)} stages, solved backwards from the terminal values ` +
+    `(source: <span id="terminal">${esc(c.terminal)}</span>), exact up to roundoff: every first-stage value is within ` +
+    `${cert('value_error_bound', c.value_error_bound)} ${ru} of the optimum (the floating-point allowance summed over the stages is ${cert('roundoff_bound', c.roundoff_bound)} ${ru}), ` +
+    `and the stage-by-stage ${what} loses at most ${cert('policy_loss_bound', c.policy_loss_bound)} ${ru} in any state, ${tol} ${ru}.`;
+}
 
 function certificateWords(doc) {
   const c = doc.certificate;
+  if (c.objective) return objectiveWords(doc);
   const ru = unitOf(doc.model.reward_unit, 'reward units');
   const rel = c.value_error_relative;
   const relWords = rel === null || rel === undefined
@@ -331,16 +360,36 @@ function table(rows, head) {
     .map((r) => `<tr>${r.map((c, i) => (i === 0 && !head ? `<th>${c}</th>` : `<td>${c}</td>`)).join('')}</tr>`).join('')}</table>`;
 }
 
+function objectiveLine(m, c, ru) {
+  const per = m.period_unit ? ` per ${esc(m.period_unit)}` : '';
+  if (c.objective === 'average') return `average reward per period (the gain; the model's discount ${esc(num(m.discount))} is not used)${per}; reward in ${esc(ru)}`;
+  if (c.objective === 'total') return `total reward until absorption (undiscounted)${per}; reward in ${esc(ru)}`;
+  if (c.objective === 'finite') return `finite horizon of ${esc(num(c.horizon))} stages, discount ${esc(num(m.discount))}${per}; reward in ${esc(ru)}`;
+  return `${esc(m.objective || 'discounted')}, discount ${esc(num(m.discount))}${per}; reward in ${esc(ru)}`;
+}
+
 function page(doc, figs, reasons, vegaJs, tooltipJs) {
   const m = doc.model, s = doc.solution, c = doc.certificate, v = doc.verify;
   const ru = unitOf(m.reward_unit, 'reward units');
   const title = doc.title || `sluice report: ${m.name || m.path}`;
-  const verdict = c.certified
+  // finite/total/average: the badge also needs the independent check (when run)
+  const certified = c.objective ? c.certified && (!v || v.omitted !== undefined || v.certified === true) : c.certified;
+  const verdict = certified
     ? `<span class="verdict pass" id="verdict" data-certified="true">CERTIFIED</span>`
     : `<span class="verdict failv" id="verdict" data-certified="false">NOT CERTIFIED</span>`;
   let verifyHtml;
   if (!v || v.omitted) verifyHtml = `<p class="omitted" data-omitted="verify">Independent check left out: ${esc(v?.omitted || 'not run')}</p>`;
-  else
+  else if (v.objective) {
+    const how = v.objective === 'average'
+      ? `optimal gain between ${cert('verify_gain_lower', v.gain_lower, 9)} and ${cert('verify_gain_upper', v.gain_upper, 9)} ${esc(ru)} (min and max of T h − h), ` +
+        `stored gain within ${cert('verify_value_error_bound', v.value_error_bound)} of them, policy gain within ${cert('verify_policy_loss_bound', v.policy_loss_bound)} of optimal`
+      : `${v.objective === 'finite' ? `${esc(num(v.horizon))} stages rechecked one by one, terminal values ${v.terminal_rechecked ? 'compared with their source' : `taken from ${esc(v.terminal)} and not rechecked`}; `
+        : `expected steps to absorption at most ${cert('verify_steps_bound_max', v.steps_bound_max, 4)} under every policy; `}` +
+        `value bound ${cert('verify_value_error_bound', v.value_error_bound)} ${esc(ru)}, policy bound ${cert('verify_policy_loss_bound', v.policy_loss_bound)} ${esc(ru)}`;
+    verifyHtml = `<p id="verify">Recomputed independently by <code>sluice verify</code> (objective ${esc(v.objective)}) from the model and the stored values and policy${v.ranks ? ` on ${v.ranks} rank(s)` : ''}: ` +
+      `${how} (${v.objective === 'average' ? 'T h − h' : 'residual'} from ${cert('verify_residual_min', v.residual_min, 9)} to ${cert('verify_residual_max', v.residual_max, 9)}): ` +
+      `<b data-verify="${v.certified ? 'pass' : 'fail'}">${v.certified ? 'certified' : 'NOT certified'}</b> at tolerance ${sci(v.tolerance, 1)}.</p>`;
+  } else
     verifyHtml = `<p id="verify">Recomputed independently by <code>sluice verify</code> from the model and the stored values and policy${v.ranks ? ` on ${v.ranks} rank(s)` : ''}: ` +
       `value bound ${cert('verify_value_error_bound', v.value_error_bound)} ${esc(ru)}, policy bound ${cert('verify_policy_loss_bound', v.policy_loss_bound)} ${esc(ru)} ` +
       `(residual sup ${cert('verify_residual_sup', v.residual_sup)}, span ${cert('verify_residual_span', v.residual_span)}): ` +
@@ -354,12 +403,14 @@ function page(doc, figs, reasons, vegaJs, tooltipJs) {
     ['model', `${esc(m.path || '')} ${m.name ? `(generator <b>${esc(m.name)}</b>${m.source ? `, ${esc(m.source)}` : ''})` : m.source ? `(from ${esc(m.source)})` : ''}`],
     ['fingerprint', `<code id="fingerprint">${esc(m.fingerprint)}</code>`],
     ['size', `${num(m.n_states)} states, ${num(m.n_pairs)} state-action pairs, ${num(m.n_transitions)} transitions`],
-    ['objective', `${esc(m.objective || 'discounted')}, discount ${esc(num(m.discount))}${m.period_unit ? ` per ${esc(m.period_unit)}` : ''}; reward in ${esc(ru)}`],
+    ['objective', objectiveLine(m, c, ru)],
     ['solution', `${esc(s.path || '')}: method <b>${esc(s.method)}</b>${s.order ? ` (order ${esc(s.order)})` : ''}, ` +
       `${s.ranks ? `${num(s.ranks)} rank(s)` : 'rank count not recorded in the solution file'}, ${num(s.iterations)} iterations, ${num(s.sweeps)} sweeps, ${esc(num(s.seconds))} s; ` +
       `${s.converged ? 'stopped certified' : 'stopped before certifying'}`],
     ['values', `from ${esc(num(s.value_min))} to ${esc(num(s.value_max))} ${esc(ru)}`],
-    ['residual', `sup |Tv - v| = ${cert('residual_sup', c.residual_sup)}, span = ${cert('residual_span', c.residual_span)} ${esc(ru)}`],
+    c.objective === 'average'
+      ? ['residual', `T h − h from ${cert('gain_lower_file', c.gain_lower, 9)} to ${cert('gain_upper_file', c.gain_upper, 9)}, span = ${cert('residual_span', c.residual_span)} ${esc(ru)}`]
+      : ['residual', `sup |Tv - v| = ${cert('residual_sup', c.residual_sup)}, span = ${cert('residual_span', c.residual_span)} ${esc(ru)}`],
   ]);
   const figHtml = (name, heading, blurb) => {
     if (figs[name])

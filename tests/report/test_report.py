@@ -194,6 +194,120 @@ def check_outlook(chk, model, mdp, policy, factor_rows, quantity_rows, L, J, sta
               "%d numbers, worst relative difference %.2e" % (count, worst))
 
 
+def obj_page(chk, binary, rdir, env, label, model, sol, html, data):
+    """Report of a finite/average solution: the page and its data document."""
+    cp = run([binary, "report", model, sol, "-o", html, "--data", data], env=env)
+    chk.check(cp.returncode == 0, "%s: sluice report exits 0" % label, cp.stderr[-1500:])
+    if cp.returncode != 0:
+        return None, None
+    page = open_page(rdir, html)
+    chk.check(page["console_errors"] == [] and page["page_errors"] == [] and page["external_requests"] == [],
+              "%s: no console or page errors, no requests" % label,
+              str(page["console_errors"] + page["page_errors"] + page["external_requests"]))
+    with open(data) as f:
+        doc = json.load(f)
+    return page, doc
+
+
+def same_as_file(chk, label, page, attrs, keys):
+    """Every certificate number on the page equals the solution file's attribute (h5py)."""
+    for key, attr in keys:
+        shown = page["certificate"].get(key, {}).get("value")
+        chk.check(shown == attrs[attr], "%s: page %s equals the solution file's %s" % (label, key, attr),
+                  "page %r, file %r" % (shown, attrs.get(attr)))
+
+
+def check_objectives(chk, binary, work, rdir, env, L, J):
+    """Average reward (relative value iteration) and finite horizon (backward
+    induction) on the demo reservoir: the objective's own certificate on the
+    page, equal to the solution file's attributes read with h5py, and the
+    objectives' verify recomputed; a tampered file is shown NOT CERTIFIED."""
+    gen = os.path.join(ROOT, "examples", "reservoir.c")
+    # -- average: min(Th - h) <= g* <= max(Th - h) (Puterman 1994, Markov Decision
+    #    Processes, Wiley, Theorem 8.5.5; theorem number recalled from memory)
+    am, asol = os.path.join(work, "avg.h5"), os.path.join(work, "avg-solution.h5")
+    mc.run_sluice(binary, ["build", gen, "--param", "storage_levels=%d" % L, "--param", "inflow_classes=%d" % J,
+                           "--objective", "average", "-o", am])
+    mc.run_sluice(binary, ["solve", am, "-o", asol, "--tolerance", "1e-6"])
+    page, doc = obj_page(chk, binary, rdir, env, "average", am, asol, os.path.join(work, "avg.html"),
+                         os.path.join(work, "avg-data.json"))
+    if page is not None:
+        with h5py.File(asol, "r") as f:
+            attrs = {k: mc._attr(f, k) for k in f.attrs}
+            h = f["value"][...].astype(np.float64)
+        same_as_file(chk, "average", page, attrs, [(k, k) for k in (
+            "gain", "gain_lower", "gain_upper", "value_error_bound", "policy_loss_bound", "tolerance",
+            "residual_span")])
+        span = page["certificate"].get("bias_span", {}).get("value")
+        chk.check(span == float(np.max(h) - np.min(h)), "average: bias span = max h - min h of /value (numpy)",
+                  "page %r, numpy %r" % (span, float(np.max(h) - np.min(h))))
+        # verify's min/max of Th - h against numpy's, undiscounted, from the model file
+        mdp = mc.read_model(am)
+        mdp.gamma = 1.0
+        th, _, _ = mdp.bellman(h)
+        lo, hi = float(np.min(th - h)), float(np.max(th - h))
+        vlo = page["certificate"].get("verify_residual_min", {}).get("value")
+        vhi = page["certificate"].get("verify_residual_max", {}).get("value")
+        tol_fp = 1e-9 * max(1.0, abs(hi))
+        chk.check(vlo is not None and vhi is not None and abs(vlo - lo) <= tol_fp and abs(vhi - hi) <= tol_fp,
+                  "average: verify's min and max of Th - h equal numpy's", "sluice %r %r, numpy %r %r" % (
+                      vlo, vhi, lo, hi))
+        glo = page["certificate"].get("verify_gain_lower", {}).get("value")
+        ghi = page["certificate"].get("verify_gain_upper", {}).get("value")
+        chk.check(glo is not None and ghi is not None and glo <= attrs["gain"] <= ghi and ghi - glo <= 2e-6,
+                  "average: the stored gain lies in verify's recomputed bounds", "%r <= %r <= %r" % (
+                      glo, attrs["gain"], ghi))
+        chk.check(page["verdict"] == "CERTIFIED" and page["verify"] == "pass",
+                  "average: verdict and verification certified", "%s / %s" % (page["verdict"], page["verify"]))
+        text = page["certificate_text"] or ""
+        chk.check("gain" in text and "bias" in text and "kCU" in text,
+                  "average: the certificate speaks of the gain and the bias in the reward unit", text)
+        stages = doc.get("outlook", {}).get("stages", [])
+        chk.check(stages and all("discounted_reward" not in s for s in stages),
+                  "average: the outlook carries no discounted reward (the objective has none)")
+        # a tampered gain: the objectives' verify must catch it and the page say so
+        bad = os.path.join(work, "avg-tampered.h5")
+        shutil.copy(asol, bad)
+        with h5py.File(bad, "r+") as f:
+            f.attrs["gain"] = attrs["gain"] + 1e-3
+        tpage, _ = obj_page(chk, binary, rdir, env, "average tampered", am, bad, os.path.join(work, "avg-t.html"),
+                            os.path.join(work, "avg-t.json"))
+        if tpage is not None:
+            chk.check(tpage["verdict"] == "NOT CERTIFIED" and tpage["verify"] == "fail",
+                      "average: a gain moved by 1e-3 is shown NOT CERTIFIED", "%s / %s" % (
+                          tpage["verdict"], tpage["verify"]))
+    # -- finite horizon: 24 monthly stages from zero terminal values
+    H = 24
+    fm, fsol = os.path.join(work, "fin.h5"), os.path.join(work, "fin-solution.h5")
+    mc.run_sluice(binary, ["build", gen, "--param", "storage_levels=%d" % L, "--param", "inflow_classes=%d" % J,
+                           "--objective", "finite", "-o", fm])
+    mc.run_sluice(binary, ["solve", fm, "-o", fsol, "--horizon", str(H)])
+    page, doc = obj_page(chk, binary, rdir, env, "finite", fm, fsol, os.path.join(work, "fin.html"),
+                         os.path.join(work, "fin-data.json"))
+    if page is not None:
+        with h5py.File(fsol, "r") as f:
+            attrs = {k: mc._attr(f, k) for k in f.attrs}
+        same_as_file(chk, "finite", page, attrs, [(k, k) for k in (
+            "horizon", "roundoff_bound", "value_error_bound", "policy_loss_bound", "tolerance")])
+        chk.check(page["certificate"].get("horizon", {}).get("value") == H, "finite: the page gives %d stages" % H)
+        chk.check(attrs.get("terminal") in (page["certificate_text"] or ""),
+                  "finite: the page names the terminal values' source", page["certificate_text"])
+        chk.check(page["verdict"] == "CERTIFIED" and page["verify"] == "pass",
+                  "finite: verdict and verification certified", "%s / %s" % (page["verdict"], page["verify"]))
+        # a tampered middle stage: its residual shows in the recomputed bound
+        bad = os.path.join(work, "fin-tampered.h5")
+        shutil.copy(fsol, bad)
+        with h5py.File(bad, "r+") as f:
+            f["stage/value_000005"][3] += 1.0
+        tpage, _ = obj_page(chk, binary, rdir, env, "finite tampered", fm, bad, os.path.join(work, "fin-t.html"),
+                            os.path.join(work, "fin-t.json"))
+        if tpage is not None:
+            vb = tpage["certificate"].get("verify_value_error_bound", {}).get("value")
+            chk.check(tpage["verdict"] == "NOT CERTIFIED" and tpage["verify"] == "fail" and vb is not None and vb > 0.5,
+                      "finite: a stage value moved by 1 is shown NOT CERTIFIED (verify's bound > 0.5)",
+                      "%s / %s, bound %r" % (tpage["verdict"], tpage["verify"], vb))
+
+
 def main():
     if len(sys.argv) != 4:
         sys.stderr.write("usage: test_report.py SLUICE WORKDIR REPORT_DIR\n")
@@ -402,6 +516,9 @@ def main():
                   "imported: the map is left out because there are no factors",
                   ipage["omitted"].get("rule_map", "missing"))
         chk.check("factors" in ipage["omitted"], "imported: the model facts say there are no factors")
+
+    # ---- 4. the other objectives: average reward and finite horizon --------------------
+    check_objectives(chk, binary, work, rdir, env, L, J)
 
     # ---- 3. bad input -------------------------------------------------------------------
     bad = os.path.join(work, "bad")
