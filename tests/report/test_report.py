@@ -248,7 +248,11 @@ def check_objectives(chk, binary, work, rdir, env, L, J):
         lo, hi = float(np.min(th - h)), float(np.max(th - h))
         vlo = page["certificate"].get("verify_residual_min", {}).get("value")
         vhi = page["certificate"].get("verify_residual_max", {}).get("value")
-        tol_fp = 1e-9 * max(1.0, abs(hi))
+        # roundoff of one undiscounted backup, a few dozen operations (the form of
+        # Higham 2002, Accuracy and Stability of Numerical Algorithms, section 3.1;
+        # the factor 64 is common practice, no source); far below the span of
+        # Th - h (about 1e-6 here), so a swapped min and max is caught
+        tol_fp = 64 * np.finfo(float).eps * (float(np.max(np.abs(h))) + float(np.max(np.abs(mdp.r))))
         chk.check(vlo is not None and vhi is not None and abs(vlo - lo) <= tol_fp and abs(vhi - hi) <= tol_fp,
                   "average: verify's min and max of Th - h equal numpy's", "sluice %r %r, numpy %r %r" % (
                       vlo, vhi, lo, hi))
