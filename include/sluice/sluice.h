@@ -397,6 +397,8 @@ SLUICE_API sl_status sl_verify(const sl_model *m, const sl_solution *x, double t
 
 /* ---- file inspection (printing lives here for `sluice info`) ------------------ */
 
+/* Option structs may gain fields at their end in later versions, zero meaning
+ * the earlier behaviour: initialise them with designated initializers. */
 typedef struct sl_info_opts {
     const char *path;
     int json;

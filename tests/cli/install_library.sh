@@ -21,7 +21,7 @@ int main(int argc, char **argv)
     sl_ctx *ctx = NULL;
     int rc = 70;
     if (sl_ctx_new(MPI_COMM_WORLD, 0, &ctx) == SL_OK) {
-        sl_info_opts o = {argv[1], 1, 0, stdout};
+        sl_info_opts o = {.path = argv[1], .json = 1, .out = stdout};
         rc = (int)sl_info(ctx, &o);
         if (rc != 0) fprintf(stderr, "%s\n", sl_ctx_message(ctx));
         sl_ctx_free(&ctx);
