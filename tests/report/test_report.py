@@ -312,6 +312,47 @@ def check_objectives(chk, binary, work, rdir, env, L, J):
                       "%s / %s, bound %r" % (tpage["verdict"], tpage["verify"], vb))
 
 
+def check_total(chk, binary, work, rdir, env):
+    """Total reward to absorption on an invented random model (the objectives
+    test's random_ssp: every pair reaches an absorbing state with probability
+    >= 1/8): the page's numbers equal the solution file's, the absorbing
+    states counted with numpy from the model file, a changed value caught."""
+    import test_objectives as tobj   # tests/python, on sys.path above
+    mdp = tobj.float_states(tobj.random_ssp(20261203, 40), 1.0)
+    tm = tobj.imp(binary, mdp, work, "ssp", "total")
+    tsol = os.path.join(work, "ssp-solution.h5")
+    mc.run_sluice(binary, ["solve", tm, "-o", tsol, "--tolerance", "1e-8"])
+    page, _ = obj_page(chk, binary, rdir, env, "total", tm, tsol, os.path.join(work, "ssp.html"),
+                       os.path.join(work, "ssp-data.json"))
+    if page is None:
+        return
+    with h5py.File(tsol, "r") as f:
+        attrs = {k: mc._attr(f, k) for k in f.attrs}
+    same_as_file(chk, "total", page, attrs, [(k, k) for k in (
+        "n_absorbing", "steps_bound_max", "value_error_bound", "policy_loss_bound", "tolerance")])
+    # absorbing: every action stays with probability 1 and reward 0 (numpy, model file)
+    m = mc.read_model(tm)
+    P = m.P.tocsr()
+    stay = np.array([P[q, s] == 1.0 and m.r[q] == 0.0 for s in range(m.n)
+                     for q in range(m.first_pair[s], m.first_pair[s + 1])])
+    per_state = np.logical_and.reduceat(stay, m.first_pair[:-1])
+    chk.check(page["certificate"].get("n_absorbing", {}).get("value") == int(per_state.sum()),
+              "total: the absorbing states shown are those counted with numpy from the model file",
+              "page %r, numpy %d" % (page["certificate"].get("n_absorbing", {}).get("value"), per_state.sum()))
+    chk.check(page["verdict"] == "CERTIFIED" and page["verify"] == "pass",
+              "total: verdict and verification certified", "%s / %s" % (page["verdict"], page["verify"]))
+    bad = os.path.join(work, "ssp-tampered.h5")
+    shutil.copy(tsol, bad)
+    with h5py.File(bad, "r+") as f:
+        f["value"][5] += 0.5
+    tpage, _ = obj_page(chk, binary, rdir, env, "total tampered", tm, bad, os.path.join(work, "ssp-t.html"),
+                        os.path.join(work, "ssp-t.json"))
+    if tpage is not None:
+        chk.check(tpage["verdict"] == "NOT CERTIFIED" and tpage["verify"] == "fail",
+                  "total: a value moved by 0.5 is shown NOT CERTIFIED", "%s / %s" % (
+                      tpage["verdict"], tpage["verify"]))
+
+
 def main():
     if len(sys.argv) != 4:
         sys.stderr.write("usage: test_report.py SLUICE WORKDIR REPORT_DIR\n")
@@ -523,6 +564,7 @@ def main():
 
     # ---- 4. the other objectives: average reward and finite horizon --------------------
     check_objectives(chk, binary, work, rdir, env, L, J)
+    check_total(chk, binary, work, rdir, env)
 
     # ---- 3. bad input -------------------------------------------------------------------
     bad = os.path.join(work, "bad")
