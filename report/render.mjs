@@ -372,8 +372,10 @@ function page(doc, figs, reasons, vegaJs, tooltipJs) {
   const m = doc.model, s = doc.solution, c = doc.certificate, v = doc.verify;
   const ru = unitOf(m.reward_unit, 'reward units');
   const title = doc.title || `sluice report: ${m.name || m.path}`;
-  // finite/total/average: the badge also needs the independent check (when run)
-  const certified = c.objective ? c.certified && (!v || v.omitted !== undefined || v.certified === true) : c.certified;
+  // the badge needs the solution's own certificate and, when it was run, the
+  // independent check: a file whose values were changed after the solve keeps
+  // its stored bounds, and only the recomputation shows they no longer hold
+  const certified = c.certified && (!v || v.omitted !== undefined || v.certified === true);
   const verdict = certified
     ? `<span class="verdict pass" id="verdict" data-certified="true">CERTIFIED</span>`
     : `<span class="verdict failv" id="verdict" data-certified="false">NOT CERTIFIED</span>`;

@@ -542,6 +542,25 @@ def main():
         chk.check(epage["certificate"]["value_error_bound"]["value"] == eb[0],
                   "early: the page shows the solution's own (large) bound")
 
+    # ---- values changed after the solve: the stored bounds still say certified,
+    # the independent verify does not, and the badge must follow verify ---------
+    tampered = os.path.join(work, "tamsel-tampered.h5")
+    shutil.copy(sol, tampered)
+    with h5py.File(tampered, "r+") as f:
+        v = f["value"][...]
+        v[len(v) // 2] += 0.5
+        f["value"][...] = v
+    thtml = os.path.join(work, "tamsel-tampered.html")
+    cp = run([binary, "report", model, tampered, "-o", thtml], env=env)
+    if cp.returncode == 0:
+        tpage = open_page(rdir, thtml)
+        chk.check(tpage["verdict"] == "NOT CERTIFIED" and tpage["verify"] == "fail",
+                  "tampered: a value moved by 0.5 kCU after the solve is shown NOT CERTIFIED (verify fails)",
+                  "%s / %s" % (tpage["verdict"], tpage["verify"]))
+    else:
+        chk.check(cp.returncode == 65 and not os.path.exists(thtml),
+                  "tampered: refused with 65 and no page", "exit %d: %s" % (cp.returncode, cp.stderr[-400:]))
+
     # ---- 2. an imported model without factors ------------------------------------
     rnd = mc.random_mdp(20261202, 40, 0.9, actions=(1, 3), successors=(1, 3))
     imodel = mc.import_model(binary, rnd, work, "imported")
