@@ -29,12 +29,17 @@ endforeach()
 file(GLOB SLUICE_CLI_TESTS CONFIGURE_DEPENDS ${PROJECT_SOURCE_DIR}/tests/cli/*.sh)
 list(FILTER SLUICE_CLI_TESTS EXCLUDE REGEX "/lib(_ckpt)?\\.sh$")  # shared helpers, not tests
 list(FILTER SLUICE_CLI_TESTS EXCLUDE REGEX "/fault_alloc\\.sh$")  # registered per step below
-foreach(script ${SLUICE_CLI_TESTS})
-  get_filename_component(name ${script} NAME_WE)
+# sluice_cli_test(NAME SCRIPT [ARGS...]): cli_NAME runs SCRIPT with the binary,
+# its own work directory, the source tree and ARGS
+function(sluice_cli_test name script)
   add_test(NAME cli_${name} COMMAND bash ${script} $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/cli_${name}
-           ${PROJECT_SOURCE_DIR})
+           ${PROJECT_SOURCE_DIR} ${ARGN})
   set_tests_properties(cli_${name} PROPERTIES LABELS cli TIMEOUT 600 SKIP_RETURN_CODE 77
                        ENVIRONMENT "${SLUICE_TEST_ENV};SLUICE_MPIEXEC=${SLUICE_MPIEXEC};SLUICE_PYTHON=/usr/bin/python3")
+endfunction()
+foreach(script ${SLUICE_CLI_TESTS})
+  get_filename_component(name ${script} NAME_WE)
+  sluice_cli_test(${name} ${script})
 endforeach()
 # the allocation-failure sweep runs the CLI about 600 times (every allocation of
 # import, build, solve, pi, verify, export): one test per command, so each has
@@ -42,12 +47,10 @@ endforeach()
 # and two run side by side. As one test it timed out after 1800 s with both
 # cores busy (stress-ng and other work, load average 14).
 foreach(step import build solve pi verify export)
-  add_test(NAME cli_fault_alloc_${step} COMMAND bash ${PROJECT_SOURCE_DIR}/tests/cli/fault_alloc.sh
-           $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/cli_fault_alloc_${step} ${PROJECT_SOURCE_DIR} ${step})
-  set_tests_properties(cli_fault_alloc_${step} PROPERTIES LABELS cli TIMEOUT 1800 SKIP_RETURN_CODE 77
-                       ENVIRONMENT "${SLUICE_TEST_ENV};SLUICE_MPIEXEC=${SLUICE_MPIEXEC};SLUICE_PYTHON=/usr/bin/python3")
+  sluice_cli_test(fault_alloc_${step} ${PROJECT_SOURCE_DIR}/tests/cli/fault_alloc.sh ${step})
+  set_tests_properties(cli_fault_alloc_${step} PROPERTIES TIMEOUT 1800)
 endforeach()
-# the kill trials, the signal cases and the 57 extra bad-input cases do a fixed
+# the kill trials, the signal cases and the extra bad-input cases do a fixed
 # amount of work that takes 3-7 minutes on two idle cores; with both cores kept
 # busy by other work (stress-ng, load average 10) cli_checkpoint_kill needed
 # more than 600 s. A timeout here only catches a hang, so give them 30 minutes.
