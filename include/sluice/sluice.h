@@ -461,6 +461,17 @@ typedef struct sl_objective_opts {
     sl_method method;           /* total/average: SL_METHOD_PI for policy iteration
                                  * (exact evaluation by UMFPACK); otherwise value
                                  * iteration. Finite: ignored */
+    /* policy iteration's guard on the direct solve (the discounted pi's rule):
+     * a factorization over memory_limit bytes (<= 0: half of RAM) or one
+     * UMFPACK estimates to take longer than direct_time_limit seconds (0: the
+     * default, 120 s; < 0: no limit) is not attempted; policy iteration then
+     * falls back to value iteration (total) or relative value iteration
+     * (average) from its last values, with the reason logged and in the
+     * report, unless strict_memory makes an estimate over the memory limit an
+     * error (SL_EDATA). */
+    double memory_limit;
+    int strict_memory;
+    double direct_time_limit;
 } sl_objective_opts;
 
 /* Solve m (objective finite, total or average) and write o->output.

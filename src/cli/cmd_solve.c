@@ -327,6 +327,10 @@ static int run_solve(cli_args *a, const solve_args *o)
         oo.terminal = o->terminal;
         oo.aperiodicity = o->aperiodicity;
         oo.method = o->method;
+        oo.memory_limit = o->memory_limit;
+        oo.strict_memory = o->strict_memory;
+        /* the CLI's 0 means no limit, the library's 0 its default */
+        oo.direct_time_limit = o->direct_time_limit < 0 ? 0 : o->direct_time_limit == 0 ? -1 : o->direct_time_limit;
         sl_objective obj = sl_model_objective(m);
         int pi_ok = o->method == SL_METHOD_PI && obj != SL_OBJ_FINITE;
         if (o->method != SL_METHOD_GS && !pi_ok && sl_ctx_rank(ctx) == 0)

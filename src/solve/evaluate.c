@@ -338,8 +338,9 @@ sl_status sl_evaluate_direct(sl_ctx *ctx, const sl_problem *p, const int32_t *po
                    ls.peak_bytes / 1e9);
             if (!fits && ls.declined_for_time)
                 sl_warn(ctx, "exact evaluation would take about %.0f s (UMFPACK's flop estimate %.3g at %.3g flop/s), "
-                             "over the limit of %.0f s: evaluating iteratively from now on",
-                        ls.seconds_estimate, ls.flops_estimate, ls.flop_rate, tlim);
+                             "over the limit of %.0f s: %s",
+                        ls.seconds_estimate, ls.flops_estimate, ls.flop_rate, tlim,
+                        p->direct_fallback ? p->direct_fallback : "evaluating iteratively from now on");
         }
         int ab = 0;
         if (st == SL_OK && fits) st = numeric_abandonable(ctx, lu, N, G.rew, v, deadline, &ab);
@@ -361,6 +362,20 @@ cleanup:
     free(acol);
     free(aval);
     return st;
+}
+
+sl_status sl_direct_declined(sl_ctx *ctx, double est, double limit, int strict, int warn, const char *instead,
+                             const char *doing)
+{
+    if (est > limit && strict)
+        return SL_ERR(ctx, SL_EDATA,
+                      "exact evaluation needs about %.2f GB (UMFPACK estimate), over the memory limit of %.2f GB; "
+                      "use --memory-limit, another method, or drop --strict-memory to %s",
+                      est / 1e9, limit / 1e9, instead);
+    if (est > limit && warn)
+        sl_warn(ctx, "exact evaluation needs about %.2f GB (UMFPACK estimate), over the limit of %.2f GB: %s", est / 1e9,
+                limit / 1e9, doing);
+    return SL_OK;
 }
 
 sl_status sl_evaluate_iterative(sl_ctx *ctx, const sl_problem *p, const int32_t *policy, double tol,

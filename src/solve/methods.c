@@ -352,17 +352,9 @@ static int step_pi(run *r, sl_status *st)
     if (abandoned) return 0; /* poll() acts on the stop request; x is as before */
     r->lu_estimate = est;
     if (!direct) {
-        if (r->o->strict_memory && est > limit) {
-            *st = SL_ERR(ctx, SL_EDATA,
-                         "exact evaluation needs about %.2f GB (UMFPACK estimate), over the memory limit of %.2f GB; "
-                         "use --memory-limit, another method, or drop --strict-memory to evaluate iteratively",
-                         est / 1e9, limit / 1e9);
-            return -1;
-        }
-        if (strcmp(r->evaluation, "iterative") != 0 && est > limit)
-            sl_warn(ctx, "exact evaluation needs about %.2f GB (UMFPACK estimate), over the limit of %.2f GB: "
-                         "evaluating iteratively",
-                    est / 1e9, limit / 1e9);
+        *st = sl_direct_declined(ctx, est, limit, r->o->strict_memory, strcmp(r->evaluation, "iterative") != 0,
+                                 "evaluate iteratively", "evaluating iteratively");
+        if (*st != SL_OK) return -1;
         snprintf(r->evaluation, sizeof(r->evaluation), "iterative");
         sl_check ce;
         int64_t sw = 0;

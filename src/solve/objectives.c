@@ -613,21 +613,34 @@ static sl_status check_closed_classes(sl_ctx *ctx, const sl_problem *p, const in
  * improvement on the evaluated values, keeping the current action unless
  * another is better by more than the tie margin (kernel.c), which makes it
  * stop; it stops when no action changes (the average gain of each
- * evaluated policy is logged). A factorization that does not fit in half the memory is
- * refused (SL_EUSAGE: use value iteration). No checkpoints: a signal or the
- * walltime stops it with the last evaluated policy (SL_ESTOPPED). The
- * certificate is then computed from the values as for value iteration.
- * Collective. */
+ * evaluated policy is logged). The direct solve is guarded as the
+ * discounted pi's is (memory and UMFPACK's estimated time after the
+ * symbolic step, sl_evaluate_direct / sl_direct_declined): when it declines,
+ * *fallback gets the reason and SL_OK is returned with x and policy as they
+ * are (the last evaluated values and the policy greedy for them; zero and
+ * the first actions before any evaluation) for value iteration to finish
+ * from; under strict memory an estimate over the limit is SL_EDATA. No
+ * checkpoints: a signal or the walltime stops it with the last evaluated
+ * policy (SL_ESTOPPED). The certificate is then computed from the values as
+ * for value iteration. Collective. */
 static sl_status policy_iteration(sl_ctx *ctx, const sl_problem *p0, const sl_obj_opts *o, int average, double *x,
-                                  double *y, int32_t *policy, int64_t *iterations)
+                                  double *y, int32_t *policy, int64_t *iterations, char *fallback, size_t fallback_len)
 {
     sl_status st = SL_OK;
     sl_problem q = *p0; /* shallow: only the evaluation system differs */
     q.eval_average = average;
     q.eval_ref = 0;
+    q.direct_time_limit = o->direct_time_limit > 0 ? o->direct_time_limit
+                          : o->direct_time_limit < 0 ? 0.0
+                                                     : SL_DIRECT_TIME_LIMIT;
+    const char *vi = average ? "relative value iteration" : "value iteration";
+    char doing[96];
+    snprintf(doing, sizeof(doing), "falling back to %s", vi);
+    q.direct_fallback = doing;
     const sl_problem *p = &q;
     void *lu = NULL;
-    double t0 = sl_now(), last = t0, mem = 0.5 * sl_physical_memory();
+    double t0 = sl_now(), last = t0, mem = o->memory_limit > 0 ? o->memory_limit : 0.5 * sl_physical_memory();
+    fallback[0] = '\0';
     int owner = p->blk.s_begin == 0 && p->n_local > 0;
     *iterations = 0;
     for (;;) {
@@ -656,11 +669,31 @@ static sl_status policy_iteration(sl_ctx *ctx, const sl_problem *p0, const sl_ob
                         p->path, (long long)*iterations + 1, msg);
         }
         if (st != SL_OK) break;
+        if (abandoned) { /* a stop request killed the factorization; x is as before */
+            st = SL_ESTOPPED;
+            break;
+        }
         if (!used) {
-            st = SL_ERR(ctx, SL_EUSAGE,
-                        "%s: policy iteration needs the direct solve, which does not fit (estimated %.2f GB, limit "
-                        "%.2f GB, or over the time limit); use value iteration (--method gs)",
-                        p->path, est / 1e9, mem / 1e9);
+            char instead[96];
+            snprintf(instead, sizeof(instead), "solve by %s", vi);
+            st = sl_direct_declined(ctx, est, mem, o->strict_memory, 1, instead, doing);
+            if (st != SL_OK) break;
+            if (est > mem)
+                snprintf(fallback, fallback_len,
+                         "the factorization of iteration %lld needs about %.3g GB (UMFPACK estimate), over the "
+                         "limit of %.3g GB",
+                         (long long)*iterations + 1, est / 1e9, mem / 1e9);
+            else
+                snprintf(fallback, fallback_len,
+                         "the factorization of iteration %lld would take longer than the direct-solve time limit "
+                         "of %.3g s (UMFPACK's flop estimate)",
+                         (long long)*iterations + 1, q.direct_time_limit);
+            if (*iterations > 0)
+                sl_log(ctx, "solve: policy iteration without a direct solve: %s; %s from the values of the policy "
+                            "of iteration %lld",
+                       fallback, doing, (long long)*iterations);
+            else
+                sl_log(ctx, "solve: policy iteration without a direct solve: %s; %s from the start", fallback, doing);
             break;
         }
         double g = owner ? x[0] : 0.0;
@@ -720,25 +753,30 @@ static sl_status solve_total(sl_ctx *ctx, const sl_problem *p, const sl_obj_opts
                 "sweeps)",
            (long long)nabs, wmax, (long long)wsweeps);
     res->cert.sweeps = wsweeps;
+    int64_t pi_its = 0;
     if (o->policy_iteration) {
-        int64_t it = 0;
-        sl_status keep = policy_iteration(ctx, p, o, 0, res->value, y, res->policy, &it);
+        sl_status keep =
+            policy_iteration(ctx, p, o, 0, res->value, y, res->policy, &pi_its, res->fallback, sizeof(res->fallback));
         if (keep != SL_OK && keep != SL_ESTOPPED) {
             st = keep;
             goto cleanup;
         }
-        SL_TRY(sl_halo_exchange(ctx, &p->halo, res->value));
-        SL_TRY(sl_obj_certify_total(ctx, p, res->value, res->steps, res->policy, &res->cert));
-        res->cert.converged = keep == SL_OK && res->cert.value_error_bound <= tol && res->cert.policy_loss_bound <= tol;
-        if (keep == SL_OK && !res->cert.converged) {
-            sl_warn(ctx, "policy iteration ended but the certificate (%.1e, %.1e) exceeds the tolerance %.1e",
-                    res->cert.value_error_bound, res->cert.policy_loss_bound, tol);
-            keep = SL_EUSAGE;
+        if (!res->fallback[0]) {
+            SL_TRY(sl_halo_exchange(ctx, &p->halo, res->value));
+            SL_TRY(sl_obj_certify_total(ctx, p, res->value, res->steps, res->policy, &res->cert));
+            res->cert.converged =
+                keep == SL_OK && res->cert.value_error_bound <= tol && res->cert.policy_loss_bound <= tol;
+            if (keep == SL_OK && !res->cert.converged) {
+                sl_warn(ctx, "policy iteration ended but the certificate (%.1e, %.1e) exceeds the tolerance %.1e",
+                        res->cert.value_error_bound, res->cert.policy_loss_bound, tol);
+                keep = SL_EUSAGE;
+            }
+            res->cert.iterations = pi_its;
+            res->cert.sweeps = wsweeps;
+            st = keep;
+            goto cleanup;
         }
-        res->cert.iterations = it;
-        res->cert.sweeps = wsweeps;
-        st = keep;
-        goto cleanup;
+        /* the direct solve declined: value iteration goes on from here */
     }
     /* resume */
     sl_solver_state S;
@@ -748,7 +786,8 @@ static sl_status solve_total(sl_ctx *ctx, const sl_problem *p, const sl_obj_opts
     int32_t *acts = NULL;
     if (SL_ALLOC(ctx, acts, n + 1, "policy") == NULL) st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
-    if (o->resume && o->checkpoint_dir) {
+    S.iteration = pi_its;
+    if (o->resume && o->checkpoint_dir && !res->fallback[0]) {
         int found = 0;
         st = sl_ckpt_load(ctx, o->checkpoint_dir, o->fingerprint, p->meta.n_states, p->blk.s_begin, n, res->value,
                           acts, &S, &hist, &found);
@@ -999,13 +1038,17 @@ static sl_status solve_average(sl_ctx *ctx, const sl_problem *p, const sl_obj_op
         st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
     res->cert.aperiodicity = tau;
+    int64_t pi_its = 0;
+    sl_status keep = SL_OK;
     if (o->policy_iteration) {
-        int64_t it = 0;
-        sl_status keep = policy_iteration(ctx, p, o, 1, res->value, y, res->policy, &it);
+        keep = policy_iteration(ctx, p, o, 1, res->value, y, res->policy, &pi_its, res->fallback, sizeof(res->fallback));
         if (keep != SL_OK && keep != SL_ESTOPPED) {
             st = keep;
             goto cleanup;
         }
+    }
+    if (o->policy_iteration && !res->fallback[0]) {
+        int64_t it = pi_its;
         SL_TRY(sl_obj_certify_average(ctx, p, res->value, res->policy, &res->cert));
         res->cert.converged = keep == SL_OK && res->cert.gain_upper - res->cert.gain_lower <= tol &&
                               res->cert.policy_loss_bound <= tol;
@@ -1020,7 +1063,10 @@ static sl_status solve_average(sl_ctx *ctx, const sl_problem *p, const sl_obj_op
         st = keep;
         goto cleanup;
     }
-    if (o->resume && o->checkpoint_dir) {
+    /* the direct solve declined: relative value iteration goes on from the
+     * last bias and policy (no resume then) */
+    S.iteration = S.sweeps = pi_its;
+    if (o->resume && o->checkpoint_dir && !res->fallback[0]) {
         int found = 0;
         SL_TRY(sl_ckpt_load(ctx, o->checkpoint_dir, o->fingerprint, p->meta.n_states, p->blk.s_begin, n, res->value,
                             acts, &S, &hist, &found));
@@ -1092,7 +1138,7 @@ static sl_status solve_average(sl_ctx *ctx, const sl_problem *p, const sl_obj_op
         for (int64_t i = 0; i < n; i++) res->value[i] = tau * res->value[i] + (1.0 - tau) * (y[i] - mid);
     }
     if (!res->cert.converged) {
-        sl_status keep = st;
+        keep = st;
         SL_TRY(sl_halo_exchange(ctx, &p->halo, res->value));
         sl_check c;
         sl_bellman_check(p, res->value, y, res->policy, &c);

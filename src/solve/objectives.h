@@ -31,6 +31,9 @@ typedef struct sl_obj_opts {
     const char *fingerprint;    /* model fingerprint (checkpoint identity) */
     int policy_iteration;       /* total/average: policy iteration (UMFPACK
                                  * evaluation) instead of value iteration */
+    double memory_limit;        /* policy iteration: bytes; <= 0 -> half of RAM */
+    int strict_memory;          /* over the memory limit: SL_EDATA, not a fallback */
+    double direct_time_limit;   /* seconds; 0 -> SL_DIRECT_TIME_LIMIT; < 0: none */
 } sl_obj_opts;
 
 /* What a solve certifies (and what verify recomputes). */
@@ -61,6 +64,9 @@ typedef struct sl_obj_result {
     int32_t *policy;
     double *steps;              /* total: [n_local] bound on expected steps */
     sl_obj_cert cert;
+    /* policy iteration asked for but the direct solve declined: why, and
+     * value iteration finished the job ("" otherwise) */
+    char fallback[256];
 } sl_obj_result;
 
 void sl_obj_result_free(sl_obj_result *r);

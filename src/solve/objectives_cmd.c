@@ -14,6 +14,13 @@ static const char *obj_method(sl_objective o, int pi)
     return o == SL_OBJ_FINITE ? "backward" : o == SL_OBJ_TOTAL ? "gs-total" : "rvi";
 }
 
+/* Was the solution produced by policy iteration (asked for, and the direct
+ * solve did not decline)? */
+static int used_pi(const sl_objective_opts *o, const sl_obj_result *r)
+{
+    return o->method == SL_METHOD_PI && r->objective != SL_OBJ_FINITE && r->fallback[0] == '\0';
+}
+
 static sl_status write_report(sl_ctx *ctx, const sl_objective_opts *o, const sl_problem *p, const sl_obj_result *r,
                               sl_status outcome, double seconds)
 {
@@ -34,7 +41,8 @@ static sl_status write_report(sl_ctx *ctx, const sl_objective_opts *o, const sl_
             sl_json_str(&j, "model_fingerprint", p->meta.fingerprint);
             sl_json_str(&j, "solution", o->output);
             sl_json_str(&j, "objective", sl_objective_name(r->objective));
-            sl_json_str(&j, "method", obj_method(r->objective, o->method == SL_METHOD_PI));
+            sl_json_str(&j, "method", obj_method(r->objective, used_pi(o, r)));
+            if (r->fallback[0]) sl_json_str(&j, "policy_iteration_fallback", r->fallback);
             sl_json_int(&j, "ranks", ctx->size);
             sl_json_int(&j, "n_states", p->meta.n_states);
             sl_json_int(&j, "n_transitions", p->meta.n_trans);
@@ -86,8 +94,9 @@ static void summary(sl_ctx *ctx, const sl_objective_opts *o, const sl_problem *p
     fprintf(f, "\nsluice solve summary\n");
     fprintf(f, "  model        %s (%lld states, %lld transitions, objective %s)\n", o->model_path,
             (long long)p->meta.n_states, (long long)p->meta.n_trans, sl_objective_name(r->objective));
-    fprintf(f, "  method       %s on %d rank(s), %lld iterations, %.2f s\n", obj_method(r->objective, o->method == SL_METHOD_PI), ctx->size,
-            (long long)c->iterations, secs);
+    fprintf(f, "  method       %s on %d rank(s), %lld iterations, %.2f s\n", obj_method(r->objective, used_pi(o, r)),
+            ctx->size, (long long)c->iterations, secs);
+    if (r->fallback[0]) fprintf(f, "  fallback     policy iteration without a direct solve: %s\n", r->fallback);
     if (r->objective == SL_OBJ_FINITE) {
         fprintf(f, "  result       EXACT up to roundoff: %lld stages by backward induction (discount %g)\n",
                 (long long)r->horizon, p->gamma);
@@ -158,8 +167,12 @@ sl_status sl_objective_solve(const sl_model *m, const sl_objective_opts *o)
     oo.walltime = o->walltime;
     oo.fingerprint = P.meta.fingerprint;
     oo.policy_iteration = o->method == SL_METHOD_PI && obj != SL_OBJ_FINITE;
+    oo.memory_limit = o->memory_limit;
+    oo.strict_memory = o->strict_memory;
+    oo.direct_time_limit = o->direct_time_limit;
     if (oo.policy_iteration && o->checkpoint_dir)
-        sl_warn(ctx, "policy iteration writes no checkpoints (it takes few iterations); --checkpoint is ignored");
+        sl_warn(ctx, "policy iteration writes no checkpoints (it takes few iterations); --checkpoint applies only "
+                     "if it falls back to value iteration");
     sl_log(ctx, "solve: %s, %lld states, objective %s, %d rank(s), tolerance %.1e", model,
            (long long)P.meta.n_states, sl_objective_name(obj), ctx->size, oo.tolerance);
     outcome = sl_obj_solve(ctx, &P, &oo, &R);
@@ -201,7 +214,7 @@ sl_status sl_objective_solve(const sl_model *m, const sl_objective_opts *o)
     sl_solution_record in;
     memset(&in, 0, sizeof(in));
     snprintf(in.model_fingerprint, sizeof(in.model_fingerprint), "%s", P.meta.fingerprint);
-    snprintf(in.method, sizeof(in.method), "%s", obj_method(obj, o->method == SL_METHOD_PI));
+    snprintf(in.method, sizeof(in.method), "%s", obj_method(obj, used_pi(o, &R)));
     in.converged = R.cert.converged;
     in.iterations = R.cert.iterations;
     in.sweeps = R.cert.sweeps;

@@ -38,6 +38,9 @@ typedef struct sl_problem {
      * at eval_ref (callers put it back). */
     int eval_average;
     int64_t eval_ref;       /* global state */
+    const char *direct_fallback; /* what follows a factorization the time guard
+                                  * declines, for its warning; NULL: "evaluating
+                                  * iteratively from now on" */
     double *own_reward;     /* the adjusted rewards (blk.reward points here), or NULL */
 } sl_problem;
 
@@ -199,6 +202,16 @@ sl_status sl_evaluate_direct(sl_ctx *ctx, const sl_problem *p, const int32_t *po
  * minute here). */
 #define SL_DIRECT_TIME_LIMIT 120.0
 void sl_evaluate_direct_free(void **lu_cache);
+/* After sl_evaluate_direct declined a factorization (used_direct = 0, not
+ * abandoned) with UMFPACK's estimate est bytes against limit bytes: under
+ * strict memory an estimate over the limit is SL_EDATA with a message
+ * naming both and `instead` (what the caller does without it); otherwise
+ * SL_OK - go on without the direct solve - after a warning when warn is set
+ * and the estimate is over the limit, saying `doing` (a decline for time has been warned
+ * about by sl_evaluate_direct). One rule for the discounted pi and the
+ * total/average policy iteration. Collective (the inputs are agreed). */
+sl_status sl_direct_declined(sl_ctx *ctx, double est, double limit, int strict, int warn, const char *instead,
+                             const char *doing);
 
 /* Iterative evaluation of a fixed policy to a certified sup error `tol`.
  * x holds the start and receives the midpoint value. Collective. */

@@ -590,6 +590,58 @@ def check_policy_iteration(chk, binary, work):
         chk.check(True, "%s: verify certifies the output and rejects a changed bias" % tag)
 
 
+def check_pi_fallback(chk, binary, work):
+    """--method pi whose direct solve is declined (the discounted pi's guards:
+    --memory-limit, --direct-time-limit, set tiny here) falls back to value
+    iteration / relative value iteration, says why in the log and the report,
+    and still gives the certified answer: checked against the same HiGHS LPs
+    as check_policy_iteration (Bertsekas & Tsitsiklis 1991; Puterman 1994,
+    Section 8.8; both recalled from memory). --strict-memory turns the
+    memory case into exit 65 with nothing written."""
+    cases = [("total", float_states(random_ssp(51, 90), 1.0), "gs-total", "value iteration"),
+             ("average", float_states(random_unichain(54, 70), 1.0), "rvi", "relative value iteration")]
+    for obj, mdp, vi_method, vi_words in cases:
+        model = imp(binary, mdp, work, "fb_" + obj, obj)
+        if obj == "total":
+            ref = R.total_lp(mdp)
+        else:
+            ref, _ = R.average_dual_lp(mdp)
+        guards = [("memory", ["--memory-limit", "1"], "over the limit of"),
+                  ("time", ["--direct-time-limit", "1e-12"], "direct-solve time limit")]
+        for nranks in ((1, 2) if mpiexec() else (1,)):
+            for gname, opt, why in guards:
+                tag = "%s --method pi, %s guard tiny, %d rank(s)" % (obj, gname, nranks)
+                sol = os.path.join(work, "fb_%s_%s_%d.h5" % (obj, gname, nranks))
+                rep = os.path.join(work, "fb_%s_%s_%d.json" % (obj, gname, nranks))
+                cp = run_ranks(binary, nranks, ["solve", model, "-o", sol, "--method", "pi", "--tolerance", "1e-9",
+                                                "--report", rep] + opt)
+                s = mc.read_solution(sol)
+                with open(rep) as f:
+                    r = json.load(f)
+                chk.check("falling back to " + vi_words in cp.stderr and why in cp.stderr,
+                          "%s: the log says policy iteration fell back to %s and why" % (tag, vi_words),
+                          cp.stderr.strip()[-400:])
+                chk.check(s["method"] == vi_method and r["method"] == vi_method
+                          and why in r.get("policy_iteration_fallback", ""),
+                          "%s: method %s recorded, reason in the report" % (tag, vi_method),
+                          "file %s, report %s / %r" % (s["method"], r["method"], r.get("policy_iteration_fallback")))
+                if obj == "total":
+                    err = float(np.max(np.abs(s["value"] - ref)))
+                    ok = err <= 1e-7 * (1 + np.max(np.abs(ref))) and s["value_error_bound"] <= 1e-9
+                else:
+                    err = abs(s["gain"] - ref)
+                    ok = err <= 1e-7 and s["gain_upper"] - s["gain_lower"] <= 1e-9
+                chk.check(ok and bool(s["converged"]),
+                          "%s: certified and equal to the HiGHS LP (1e-7)" % tag, "err %.3g" % err)
+                run_ranks(binary, nranks, ["verify", model, sol])
+        out = os.path.join(work, "fb_%s_strict.h5" % obj)
+        cp = mc.run_sluice(binary, ["solve", model, "-o", out, "--method", "pi", "--memory-limit", "1",
+                                    "--strict-memory"], expect=(65,))
+        chk.check(not os.path.exists(out) and "--strict-memory" in cp.stderr,
+                  "%s --method pi --strict-memory over the limit: exit 65, nothing written" % obj,
+                  cp.stderr.strip()[-300:])
+
+
 def main():
     # optional: OBJ_PARTS=finite,total,average,ranks (default: all)
     want = os.environ.get("OBJ_PARTS", "finite,total,average,pi,ranks").split(",")
@@ -597,7 +649,7 @@ def main():
     chk = mc.Checker("test_objectives")
     parts = {"finite": check_finite, "total": check_total,
              "average": check_average, "ranks": check_ranks_and_resume,
-             "pi": check_policy_iteration}
+             "pi": check_policy_iteration, "fallback": check_pi_fallback}
     for name in want:
         part = parts[name]
         try:
