@@ -199,7 +199,7 @@ static sl_status solve_finite(sl_ctx *ctx, const sl_problem *p, const sl_obj_opt
     if (o->terminal) memcpy(res->value + H * n, o->terminal, (size_t)n * sizeof(double));
     int64_t t = H; /* V_t .. V_H are known */
     char ck[4200] = "";
-    if (o->checkpoint_dir) snprintf(ck, sizeof(ck), "%s/finite-stages.h5", o->checkpoint_dir);
+    if (o->checkpoint_dir) snprintf(ck, sizeof(ck), "%s/%s", o->checkpoint_dir, SL_FINITE_CKPT);
     if (o->resume && o->checkpoint_dir) {
         /* stages first..H from the checkpoint, if it is ours */
         int exists = 0;

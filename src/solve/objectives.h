@@ -16,6 +16,10 @@
 sl_status sl_problem_from_model_any(sl_ctx *ctx, const sl_model *m, const char *path, sl_order order,
                                     sl_problem *p);
 
+/* The finite-horizon stage checkpoint inside a --checkpoint directory
+ * (total and average use the ordinary ckpt-NNNNNN.h5 files). */
+#define SL_FINITE_CKPT "finite-stages.h5"
+
 typedef struct sl_obj_opts {
     int64_t horizon;            /* finite: number of stages H >= 1 */
     const double *terminal;     /* finite: terminal values of the owned states

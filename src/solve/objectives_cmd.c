@@ -117,6 +117,37 @@ static void summary(sl_ctx *ctx, const sl_objective_opts *o, const sl_problem *p
                "               and local regulations.\n");
 }
 
+/* --resume: a checkpoint directory holding only the other kind of
+ * checkpoint (finite-horizon stages vs value-iteration files) is refused,
+ * not taken for an empty one; the files are left as they are. Checkpoints
+ * of the right kind are checked against the model's fingerprint (which
+ * covers the objective) when they are read. Collective. */
+static sl_status check_checkpoint_kind(sl_ctx *ctx, const char *dir, sl_objective obj, const char *model)
+{
+    char vi[4200], stages[4200];
+    int have_stages = 0;
+    sl_status st = sl_ckpt_newest(ctx, dir, vi, sizeof(vi));
+    if (st != SL_OK) return st;
+    snprintf(stages, sizeof(stages), "%s/%s", dir, SL_FINITE_CKPT);
+    if (ctx->rank == 0) {
+        FILE *f = fopen(stages, "rb");
+        have_stages = f != NULL;
+        if (f) fclose(f);
+    }
+    MPI_Bcast(&have_stages, 1, MPI_INT, 0, ctx->comm);
+    if (obj == SL_OBJ_FINITE && !have_stages && vi[0])
+        st = SL_ERR(ctx, SL_EDATA,
+                    "%s: a value-iteration checkpoint (of a discounted, total or average model), not the stages of a "
+                    "finite-horizon solve of %s: refusing to resume from it; use another --checkpoint directory",
+                    vi, model);
+    else if (obj != SL_OBJ_FINITE && have_stages && !vi[0])
+        st = SL_ERR(ctx, SL_EDATA,
+                    "%s: the stages of a finite-horizon solve, not a checkpoint of the %s objective of %s: refusing "
+                    "to resume from it; use another --checkpoint directory",
+                    stages, sl_objective_name(obj), model);
+    return sl_agree(ctx, st);
+}
+
 sl_status sl_objective_solve(const sl_model *m, const sl_objective_opts *o)
 {
     if (m == NULL || o == NULL || o->output == NULL) return SL_EUSAGE;
@@ -126,6 +157,7 @@ sl_status sl_objective_solve(const sl_model *m, const sl_objective_opts *o)
     sl_obj_result R;
     double *term = NULL;
     int32_t *acts = NULL;
+    int lock_fd = -1;
     memset(&P, 0, sizeof(P));
     memset(&R, 0, sizeof(R));
     double t0 = sl_now();
@@ -154,6 +186,9 @@ sl_status sl_objective_solve(const sl_model *m, const sl_objective_opts *o)
             if (found) snprintf(term_src, sizeof(term_src), "model /terminal_value");
         }
     }
+    /* one run per checkpoint directory (creates it), as for discounted */
+    if (o->checkpoint_dir) SL_TRY(sl_ckpt_lock(ctx, o->checkpoint_dir, &lock_fd));
+    if (o->checkpoint_dir && o->resume) SL_TRY(check_checkpoint_kind(ctx, o->checkpoint_dir, obj, model));
     sl_obj_opts oo;
     memset(&oo, 0, sizeof(oo));
     oo.horizon = o->horizon;
@@ -240,6 +275,7 @@ sl_status sl_objective_solve(const sl_model *m, const sl_objective_opts *o)
         sl_warn(ctx, "%s", ctx->err);
     }
 cleanup:
+    sl_ckpt_unlock(&lock_fd);
     free(term);
     free(acts);
     sl_obj_result_free(&R);

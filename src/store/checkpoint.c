@@ -487,6 +487,24 @@ cleanup:
     return st;
 }
 
+sl_status sl_ckpt_newest(sl_ctx *ctx, const char *dir, char *path, size_t len)
+{
+    int64_t seq[CKPT_MAX_LIST];
+    int n = 0;
+    path[0] = '\0';
+    if (ctx->rank == 0) {
+        n = list_ckpts(dir, seq, CKPT_MAX_LIST, NULL);
+        if (n > 0) ckpt_path(path, len, dir, seq[0]);
+    }
+    MPI_Bcast(&n, 1, MPI_INT, 0, ctx->comm);
+    if (n > 0) {
+        int l = (int)strlen(path) + 1;
+        MPI_Bcast(&l, 1, MPI_INT, 0, ctx->comm);
+        MPI_Bcast(path, l, MPI_CHAR, 0, ctx->comm);
+    }
+    return SL_OK;
+}
+
 sl_status sl_ckpt_lock(sl_ctx *ctx, const char *dir, int *fd)
 {
     sl_status st = SL_OK;

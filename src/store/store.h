@@ -131,6 +131,12 @@ sl_status sl_ckpt_load(sl_ctx *ctx, const char *dir, const char *fingerprint, in
                        int64_t n_local, double *value, int32_t *actions, sl_solver_state *state,
                        sl_history *hist, int *found);
 
+/* Path of the newest value-iteration checkpoint (ckpt-NNNNNN.h5) in dir
+ * into path[len], "" if there is none or dir cannot be listed; the same on
+ * every rank. Used to refuse such a checkpoint where another kind is
+ * expected (a finite-horizon stage file). Collective. */
+sl_status sl_ckpt_newest(sl_ctx *ctx, const char *dir, char *path, size_t len);
+
 /* For `sluice info`: read a checkpoint's state and history. Collective. */
 /* Lock the checkpoint directory DIR for this run (rank 0 creates DIR and
  * locks DIR/.lock; *fd is its descriptor there, -1 elsewhere). 73 if another

@@ -642,6 +642,98 @@ def check_pi_fallback(chk, binary, work):
                   cp.stderr.strip()[-300:])
 
 
+def dir_state(d):
+    """Names and contents of every file in d but the lock file (which holds
+    the pid of the last run), to see that nothing changed."""
+    out = {}
+    for name in sorted(os.listdir(d)):
+        if name == ".lock":
+            continue
+        with open(os.path.join(d, name), "rb") as f:
+            out[name] = f.read()
+    return out
+
+
+def check_checkpoints(chk, binary, work):
+    """Checkpoint and resume of the total and average objectives on 1 and 2
+    ranks (stopped on one rank count, resumed on the other and on the same):
+    the resumed answer equals an uninterrupted run within two tolerances and
+    verifies. A checkpoint directory of another model, another objective or
+    the other kind (finite-horizon stages vs value-iteration files) is refused
+    on --resume with exit 65, the directory left byte for byte as it was and
+    no solution written."""
+    cases = [("total", float_states(random_ssp(61, 100), 1.0)),
+             ("average", float_states(random_unichain(62, 100), 1.0))]
+    models = {}
+    for obj, mdp in cases:
+        model = imp(binary, mdp, work, "ckm_" + obj, obj)
+        models[obj] = model
+        full = os.path.join(work, "ckm_%s_full.h5" % obj)
+        mc.run_sluice(binary, ["solve", model, "-o", full, "--tolerance", "1e-9"])
+        ref = mc.read_solution(full)
+        ranks = [(1, 1), (1, 2), (2, 1)] if mpiexec() else [(1, 1)]
+        for stop_r, resume_r in ranks:
+            tag = "%s: stopped on %d rank(s), resumed on %d" % (obj, stop_r, resume_r)
+            ck = os.path.join(work, "ckm_%s_%d%d" % (obj, stop_r, resume_r))
+            shutil.rmtree(ck, ignore_errors=True)
+            part = os.path.join(work, "ckm_%s_part.h5" % obj)
+            run_ranks(binary, stop_r, ["solve", model, "-o", part, "--tolerance", "1e-9", "--checkpoint", ck,
+                                       "--max-iterations", "5"], expect=(75,))
+            chk.check(any(n.startswith("ckpt-") for n in os.listdir(ck)), "%s: a checkpoint was written" % tag)
+            out = os.path.join(work, "ckm_%s_res.h5" % obj)
+            cp = run_ranks(binary, resume_r, ["solve", model, "-o", out, "--tolerance", "1e-9", "--checkpoint", ck,
+                                              "--resume"])
+            r = mc.read_solution(out)
+            if obj == "total":
+                d = float(np.max(np.abs(r["value"] - ref["value"])))
+            else:
+                d = abs(r["gain"] - ref["gain"])
+            chk.check("resumed at iteration 5" in cp.stderr and d <= 2e-9 and bool(r["converged"]),
+                      "%s: resumed at iteration 5, same answer within 2 tolerances" % tag,
+                      "diff %.3g; %s" % (d, cp.stderr.strip()[-200:]))
+            run_ranks(binary, resume_r, ["verify", model, out])
+    # refusals: build one directory of each kind, then point other runs at it
+    fin = imp(binary, mc.random_mdp(63, 100, 0.97), work, "ckm_finite", "finite")
+    other_total = imp(binary, float_states(random_ssp(64, 100), 1.0), work, "ckm_total2", "total")
+    # the same rows as the total model, recorded with another objective
+    same_rows_avg = imp(binary, cases[0][1], work, "ckm_total_as_average", "average")
+    dirs = {}
+    for kind, model, extra in [("total", models["total"], []), ("finite", fin, ["--horizon", "9"])]:
+        ck = os.path.join(work, "ckm_dir_" + kind)
+        shutil.rmtree(ck, ignore_errors=True)
+        mc.run_sluice(binary, ["solve", model, "-o", os.path.join(work, "ckm_x.h5"), "--checkpoint", ck,
+                               "--max-iterations", "3"] + extra, expect=(75,))
+        dirs[kind] = ck
+    refusals = [("another total model", other_total, "total", [], "another model"),
+                ("the same rows with the average objective", same_rows_avg, "total", [], "another model"),
+                ("a finite model in a value-iteration directory", fin, "total", ["--horizon", "9"],
+                 "not the stages of a finite-horizon solve"),
+                ("a total model in a finite-horizon directory", models["total"], "finite", [],
+                 "the stages of a finite-horizon solve"),
+                ("an average model in a finite-horizon directory", models["average"], "finite", [],
+                 "the stages of a finite-horizon solve")]
+    for what, model, kind, extra, words in refusals:
+        ck = dirs[kind]
+        before = dir_state(ck)
+        out = os.path.join(work, "ckm_refused.h5")
+        if os.path.exists(out):
+            os.remove(out)
+        cp = mc.run_sluice(binary, ["solve", model, "-o", out, "--checkpoint", ck, "--resume"] + extra,
+                           expect=(65,))
+        after = dir_state(ck)
+        chk.check(words in cp.stderr and ck in cp.stderr and before == after and not os.path.exists(out),
+                  "resume of %s refused (65), naming the checkpoint; directory unchanged, nothing written" % what,
+                  cp.stderr.strip()[-300:])
+    # a finite run creates its checkpoint directory like the others
+    ck = os.path.join(work, "ckm_new", "sub")
+    shutil.rmtree(os.path.join(work, "ckm_new"), ignore_errors=True)
+    os.makedirs(os.path.join(work, "ckm_new"))
+    mc.run_sluice(binary, ["solve", fin, "-o", os.path.join(work, "ckm_y.h5"), "--checkpoint", ck,
+                           "--max-iterations", "2", "--horizon", "9"], expect=(75,))
+    chk.check(os.path.exists(os.path.join(ck, "finite-stages.h5")),
+              "finite: --checkpoint DIR that does not exist yet is created")
+
+
 def main():
     # optional: OBJ_PARTS=finite,total,average,ranks (default: all)
     want = os.environ.get("OBJ_PARTS", "finite,total,average,pi,ranks").split(",")
@@ -649,7 +741,8 @@ def main():
     chk = mc.Checker("test_objectives")
     parts = {"finite": check_finite, "total": check_total,
              "average": check_average, "ranks": check_ranks_and_resume,
-             "pi": check_policy_iteration, "fallback": check_pi_fallback}
+             "pi": check_policy_iteration, "fallback": check_pi_fallback,
+             "checkpoints": check_checkpoints}
     for name in want:
         part = parts[name]
         try:
