@@ -134,6 +134,23 @@ static inline int sluice_emit_outcome(sluice_sink *sink, int64_t next_state,
     return sink->emit_outcome(sink, next_state, probability, reward, quantities);
 }
 
+/* Optional, for any ABI: terminal values of the finite-horizon objective.
+ * A generator may also export a function with this name and signature:
+ *
+ *     int sluice_terminal_value(const void *instance, int64_t state,
+ *                               double *value);
+ *
+ * When the model is built with `--objective finite`, sluice calls it once
+ * for every state (after transitions(), before finish()) and stores *value
+ * as that state's terminal value V_H (the model's /terminal_value, covered
+ * by its fingerprint; docs/objectives.md). Return 0 on success, non-zero on
+ * error; *value must be a finite number. Like transitions() it must be a
+ * pure function of the state. It is not a member of sluice_generator_def,
+ * so ABI 1 and 2 generators without it build unchanged; for the other
+ * objectives it is not called. */
+#define SLUICE_TERMINAL_VALUE_SYMBOL "sluice_terminal_value"
+int sluice_terminal_value(const void *instance, int64_t state, double *value);
+
 typedef struct sluice_generator_def {
     int abi_version;            /* SLUICE_GENERATOR_ABI (1 or 2 accepted) */
     const char *name;           /* short name, e.g. "reservoir" */

@@ -57,9 +57,14 @@ static void crash_handler(int sig)
         const char *c = ") while generating state ";
         for (const char *p = c; *p; p++) msg[k++] = *p;
         k += fmt_i64(msg + k, crash_state);
-        const char *d = ", action ";
-        for (const char *p = d; *p; p++) msg[k++] = *p;
-        k += fmt_i64(msg + k, crash_action);
+        if (crash_action >= 0) {
+            const char *d = ", action ";
+            for (const char *p = d; *p; p++) msg[k++] = *p;
+            k += fmt_i64(msg + k, crash_action);
+        } else { /* sluice_terminal_value */
+            const char *d = "'s terminal value";
+            for (const char *p = d; *p; p++) msg[k++] = *p;
+        }
         const char *e = "; no model written\n";
         for (const char *p = e; *p; p++) msg[k++] = *p;
         ssize_t w = write(STDERR_FILENO, msg, k);
@@ -480,6 +485,42 @@ cleanup:
     return st;
 }
 
+/* The generator's optional sluice_terminal_value (generator.h): for the
+ * finite objective, the terminal value of every state of [s0, s1) into
+ * blk->terminal and meta->has_terminal set (so the fingerprint covers them);
+ * for other objectives it is not called. Every rank loads the same object,
+ * so all agree on whether it exists. Local; the caller agrees. */
+static sl_status take_terminal_values(sl_ctx *ctx, const sl_build_opts *o, void *dl, const void *inst,
+                                      sl_block *blk, sl_meta *meta, int64_t s0, int64_t s1)
+{
+    typedef int (*terminal_fn)(const void *, int64_t, double *);
+    terminal_fn fn = NULL;
+    void *sym = dlsym(dl, SLUICE_TERMINAL_VALUE_SYMBOL);
+    if (sym == NULL) return SL_OK;
+    if (o->objective != SL_OBJ_FINITE) {
+        sl_log(ctx, "build: %s exports %s; terminal values apply to the finite objective only, not stored",
+               o->generator, SLUICE_TERMINAL_VALUE_SYMBOL);
+        return SL_OK;
+    }
+    memcpy(&fn, &sym, sizeof(fn)); /* object pointer to function pointer, as POSIX dlsym requires */
+    if (SL_ALLOC(ctx, blk->terminal, s1 - s0 + 1, "terminal values") == NULL) return SL_ENOMEM;
+    crash_action = -1;
+    for (int64_t s = s0; s < s1; s++) {
+        double v = NAN;
+        crash_state = s;
+        int rc = fn(inst, s, &v);
+        if (rc != 0)
+            return SL_ERR(ctx, SL_EDATA, "%s: %s returned error %d at state %lld", o->generator,
+                          SLUICE_TERMINAL_VALUE_SYMBOL, rc, (long long)s);
+        if (!isfinite(v))
+            return SL_ERR(ctx, SL_EDATA, "%s: %s gave %g at state %lld (a terminal value must be a finite number)",
+                          o->generator, SLUICE_TERMINAL_VALUE_SYMBOL, v, (long long)s);
+        blk->terminal[s - s0] = v;
+    }
+    meta->has_terminal = 1;
+    return SL_OK;
+}
+
 sl_status sl_model_from_generator_opts(sl_ctx *ctx, const sl_build_opts *o, sl_model **out)
 {
     sl_status st = SL_OK;
@@ -608,6 +649,8 @@ sl_status sl_model_from_generator_opts(sl_ctx *ctx, const sl_build_opts *o, sl_m
         if (st == SL_OK) st = sl_block_end_state(ctx, &blk);
         if (((s - s0) & 1023) == 0) progress(ctx, t0, &last, s - s0, s1 - s0, 0);
     }
+    /* optional terminal values (finite objective): one call per owned state */
+    if (st == SL_OK) st = take_terminal_values(ctx, o, dl, inst, &blk, &meta, s0, s1);
     crash_armed = 0;
     if (st == SL_OK) progress(ctx, t0, &last, s1 - s0, s1 - s0, 1);
     SL_TRY(sl_agree(ctx, st));
@@ -762,6 +805,9 @@ sl_status sl_generator_describe(sl_ctx *ctx, const char *generator, FILE *out)
         } else {
             fprintf(out, "outcome quantities: none%s\n", g->abi_version < 2 ? " (an ABI 1 generator)" : "");
         }
+        fprintf(out, "terminal values: %s\n",
+                dlsym(dl, SLUICE_TERMINAL_VALUE_SYMBOL) ? "from " SLUICE_TERMINAL_VALUE_SYMBOL "() (finite objective)"
+                                                        : "none");
     }
 cleanup:
     if (inst && g && g->finish) g->finish(inst);

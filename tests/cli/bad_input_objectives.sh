@@ -153,4 +153,21 @@ if [ -n "${SLUICE_MPIEXEC:-}" ] && [ -x "$SLUICE_MPIEXEC" ]; then
 expect "average on 3 ranks: multichain model refused the same way" --code 65 --err "multichain" --err "state 0" --err "state 2" --gone "$O" -- \
     "$SLUICE_MPIEXEC" --oversubscribe -n 3 "$SLUICE" solve -q "$W/multi.h5" -o "$O" --method pi
 fi
+# terminal values from a generator's optional sluice_terminal_value()
+expect "build: a generator's terminal value that is not a number names the state" --code 65 --err "sluice_terminal_value" --err "state 5" --gone "$O" -- \
+    "$SLUICE" build -q "$SRC/tests/data/gen_terminal.c" --objective finite --param nan_state=5 -o "$O"
+expect "build: a generator's terminal value call that fails names the state" --code 65 --err "sluice_terminal_value" --err "error 7" --err "state 9" --gone "$O" -- \
+    "$SLUICE" build -q "$SRC/tests/data/gen_terminal.c" --objective finite --param fail_state=9 -o "$O"
+# policy iteration over the memory limit with --strict-memory: no fallback
+expect "total --method pi: factorization over --memory-limit with --strict-memory" --code 65 --err "--strict-memory" --err "value iteration" --gone "$O" -- \
+    "$SLUICE" solve -q "$W/tot.h5" -o "$O" --method pi --memory-limit 1 --strict-memory
+# --resume in a directory holding only the other kind of checkpoint
+expect "setup: finite stages checkpoint" --code 75 -- "$SLUICE" solve -q "$W/fin.h5" -o "$O" --horizon 4 --checkpoint "$W/ck_fin" --max-iterations 1
+expect "total: --resume from a finite-horizon stages checkpoint" --code 65 --err "finite-stages.h5" --err "tot.h5" --gone "$O" --keep "$W/ck_fin/finite-stages.h5" -- \
+    "$SLUICE" solve -q "$W/tot.h5" -o "$O" --checkpoint "$W/ck_fin" --resume
+expect "setup: total checkpoint" --code 75 -- "$SLUICE" solve -q "$W/tot.h5" -o "$O" --checkpoint "$W/ck_tot" --max-iterations 1
+expect "finite: --resume from a value-iteration checkpoint" --code 65 --err "ckpt-000001.h5" --err "finite-horizon" --gone "$O" --keep "$W/ck_tot/ckpt-000001.h5" -- \
+    "$SLUICE" solve -q "$W/fin.h5" -o "$O" --horizon 4 --checkpoint "$W/ck_tot" --resume
+expect "average: --resume from a total model's checkpoint" --code 65 --err "another model" --err "ckpt-000001.h5" --gone "$O" --keep "$W/ck_tot/ckpt-000001.h5" -- \
+    "$SLUICE" solve -q "$W/avg.h5" -o "$O" --checkpoint "$W/ck_tot" --resume
 sl_finish

@@ -734,6 +734,57 @@ def check_checkpoints(chk, binary, work):
               "finite: --checkpoint DIR that does not exist yet is created")
 
 
+def pond_terminal(W, n):
+    """Terminal values of tests/data/gen_terminal.c (an invented pond; the
+    same formula as its sluice_terminal_value): 0.9 w - 0.04 w^2 + 0.25 x
+    for state = w + W x."""
+    s = np.arange(n)
+    w, x = (s % W).astype(float), (s // W).astype(float)
+    return 0.9 * w - 0.04 * w * w + 0.25 * x
+
+
+def check_generator_terminal(chk, binary, work):
+    """Terminal values from a generator's optional sluice_terminal_value():
+    `build --objective finite` stores them as /terminal_value (read back with
+    h5py), the same on 1 and 2 ranks (fingerprint equal), and the finite
+    solve equals numpy backward induction from them (Puterman 1994, Section
+    4.5, recalled from memory). Built for another objective, the function is
+    not used and no /terminal_value is written."""
+    src = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "data", "gen_terminal.c")
+    W, H = 9, 6
+    fps = []
+    for nranks in ((1, 2) if mpiexec() else (1,)):
+        tag = "generator terminal values, built on %d rank(s)" % nranks
+        model = os.path.join(work, "pond_%d.h5" % nranks)
+        run_ranks(binary, nranks, ["build", src, "--objective", "finite", "--param", "levels=%d" % W, "-o", model])
+        with h5py.File(model, "r") as f:
+            stored = f["terminal_value"][...] if "terminal_value" in f else None
+            fps.append(mc._attr(f, "fingerprint"))
+        term = pond_terminal(W, 2 * W)
+        ok = stored is not None and np.max(np.abs(stored - term)) <= 1e-15 * np.max(np.abs(term))
+        chk.check(ok, "%s: /terminal_value holds the generator's values (h5py)" % tag,
+                  "stored %s" % (None if stored is None else stored[:4]))
+        mdp = mc.read_model(model)
+        sol = os.path.join(work, "pond_%d_sol.h5" % nranks)
+        run_ranks(binary, nranks, ["solve", model, "-o", sol, "--horizon", H])
+        V, _ = R.backward_induction(mdp, H, term)
+        with h5py.File(sol, "r") as f:
+            SV = np.array([f["stage/value_%06d" % t][...] for t in range(H + 1)])
+            src_attr = mc._attr(f, "terminal")
+        err = float(np.max(np.abs(SV - V)))
+        chk.check(err <= 1e-10 * (1 + np.max(np.abs(V))) and src_attr == "model /terminal_value",
+                  "%s: every stage equals numpy backward induction from the generator's terminal values" % tag,
+                  "max diff %.3g, terminal %r" % (err, src_attr))
+        run_ranks(binary, nranks, ["verify", model, sol])
+    chk.check(len(set(fps)) == 1, "generator terminal values: the same fingerprint on 1 and 2 ranks", "%s" % fps)
+    disc = os.path.join(work, "pond_disc.h5")
+    cp = mc.run_sluice(binary, ["build", src, "--param", "levels=%d" % W, "-o", disc])
+    with h5py.File(disc, "r") as f:
+        chk.check("terminal_value" not in f and "finite objective only" in cp.stderr,
+                  "generator terminal values: not stored for the discounted objective (and the log says so)",
+                  cp.stderr.strip()[-300:])
+
+
 def main():
     # optional: OBJ_PARTS=finite,total,average,ranks (default: all)
     want = os.environ.get("OBJ_PARTS", "finite,total,average,pi,ranks").split(",")
@@ -742,7 +793,7 @@ def main():
     parts = {"finite": check_finite, "total": check_total,
              "average": check_average, "ranks": check_ranks_and_resume,
              "pi": check_policy_iteration, "fallback": check_pi_fallback,
-             "checkpoints": check_checkpoints}
+             "checkpoints": check_checkpoints, "generator": check_generator_terminal}
     for name in want:
         part = parts[name]
         try:
