@@ -441,11 +441,22 @@ sl_status sl_problem_ckpt_write(sl_ctx *ctx, const sl_problem *p, const char *di
     SL_TRY(sl_agree(ctx, st));
     SL_TRY(sl_io_to_file(ctx, &p->io, value, sizeof(double), fv));
     SL_TRY(sl_io_to_file(ctx, &p->io, actions, sizeof(int32_t), fa));
-    st = sl_ckpt_write(ctx, dir, p->meta.fingerprint, p->meta.n_states, p->io.f_begin, p->io.f_n, fv, fa, state, hist);
+    sl_solver_state with = *state;
+    with.visit_adjust = p->visit_adjust; /* the checkpoint says which rewards it was computed with */
+    st = sl_ckpt_write(ctx, dir, p->meta.fingerprint, p->meta.n_states, p->io.f_begin, p->io.f_n, fv, fa, &with, hist);
 cleanup:
     free(fv);
     free(fa);
     return st;
+}
+
+/* "visit bonus 0.5" / "visit penalty 0.5" / "no visit adjustment" into buf. */
+static const char *adjust_words(double c, char *buf, size_t n)
+{
+    if (c > 0) snprintf(buf, n, "visit bonus %.17g", c);
+    else if (c < 0) snprintf(buf, n, "visit penalty %.17g", -c);
+    else snprintf(buf, n, "no visit adjustment");
+    return buf;
 }
 
 sl_status sl_problem_ckpt_load(sl_ctx *ctx, const sl_problem *p, const char *dir, double *value, int32_t *actions,
@@ -461,6 +472,15 @@ sl_status sl_problem_ckpt_load(sl_ctx *ctx, const sl_problem *p, const char *dir
     SL_TRY(sl_agree(ctx, st));
     SL_TRY(sl_ckpt_load(ctx, dir, p->meta.fingerprint, p->meta.n_states, p->io.f_begin, p->io.f_n, fv, fa, state, hist,
                         found));
+    /* values of r + c/sqrt(n) for one c are no start for another c: refuse,
+     * leaving the checkpoint as it is (the fingerprint names the model only) */
+    if (*found && state->visit_adjust != p->visit_adjust) {
+        char was[64], now[64];
+        SL_FAIL(SL_EDATA,
+                "%s: the checkpoint was computed with %s, this run asks for %s: refusing to mix them; resume with "
+                "the same --visit-bonus/--visit-penalty, or use another --checkpoint directory",
+                dir, adjust_words(state->visit_adjust, was, sizeof(was)), adjust_words(p->visit_adjust, now, sizeof(now)));
+    }
     if (*found) {
         SL_TRY(sl_io_from_file(ctx, &p->io, fv, sizeof(double), value));
         SL_TRY(sl_io_from_file(ctx, &p->io, fa, sizeof(int32_t), actions));

@@ -409,9 +409,6 @@ static sl_status solve_model(sl_solver *o, const sl_model *m, sl_model *take, sl
     if (take != NULL && o->visit_adjust == 0.0) SL_TRY(sl_problem_from_model_taking(ctx, take, o->order, &r->P));
     else SL_TRY(sl_problem_from_model(ctx, m, o->order, 0, &r->P));
     r->P.direct_time_limit = o->direct_time_limit;
-    if (o->visit_adjust != 0.0 && o->checkpoint_dir)
-        SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EUSAGE, "a visit bonus or penalty cannot be combined with checkpoints "
-                                                    "(a checkpoint identifies the model, not the adjustment)")));
     SL_TRY(sl_problem_visit_adjust(ctx, &r->P, m, o->visit_adjust));
     int64_t n = r->P.n_local, nx = n + r->P.halo.n_halo;
     if (SL_ZALLOC(ctx, r->x, nx, "values") == NULL || SL_ZALLOC(ctx, r->y, nx, "values") == NULL ||

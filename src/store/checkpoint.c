@@ -158,6 +158,7 @@ static sl_status write_state(sl_ctx *ctx, hid_t f, const sl_solver_state *s, con
     if (st == SL_OK) st = sl_h5_attr_write_f64(ctx, f, "elapsed", s->elapsed, p);
     if (st == SL_OK) st = sl_h5_attr_write_f64(ctx, f, "last_span", s->last_span, p);
     if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "last_check_sweeps", s->last_check_sweeps, p);
+    if (st == SL_OK) st = sl_h5_attr_write_f64(ctx, f, "visit_adjust", s->visit_adjust, p);
     return st;
 }
 
@@ -175,6 +176,8 @@ static sl_status read_state(sl_ctx *ctx, hid_t f, sl_solver_state *s, const char
     if (st == SL_OK) st = sl_h5_attr_read_f64(ctx, f, "elapsed", &s->elapsed, 1, p);
     if (st == SL_OK) st = sl_h5_attr_read_f64(ctx, f, "last_span", &s->last_span, 1, p);
     if (st == SL_OK) st = sl_h5_attr_read_i64(ctx, f, "last_check_sweeps", &s->last_check_sweeps, 1, p);
+    /* optional: checkpoints written before it existed had no adjustment */
+    if (st == SL_OK) st = sl_h5_attr_read_f64(ctx, f, "visit_adjust", &s->visit_adjust, 0, p);
     return st;
 }
 

@@ -114,6 +114,8 @@ typedef struct sl_solver_state {
     double elapsed;         /* seconds of solving before this run */
     double last_span;       /* span at the last check (for rates) */
     int64_t last_check_sweeps;
+    double visit_adjust;    /* c of the rewards r + c/sqrt(visits) solved with (0: none);
+                             * a resume must ask for the same (attr, absent = 0) */
 } sl_solver_state;
 
 /* Write a checkpoint into dir: temporary file in dir, complete mark last,

@@ -114,8 +114,25 @@ expect "solve: --visit-bonus and --visit-penalty together" --code 64 --err "excl
     "$SLUICE" solve -q "$W/est.h5" -o "$O" --visit-bonus 1 --visit-penalty 1
 expect "solve: --visit-penalty not positive" --code 64 --err "--visit" --gone "$O" -- \
     "$SLUICE" solve -q "$W/est.h5" -o "$O" --visit-penalty 0
-expect "solve: --visit-bonus with --checkpoint" --code 64 --err "checkpoint" --gone "$O" -- \
-    "$SLUICE" solve -q "$W/est.h5" -o "$O" --visit-bonus 1 --checkpoint "$W/ck_est"
+# checkpoints record the visit adjustment; a resume must ask for the same one
+expect "setup: checkpoint of a solve with --visit-bonus 1" --code 75 -- \
+    "$SLUICE" solve -q "$W/est.h5" -o "$O" --visit-bonus 1 --checkpoint "$W/ck_est" --max-iterations 1
+expect "solve: --resume with another --visit-bonus than the checkpoint's" --code 65 --err "visit bonus 1" --err "visit bonus 2" --err "ck_est" --gone "$O" --keep "$W/ck_est/ckpt-000001.h5" -- \
+    "$SLUICE" solve -q "$W/est.h5" -o "$O" --visit-bonus 2 --checkpoint "$W/ck_est" --resume
+expect "solve: --resume with --visit-penalty from a --visit-bonus checkpoint" --code 65 --err "visit penalty 1" --gone "$O" --keep "$W/ck_est/ckpt-000001.h5" -- \
+    "$SLUICE" solve -q "$W/est.h5" -o "$O" --visit-penalty 1 --checkpoint "$W/ck_est" --resume
+expect "solve: --resume without the checkpoint's --visit-bonus" --code 65 --err "no visit adjustment" --gone "$O" --keep "$W/ck_est/ckpt-000001.h5" -- \
+    "$SLUICE" solve -q "$W/est.h5" -o "$O" --checkpoint "$W/ck_est" --resume
+expect "setup: checkpoint of a solve without adjustment" --code 75 -- \
+    "$SLUICE" solve -q "$W/est.h5" -o "$O" --checkpoint "$W/ck_est0" --max-iterations 1
+expect "solve: --resume with --visit-bonus from a checkpoint without adjustment" --code 65 --err "no visit adjustment" --err "visit bonus 1" --gone "$O" --keep "$W/ck_est0/ckpt-000001.h5" -- \
+    "$SLUICE" solve -q "$W/est.h5" -o "$O" --visit-bonus 1 --checkpoint "$W/ck_est0" --resume
+expect "setup: resume with the same --visit-bonus" --code 0 -- \
+    "$SLUICE" solve -q "$W/est.h5" -o "$W/est_res.h5" --visit-bonus 1 --checkpoint "$W/ck_est" --resume
+expect "setup: the same solve uninterrupted" --code 0 -- "$SLUICE" solve -q "$W/est.h5" -o "$W/est_full.h5" --visit-bonus 1
+expect "solve: resumed --visit-bonus run equals the uninterrupted one (within 2 tolerances) and records the bonus" --code 0 -- \
+    "$PY" -c "import h5py,sys,numpy as np; a=h5py.File(sys.argv[1],'r'); b=h5py.File(sys.argv[2],'r'); sys.exit(0 if np.max(np.abs(a['value'][...]-b['value'][...])) <= 2e-6 and a.attrs['visit_adjust'] == 1.0 else 1)" "$W/est_res.h5" "$W/est_full.h5"
+expect "verify: the resumed --visit-bonus solution" --code 0 --out "CERTIFIED" -- "$SLUICE" verify "$W/est.h5" "$W/est_res.h5"
 expect "solve: --visit-bonus on the average objective" --code 64 --err "--visit-bonus" --err "average" --gone "$O" -- \
     "$SLUICE" solve -q "$W/avg.h5" -o "$O" --visit-bonus 1
 expect "info: --thin-below 0" --code 64 --err "--thin-below" -- "$SLUICE" info "$W/est.h5" --thin-below 0
