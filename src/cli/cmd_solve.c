@@ -58,6 +58,7 @@ static const char solve_help[] =
     "  --max-iterations N    stop after N iterations (exit 75 if not certified)\n"
     "  --memory-limit BYTES  pi: largest factorization to attempt (default half of RAM)\n"
     "  --strict-memory       pi: fail instead of evaluating iteratively when over the limit\n"
+    "                        (total/average: instead of falling back to value iteration)\n"
     "  --direct-time-limit S pi: do not start a factorization UMFPACK estimates to take\n"
     "                        longer than S seconds (default 120; 0 = no limit)\n"
     "  --checkpoint DIR      write checkpoints to DIR (newest two kept)\n"
