@@ -95,6 +95,15 @@ int cli_positional(cli_args *a, const char **slots[], int n)
     return cli_usage_error(a, "unexpected argument '%s'", arg);
 }
 
+int cli_policy_opt(cli_args *a, const char **slot)
+{
+    const char *v = cli_value(a);
+    if (v == NULL) return SL_EUSAGE;
+    if (*slot != NULL) return cli_usage_error(a, "the policy is given twice ('%s' and --policy '%s')", *slot, v);
+    *slot = v;
+    return 0;
+}
+
 int cli_fail(cli_args *a, sl_status st)
 {
     if (st != SL_OK && st != SL_ESTOPPED && sl_ctx_rank(a->ctx) == 0) {
