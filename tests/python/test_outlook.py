@@ -135,8 +135,12 @@ def lower_quantile(x, w, p):
 
 
 def check_exact(chk, fl, doc, start_state, label):
+    """start_state: a state number (a point mass) or a start distribution (a vector)."""
     mu = np.zeros(fl.n)
-    mu[start_state] = 1.0
+    if np.ndim(start_state) == 0:
+        mu[start_state] = 1.0
+    else:
+        mu[:] = start_state
     acc, disc = 0.0, 1.0
     worst = 0.0
     for t, st in enumerate(doc["stages"]):
