@@ -56,7 +56,6 @@ sys.path.insert(0, HERE)
 import mdp_common as mc  # noqa: E402
 import test_outlook as tol  # noqa: E402
 
-RESERVOIR = os.path.join(HERE, "..", "..", "examples", "reservoir.c")
 STAGES = 24
 SIM_STAGES = 12
 ALPHA = 1e-7
@@ -100,10 +99,7 @@ def write_rule(model, path, seed):
 def main():
     binary, work = mc.parse_args(sys.argv, "test_rule.py SLUICE_BINARY WORKDIR")
     chk = mc.Checker("rule")
-    params = ["--param", "storage_levels=15", "--param", "inflow_classes=3", "--param", "release_levels=5"]
-    model, sol = os.path.join(work, "res.h5"), os.path.join(work, "sol.h5")
-    mc.run_sluice(binary, ["build", "-q", RESERVOIR] + params + ["-o", model])
-    mc.run_sluice(binary, ["solve", "-q", model, "-o", sol, "--tolerance", "1e-6"])
+    model, sol = tol.build_and_solve(binary, work, 15, 3, 5)
     rule_csv, rule_h5 = os.path.join(work, "rule.csv"), os.path.join(work, "rule.h5")
     rule = write_rule(model, rule_csv, 7)
     shutil.copy(sol, rule_h5)
@@ -142,16 +138,7 @@ def main():
     else:
         for ranks in (2, 3):
             other = run_json(binary, base, ranks)
-            worst = 0.0
-            for a, b in zip(doc["stages"], other["stages"]):
-                for nm in a["factors"]:
-                    for k in a["factors"][nm]:
-                        worst = max(worst, abs(a["factors"][nm][k] - b["factors"][nm][k]) / max(1, abs(a["factors"][nm][k])))
-                for q in a["quantities"]:
-                    for k in ("mean", "p_positive"):
-                        worst = max(worst, abs(a["quantities"][q][k] - b["quantities"][q][k])
-                                    / max(1, abs(a["quantities"][q][k])))
-                worst = max(worst, abs(a["discounted_reward"] - b["discounted_reward"]) / max(1, abs(a["discounted_reward"])))
+            worst = tol.worst_difference(doc, other)
             chk.check(len(other["stages"]) == len(doc["stages"]) and worst <= 1e-12,
                       "%d ranks: the rule's outlook equals the 1-rank one" % ranks, "worst %.3g" % worst)
 
