@@ -19,7 +19,7 @@ written into a copy of the solution file with h5py. Checks:
    scaled); start_value is null (a rule has no values); the same run with
    the rule in a solution file gives the same numbers; 2 and 3 MPI ranks give
    the 1-rank numbers (the rule is read on rank 0 and scattered).
-2. evaluate --policy RULE.csv: /value solves (I - gamma P_rule) v = r_rule,
+2. evaluate --policy RULE.csv (1 and 2 ranks): /value solves (I - gamma P_rule) v = r_rule,
    the policy evaluation equation (Puterman, "Markov Decision Processes",
    Wiley 1994, sect. 6.1 -- section recalled from memory), solved here by
    scipy.sparse.linalg.spsolve, within the written certificate + 1e-9
@@ -155,6 +155,20 @@ def main():
     chk.check(err <= allow, "evaluate --policy RULE.csv = scipy spsolve of (I - gamma P_rule) v = r_rule",
               "max error %.3g, allowed %.3g kCU" % (err, allow))
     chk.check(float(np.max(np.abs(v - tol.Files(model, sol).v))) > 1.0, "the rule's values differ from the optimum's")
+    if tol.mpiexec() is not None:
+        # the rule read once and scattered to the solve's partition of 2 ranks
+        vals2 = os.path.join(work, "rule_values_np2.h5")
+        env = dict(os.environ, OMPI_ALLOW_RUN_AS_ROOT="1", OMPI_ALLOW_RUN_AS_ROOT_CONFIRM="1")
+        cmd = [tol.mpiexec(), "-np", "2", "--oversubscribe", binary, "evaluate", "-q", model, "--policy", rule_csv,
+               "-o", vals2]
+        cp = subprocess.run(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env, timeout=600)
+        ok = cp.returncode == 0
+        if ok:
+            with h5py.File(vals2, "r") as f:
+                err2 = float(np.max(np.abs(f["value"][...] - vref)))
+                cert2 = float(f.attrs["value_error_bound"])
+            ok = err2 <= cert2 + 1e-9 * float(np.max(np.abs(vref)))
+        chk.check(ok, "evaluate --policy RULE.csv on 2 ranks = scipy spsolve", cp.stderr.strip()[-300:])
 
     # 3. the long outlook's discounted reward approaches mu0 . v_rule
     N = 400
