@@ -19,6 +19,7 @@ written into a copy of the solution file with h5py. Checks:
    scaled); start_value is null (a rule has no values); the same run with
    the rule in a solution file gives the same numbers; 2 and 3 MPI ranks give
    the 1-rank numbers (the rule is read on rank 0 and scattered).
+   `table RULE.csv` shows the rule's release in every cell.
 2. evaluate --policy RULE.csv (1 and 2 ranks): /value solves (I - gamma P_rule) v = r_rule,
    the policy evaluation equation (Puterman, "Markov Decision Processes",
    Wiley 1994, sect. 6.1 -- section recalled from memory), solved here by
@@ -141,6 +142,20 @@ def main():
             worst = tol.worst_difference(doc, other)
             chk.check(len(other["stages"]) == len(doc["stages"]) and worst <= 1e-12,
                       "%d ranks: the rule's outlook equals the 1-rank one" % ranks, "worst %.3g" % worst)
+
+    # 1b. table RULE.csv: the rule's release per storage x month, inflow fixed
+    tcsv = os.path.join(work, "rule_table.csv")
+    mc.run_sluice(binary, ["table", rule_csv, "--model", model, "--rows", "storage", "--cols", "month",
+                           "--fix", "inflow@1", "-o", tcsv])
+    with open(tcsv) as f:
+        trows = list(csv.reader(f))
+    with h5py.File(model, "r") as f:
+        avals = f["action/value"][...]
+    M = fl.sizes[2]
+    want = np.array([[avals[rule[i + L * (1 + J * k)]] for k in range(M)] for i in range(L)])
+    got = np.array([[float(x) for x in r[1:]] for r in trows[1:]])
+    chk.check(got.shape == want.shape and np.allclose(got, want, rtol=1e-12, atol=0),
+              "table RULE.csv shows the rule's release in every storage x month cell (inflow@1)", str(got.shape))
 
     # 2. evaluate --policy RULE.csv against scipy spsolve
     vals = os.path.join(work, "rule_values.h5")
