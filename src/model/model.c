@@ -521,42 +521,25 @@ static inline uint64_t lane2(uint64_t h)
 #define SL_HASH_CLONES
 #endif
 
-SL_HASH_CLONES static void hash_f64(uint64_t acc[2], uint64_t tag, int64_t p0, int64_t n, const double *v,
-                                    int64_t stride)
-{
-    uint64_t a0 = 0, a1 = 0;
-    for (int64_t k = 0; k < n; k++) {
-        uint64_t h = entry_hash(tag, p0 + k, dbits(v[k * stride]));
-        a0 += h;
-        a1 += lane2(h);
+/* One loop, made for each element type: VAL(x) is the entry's 64-bit value. */
+#define SL_HASH_LOOP(NAME, TYPE, VAL)                                                                     \
+    SL_HASH_CLONES static void NAME(uint64_t acc[2], uint64_t tag, int64_t p0, int64_t n, const TYPE *v, \
+                                    int64_t stride)                                                      \
+    {                                                                                                    \
+        uint64_t a0 = 0, a1 = 0;                                                                         \
+        for (int64_t k = 0; k < n; k++) {                                                                \
+            uint64_t h = entry_hash(tag, p0 + k, VAL(v[k * stride]));                                    \
+            a0 += h;                                                                                     \
+            a1 += lane2(h);                                                                              \
+        }                                                                                                \
+        acc[0] += a0;                                                                                    \
+        acc[1] += a1;                                                                                    \
     }
-    acc[0] += a0;
-    acc[1] += a1;
-}
-
-SL_HASH_CLONES static void hash_i64(uint64_t acc[2], uint64_t tag, int64_t p0, int64_t n, const int64_t *v)
-{
-    uint64_t a0 = 0, a1 = 0;
-    for (int64_t k = 0; k < n; k++) {
-        uint64_t h = entry_hash(tag, p0 + k, (uint64_t)v[k]);
-        a0 += h;
-        a1 += lane2(h);
-    }
-    acc[0] += a0;
-    acc[1] += a1;
-}
-
-SL_HASH_CLONES static void hash_i32(uint64_t acc[2], uint64_t tag, int64_t p0, int64_t n, const int32_t *v)
-{
-    uint64_t a0 = 0, a1 = 0;
-    for (int64_t k = 0; k < n; k++) {
-        uint64_t h = entry_hash(tag, p0 + k, (uint64_t)(uint32_t)v[k]);
-        a0 += h;
-        a1 += lane2(h);
-    }
-    acc[0] += a0;
-    acc[1] += a1;
-}
+#define SL_HASH_I64(x) ((uint64_t)(x))
+#define SL_HASH_I32(x) ((uint64_t)(uint32_t)(x))
+SL_HASH_LOOP(hash_f64, double, dbits)
+SL_HASH_LOOP(hash_i64, int64_t, SL_HASH_I64)
+SL_HASH_LOOP(hash_i32, int32_t, SL_HASH_I32)
 
 void sl_fingerprint_quantity(uint64_t acc[2], int q, int64_t p0, int64_t n, const double *mean,
                              const double *pos, int stride)
@@ -600,11 +583,11 @@ sl_status sl_fingerprint(sl_ctx *ctx, const sl_meta *m, const sl_block *b, char 
 {
     uint64_t acc[2] = {0, 0}, tot[2] = {0, 0};
     int64_t ns = sl_block_states(b), np = sl_block_pairs(b), nt = sl_block_trans(b);
-    hash_i64(acc, 1, b->s_begin, ns, b->first_pair + 1);
-    hash_i32(acc, 2, b->p_begin, np, b->action);
+    hash_i64(acc, 1, b->s_begin, ns, b->first_pair + 1, 1);
+    hash_i32(acc, 2, b->p_begin, np, b->action, 1);
     hash_f64(acc, 3, b->p_begin, np, b->reward, 1);
-    hash_i64(acc, 4, b->p_begin, np, b->first_trans + 1);
-    hash_i64(acc, 5, b->t_begin, nt, b->target);
+    hash_i64(acc, 4, b->p_begin, np, b->first_trans + 1, 1);
+    hash_i64(acc, 5, b->t_begin, nt, b->target, 1);
     hash_f64(acc, 6, b->t_begin, nt, b->prob, 1);
     if (b->nq > 0 && b->qmean != NULL)
         for (int q = 0; q < b->nq; q++)
@@ -614,7 +597,7 @@ sl_status sl_fingerprint(sl_ctx *ctx, const sl_meta *m, const sl_block *b, char 
     acc[1] += b->qacc[1];
     if (m->has_terminal && b->terminal != NULL) hash_f64(acc, 29, b->s_begin, ns, b->terminal, 1);
     if (m->has_visits && b->visits != NULL)
-        hash_i64(acc, 30, b->p_begin, np, b->visits);
+        hash_i64(acc, 30, b->p_begin, np, b->visits, 1);
     MPI_Allreduce(acc, tot, 2, MPI_UINT64_T, MPI_SUM, ctx->comm);
     uint64_t head = sl_mix64((uint64_t)m->n_states) ^ sl_mix64((uint64_t)m->n_pairs * 3u) ^
                     sl_mix64((uint64_t)m->n_trans * 7u) ^ sl_mix64(dbits(m->discount)) ^
