@@ -496,26 +496,56 @@ static inline uint64_t dbits(double x)
     return u;
 }
 
-static inline void acc_entry(uint64_t acc[2], uint64_t tag, int64_t pos, uint64_t val)
+/* The hash of one entry: its array tag, its global position and its value;
+ * the two lanes' sums are what the fingerprint mixes (docs/formats.md). */
+static inline uint64_t entry_hash(uint64_t tag, int64_t pos, uint64_t val)
 {
-    uint64_t h = sl_mix64(tag ^ sl_mix64((uint64_t)pos ^ sl_mix64(val)));
-    acc[0] += h;
-    acc[1] += sl_mix64(h ^ 0x5851f42d4c957f2dULL);
+    return sl_mix64(tag ^ sl_mix64((uint64_t)pos ^ sl_mix64(val)));
 }
+
+static inline uint64_t lane2(uint64_t h)
+{
+    return sl_mix64(h ^ 0x5851f42d4c957f2dULL);
+}
+
+/* Entries are hashed independently and summed modulo 2^64, so the loops
+ * below vectorise. On x86-64 with GCC a second copy for AVX-512 (64-bit
+ * multiplies in vector registers) is picked when the program is loaded, on
+ * CPUs that have it. Integer arithmetic: every copy gives the same sums. */
+#if defined(__x86_64__) && defined(__GNUC__) && !defined(__clang__) && defined(__has_attribute)
+#if __has_attribute(target_clones)
+#define SL_HASH_CLONES __attribute__((target_clones("arch=x86-64-v4", "default")))
+#endif
+#endif
+#ifndef SL_HASH_CLONES
+#define SL_HASH_CLONES
+#endif
+
+/* One loop, made for each element type: VAL(x) is the entry's 64-bit value. */
+#define SL_HASH_LOOP(NAME, TYPE, VAL)                                                                     \
+    SL_HASH_CLONES static void NAME(uint64_t acc[2], uint64_t tag, int64_t p0, int64_t n, const TYPE *v, \
+                                    int64_t stride)                                                      \
+    {                                                                                                    \
+        uint64_t a0 = 0, a1 = 0;                                                                         \
+        for (int64_t k = 0; k < n; k++) {                                                                \
+            uint64_t h = entry_hash(tag, p0 + k, VAL(v[k * stride]));                                    \
+            a0 += h;                                                                                     \
+            a1 += lane2(h);                                                                              \
+        }                                                                                                \
+        acc[0] += a0;                                                                                    \
+        acc[1] += a1;                                                                                    \
+    }
+#define SL_HASH_I64(x) ((uint64_t)(x))
+#define SL_HASH_I32(x) ((uint64_t)(uint32_t)(x))
+SL_HASH_LOOP(hash_f64, double, dbits)
+SL_HASH_LOOP(hash_i64, int64_t, SL_HASH_I64)
+SL_HASH_LOOP(hash_i32, int32_t, SL_HASH_I32)
 
 void sl_fingerprint_quantity(uint64_t acc[2], int q, int64_t p0, int64_t n, const double *mean,
                              const double *pos, int stride)
 {
-    uint64_t tm = 7u + 2u * (uint64_t)q, tp = 8u + 2u * (uint64_t)q;
-    for (int64_t k = 0; k < n; k++) {
-        acc_entry(acc, tm, p0 + k, dbits(mean[k * stride]));
-        acc_entry(acc, tp, p0 + k, dbits(pos[k * stride]));
-    }
-}
-
-static void sl_fingerprint_terminal(uint64_t acc[2], int64_t s0, int64_t n, const double *value)
-{
-    for (int64_t i = 0; i < n; i++) acc_entry(acc, 29, s0 + i, dbits(value[i]));
+    hash_f64(acc, 7u + 2u * (uint64_t)q, p0, n, mean, stride);
+    hash_f64(acc, 8u + 2u * (uint64_t)q, p0, n, pos, stride);
 }
 
 static uint64_t hash_str(uint64_t h, const char *s)
@@ -553,26 +583,21 @@ sl_status sl_fingerprint(sl_ctx *ctx, const sl_meta *m, const sl_block *b, char 
 {
     uint64_t acc[2] = {0, 0}, tot[2] = {0, 0};
     int64_t ns = sl_block_states(b), np = sl_block_pairs(b), nt = sl_block_trans(b);
-    for (int64_t i = 0; i < ns; i++)
-        acc_entry(acc, 1, b->s_begin + i, (uint64_t)b->first_pair[i + 1]);
-    for (int64_t k = 0; k < np; k++) {
-        acc_entry(acc, 2, b->p_begin + k, (uint64_t)(uint32_t)b->action[k]);
-        acc_entry(acc, 3, b->p_begin + k, dbits(b->reward[k]));
-        acc_entry(acc, 4, b->p_begin + k, (uint64_t)b->first_trans[k + 1]);
-    }
-    for (int64_t t = 0; t < nt; t++) {
-        acc_entry(acc, 5, b->t_begin + t, (uint64_t)b->target[t]);
-        acc_entry(acc, 6, b->t_begin + t, dbits(b->prob[t]));
-    }
+    hash_i64(acc, 1, b->s_begin, ns, b->first_pair + 1, 1);
+    hash_i32(acc, 2, b->p_begin, np, b->action, 1);
+    hash_f64(acc, 3, b->p_begin, np, b->reward, 1);
+    hash_i64(acc, 4, b->p_begin, np, b->first_trans + 1, 1);
+    hash_i64(acc, 5, b->t_begin, nt, b->target, 1);
+    hash_f64(acc, 6, b->t_begin, nt, b->prob, 1);
     if (b->nq > 0 && b->qmean != NULL)
         for (int q = 0; q < b->nq; q++)
             sl_fingerprint_quantity(acc, q, b->p_begin, np, b->qmean + q, b->qpos + q, b->nq);
     /* entries a reader hashed without keeping them (0 for built blocks) */
     acc[0] += b->qacc[0];
     acc[1] += b->qacc[1];
-    if (m->has_terminal && b->terminal != NULL) sl_fingerprint_terminal(acc, b->s_begin, ns, b->terminal);
+    if (m->has_terminal && b->terminal != NULL) hash_f64(acc, 29, b->s_begin, ns, b->terminal, 1);
     if (m->has_visits && b->visits != NULL)
-        for (int64_t k = 0; k < np; k++) acc_entry(acc, 30, b->p_begin + k, (uint64_t)b->visits[k]);
+        hash_i64(acc, 30, b->p_begin, np, b->visits, 1);
     MPI_Allreduce(acc, tot, 2, MPI_UINT64_T, MPI_SUM, ctx->comm);
     uint64_t head = sl_mix64((uint64_t)m->n_states) ^ sl_mix64((uint64_t)m->n_pairs * 3u) ^
                     sl_mix64((uint64_t)m->n_trans * 7u) ^ sl_mix64(dbits(m->discount)) ^
