@@ -776,7 +776,9 @@ sl_status sl_build_to_file(sl_ctx *ctx, const sl_build_opts *o, const char *path
     SL_TRY(sl_store_model_begin(ctx, path, &gs.meta, begin, end, &w));
     sl_block_restart(&blk, gs.s0, begin[1], begin[2]);
     gs.t0 = gs.last = sl_now();
+    int64_t rounds = 0;
     for (;;) {
+        rounds++;
         sl_block_restart(&blk, blk.s_end, blk.p_end, blk.t_end);
         st = gen_rows(ctx, &gs, &blk, gs.s1, block, "");
         st = sl_agree(ctx, st);
@@ -786,7 +788,11 @@ sl_status sl_build_to_file(sl_ctx *ctx, const sl_build_opts *o, const char *path
         st = sl_store_model_append(ctx, w, &gs.meta, &blk, final);
         if (st != SL_OK || final) break;
     }
-    if (st == SL_OK) progress(ctx, "", gs.t0, &gs.last, gs.s1 - gs.s0, gs.s1 - gs.s0, 1);
+    if (st == SL_OK) {
+        progress(ctx, "", gs.t0, &gs.last, gs.s1 - gs.s0, gs.s1 - gs.s0, 1);
+        sl_log(ctx, "build: written in %lld rounds of at most %lld transitions per rank", (long long)rounds,
+               (long long)block);
+    }
     if (st == SL_OK) st = sl_fingerprint_finish(ctx, &gs.meta, acc, gs.meta.fingerprint);
     st = sl_store_model_end(ctx, &w, &gs.meta, st);
     if (st == SL_OK && counts != NULL) {
