@@ -390,6 +390,10 @@ SLUICE_API sl_status sl_solution_load(sl_ctx *ctx, const char *path, const sl_mo
  * The solution holds the policy (values 0), distributed like m.
  * Collective. */
 SLUICE_API sl_status sl_policy_read_csv(const sl_model *m, const char *path, sl_solution **x);
+/* A policy from `path`: a rule CSV (sl_policy_read_csv) if the name ends in
+ * .csv (any case), else a solution file (sl_solution_load). The one choice
+ * every command makes for --policy and --compare. Collective. */
+SLUICE_API sl_status sl_policy_load(sl_ctx *ctx, const char *path, const sl_model *m, sl_solution **x);
 SLUICE_API void sl_solution_free(sl_solution **x);
 
 /* ---- independent checks ------------------------------------------------------ */
@@ -441,10 +445,16 @@ typedef struct sl_simulate_opts {
     int interval;               /* SL_INTERVAL_NORMAL or SL_INTERVAL_HOEFFDING */
     double confidence;          /* of each interval, in (0, 1); 0 -> 0.95 */
     const char *trajectories;   /* CSV of every sampled step (written atomically), or NULL */
+    const char *start_distribution; /* instead of start: a CSV of start probabilities (as
+                                     * sl_outlook_opts); each episode draws its start */
+    const char *stages_csv;     /* the per-stage figures as CSV, one row per stage (atomically), or
+                                 * NULL; needs stages > 0 */
 } sl_simulate_opts;
 #define SL_INTERVAL_NORMAL 0    /* mean +- z s / sqrt(n), the central limit theorem */
 #define SL_INTERVAL_HOEFFDING 1 /* mean +- (b - a) sqrt(ln(2/alpha) / (2n)), for values in [a, b] */
-/* Monte Carlo rollouts of the solution's policy from one start state. */
+/* Monte Carlo rollouts of a policy (opts->solution: a solution file, or a
+ * rule CSV by its .csv name) from one start state or a start distribution.
+ * Collective; rank 0 simulates and prints. */
 SLUICE_API sl_status sl_simulate(sl_ctx *ctx, const sl_simulate_opts *opts);
 
 /* ---- objectives other than discounted ------------------------------------------
@@ -563,7 +573,8 @@ SLUICE_API void sl_table_free(sl_table *t);
 
 typedef struct sl_outlook_opts {
     const char *model;
-    const char *solution;
+    const char *solution;           /* a solution file, or a rule CSV of actions by state
+                                     * (sl_policy_read_csv's format; chosen by the .csv name) */
     const char *start;              /* a state number or NAME=VALUE,... for every factor */
     const char *start_distribution; /* or a CSV of start probabilities (docs/outlook.md) */
     int64_t stages;                 /* N >= 0: stages 0..N are reported */
@@ -589,7 +600,7 @@ typedef struct sl_outlook {
                                  * period t and the probability that it is positive */
     double *discounted_reward;  /* [N+1] sum over periods tau < t of gamma^tau E[r_tau] */
     double *mass;               /* [N+1] sum of mu_t (1 up to rounding) */
-    double start_value;         /* sum of mu_0(s) value(s), from the solution */
+    double start_value;         /* sum of mu_0(s) value(s), from the solution; NaN for a rule CSV */
     double seconds;             /* wall time of the stage loop (rank 0's clock, after loading) */
 } sl_outlook;
 

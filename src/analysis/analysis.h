@@ -21,9 +21,11 @@ typedef struct sl_pview {
     int64_t *first_trans;   /* [n_local + 1], from 0 */
     int64_t *target;        /* global next states */
     double *prob;
+    int is_rule;            /* the policy came from a rule CSV: value[] is 0, not a value */
 } sl_pview;
 
-/* Load the view. Checks that the solution belongs to the model
+/* Load the view. The policy is a solution file or a rule CSV
+ * (sl_policy_file_read). Checks that the solution belongs to the model
  * (fingerprint) and that every policy action is a pair of the model.
  * want_quantities: also the quantities' mean and p_positive at the chosen
  * pairs; want_rows: also the policy rows (transitions). Collective. */
@@ -66,5 +68,43 @@ typedef sl_status (*sl_state_row_fn)(sl_ctx *ctx, void *user, const char *where,
                                      const char *value);
 sl_status sl_state_csv_read(sl_ctx *ctx, const sl_meta *m, const char *path, const char *last, sl_state_row_fn fn,
                             void *user);
+
+/* A start distribution (statecsv.c): header `state,probability` or every
+ * factor name then `probability`; probabilities in [0, 1] summing to 1
+ * within 1e-9. Returns the rows' states and probabilities (caller frees).
+ * Errors name the file and line. Local (rank 0). */
+sl_status sl_start_csv_read(sl_ctx *ctx, const sl_meta *m, const char *path, int64_t *n_out, int64_t **st_out,
+                            double **p_out);
+
+/* ---- policies given as a rule CSV (policycsv.c) ---------------------------- */
+
+/* Is `path` a rule CSV (name ends in .csv, any case) rather than a solution
+ * file? The one test every command uses. Local. */
+int sl_policy_path_is_rule(const char *path);
+
+/* Read a rule CSV (header `state,action` or every factor name then
+ * `action`) on rank 0 and hand each rank the actions of its states
+ * [s_begin, s_begin + nl) and the CSV line of each. Every state needs
+ * exactly one row; n_actions bounds @ID and bare ids. Errors name the file
+ * and line. Collective; any contiguous slice per rank. */
+sl_status sl_rule_read(sl_ctx *ctx, const sl_meta *m, int32_t n_actions, const char *path, int64_t s_begin,
+                       int64_t nl, int32_t *action, int64_t *line);
+
+/* For each of the nl states from s_begin, the pair whose action is
+ * action[i] (chosen[i], relative to first_pair[0]; chosen may be NULL).
+ * first_pair[0..nl] are absolute pair indices, pair_action[q - first_pair[0]]
+ * the actions. With line != NULL (a rule) the error reads "POLICY line N:
+ * action X is not available in state S (labels)", else it names the
+ * solution, the state and the model. Local. */
+sl_status sl_policy_pairs(sl_ctx *ctx, const sl_meta *m, int64_t s_begin, int64_t nl, const int64_t *first_pair,
+                          const int32_t *pair_action, const int32_t *action, const int64_t *line, const char *policy,
+                          const char *model, int64_t *chosen);
+
+/* Values and actions of states [s_begin, s_begin + nl) from `policy`: a
+ * solution file of the model (fingerprint checked), or a rule CSV (values
+ * 0, *is_rule set, every row's action checked against the pairs the model
+ * file offers, errors naming file and line). Collective. */
+sl_status sl_policy_file_read(sl_ctx *ctx, const char *model, const sl_meta *m, const char *policy, int64_t s_begin,
+                              int64_t nl, double *value, int32_t *action, int *is_rule);
 
 #endif /* SL_ANALYSIS_H */

@@ -2,7 +2,6 @@
  * mu_{t+1} = mu_t P_pi, summarised per stage: factor means and quantiles,
  * expected outcome quantities and their probability of being positive, and
  * the expected discounted reward so far. No sampling. */
-#include <errno.h>
 #include <math.h>
 #include <string.h>
 
@@ -22,58 +21,6 @@ void sl_outlook_free(sl_outlook *r)
     free(r->discounted_reward);
     free(r->mass);
     memset(r, 0, sizeof(*r));
-}
-
-/* ---- start distribution CSV (rank 0) --------------------------------------- */
-
-typedef struct start_rows {
-    int64_t n, cap, *states;
-    double *prob, sum;
-} start_rows;
-
-static sl_status start_row(sl_ctx *ctx, void *user, const char *where, int64_t line, int64_t s, const char *text)
-{
-    start_rows *r = user;
-    char *end = NULL;
-    (void)line;
-    errno = 0;
-    double p = strtod(text, &end);
-    if (text[0] == '\0' || *end != '\0' || errno == ERANGE || !isfinite(p) || p < 0.0 || p > 1.0)
-        return SL_ERR(ctx, SL_EDATA, "%s: probability '%s' is not a number in [0, 1]", where, text);
-    if (r->n == r->cap) {
-        int64_t nc = r->cap ? 2 * r->cap : 1024;
-        int64_t *ns = realloc(r->states, (size_t)nc * sizeof(*ns));
-        if (ns == NULL) return SL_ERR(ctx, SL_ENOMEM, "%s: out of memory", where);
-        r->states = ns;
-        double *np = realloc(r->prob, (size_t)nc * sizeof(*np));
-        if (np == NULL) return SL_ERR(ctx, SL_ENOMEM, "%s: out of memory", where);
-        r->prob = np;
-        r->cap = nc;
-    }
-    r->states[r->n] = s;
-    r->prob[r->n++] = p;
-    r->sum += p;
-    return SL_OK;
-}
-
-/* Header `state,probability` or every factor name then `probability`. */
-static sl_status read_start_csv(sl_ctx *ctx, const sl_meta *m, const char *path, int64_t *n_out, int64_t **st_out,
-                                double **p_out)
-{
-    start_rows r;
-    memset(&r, 0, sizeof(r));
-    sl_status st = sl_state_csv_read(ctx, m, path, "probability", start_row, &r);
-    if (st == SL_OK && fabs(r.sum - 1.0) > 1e-9)
-        st = SL_ERR(ctx, SL_EDATA, "%s: probabilities sum to %.17g, not 1 (tolerance 1e-9)", path, r.sum);
-    if (st != SL_OK) {
-        free(r.states);
-        free(r.prob);
-        return st;
-    }
-    *n_out = r.n;
-    *st_out = r.states;
-    *p_out = r.prob;
-    return SL_OK;
 }
 
 /* ---- propagation ------------------------------------------------------------ */
@@ -129,7 +76,7 @@ sl_status sl_outlook_compute(sl_ctx *ctx, const sl_outlook_opts *o, sl_outlook *
             }
         }
     } else if (ctx->rank == 0) {
-        st = read_start_csv(ctx, m, o->start_distribution, &n_start, &start_states, &start_p);
+        st = sl_start_csv_read(ctx, m, o->start_distribution, &n_start, &start_states, &start_p);
     }
     SL_TRY(sl_agree(ctx, st));
     if (o->start_distribution != NULL) {
@@ -189,7 +136,7 @@ sl_status sl_outlook_compute(sl_ctx *ctx, const sl_outlook_opts *o, sl_outlook *
             v0 += start_p[k] * pv.value[start_states[k] - pv.s_begin];
         }
     MPI_Allreduce(MPI_IN_PLACE, &v0, 1, MPI_DOUBLE, MPI_SUM, ctx->comm);
-    r->start_value = v0;
+    r->start_value = pv.is_rule ? NAN : v0; /* a rule CSV has no values */
 
     double disc = 1.0, acc = 0.0, t_start = MPI_Wtime();
     for (int64_t t = 0; t <= N; t++) {

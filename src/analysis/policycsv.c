@@ -5,10 +5,12 @@
 #include <errno.h>
 #include <math.h>
 #include <string.h>
+#include <strings.h>
 
 #include "analysis/analysis.h"
 #include "model/model.h"
 #include "solve/solve.h"
+#include "store/h5.h"
 
 typedef struct policy_rows {
     const sl_meta *m;
@@ -82,33 +84,40 @@ static sl_status policy_row(sl_ctx *ctx, void *user, const char *where, int64_t 
     return SL_OK;
 }
 
-sl_status sl_policy_read_csv(const sl_model *m, const char *path, sl_solution **out)
+int sl_policy_path_is_rule(const char *path)
 {
-    if (m == NULL || out == NULL) return SL_EUSAGE;
-    sl_ctx *ctx = m->ctx;
+    size_t n = path ? strlen(path) : 0;
+    return n > 4 && strcasecmp(path + n - 4, ".csv") == 0;
+}
+
+sl_status sl_rule_read(sl_ctx *ctx, const sl_meta *meta, int32_t n_actions, const char *path, int64_t s_begin,
+                       int64_t nl, int32_t *action, int64_t *line)
+{
     sl_status st = SL_OK;
-    sl_solution *x = NULL;
     policy_rows r;
     int *cnt = NULL, *dsp = NULL;
-    int64_t *lines = NULL;
+    int64_t *lay = NULL, mine[2] = {s_begin, nl};
     memset(&r, 0, sizeof(r));
-    *out = NULL;
-    SL_TRY(sl_agree(ctx, sl_model_check_ready(ctx, m, "sl_policy_read_csv")));
-    const sl_meta *meta = &m->meta;
-    int64_t n = meta->n_states, nl = sl_block_states(&m->blk);
-    /* actions the model knows: names, values, else the largest id in its pairs */
-    int32_t na = meta->n_action_names > meta->n_action_values ? meta->n_action_names : meta->n_action_values;
-    for (int64_t k = 0; k < sl_block_pairs(&m->blk); k++)
-        if (m->blk.action[k] + 1 > na) na = m->blk.action[k] + 1;
-    MPI_Allreduce(MPI_IN_PLACE, &na, 1, MPI_INT32_T, MPI_MAX, ctx->comm);
+    int64_t n = meta->n_states, nr = ctx->rank == 0 ? n : 0;
     r.m = meta;
-    r.n_actions = na;
-    int64_t nr = ctx->rank == 0 ? n : 0;
+    r.n_actions = n_actions;
     if (n > INT32_MAX) st = SL_ERR(ctx, SL_EUSAGE, "%s: %lld states do not fit one MPI scatter", path, (long long)n);
     else if (SL_ALLOC(ctx, r.action, nr, "policy") == NULL || SL_ALLOC(ctx, r.line, nr, "policy") == NULL ||
              SL_ALLOC(ctx, cnt, ctx->size, "counts") == NULL || SL_ALLOC(ctx, dsp, ctx->size, "counts") == NULL ||
-             SL_ALLOC(ctx, lines, nl, "policy") == NULL)
+             SL_ALLOC(ctx, lay, 2 * ctx->size, "counts") == NULL)
         st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    if (MPI_Allgather(mine, 2, MPI_INT64_T, lay, 2, MPI_INT64_T, ctx->comm) != MPI_SUCCESS)
+        st = SL_ERR(ctx, SL_EINTERNAL, "MPI_Allgather failed reading %s", path);
+    for (int p = 0; st == SL_OK && p < ctx->size; p++) {
+        if (lay[2 * p] < 0 || lay[2 * p + 1] < 0 || lay[2 * p] + lay[2 * p + 1] > n)
+            st = SL_ERR(ctx, SL_EUSAGE, "%s: states %lld + %lld of rank %d are outside the model", path,
+                        (long long)lay[2 * p], (long long)lay[2 * p + 1], p);
+        else {
+            dsp[p] = (int)lay[2 * p];
+            cnt[p] = (int)lay[2 * p + 1];
+        }
+    }
     SL_TRY(sl_agree(ctx, st));
     if (ctx->rank == 0) {
         for (int64_t s = 0; s < n; s++) r.action[s] = -1;
@@ -124,28 +133,117 @@ sl_status sl_policy_read_csv(const sl_model *m, const char *path, sl_solution **
         }
     }
     SL_TRY(sl_agree(ctx, st));
-    SL_TRY(sl_agree(ctx, sl_solution_new(ctx, n, m->blk.s_begin, nl, 1, &x)));
-    for (int p = 0; p < ctx->size; p++) {
-        cnt[p] = (int)(m->bounds[p + 1] - m->bounds[p]);
-        dsp[p] = (int)m->bounds[p];
-    }
-    MPI_Scatterv(r.action, cnt, dsp, MPI_INT32_T, x->action, (int)nl, MPI_INT32_T, 0, ctx->comm);
-    MPI_Scatterv(r.line, cnt, dsp, MPI_INT64_T, lines, (int)nl, MPI_INT64_T, 0, ctx->comm);
-    /* every action must be one the model offers in its state */
-    for (int64_t i = 0; i < nl && st == SL_OK; i++) {
-        const sl_block *b = &m->blk;
-        int found = 0;
-        for (int64_t q = b->first_pair[i] - b->p_begin; q < b->first_pair[i + 1] - b->p_begin; q++)
-            found |= b->action[q] == x->action[i];
-        if (!found) {
-            char sw[1024];
-            state_words(meta, x->s_begin + i, sw, sizeof(sw));
-            int32_t a = x->action[i];
-            st = SL_ERR(ctx, SL_EDATA, "%s line %lld: action %s is not available in %s", path, (long long)lines[i],
-                        a < meta->n_action_names ? meta->action_name[a] : "(unnamed)", sw);
+    if (MPI_Scatterv(r.action, cnt, dsp, MPI_INT32_T, action, (int)nl, MPI_INT32_T, 0, ctx->comm) != MPI_SUCCESS ||
+        MPI_Scatterv(r.line, cnt, dsp, MPI_INT64_T, line, (int)nl, MPI_INT64_T, 0, ctx->comm) != MPI_SUCCESS)
+        st = SL_ERR(ctx, SL_EINTERNAL, "MPI_Scatterv failed reading %s", path);
+    st = sl_agree(ctx, st);
+cleanup:
+    free(r.action);
+    free(r.line);
+    free(cnt);
+    free(dsp);
+    free(lay);
+    return st;
+}
+
+sl_status sl_policy_pairs(sl_ctx *ctx, const sl_meta *m, int64_t s_begin, int64_t nl, const int64_t *first_pair,
+                          const int32_t *pair_action, const int32_t *action, const int64_t *line, const char *policy,
+                          const char *model, int64_t *chosen)
+{
+    for (int64_t i = 0; i < nl; i++) {
+        int64_t k = -1;
+        for (int64_t q = first_pair[i]; q < first_pair[i + 1]; q++)
+            if (pair_action[q - first_pair[0]] == action[i]) k = q - first_pair[0];
+        if (k >= 0) {
+            if (chosen) chosen[i] = k;
+            continue;
         }
+        if (line == NULL)
+            return SL_ERR(ctx, SL_EDATA, "%s: state %lld: the policy's action %d is not available there in %s", policy,
+                          (long long)(s_begin + i), (int)action[i], model);
+        char sw[1024], an[SL_NAME_MAX + 16];
+        int32_t a = action[i];
+        state_words(m, s_begin + i, sw, sizeof(sw));
+        if (a >= 0 && a < m->n_action_names) snprintf(an, sizeof(an), "%s", m->action_name[a]);
+        else snprintf(an, sizeof(an), "@%d", (int)a);
+        return SL_ERR(ctx, SL_EDATA, "%s line %lld: action %s is not available in %s", policy, (long long)line[i], an, sw);
     }
+    return SL_OK;
+}
+
+/* Actions a rule may name: names, values, else the largest id among pairs
+ * [p0, p0 + np). Collective. */
+static int32_t rule_action_count(sl_ctx *ctx, const sl_meta *m, const int32_t *pair_action, int64_t np)
+{
+    int32_t na = m->n_action_names > m->n_action_values ? m->n_action_names : m->n_action_values;
+    for (int64_t k = 0; k < np; k++)
+        if (pair_action[k] + 1 > na) na = pair_action[k] + 1;
+    MPI_Allreduce(MPI_IN_PLACE, &na, 1, MPI_INT32_T, MPI_MAX, ctx->comm);
+    return na;
+}
+
+sl_status sl_policy_file_read(sl_ctx *ctx, const char *model, const sl_meta *m, const char *policy, int64_t s_begin,
+                              int64_t nl, double *value, int32_t *action, int *is_rule)
+{
+    sl_status st = SL_OK;
+    hid_t f = H5I_INVALID_HID;
+    int64_t *fp = NULL, *line = NULL;
+    int32_t *pa = NULL;
+    *is_rule = sl_policy_path_is_rule(policy);
+    if (!*is_rule) {
+        sl_solution_record info;
+        SL_TRY(sl_store_solution_read(ctx, policy, SL_FILE_SOLUTION, m->n_states, s_begin, nl, value, action, &info));
+        if (strcmp(info.model_fingerprint, m->fingerprint) != 0)
+            st = SL_ERR(ctx, SL_EDATA, "%s was computed for a different model (fingerprint %s) than %s (fingerprint %s)",
+                        policy, info.model_fingerprint, model, m->fingerprint);
+        st = sl_agree(ctx, st);
+        goto cleanup;
+    }
+    /* a rule: the slice's pairs, to know the actions and check each row's */
+    SL_TRY(sl_h5_open(ctx, model, 0, &f));
+    if (SL_ALLOC(ctx, fp, nl + 1, "first_pair") == NULL || SL_ALLOC(ctx, line, nl, "policy") == NULL) st = SL_ENOMEM;
+    if (st == SL_OK)
+        st = sl_h5_read_1d(ctx, f, "/state/first_pair", H5T_NATIVE_INT64, m->n_states + 1, s_begin, nl + 1, fp, model);
+    int64_t p0 = st == SL_OK ? fp[0] : 0, np = st == SL_OK ? fp[nl] - fp[0] : 0;
+    if (st == SL_OK && (p0 < 0 || np < 0 || fp[nl] > m->n_pairs))
+        st = SL_ERR(ctx, SL_EDATA, "%s: /state/first_pair of states %lld..%lld is out of range", model,
+                    (long long)s_begin, (long long)(s_begin + nl));
+    if (st == SL_OK && SL_ALLOC(ctx, pa, np, "pair actions") == NULL) st = SL_ENOMEM;
+    if (st == SL_OK) st = sl_h5_read_1d(ctx, f, "/pair/action", H5T_NATIVE_INT32, m->n_pairs, p0, np, pa, model);
+    H5Fclose(f);
+    f = H5I_INVALID_HID;
     SL_TRY(sl_agree(ctx, st));
+    SL_TRY(sl_rule_read(ctx, m, rule_action_count(ctx, m, pa, np), policy, s_begin, nl, action, line));
+    for (int64_t i = 0; i < nl; i++) value[i] = 0.0; /* a rule has no values */
+    st = sl_agree(ctx, sl_policy_pairs(ctx, m, s_begin, nl, fp, pa, action, line, policy, model, NULL));
+cleanup:
+    if (f >= 0) H5Fclose(f);
+    free(fp);
+    free(line);
+    free(pa);
+    return st;
+}
+
+sl_status sl_policy_read_csv(const sl_model *m, const char *path, sl_solution **out)
+{
+    if (m == NULL || out == NULL) return SL_EUSAGE;
+    sl_ctx *ctx = m->ctx;
+    sl_status st = SL_OK;
+    sl_solution *x = NULL;
+    int64_t *lines = NULL;
+    *out = NULL;
+    SL_TRY(sl_agree(ctx, sl_model_check_ready(ctx, m, "sl_policy_read_csv")));
+    const sl_meta *meta = &m->meta;
+    const sl_block *b = &m->blk;
+    int64_t nl = sl_block_states(b);
+    if (SL_ALLOC(ctx, lines, nl, "policy") == NULL) st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    SL_TRY(sl_agree(ctx, sl_solution_new(ctx, meta->n_states, b->s_begin, nl, 1, &x)));
+    int32_t na = rule_action_count(ctx, meta, b->action, sl_block_pairs(b));
+    SL_TRY(sl_rule_read(ctx, meta, na, path, b->s_begin, nl, x->action, lines));
+    /* every action must be one the model offers in its state */
+    SL_TRY(sl_agree(ctx, sl_policy_pairs(ctx, meta, b->s_begin, nl, b->first_pair, b->action, x->action, lines, path,
+                                         "", NULL)));
     snprintf(x->info.model_fingerprint, sizeof(x->info.model_fingerprint), "%s", meta->fingerprint);
     snprintf(x->info.method, sizeof(x->info.method), "table");
     /* a rule has no values: x->value stays 0 (sl_solution_new zeroes it) */
@@ -153,10 +251,12 @@ sl_status sl_policy_read_csv(const sl_model *m, const char *path, sl_solution **
     x = NULL;
 cleanup:
     sl_solution_free(&x);
-    free(r.action);
-    free(r.line);
-    free(cnt);
-    free(dsp);
     free(lines);
     return st;
+}
+
+sl_status sl_policy_load(sl_ctx *ctx, const char *path, const sl_model *m, sl_solution **x)
+{
+    if (path == NULL) return SL_EUSAGE;
+    return sl_policy_path_is_rule(path) ? sl_policy_read_csv(m, path, x) : sl_solution_load(ctx, path, m, x);
 }

@@ -22,27 +22,10 @@ void sl_pview_free(sl_pview *pv)
     memset(pv, 0, sizeof(*pv));
 }
 
-/* Pair index (local to [p0, ...)) chosen by the policy in local state i. */
-static sl_status find_pairs(sl_ctx *ctx, const sl_pview *pv, const int64_t *first_pair, const int32_t *pair_action,
-                            int64_t *chosen, const char *solution, const char *model)
-{
-    for (int64_t i = 0; i < pv->n_local; i++) {
-        int64_t k = -1;
-        for (int64_t q = first_pair[i]; q < first_pair[i + 1]; q++)
-            if (pair_action[q - first_pair[0]] == pv->action[i]) k = q - first_pair[0];
-        if (k < 0)
-            return SL_ERR(ctx, SL_EDATA, "%s: state %lld: the policy's action %d is not available there in %s",
-                          solution, (long long)(pv->s_begin + i), (int)pv->action[i], model);
-        chosen[i] = k;
-    }
-    return SL_OK;
-}
-
 sl_status sl_pview_load(sl_ctx *ctx, const char *model, const char *solution, int want_quantities, int want_rows,
                         sl_pview *pv)
 {
     sl_status st = SL_OK;
-    sl_solution_record info;
     sl_block blk;
     hid_t f = H5I_INVALID_HID;
     int64_t *fp = NULL, *chosen = NULL;
@@ -61,11 +44,7 @@ sl_status sl_pview_load(sl_ctx *ctx, const char *model, const char *solution, in
         SL_ALLOC(ctx, pv->reward, nl, "rewards") == NULL || SL_ALLOC(ctx, chosen, nl, "pairs") == NULL)
         st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
-    SL_TRY(sl_store_solution_read(ctx, solution, SL_FILE_SOLUTION, n, pv->s_begin, nl, pv->value, pv->action, &info));
-    if (strcmp(info.model_fingerprint, m->fingerprint) != 0)
-        SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EDATA,
-                                    "%s was computed for a different model (fingerprint %s) than %s (fingerprint %s)",
-                                    solution, info.model_fingerprint, model, m->fingerprint)));
+    SL_TRY(sl_policy_file_read(ctx, model, m, solution, pv->s_begin, nl, pv->value, pv->action, &pv->is_rule));
     int nq = want_quantities ? m->n_quantities : 0;
     if (want_rows) {
         /* the whole slice, validated and checked against the fingerprint */
@@ -76,7 +55,7 @@ sl_status sl_pview_load(sl_ctx *ctx, const char *model, const char *solution, in
             SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EDATA,
                                         "%s: contents do not match the file's fingerprint (%s recorded, %s computed)",
                                         model, m->fingerprint, fpr)));
-        st = find_pairs(ctx, pv, blk.first_pair, blk.action, chosen, solution, model);
+        st = sl_policy_pairs(ctx, m, pv->s_begin, nl, blk.first_pair, blk.action, pv->action, NULL, solution, model, chosen);
         SL_TRY(sl_agree(ctx, st));
         int64_t nt = 0;
         for (int64_t i = 0; i < nl; i++) nt += blk.first_trans[chosen[i] + 1] - blk.first_trans[chosen[i]];
@@ -111,7 +90,7 @@ sl_status sl_pview_load(sl_ctx *ctx, const char *model, const char *solution, in
         st = SL_ENOMEM;
     if (st == SL_OK) st = sl_h5_read_1d(ctx, f, "/pair/action", H5T_NATIVE_INT32, m->n_pairs, p0, np, pa, model);
     if (st == SL_OK) st = sl_h5_read_1d(ctx, f, "/pair/reward", H5T_NATIVE_DOUBLE, m->n_pairs, p0, np, pr, model);
-    if (st == SL_OK) st = find_pairs(ctx, pv, fp, pa, chosen, solution, model);
+    if (st == SL_OK) st = sl_policy_pairs(ctx, m, pv->s_begin, nl, fp, pa, pv->action, NULL, solution, model, chosen);
     if (st == SL_OK)
         for (int64_t i = 0; i < nl; i++) pv->reward[i] = pr[chosen[i]];
     H5Fclose(f);

@@ -10,9 +10,10 @@
 #include "analysis/analysis.h"
 #include "store/store.h"
 
-/* Whole model + solution on rank 0 (others hold nothing). Collective. */
+/* Whole model + policy (a solution, or a rule CSV: values 0, *is_rule) on
+ * rank 0 (others hold nothing). Collective. */
 static sl_status load_on_root(sl_ctx *ctx, const char *model, const char *solution, sl_meta *m, sl_block *b,
-                              double **value, int32_t **actions, sl_solution_record *info, int need_rows)
+                              double **value, int32_t **actions, int *is_rule, int need_rows)
 {
     sl_status st = SL_OK;
     *value = NULL;
@@ -22,11 +23,7 @@ static sl_status load_on_root(sl_ctx *ctx, const char *model, const char *soluti
     int64_t n = ctx->rank == 0 ? m->n_states : 0;
     if (SL_ALLOC(ctx, *value, n, "values") == NULL || SL_ALLOC(ctx, *actions, n, "policy") == NULL) st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
-    SL_TRY(sl_store_solution_read(ctx, solution, SL_FILE_SOLUTION, m->n_states, 0, n, *value, *actions, info));
-    if (strcmp(info->model_fingerprint, m->fingerprint) != 0)
-        SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EDATA,
-                                    "%s was computed for a different model (fingerprint %s) than %s (fingerprint %s)",
-                                    solution, info->model_fingerprint, model, m->fingerprint)));
+    SL_TRY(sl_policy_file_read(ctx, model, m, solution, 0, n, *value, *actions, is_rule));
     if (need_rows) SL_TRY(sl_store_model_read(ctx, model, m, 0, n, b));
 cleanup:
     if (st != SL_OK) {
@@ -96,6 +93,14 @@ static void csv_unit(FILE *f, const char *name, const char *unit)
     fprintf(f, ",%s%s%s%s", name, unit[0] ? " [" : "", unit, unit[0] ? "]" : "");
 }
 
+/* Three columns of the per-stage CSV: NAMESUFFIX_mean [unit], _low, _high. */
+static void stage_csv_head(FILE *f, const char *name, const char *suffix, const char *unit)
+{
+    static const char *part[3] = {"mean", "low", "high"};
+    for (int i = 0; i < 3; i++)
+        fprintf(f, ",%s%s_%s%s%s%s", name, suffix, part[i], unit[0] ? " [" : "", unit, unit[0] ? "]" : "");
+}
+
 static void trajectory_header(FILE *f, const sl_meta *m)
 {
     fprintf(f, "episode,stage,state");
@@ -113,18 +118,24 @@ sl_status sl_simulate(sl_ctx *ctx, const sl_simulate_opts *o)
     sl_status st = SL_OK;
     sl_meta m;
     sl_block b;
-    double *v = NULL, *qm = NULL, *qp = NULL, *buf = NULL;
+    double *v = NULL, *qm = NULL, *qp = NULL, *buf = NULL, *start_p = NULL, *fig = NULL;
+    int64_t n_start = 0, *start_states = NULL;
     int32_t *a = NULL;
-    sl_solution_record info;
+    int is_rule = 0;
     stage_acc acc;
-    sl_outfile of;
-    FILE *tf = NULL;
+    sl_outfile of, sof;
+    FILE *tf = NULL, *sf = NULL;
     memset(&of, 0, sizeof(of));
+    memset(&sof, 0, sizeof(sof));
     memset(&acc, 0, sizeof(acc));
     memset(&m, 0, sizeof(m));
     memset(&b, 0, sizeof(b));
-    SL_TRY(load_on_root(ctx, o->model, o->solution, &m, &b, &v, &a, &info, 1));
-    if (o->start < 0 || o->start >= m.n_states)
+    SL_TRY(load_on_root(ctx, o->model, o->solution, &m, &b, &v, &a, &is_rule, 1));
+    if (o->start_distribution) {
+        /* rank 0 draws every episode's start from it */
+        if (ctx->rank == 0) st = sl_start_csv_read(ctx, &m, o->start_distribution, &n_start, &start_states, &start_p);
+        SL_TRY(sl_agree(ctx, st));
+    } else if (o->start < 0 || o->start >= m.n_states)
         SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EUSAGE, "--start %lld is not a state of %s (0..%lld)", (long long)o->start,
                                     o->model, (long long)m.n_states - 1)));
     if (o->confidence != 0 && !(o->confidence > 0 && o->confidence < 1))
@@ -132,6 +143,8 @@ sl_status sl_simulate(sl_ctx *ctx, const sl_simulate_opts *o)
     int per_stage = o->stages > 0, T = (int)(per_stage ? o->stages : 0);
     if (o->stages < 0 || o->stages > 100000000)
         SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EUSAGE, "--stages %lld is not in [0, 1e8]", (long long)o->stages)));
+    if (o->stages_csv && !per_stage)
+        SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EUSAGE, "-o %s: the per-stage table needs --stages N", o->stages_csv)));
     int64_t np = ctx->rank == 0 ? m.n_pairs : 0;
     int nq = m.n_quantities;
     if (nq > 0 && (per_stage || o->trajectories)) {
@@ -158,7 +171,8 @@ sl_status sl_simulate(sl_ctx *ctx, const sl_simulate_opts *o)
         int64_t cells = ctx->rank == 0 ? (int64_t)(T + 1) * acc.nstat : 0;
         if (SL_ALLOC(ctx, acc.mean, cells, "stage figures") == NULL || SL_ALLOC(ctx, acc.m2, cells, "stage figures") == NULL ||
             SL_ALLOC(ctx, acc.lo, acc.nstat, "stage figures") == NULL ||
-            SL_ALLOC(ctx, acc.hi, acc.nstat, "stage figures") == NULL)
+            SL_ALLOC(ctx, acc.hi, acc.nstat, "stage figures") == NULL ||
+            SL_ALLOC(ctx, fig, 3 * (ctx->rank == 0 ? cells : 0), "stage figures") == NULL)
             st = SL_ENOMEM;
         SL_TRY(sl_agree(ctx, st));
         for (int64_t c = 0; c < cells; c++) acc.mean[c] = acc.m2[c] = 0;
@@ -169,6 +183,12 @@ sl_status sl_simulate(sl_ctx *ctx, const sl_simulate_opts *o)
             st = SL_ERR(ctx, SL_ECANTCREAT, "%s: cannot create: %s", o->trajectories, strerror(errno));
         SL_TRY(sl_agree(ctx, st));
         if (tf) trajectory_header(tf, &m);
+    }
+    if (o->stages_csv) {
+        SL_TRY(sl_outfile_begin(ctx, &sof, o->stages_csv));
+        if (ctx->rank == 0 && (sf = fopen(sof.tmp_path, "w")) == NULL)
+            st = SL_ERR(ctx, SL_ECANTCREAT, "%s: cannot create: %s", o->stages_csv, strerror(errno));
+        SL_TRY(sl_agree(ctx, st));
     }
     if (ctx->rank == 0) {
         double g = m.discount;
@@ -182,6 +202,18 @@ sl_status sl_simulate(sl_ctx *ctx, const sl_simulate_opts *o)
         int64_t fv[SLUICE_MAX_FACTORS];
         for (int64_t e = 0; e < o->episodes && st == SL_OK; e++) {
             int64_t s = o->start;
+            if (n_start > 0) {
+                /* the start drawn from the distribution (the last row takes rounding) */
+                double u = rng_unit(&R), c = 0;
+                s = start_states[n_start - 1];
+                for (int64_t j = 0; j < n_start; j++) {
+                    c += start_p[j];
+                    if (u < c) {
+                        s = start_states[j];
+                        break;
+                    }
+                }
+            }
             double ret = 0, disc = 1, sofar = 0;
             for (int64_t t = 0; t < steps; t++) {
                 int64_t p0 = b.first_pair[s], p1 = b.first_pair[s + 1], k = -1;
@@ -291,51 +323,71 @@ sl_status sl_simulate(sl_ctx *ctx, const sl_simulate_opts *o)
                 acc.lo[j] = lo;
                 acc.hi[j] = hi;
             }
+            /* every figure's mean and interval, once for all outputs */
+            for (int t = 0; per_stage && t <= T; t++) {
+                const double *mu = acc.mean + t * acc.nstat, *m2 = acc.m2 + t * acc.nstat;
+                double S = g == 1 ? t : (1 - pow(g, t)) / (1 - g);
+                for (int j = 0; j < acc.nstat; j++) {
+                    double sc = j == acc.nstat - 1 ? S : 1, *x = fig + 3 * ((int64_t)t * acc.nstat + j);
+                    x[0] = mu[j];
+                    interval(o, ne, mu[j], m2[j], acc.lo[j] * sc, acc.hi[j] * sc, zq, &x[1], &x[2]);
+                }
+            }
+            /* the value the solution gives the start (a rule CSV has none) */
+            double v0 = 0;
+            if (n_start > 0)
+                for (int64_t j = 0; j < n_start; j++) v0 += start_p[j] * v[start_states[j]];
+            else v0 = v[o->start];
+            char from[4200];
+            if (n_start > 0) snprintf(from, sizeof(from), "the distribution in %s", o->start_distribution);
+            else snprintf(from, sizeof(from), "state %lld", (long long)o->start);
             FILE *out = o->out ? o->out : stdout;
             if (o->json) {
-                fprintf(out, "{\n  \"start\": %lld,\n  \"episodes\": %lld,\n  \"horizon\": %lld,\n  \"seed\": %llu,\n"
-                             "  \"mean_return\": %.17g,\n  \"standard_error\": %.17g,\n  \"truncation_bound\": %.17g,\n"
-                             "  \"solution_value\": %.17g,\n  \"units\": {\"reward\": \"%s\", \"period\": \"%s\"},\n"
+                fprintf(out, "{\n  \"start\": ");
+                if (n_start > 0) fprintf(out, "null,\n  \"start_distribution\": \"%s\"", o->start_distribution);
+                else fprintf(out, "%lld", (long long)o->start);
+                fprintf(out, ",\n  \"policy\": \"%s\",\n  \"policy_is_rule\": %s,\n", o->solution,
+                        is_rule ? "true" : "false");
+                fprintf(out, "  \"episodes\": %lld,\n  \"horizon\": %lld,\n  \"seed\": %llu,\n"
+                             "  \"mean_return\": %.17g,\n  \"standard_error\": %.17g,\n  \"truncation_bound\": %.17g,\n",
+                        (long long)o->episodes, (long long)H, (unsigned long long)o->seed, mean, se, trunc);
+                if (is_rule) fprintf(out, "  \"solution_value\": null,\n");
+                else fprintf(out, "  \"solution_value\": %.17g,\n", v0);
+                fprintf(out, "  \"units\": {\"reward\": \"%s\", \"period\": \"%s\"},\n"
                              "  \"caution\": \"Results support, never replace, licensed engineering judgement and "
                              "local regulations.\"",
-                        (long long)o->start, (long long)o->episodes, (long long)H, (unsigned long long)o->seed, mean, se,
-                        trunc, v[o->start], ru, m.period_unit);
+                        ru, m.period_unit);
                 if (per_stage) {
                     fprintf(out, ",\n  \"interval\": {\"method\": \"%s\", \"confidence\": %.17g, \"source\": \"%s\"},\n"
                                  "  \"stages\": [\n", method, conf, source);
                     for (int t = 0; t <= T; t++) {
-                        const double *mu = acc.mean + t * acc.nstat, *m2 = acc.m2 + t * acc.nstat;
-                        double S = g == 1 ? t : (1 - pow(g, t)) / (1 - g), lo, hi;
+                        const double *x = fig + 3 * (int64_t)t * acc.nstat;
                         fprintf(out, "    {\"stage\": %d, \"factors\": {", t);
-                        for (int j = 0; j < acc.nf; j++) {
-                            interval(o, ne, mu[j], m2[j], acc.lo[j], acc.hi[j], zq, &lo, &hi);
+                        for (int j = 0; j < acc.nf; j++)
                             fprintf(out, "%s\"%s\": {\"mean\": %.17g, \"low\": %.17g, \"high\": %.17g}", j ? ", " : "",
-                                    m.factor_name[acc.fac[j]], mu[j], lo, hi);
-                        }
+                                    m.factor_name[acc.fac[j]], x[3 * j], x[3 * j + 1], x[3 * j + 2]);
                         fprintf(out, "}, \"quantities\": {");
                         for (int q = 0; q < nq; q++) {
-                            int j = acc.nf + 2 * q;
-                            double lo2, hi2;
-                            interval(o, ne, mu[j], m2[j], acc.lo[j], acc.hi[j], zq, &lo, &hi);
-                            interval(o, ne, mu[j + 1], m2[j + 1], acc.lo[j + 1], acc.hi[j + 1], zq, &lo2, &hi2);
+                            const double *y = x + 3 * (acc.nf + 2 * q);
                             fprintf(out, "%s\"%s\": {\"mean\": %.17g, \"mean_low\": %.17g, \"mean_high\": %.17g, "
                                          "\"p_positive\": %.17g, \"p_positive_low\": %.17g, \"p_positive_high\": %.17g}",
-                                    q ? ", " : "", m.quantity_name[q], mu[j], lo, hi, mu[j + 1], lo2, hi2);
+                                    q ? ", " : "", m.quantity_name[q], y[0], y[1], y[2], y[3], y[4], y[5]);
                         }
-                        int j = acc.nstat - 1;
-                        interval(o, ne, mu[j], m2[j], acc.lo[j] * S, acc.hi[j] * S, zq, &lo, &hi);
+                        const double *y = x + 3 * (acc.nstat - 1);
                         fprintf(out, "}, \"discounted_reward\": {\"mean\": %.17g, \"low\": %.17g, \"high\": %.17g}}%s\n",
-                                mu[j], lo, hi, t < T ? "," : "");
+                                y[0], y[1], y[2], t < T ? "," : "");
                     }
                     fprintf(out, "  ]");
                 }
                 fprintf(out, "\n}\n");
             } else {
-                fprintf(out, "simulate %lld episodes of %lld steps from state %lld (seed %llu)\n"
+                fprintf(out, "simulate %lld episodes of %lld steps from %s (seed %llu) under %s%s\n"
                              "  mean discounted return %.6g +- %.3g %s (95%% interval, normal approximation)\n"
-                             "  horizon truncation     at most %.3g %s\n  solution value         %.6g %s\n",
-                        (long long)o->episodes, (long long)H, (long long)o->start, (unsigned long long)o->seed, mean,
-                        1.96 * se, ru, trunc, ru, v[o->start], ru);
+                             "  horizon truncation     at most %.3g %s\n",
+                        (long long)o->episodes, (long long)H, from, (unsigned long long)o->seed, o->solution,
+                        is_rule ? " (a rule)" : "", mean, 1.96 * se, ru, trunc, ru);
+                if (is_rule) fprintf(out, "  solution value         none: a rule CSV has no values\n");
+                else fprintf(out, "  solution value         %.6g %s\n", v0, ru);
                 if (per_stage) {
                     fprintf(out, "per stage (one stage = one %s): sample mean [low, high], %.4g%% intervals, %s\n",
                             m.period_unit[0] ? m.period_unit : "period", 100 * conf, source);
@@ -351,14 +403,11 @@ sl_status sl_simulate(sl_ctx *ctx, const sl_simulate_opts *o)
                     }
                     fprintf(out, "  discounted reward so far [%s]\n", ru);
                     for (int t = 0; t <= T; t++) {
-                        const double *mu = acc.mean + t * acc.nstat, *m2 = acc.m2 + t * acc.nstat;
-                        double S = g == 1 ? t : (1 - pow(g, t)) / (1 - g), lo, hi;
+                        const double *x = fig + 3 * (int64_t)t * acc.nstat;
                         fprintf(out, "%6d", t);
                         for (int j = 0; j < acc.nstat; j++) {
                             int last = j == acc.nstat - 1;
-                            interval(o, ne, mu[j], m2[j], last ? acc.lo[j] * S : acc.lo[j],
-                                     last ? acc.hi[j] * S : acc.hi[j], zq, &lo, &hi);
-                            snprintf(h, sizeof(h), "%.5g [%.5g, %.5g]", mu[j], lo, hi);
+                            snprintf(h, sizeof(h), "%.5g [%.5g, %.5g]", x[3 * j], x[3 * j + 1], x[3 * j + 2]);
                             fprintf(out, "  %-*s", j >= acc.nf && !last && (j - acc.nf) % 2 ? 22 : 30, h);
                         }
                         fprintf(out, "\n");
@@ -366,18 +415,48 @@ sl_status sl_simulate(sl_ctx *ctx, const sl_simulate_opts *o)
                 }
                 fprintf(out, "Results support, never replace, licensed engineering judgement and local regulations.\n");
             }
+            if (sf) {
+                /* the per-stage table: the figures above, one row per stage, units in the header */
+                fprintf(sf, "stage");
+                for (int j = 0; j < acc.nf; j++)
+                    stage_csv_head(sf, m.factor_name[acc.fac[j]], "", m.factor_unit[acc.fac[j]]);
+                for (int q = 0; q < nq; q++) {
+                    stage_csv_head(sf, m.quantity_name[q], "", m.quantity_unit[q]);
+                    stage_csv_head(sf, m.quantity_name[q], "_p_positive", "");
+                }
+                stage_csv_head(sf, "discounted_reward", "", ru);
+                fprintf(sf, "\n");
+                for (int t = 0; t <= T; t++) {
+                    const double *x = fig + 3 * (int64_t)t * acc.nstat;
+                    fprintf(sf, "%d", t);
+                    for (int j = 0; j < 3 * acc.nstat; j++) fprintf(sf, ",%.15g", x[j]);
+                    fprintf(sf, "\n");
+                }
+            }
+        }
+        if (sf) {
+            int bad = ferror(sf) != 0;
+            bad |= fclose(sf) != 0;
+            sf = NULL;
+            if (bad && st == SL_OK) st = SL_ERR(ctx, SL_EIO, "%s: write failed", o->stages_csv);
         }
     }
     st = sl_agree(ctx, st);
     if (o->trajectories && of.tmp_path[0]) st = sl_outfile_end(ctx, &of, st);
+    if (o->stages_csv && sof.tmp_path[0]) st = sl_outfile_end(ctx, &sof, st);
 cleanup:
     if (tf) fclose(tf);
+    if (sf) fclose(sf);
     if (of.tmp_path[0]) sl_outfile_end(ctx, &of, st != SL_OK ? st : SL_EINTERNAL);
+    if (sof.tmp_path[0]) sl_outfile_end(ctx, &sof, st != SL_OK ? st : SL_EINTERNAL);
     free(v);
     free(a);
     free(qm);
     free(qp);
     free(buf);
+    free(fig);
+    free(start_states);
+    free(start_p);
     free(acc.mean);
     free(acc.m2);
     free(acc.lo);

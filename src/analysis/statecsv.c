@@ -1,8 +1,10 @@
 /* statecsv.c - CSV files keyed by state: a header `state,LAST` or every
  * factor name then LAST, one row per state given by number or by factor
  * labels / values / @INDEX. Read by the outlook's start distribution and
- * by policies given as a table of actions (evaluate --compare). */
+ * by policies given as a table of actions (rule CSVs). */
 #include <errno.h>
+#include <math.h>
+#include <stdlib.h>
 #include <string.h>
 
 #include "analysis/analysis.h"
@@ -97,4 +99,55 @@ sl_status sl_state_csv_read(sl_ctx *ctx, const sl_meta *m, const char *path, con
 cleanup:
     fclose(f);
     return st;
+}
+
+/* ---- start distributions (outlook and simulate) ----------------------------- */
+
+typedef struct start_rows {
+    int64_t n, cap, *states;
+    double *prob, sum;
+} start_rows;
+
+static sl_status start_row(sl_ctx *ctx, void *user, const char *where, int64_t line, int64_t s, const char *text)
+{
+    start_rows *r = user;
+    char *end = NULL;
+    (void)line;
+    errno = 0;
+    double p = strtod(text, &end);
+    if (text[0] == '\0' || *end != '\0' || errno == ERANGE || !isfinite(p) || p < 0.0 || p > 1.0)
+        return SL_ERR(ctx, SL_EDATA, "%s: probability '%s' is not a number in [0, 1]", where, text);
+    if (r->n == r->cap) {
+        int64_t nc = r->cap ? 2 * r->cap : 1024;
+        int64_t *ns = realloc(r->states, (size_t)nc * sizeof(*ns));
+        if (ns == NULL) return SL_ERR(ctx, SL_ENOMEM, "%s: out of memory", where);
+        r->states = ns;
+        double *np = realloc(r->prob, (size_t)nc * sizeof(*np));
+        if (np == NULL) return SL_ERR(ctx, SL_ENOMEM, "%s: out of memory", where);
+        r->prob = np;
+        r->cap = nc;
+    }
+    r->states[r->n] = s;
+    r->prob[r->n++] = p;
+    r->sum += p;
+    return SL_OK;
+}
+
+sl_status sl_start_csv_read(sl_ctx *ctx, const sl_meta *m, const char *path, int64_t *n_out, int64_t **st_out,
+                                double **p_out)
+{
+    start_rows r;
+    memset(&r, 0, sizeof(r));
+    sl_status st = sl_state_csv_read(ctx, m, path, "probability", start_row, &r);
+    if (st == SL_OK && fabs(r.sum - 1.0) > 1e-9)
+        st = SL_ERR(ctx, SL_EDATA, "%s: probabilities sum to %.17g, not 1 (tolerance 1e-9)", path, r.sum);
+    if (st != SL_OK) {
+        free(r.states);
+        free(r.prob);
+        return st;
+    }
+    *n_out = r.n;
+    *st_out = r.states;
+    *p_out = r.prob;
+    return SL_OK;
 }

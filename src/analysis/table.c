@@ -130,6 +130,10 @@ sl_status sl_table_compute(sl_ctx *ctx, const sl_table_opts *o, sl_table *t)
     SL_TRY(sl_agree(ctx, st));
 
     SL_TRY(sl_pview_load(ctx, o->model, o->solution, kind == SL_SHOW_QUANTITY, 0, &pv));
+    if (pv.is_rule && (kind == SL_SHOW_VALUE || kind == SL_SHOW_MARGINAL))
+        SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EUSAGE, "--show %s: %s is a rule CSV, which has no values (evaluate it "
+                                                    "first: sluice evaluate --policy %s -o VALUES.h5)",
+                                    o->show, o->solution, o->solution)));
     int64_t R = m->factor_size[rf], C = m->factor_size[cf], n = R * C;
     if (n > (int64_t)1 << 24)
         SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EUSAGE, "the table would have %lld cells (at most 2^24)", (long long)n)));

@@ -31,6 +31,10 @@ int cli_usage_error(cli_args *a, const char *fmt, ...) __attribute__((format(pri
  * NULL (e.g. MODEL then SOLUTION) and is consumed; a usage error when every
  * slot is taken. Returns 0 or SL_EUSAGE. */
 int cli_positional(cli_args *a, const char **slots[], int n);
+/* --policy FILE (just matched): a solution file or a rule CSV, filling the
+ * command's SOLUTION slot; a usage error if the slot is already filled.
+ * Returns 0 or SL_EUSAGE. */
+int cli_policy_opt(cli_args *a, const char **slot);
 /* Report a library failure (rank 0) and return its exit code. */
 int cli_fail(cli_args *a, sl_status st);
 

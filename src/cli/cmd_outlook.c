@@ -1,5 +1,6 @@
 /* cmd_outlook.c - `sluice outlook`: print the exact forward distribution
  * under a policy (computed by sl_outlook_compute) as text, CSV or JSON. */
+#include <math.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -7,7 +8,7 @@
 #include "cli/cli_out.h"
 
 static const char outlook_help[] =
-    "usage: sluice outlook MODEL.h5 SOLUTION.h5 --start STATE|NAME=VALUE,... --stages N\n"
+    "usage: sluice outlook MODEL.h5 SOLUTION.h5|--policy RULE.csv --start STATE|NAME=VALUE,... --stages N\n"
     "                      [--start-distribution FILE.csv] [--json] [-o FILE]\n"
     "  what the policy will do: the state distribution propagated exactly (no sampling)\n"
     "  for N stages; per stage, each numeric factor's mean and 5/25/50/75/95% quantiles,\n"
@@ -16,6 +17,8 @@ static const char outlook_help[] =
     "  --start S                 a state number, or every factor as NAME=VALUE / NAME@INDEX,\n"
     "                            comma-separated (storage=600,inflow@2,month=Jan)\n"
     "  --start-distribution F    CSV 'state,probability' or '<factor names>,probability'\n"
+    "  --policy P                the policy: a solution file, or a rule operated today as a CSV\n"
+    "                            of actions by state (as evaluate --compare reads)\n"
     "  --json                    one JSON document (to stdout, or to -o FILE)\n"
     "  -o FILE                   write CSV (or JSON with --json) atomically; '-' for stdout\n"
     "Results support, never replace, licensed engineering judgement and local regulations.\n";
@@ -27,8 +30,10 @@ static void write_json(FILE *f, const void *arg)
     const sl_outlook *r = arg;
     fprintf(f, "{\n  \"caution\": \"Results support, never replace, licensed engineering judgement and local "
                "regulations.\",\n");
-    fprintf(f, "  \"discount\": %.17g,\n  \"start_value\": %.17g,\n  \"seconds\": %.6g,\n", r->discount,
-            r->start_value, r->seconds);
+    fprintf(f, "  \"discount\": %.17g,\n", r->discount);
+    if (isnan(r->start_value)) fprintf(f, "  \"start_value\": null,\n"); /* a rule CSV has no values */
+    else fprintf(f, "  \"start_value\": %.17g,\n", r->start_value);
+    fprintf(f, "  \"seconds\": %.6g,\n", r->seconds);
     fprintf(f, "  \"units\": {\"reward\": \"%s\", \"period\": \"%s\", \"factors\": {", r->reward_unit, r->period_unit);
     for (int k = 0; k < r->n_factors; k++)
         fprintf(f, "%s\"%s\": \"%s\"", k ? ", " : "", r->factor_name[k], r->factor_unit[k]);
@@ -108,7 +113,10 @@ static void write_text(FILE *f, const sl_outlook *r, const sl_outlook_opts *o)
         }
         fprintf(f, "  %.8g\n", r->discounted_reward[t]);
     }
-    fprintf(f, "value of the start in the solution: %.8g %s\n", r->start_value, r->reward_unit);
+    if (isnan(r->start_value))
+        fprintf(f, "value of the start: none (%s is a rule CSV, which has no values; the discounted reward so far "
+                   "approaches the rule's value)\n", o->solution);
+    else fprintf(f, "value of the start in the solution: %.8g %s\n", r->start_value, r->reward_unit);
     fprintf(f, "Results support, never replace, licensed engineering judgement and local regulations.\n");
 }
 
@@ -129,6 +137,8 @@ int cmd_outlook(cli_args *a)
         } else if (cli_opt(a, "--stages")) {
             if ((v = cli_value(a)) == NULL || !cli_int64(a, "--stages", v, &o.stages)) rc = SL_EUSAGE;
             have_stages = 1;
+        } else if (cli_opt(a, "--policy")) {
+            rc = cli_policy_opt(a, &o.solution);
         } else if (cli_opt(a, "--json")) {
             json = 1;
         } else if (cli_opt(a, "-o") || cli_opt(a, "--output")) {
@@ -138,7 +148,8 @@ int cmd_outlook(cli_args *a)
         }
     }
     if (rc) return rc;
-    if (o.model == NULL || o.solution == NULL) return cli_usage_error(a, "need MODEL.h5 and SOLUTION.h5");
+    if (o.model == NULL || o.solution == NULL)
+        return cli_usage_error(a, "need MODEL.h5 and a policy (SOLUTION.h5, or --policy RULE.csv)");
     if (!have_stages) return cli_usage_error(a, "--stages N is required");
     if (o.stages < 0) return cli_usage_error(a, "--stages must be at least 0");
     if ((o.start == NULL) == (o.start_distribution == NULL))

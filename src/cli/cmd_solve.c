@@ -472,8 +472,9 @@ int cmd_solve(cli_args *a)
 }
 
 static const char evaluate_help[] =
-    "usage: sluice evaluate MODEL.h5 --policy SOLUTION.h5 -o VALUES.h5 [options]\n"
-    "  value of the fixed policy stored in SOLUTION.h5.\n"
+    "usage: sluice evaluate MODEL.h5 --policy SOLUTION.h5|RULE.csv -o VALUES.h5 [options]\n"
+    "  value of a fixed policy: the one stored in SOLUTION.h5, or a rule operated today\n"
+    "  given as RULE.csv (same format as --compare's CSV below).\n"
     "  --iterative           evaluate by sweeps instead of a direct UMFPACK solve\n"
     "  --tolerance EPS       iterative: certified error bound (default 1e-6)\n"
     "  --memory-limit BYTES  largest factorization to attempt (default half of RAM);\n"
@@ -501,7 +502,7 @@ static int run_evaluate(cli_args *a, const evaluate_args *o)
     sl_solver *s = NULL;
     sl_solution *pol = NULL, *v = NULL;
     int rc = cli_fail(a, sl_model_load(ctx, o->model, &m));
-    if (rc == 0) rc = cli_fail(a, sl_solution_load(ctx, o->policy, m, &pol));
+    if (rc == 0) rc = cli_fail(a, sl_policy_load(ctx, o->policy, m, &pol));
     if (rc == 0) rc = cli_fail(a, sl_solver_create(ctx, &s));
     if (rc == 0) {
         sl_status st = sl_solver_set_method(s, o->iterative ? SL_METHOD_GS : SL_METHOD_PI);
@@ -564,7 +565,7 @@ int cmd_evaluate(cli_args *a)
     }
     if (rc) return rc;
     if (o.model == NULL) return cli_usage_error(a, "no model file given");
-    if (o.policy == NULL) return cli_usage_error(a, "no policy given (--policy SOLUTION.h5)");
+    if (o.policy == NULL) return cli_usage_error(a, "no policy given (--policy SOLUTION.h5 or RULE.csv)");
     if (o.output == NULL) return cli_usage_error(a, "no output file given (-o VALUES.h5)");
     return run_evaluate(a, &o);
 }
@@ -667,10 +668,15 @@ int cmd_verify(cli_args *a)
 }
 
 static const char simulate_help[] =
-    "usage: sluice simulate MODEL.h5 SOLUTION.h5 --start STATE --episodes N --seed S [options]\n"
+    "usage: sluice simulate MODEL.h5 SOLUTION.h5|--policy RULE.csv --start STATE|--start-distribution F.csv\n"
+    "                       --episodes N --seed S [options]\n"
     "  STATE: a state number, or every factor as NAME=VALUE / NAME@INDEX, comma-separated\n"
     "  Monte Carlo rollouts of the solution's policy; prints the mean discounted\n"
     "  return with a 95% interval next to the solution's value.\n"
+    "  --policy P            the policy: a solution file, or a rule operated today as a CSV of\n"
+    "                        actions by state (as evaluate --compare reads; it has no values)\n"
+    "  --start-distribution F  CSV 'state,probability' or '<factor names>,probability';\n"
+    "                        each episode draws its start from it\n"
     "  --horizon T           steps per episode (default: until discount^T < 1e-6)\n"
     "  --stages N            also per stage 0..N the figures 'sluice outlook' computes exactly:\n"
     "                        each numeric factor's mean, each quantity's mean and P(>0), the\n"
@@ -681,6 +687,8 @@ static const char simulate_help[] =
     "  --replicates K        K independent runs with seeds S, S+1, ..., S+K-1 (with --json: an array)\n"
     "  --trajectories F.csv  every sampled step: episode, stage, state, factors, action,\n"
     "                        reward, quantities, discounted reward so far (atomically)\n"
+    "  -o FILE.csv           the per-stage table (needs --stages): one row per stage, each\n"
+    "                        figure's mean, low and high, units in the header (atomically)\n"
     "  --json                machine-readable output\n"
     "Results support, never replace, licensed engineering judgement and local regulations.\n";
 
@@ -701,6 +709,12 @@ int cmd_simulate(cli_args *a)
             /* a state number, or NAME=VALUE,... resolved once the model is known */
             if ((start_text = cli_value(a)) == NULL) rc = SL_EUSAGE;
             have_start = 1;
+        } else if (cli_opt(a, "--start-distribution")) {
+            if ((o.start_distribution = cli_value(a)) == NULL) rc = SL_EUSAGE;
+        } else if (cli_opt(a, "--policy")) {
+            rc = cli_policy_opt(a, &o.solution);
+        } else if (cli_opt(a, "-o") || cli_opt(a, "--output")) {
+            if ((o.stages_csv = cli_value(a)) == NULL) rc = SL_EUSAGE;
         } else if (cli_opt(a, "--episodes")) {
             if (!int_opt(a, "--episodes", &o.episodes)) rc = SL_EUSAGE;
             else if (o.episodes < 1) rc = cli_usage_error(a, "--episodes must be at least 1");
@@ -733,9 +747,13 @@ int cmd_simulate(cli_args *a)
         }
     }
     if (rc) return rc;
-    if (o.model == NULL || o.solution == NULL) return cli_usage_error(a, "need MODEL.h5 and SOLUTION.h5");
-    if (!have_start) return cli_usage_error(a, "--start STATE is required");
-    rc = cli_fail(a, sl_state_lookup(a->ctx, o.model, start_text, "--start", &o.start));
+    if (o.model == NULL || o.solution == NULL)
+        return cli_usage_error(a, "need MODEL.h5 and a policy (SOLUTION.h5, or --policy RULE.csv)");
+    if (have_start == (o.start_distribution != NULL))
+        return cli_usage_error(a, "give exactly one of --start STATE and --start-distribution FILE.csv");
+    if (o.stages_csv && o.stages == 0) return cli_usage_error(a, "-o %s: the per-stage table needs --stages N", o.stages_csv);
+    if (o.stages_csv && replicates > 1) return cli_usage_error(a, "-o writes one run: leave out --replicates");
+    if (have_start) rc = cli_fail(a, sl_state_lookup(a->ctx, o.model, start_text, "--start", &o.start));
     if (rc) return rc;
     if (replicates > 1 && o.trajectories)
         return cli_usage_error(a, "--trajectories writes one run: leave out --replicates");

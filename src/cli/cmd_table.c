@@ -7,9 +7,11 @@
 #include "cli/cli_out.h"
 
 static const char table_help[] =
-    "usage: sluice table SOLUTION.h5 --model MODEL.h5 --rows FACTOR --cols FACTOR\n"
+    "usage: sluice table SOLUTION.h5|RULE.csv --model MODEL.h5 --rows FACTOR --cols FACTOR\n"
     "                    [--fix NAME=VALUE|NAME@INDEX]... [--show WHAT] [-o FILE.csv|-]\n"
-    "  a table of the solution over two factors, every other factor fixed.\n"
+    "  a table of the solution over two factors, every other factor fixed. SOLUTION may\n"
+    "  also be a rule operated today as RULE.csv (actions by state, as evaluate --compare\n"
+    "  reads): its actions, quantities and switches (a rule has no values).\n"
     "  --show action            the policy's action, in the action's unit (default)\n"
     "         value             the value, in reward units\n"
     "         marginal:FACTOR   marginal value of one unit of a numeric factor: central\n"

@@ -83,12 +83,8 @@ int cli_quantity_totals(cli_args *a, sl_solver *s, const sl_model *m, const sl_s
         rc = SL_EUSAGE;
     }
     if (rc == 0 && compare_path) {
-        size_t n = strlen(compare_path);
         /* a rule operated today, as a CSV of actions by state labels, or a solution file */
-        if (n > 4 && strcasecmp(compare_path + n - 4, ".csv") == 0)
-            rc = cli_fail(a, sl_policy_read_csv(m, compare_path, &other));
-        else
-            rc = cli_fail(a, sl_solution_load(a->ctx, compare_path, m, &other));
+        rc = cli_fail(a, sl_policy_load(a->ctx, compare_path, m, &other));
         if (rc == 0) rc = cli_fail(a, sl_quantity_totals(s, m, other, model_path, &tb));
     }
     if (rc == 0 && ta.n_quantities > 0) {

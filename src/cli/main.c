@@ -18,13 +18,14 @@ static const char usage_text[] =
     "  estimate EXPERIENCE.csv --discount G -o MODEL.h5         model estimated from state,action,reward,next_state rows\n"
     "  info FILE.h5 [--json] [--partition N]                    describe a model, solution or checkpoint file\n"
     "  solve MODEL.h5 -o SOLUTION.h5 [--method gs|jacobi|mpi|pi] [--tolerance EPS] ...\n"
-    "  evaluate MODEL.h5 --policy SOLUTION.h5 -o VALUES.h5      value of a fixed policy\n"
+    "  evaluate MODEL.h5 --policy SOLUTION.h5|RULE.csv -o VALUES.h5  value of a fixed policy (or of a rule)\n"
     "  verify MODEL.h5 SOLUTION.h5 [--tolerance EPS]            recompute and check a solution's certificate\n"
     "  export SOLUTION.h5 --model MODEL.h5 -o FILE.csv          policy and values as CSV\n"
-    "  simulate MODEL.h5 SOLUTION.h5 --start S --episodes N --seed K\n"
+    "  simulate MODEL.h5 SOLUTION.h5|--policy RULE.csv --start S --episodes N --seed K [-o STAGES.csv]\n"
     "  table SOLUTION.h5 --model MODEL.h5 --rows F --cols F [--fix NAME=VALUE]... [--show WHAT]\n"
     "                                                           release rule, water values, quantities\n"
-    "  outlook MODEL.h5 SOLUTION.h5 --start S --stages N [--json]  exact forward distribution under the policy\n"
+    "  outlook MODEL.h5 SOLUTION.h5|--policy RULE.csv --start S --stages N [--json]\n"
+    "                                                           exact forward distribution under the policy\n"
     "  report MODEL.h5 SOLUTION.h5 -o REPORT.html [--figures DIR]   one HTML page for a reviewer\n"
     "  help COMMAND                                             the options of one command\n"
     "\n"
@@ -93,6 +94,15 @@ int cli_positional(cli_args *a, const char **slots[], int n)
             return 0;
         }
     return cli_usage_error(a, "unexpected argument '%s'", arg);
+}
+
+int cli_policy_opt(cli_args *a, const char **slot)
+{
+    const char *v = cli_value(a);
+    if (v == NULL) return SL_EUSAGE;
+    if (*slot != NULL) return cli_usage_error(a, "the policy is given twice ('%s' and --policy '%s')", *slot, v);
+    *slot = v;
+    return 0;
 }
 
 int cli_fail(cli_args *a, sl_status st)

@@ -1,8 +1,9 @@
 # bad_input_results.sh - bad input to the planner-facing results of issue 9
 # beyond table/outlook: a rule given to `evaluate --compare` as a CSV of
 # actions by state labels (unknown labels or actions, missing or repeated
-# states, an action the state does not offer, a bad header) and `simulate`'s
-# new options. Each a clear error naming the file and line (or the state),
+# states, an action the state does not offer, a bad header), the same rule
+# given as --policy to evaluate, outlook and simulate, and `simulate`'s new
+# options (-o per-stage table, --start-distribution). Each a clear error naming the file and line (or the state),
 # the sysexits code, and no output left behind.
 # usage: bash bad_input_results.sh SLUICE_BINARY WORKDIR SOURCE_DIR
 . "$(dirname "$0")/lib.sh"
@@ -54,6 +55,45 @@ expect "rule CSV: action not offered in its state" --code 65 --err "na.csv line 
     --err "not available" --gone "$O" --gone "$W/v.h5" -- "${E[@]}" --compare "$W/na.csv" --totals "$O"
 expect "rule CSV: missing file" --code 66 --err "none.csv" --gone "$O" --gone "$W/v.h5" -- \
     "${E[@]}" --compare "$W/none.csv" --totals "$O"
+
+# the rule as the policy itself (--policy RULE.csv): one reader, so the same
+# errors, and nothing written
+OL=("$SLUICE" outlook "$W/res.h5" --start 0 --stages 3)
+expect "setup: outlook under a good rule" --code 0 --out "a rule CSV, which has no values" -- \
+    "${OL[@]}" --policy "$W/good.csv"
+expect "outlook --policy: unknown action" --code 65 --err "act.csv line 3" --err "open_gates" --gone "$W/ol.csv" -- \
+    "${OL[@]}" --policy "$W/act.csv" -o "$W/ol.csv"
+expect "outlook --policy: action not offered in its state" --code 65 --err "na.csv line 2" --err "not available" \
+    --gone "$W/ol.csv" -- "${OL[@]}" --policy "$W/na.csv" -o "$W/ol.csv"
+expect "outlook --policy: a solution and a rule both given" --code 64 --err "given twice" -- \
+    "${OL[@]}" "$W/sol.h5" --policy "$W/good.csv"
+expect "evaluate --policy: a state without a row" --code 65 --err "miss.csv" --err "no row for state" --gone "$W/v.h5" -- \
+    "$SLUICE" evaluate "$W/res.h5" --policy "$W/miss.csv" -o "$W/v.h5"
+expect "evaluate --policy: missing rule file" --code 66 --err "none.csv" --gone "$W/v.h5" -- \
+    "$SLUICE" evaluate "$W/res.h5" --policy "$W/none.csv" -o "$W/v.h5"
+expect "table: --show value of a rule (no values)" --code 64 --err "good.csv is a rule CSV" --gone "$W/tb.csv" -- \
+    "$SLUICE" table "$W/good.csv" --model "$W/res.h5" --rows storage --cols month --fix inflow@0 --show value \
+    -o "$W/tb.csv"
+SR=("$SLUICE" simulate "$W/res.h5" --episodes 10 --seed 1 --stages 3)
+expect "simulate --policy: a state given twice" --code 65 --err "dup.csv line 4" --err "twice" --gone "$W/st.csv" \
+    --gone "$W/t.csv" -- "${SR[@]}" --start 0 --policy "$W/dup.csv" -o "$W/st.csv" --trajectories "$W/t.csv"
+expect "simulate -o: without --stages" --code 64 --err "needs --stages" --gone "$W/st.csv" -- \
+    "$SLUICE" simulate "$W/res.h5" "$W/sol.h5" --start 0 --episodes 10 -o "$W/st.csv"
+expect "simulate -o: into a missing directory" --code 73 --err "nodir/st.csv" --gone "$W/nodir/st.csv" -- \
+    "${SR[@]}" "$W/sol.h5" --start 0 -o "$W/nodir/st.csv"
+expect "simulate: both --start and --start-distribution" --code 64 --err "exactly one" -- \
+    "${SR[@]}" "$W/sol.h5" --start 0 --start-distribution "$W/good.csv"
+printf 'state,probability\n0,0.5\n1,0.4\n' > "$W/d09.csv"
+expect "simulate --start-distribution: sums to 0.9" --code 65 --err "d09.csv" --err "sum to 0.9" --gone "$W/st.csv" -- \
+    "${SR[@]}" "$W/sol.h5" --start-distribution "$W/d09.csv" -o "$W/st.csv"
+printf 'state,probability\n0,0.5\n999999,0.5\n' > "$W/dst.csv"
+expect "simulate --start-distribution: state outside the model" --code 65 --err "dst.csv line 3" --err "999999" \
+    --gone "$W/st.csv" -- "${SR[@]}" "$W/sol.h5" --start-distribution "$W/dst.csv" -o "$W/st.csv"
+printf 'state,probability\n0,0.5\n1,0.5\n' > "$W/d10.csv"
+expect "setup: simulate a good rule from a start distribution, per-stage table" --code 0 --out "(a rule)" \
+    --clean "$W/st.csv" -- "${SR[@]}" --policy "$W/good.csv" --start-distribution "$W/d10.csv" -o "$W/st.csv"
+if [ "$(wc -l < "$W/st.csv")" -eq 5 ]; then note_ok "the per-stage table has a header and stages 0..3"; else
+    note_fail "the per-stage table has a header and stages 0..3" "$(wc -l < "$W/st.csv") lines"; fi
 
 S=("$SLUICE" simulate "$W/res.h5" "$W/sol.h5" --start 0 --episodes 10 --seed 1)
 expect "simulate: unknown interval method" --code 64 --err "--interval" --err "wilson" -- "${S[@]}" --stages 3 \

@@ -18,5 +18,7 @@ add_test(NAME jobs_slurm_real COMMAND bash ${PROJECT_SOURCE_DIR}/tests/jobs/slur
 set_tests_properties(jobs_slurm_standin jobs_pbs_standin PROPERTIES LABELS jobs TIMEOUT 1800
                      RUN_SERIAL TRUE FIXTURES_REQUIRED jobs_big
                      ENVIRONMENT "${SLUICE_TEST_ENV}")
+# the PBS chain solves with Jacobi (see pbs_standin_test.sh): 805 s at load 8
+set_tests_properties(jobs_pbs_standin PROPERTIES TIMEOUT 2700)
 set_tests_properties(jobs_slurm_real PROPERTIES LABELS jobs TIMEOUT 1200 SKIP_RETURN_CODE 77
                      RUN_SERIAL TRUE FIXTURES_REQUIRED jobs_big ENVIRONMENT "${SLUICE_TEST_ENV}")

@@ -135,8 +135,12 @@ def lower_quantile(x, w, p):
 
 
 def check_exact(chk, fl, doc, start_state, label):
+    """start_state: a state number (a point mass) or a start distribution (a vector)."""
     mu = np.zeros(fl.n)
-    mu[start_state] = 1.0
+    if np.ndim(start_state) == 0:
+        mu[start_state] = 1.0
+    else:
+        mu[:] = start_state
     acc, disc = 0.0, 1.0
     worst = 0.0
     for t, st in enumerate(doc["stages"]):
@@ -170,13 +174,35 @@ def check_exact(chk, fl, doc, start_state, label):
     chk.note("%s: largest scaled difference from the scipy propagation %.3g" % (label, worst))
 
 
-def main():
-    binary, work = mc.parse_args(sys.argv, "test_outlook.py SLUICE_BINARY WORKDIR")
-    chk = mc.Checker("outlook")
-    params = ["--param", "storage_levels=31", "--param", "inflow_classes=5", "--param", "release_levels=7"]
+def build_and_solve(binary, work, levels, classes, releases):
+    """A Tamsel reservoir of the given size in WORK/res.h5, solved to 1e-6 into WORK/sol.h5."""
+    params = ["--param", "storage_levels=%d" % levels, "--param", "inflow_classes=%d" % classes,
+              "--param", "release_levels=%d" % releases]
     model, sol = os.path.join(work, "res.h5"), os.path.join(work, "sol.h5")
     mc.run_sluice(binary, ["build", "-q", RESERVOIR] + params + ["-o", model])
     mc.run_sluice(binary, ["solve", "-q", model, "-o", sol, "--tolerance", "1e-6"])
+    return model, sol
+
+
+def worst_difference(base, other):
+    """Largest difference between two outlook documents' figures, relative to max(1, |figure|)."""
+    worst = 0.0
+    for a, b in zip(base["stages"], other["stages"]):
+        for nm in a["factors"]:
+            for k in a["factors"][nm]:
+                worst = max(worst, abs(a["factors"][nm][k] - b["factors"][nm][k]) / max(1, abs(a["factors"][nm][k])))
+        for q in a["quantities"]:
+            for k in ("mean", "p_positive"):
+                worst = max(worst, abs(a["quantities"][q][k] - b["quantities"][q][k])
+                            / max(1, abs(a["quantities"][q][k])))
+        worst = max(worst, abs(a["discounted_reward"] - b["discounted_reward"]) / max(1, abs(a["discounted_reward"])))
+    return worst
+
+
+def main():
+    binary, work = mc.parse_args(sys.argv, "test_outlook.py SLUICE_BINARY WORKDIR")
+    chk = mc.Checker("outlook")
+    model, sol = build_and_solve(binary, work, 31, 5, 7)
     fl = Files(model, sol)
     L, J = fl.sizes[0], fl.sizes[1]
     start_spec = "storage@%d,inflow@%d,month=Mar" % (L // 3, J - 1)
@@ -271,16 +297,7 @@ def main():
         base = doc
         for ranks in (2, 3):
             other = outlook(binary, model, sol, start_spec, STAGES, ranks)
-            worst = 0.0
-            for a, b in zip(base["stages"], other["stages"]):
-                for nm in a["factors"]:
-                    for k in a["factors"][nm]:
-                        worst = max(worst, abs(a["factors"][nm][k] - b["factors"][nm][k]) / max(1, abs(a["factors"][nm][k])))
-                for q in a["quantities"]:
-                    for k in ("mean", "p_positive"):
-                        worst = max(worst, abs(a["quantities"][q][k] - b["quantities"][q][k])
-                                    / max(1, abs(a["quantities"][q][k])))
-                worst = max(worst, abs(a["discounted_reward"] - b["discounted_reward"]) / max(1, abs(a["discounted_reward"])))
+            worst = worst_difference(base, other)
             chk.check(len(other["stages"]) == len(base["stages"]) and worst <= 1e-12,
                       "%d ranks give the 1-rank outlook" % ranks, "worst relative difference %.3g" % worst)
     return chk.finish()

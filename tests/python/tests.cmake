@@ -30,7 +30,7 @@ else()
   endforeach()
 
   # Tables, outlooks and totals of issue 9 (each runs 1, 2 and 3 ranks itself)
-  foreach(_t table outlook totals)
+  foreach(_t table outlook totals rule)
     add_test(NAME py_${_t}
       COMMAND ${SLUICE_TEST_PYTHON} ${_sluice_py_dir}/test_${_t}.py
               $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/py_${_t})
