@@ -179,13 +179,15 @@ static sl_status stream_open(sl_ctx *ctx, sl_model_writer *w, const char *name, 
     return sl_h5_create_1d(ctx, w->f, name, ftype, total, 1, w->path, &s->dset);
 }
 
-/* Make room for `need` buffered entries. Local. */
+/* Make room for `need` buffered entries, keeping the buffered ones (a
+ * checked allocation, so the allocation-failure tests reach it). Local. */
 static sl_status stream_reserve(sl_ctx *ctx, wstream *s, int64_t need)
 {
     if (need <= s->cap) return SL_OK;
-    unsigned char *nb = realloc(s->buf, (size_t)need * s->esize);
-    if (nb == NULL)
-        return SL_ERR(ctx, SL_ENOMEM, "out of memory buffering %lld entries of %s", (long long)need, s->name);
+    unsigned char *nb = sl_malloc(ctx, (size_t)need, s->esize, "model writer buffer");
+    if (nb == NULL) return SL_ENOMEM; /* the allocator recorded the message */
+    if (s->n > 0) memcpy(nb, s->buf, (size_t)s->n * s->esize);
+    free(s->buf);
     s->buf = nb;
     s->cap = need;
     return SL_OK;
