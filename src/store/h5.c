@@ -47,8 +47,12 @@ sl_status sl_h5_create(sl_ctx *ctx, const char *path, hid_t *file)
     sl_status st = SL_OK;
     H5Eset_auto2(H5E_DEFAULT, NULL, NULL);
     hid_t fapl = H5Pcreate(H5P_FILE_ACCESS);
+    /* metadata written collectively: with the default (distributed) writes,
+     * HDF5 1.10.8 under OpenMPI 4.1.4 failed a metadata flush of the chunk
+     * index (pwritev: Bad address) while writing the 10^7-state model a
+     * block at a time (bench/README.md, big10m.sh) */
     if (fapl < 0 || H5Pset_fapl_mpio(fapl, ctx->comm, MPI_INFO_NULL) < 0 ||
-        H5Pset_libver_bounds(fapl, H5F_LIBVER_V18, H5F_LIBVER_V110) < 0)
+        H5Pset_libver_bounds(fapl, H5F_LIBVER_V18, H5F_LIBVER_V110) < 0 || H5Pset_coll_metadata_write(fapl, 1) < 0)
         st = SL_ERR(ctx, SL_EINTERNAL, "%s: cannot set up parallel HDF5 access", path);
     if (st == SL_OK) {
         *file = H5Fcreate(path, H5F_ACC_TRUNC, H5P_DEFAULT, fapl);
