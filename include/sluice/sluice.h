@@ -161,9 +161,20 @@ typedef struct sl_build_opts {
     int renormalize;            /* rescale pairs within 1e-6 of 1 */
     const char *cache_dir;      /* NULL -> $SLUICE_CACHE or ~/.cache/sluice */
     const char *cc;             /* NULL -> $CC or "cc" */
+    int64_t block_transitions;  /* sl_build_to_file: transitions per block (0: 2^21) */
 } sl_build_opts;
 /* The same with every build setting. */
 SLUICE_API sl_status sl_model_from_generator_opts(sl_ctx *ctx, const sl_build_opts *opts, sl_model **m);
+/* Build a generator's model straight into the file `path`, a block of
+ * states at a time, without holding the model: the generator runs twice
+ * (a first pass counts each rank's pairs and transitions so that every rank
+ * knows where its rows go; the second generates them again and writes
+ * them), so memory stays at a few blocks whatever the model's size. The
+ * file is the one sl_model_save of sl_model_from_generator_opts writes
+ * (same datasets and fingerprint). Atomic: on any error no file is left at
+ * `path` (a generator that gives different rows in the two passes is
+ * SL_EDATA). counts (may be NULL): states, pairs, transitions. Collective. */
+SLUICE_API sl_status sl_build_to_file(sl_ctx *ctx, const sl_build_opts *opts, const char *path, int64_t counts[3]);
 
 typedef struct sl_import_opts {
     const char *input;          /* CSV path, or "-" for stdin */

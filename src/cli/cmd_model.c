@@ -16,14 +16,20 @@ static int parse_objective(cli_args *a, sl_objective *obj)
     return 1;
 }
 
+/* Say that a model file was written (rank 0, unless quiet). */
+static void say_wrote(cli_args *a, const char *output, int64_t states, int64_t pairs, int64_t trans, double t0)
+{
+    if (sl_ctx_rank(a->ctx) == 0 && sl_ctx_verbosity(a->ctx) >= 1)
+        fprintf(stderr, "%s: wrote %s: %lld states, %lld pairs, %lld transitions in %.1f s\n", a->cmd, output,
+                (long long)states, (long long)pairs, (long long)trans, sl_clock() - t0);
+}
+
 /* Write a model and say so. */
 static int save_model(cli_args *a, const sl_model *m, const char *output, double t0)
 {
     int rc = cli_fail(a, sl_model_save(m, output));
-    if (rc == 0 && sl_ctx_rank(a->ctx) == 0 && sl_ctx_verbosity(a->ctx) >= 1)
-        fprintf(stderr, "%s: wrote %s: %lld states, %lld pairs, %lld transitions in %.1f s\n", a->cmd, output,
-                (long long)sl_model_n_states(m), (long long)sl_model_n_pairs(m),
-                (long long)sl_model_n_transitions(m), sl_clock() - t0);
+    if (rc == 0)
+        say_wrote(a, output, sl_model_n_states(m), sl_model_n_pairs(m), sl_model_n_transitions(m), t0);
     return rc;
 }
 
@@ -38,6 +44,9 @@ static const char build_help[] =
     "  --renormalize        rescale pairs whose sum drifts by at most 1e-6 (reports how many)\n"
     "  --cache DIR          compiled-generator cache (default $SLUICE_CACHE or ~/.cache/sluice)\n"
     "  --cc COMPILER        C compiler (default $CC or cc)\n"
+    "  --block-transitions N  write the model a block of about N transitions at a time\n"
+    "                       (default 2097152; the build holds about 30 bytes per\n"
+    "                       transition of a block, whatever the model's size)\n"
     "  -q, --quiet          no progress lines\n";
 
 int cmd_build(cli_args *a)
@@ -81,6 +90,11 @@ int cmd_build(cli_args *a)
             if ((o.cache_dir = cli_value(a)) == NULL) rc = SL_EUSAGE;
         } else if (cli_opt(a, "--cc")) {
             if ((o.cc = cli_value(a)) == NULL) rc = SL_EUSAGE;
+        } else if (cli_opt(a, "--block-transitions")) {
+            if ((v = cli_value(a)) == NULL || !cli_int64(a, "--block-transitions", v, &o.block_transitions))
+                rc = SL_EUSAGE;
+            else if (o.block_transitions < 1)
+                rc = cli_usage_error(a, "--block-transitions: '%s' is not a positive number", v);
         } else {
             rc = cli_positional(a, (const char **[]){&o.generator}, 1);
         }
@@ -88,11 +102,10 @@ int cmd_build(cli_args *a)
     if (rc == 0 && o.generator == NULL) rc = cli_usage_error(a, "no generator given");
     if (rc == 0 && output == NULL) rc = cli_usage_error(a, "no output file given (-o MODEL.h5)");
     if (rc == 0) {
-        sl_model *m = NULL;
+        int64_t n[3];
         double t0 = sl_clock();
-        rc = cli_fail(a, sl_model_from_generator_opts(a->ctx, &o, &m));
-        if (rc == 0) rc = save_model(a, m, output, t0);
-        sl_model_free(&m);
+        rc = cli_fail(a, sl_build_to_file(a->ctx, &o, output, n));
+        if (rc == 0) say_wrote(a, output, n[0], n[1], n[2], t0);
     }
     for (int k = 0; k < n_owned; k++) free(owned[k]);
     return rc;

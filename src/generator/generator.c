@@ -412,7 +412,7 @@ static int ends_with(const char *s, const char *suf)
     return a >= b && strcmp(s + a - b, suf) == 0;
 }
 
-static void progress(sl_ctx *ctx, double t0, double *last, int64_t done, int64_t total, int final)
+static void progress(sl_ctx *ctx, const char *what, double t0, double *last, int64_t done, int64_t total, int final)
 {
     if (ctx->rank != 0 || ctx->verbosity < 1 || ctx->log == NULL) return;
     double now = sl_now(), every = ctx->log_tty ? 0.5 : 10.0;
@@ -421,10 +421,10 @@ static void progress(sl_ctx *ctx, double t0, double *last, int64_t done, int64_t
     double rate = done / (now - t0 + 1e-9);
     double eta = rate > 0 ? (total - done) / rate : 0;
     if (ctx->log_tty)
-        fprintf(ctx->log, "\rbuild: %lld/%lld states (rank 0), %.0f states/s, ETA %.0f s   %s", (long long)done,
-                (long long)total, rate, eta, final ? "\n" : "");
+        fprintf(ctx->log, "\rbuild: %s%lld/%lld states (rank 0), %.0f states/s, ETA %.0f s   %s", what,
+                (long long)done, (long long)total, rate, eta, final ? "\n" : "");
     else
-        fprintf(ctx->log, "build: %lld/%lld states (rank 0), %.0f states/s, ETA %.0f s\n", (long long)done,
+        fprintf(ctx->log, "build: %s%lld/%lld states (rank 0), %.0f states/s, ETA %.0f s\n", what, (long long)done,
                 (long long)total, rate, eta);
     fflush(ctx->log);
 }
@@ -485,66 +485,58 @@ cleanup:
     return st;
 }
 
-/* The generator's optional sluice_terminal_value (generator.h): for the
- * finite objective, the terminal value of every state of [s0, s1) into
- * blk->terminal and meta->has_terminal set (so the fingerprint covers them);
- * for other objectives it is not called. Every rank loads the same object,
- * so all agree on whether it exists. Local; the caller agrees. */
-static sl_status take_terminal_values(sl_ctx *ctx, const sl_build_opts *o, void *dl, const void *inst,
-                                      sl_block *blk, sl_meta *meta, int64_t s0, int64_t s1)
+/* A generator loaded, initialised and checked, with the model's metadata
+ * (all but the counts and the fingerprint) and the crash handler armed. */
+typedef struct gen_session {
+    const sl_build_opts *o;
+    void *dl, *inst;
+    const sluice_generator_def *g;
+    double *pv;
+    sluice_shape shape;
+    sl_meta meta;
+    struct sigaction old[8];
+    int armed;
+    int64_t s0, s1;             /* this rank's states */
+    double t0, last;            /* progress */
+    int (*terminal)(const void *, int64_t, double *); /* sluice_terminal_value, finite only */
+} gen_session;
+
+static const int gen_signals[8] = {SIGSEGV, SIGBUS, SIGFPE, SIGILL, SIGABRT, SIGTERM, SIGINT, SIGHUP};
+
+static void gen_close(gen_session *gs)
 {
-    typedef int (*terminal_fn)(const void *, int64_t, double *);
-    terminal_fn fn = NULL;
-    void *sym = dlsym(dl, SLUICE_TERMINAL_VALUE_SYMBOL);
-    if (sym == NULL) return SL_OK;
-    if (o->objective != SL_OBJ_FINITE) {
-        sl_log(ctx, "build: %s exports %s; terminal values apply to the finite objective only, not stored",
-               o->generator, SLUICE_TERMINAL_VALUE_SYMBOL);
-        return SL_OK;
-    }
-    memcpy(&fn, &sym, sizeof(fn)); /* object pointer to function pointer, as POSIX dlsym requires */
-    if (SL_ALLOC(ctx, blk->terminal, s1 - s0 + 1, "terminal values") == NULL) return SL_ENOMEM;
-    crash_action = -1;
-    for (int64_t s = s0; s < s1; s++) {
-        double v = NAN;
-        crash_state = s;
-        int rc = fn(inst, s, &v);
-        if (rc != 0)
-            return SL_ERR(ctx, SL_EDATA, "%s: %s returned error %d at state %lld", o->generator,
-                          SLUICE_TERMINAL_VALUE_SYMBOL, rc, (long long)s);
-        if (!isfinite(v))
-            return SL_ERR(ctx, SL_EDATA, "%s: %s gave %g at state %lld (a terminal value must be a finite number)",
-                          o->generator, SLUICE_TERMINAL_VALUE_SYMBOL, v, (long long)s);
-        blk->terminal[s - s0] = v;
-    }
-    meta->has_terminal = 1;
-    return SL_OK;
+    if (gs->armed)
+        for (int i = 0; i < 8; i++) sigaction(gen_signals[i], &gs->old[i], NULL);
+    gs->armed = 0;
+    crash_armed = 0;
+    if (gs->inst && gs->g && gs->g->finish) gs->g->finish(gs->inst);
+    gs->inst = NULL;
+    if (gs->dl) dlclose(gs->dl);
+    gs->dl = NULL;
+    free(gs->pv);
+    gs->pv = NULL;
+    sl_meta_free(&gs->meta);
 }
 
-sl_status sl_model_from_generator_opts(sl_ctx *ctx, const sl_build_opts *o, sl_model **out)
+/* Load the generator, set its parameters, run its init, check its shape and
+ * fill gs->meta. Collective. On failure gen_close(gs) still has to be
+ * called. */
+static sl_status gen_open(sl_ctx *ctx, const sl_build_opts *o, gen_session *gs)
 {
     sl_status st = SL_OK;
     char so_path[4400] = "";
-    void *dl = NULL, *inst = NULL;
-    const sluice_generator_def *g = NULL;
-    double *pv = NULL;
-    sl_meta meta;
-    sl_block blk;
-    sluice_shape shape;
-    struct sigaction sa, old[8];
-    int sigs[8] = {SIGSEGV, SIGBUS, SIGFPE, SIGILL, SIGABRT, SIGTERM, SIGINT, SIGHUP}, armed = 0;
-    memset(&meta, 0, sizeof(meta));
-    memset(&blk, 0, sizeof(blk));
-    memset(&shape, 0, sizeof(shape));
-    if (out == NULL) return SL_ERR(ctx, SL_EUSAGE, "sl_model_from_generator: no output handle");
-    *out = NULL;
+    sl_meta *meta = &gs->meta;
+    sluice_shape *sh = &gs->shape;
+    memset(gs, 0, sizeof(*gs));
+    gs->o = o;
     if (o == NULL || o->generator == NULL) return SL_ERR(ctx, SL_EUSAGE, "sl_model_from_generator: no generator given");
 
-    SL_TRY(load_generator(ctx, o, so_path, sizeof(so_path), &dl, &g));
+    SL_TRY(load_generator(ctx, o, so_path, sizeof(so_path), &gs->dl, &gs->g));
+    const sluice_generator_def *g = gs->g;
 
     /* parameters */
-    if (SL_ALLOC(ctx, pv, g->n_params, "parameters") == NULL) st = SL_ENOMEM;
-    for (int i = 0; st == SL_OK && i < g->n_params; i++) pv[i] = g->params[i].default_value;
+    if (SL_ALLOC(ctx, gs->pv, g->n_params, "parameters") == NULL) st = SL_ENOMEM;
+    for (int i = 0; st == SL_OK && i < g->n_params; i++) gs->pv[i] = g->params[i].default_value;
     for (int j = 0; st == SL_OK && j < o->n_params; j++) {
         int found = -1;
         for (int i = 0; i < g->n_params; i++)
@@ -558,13 +550,13 @@ sl_status sl_model_from_generator_opts(sl_ctx *ctx, const sl_build_opts *o, sl_m
             st = SL_ERR(ctx, SL_EUSAGE, "%s: unknown parameter '%s' (this generator has: %s)", o->generator,
                         o->param_names[j], g->n_params ? names : "no parameters");
         } else {
-            pv[found] = o->param_values[j];
+            gs->pv[found] = o->param_values[j];
         }
     }
     SL_TRY(sl_agree(ctx, st));
 
     char err[512] = "";
-    int rc = g->init(pv, &shape, &inst, err, sizeof(err));
+    int rc = g->init(gs->pv, sh, &gs->inst, err, sizeof(err));
     if (rc != 0)
         st = SL_ERR(ctx, SL_EDATA, "%s: generator init failed (code %d): %s", o->generator, rc,
                     err[0] ? err : "no message");
@@ -572,13 +564,13 @@ sl_status sl_model_from_generator_opts(sl_ctx *ctx, const sl_build_opts *o, sl_m
 
     /* shape checks: factor sizes first, so an overflowing product is not
      * mistaken for an empty model */
-    if (shape.n_factors < 0 || shape.n_factors > SLUICE_MAX_FACTORS)
-        st = SL_ERR(ctx, SL_EDATA, "%s: %d factors (at most %d)", o->generator, shape.n_factors,
+    if (sh->n_factors < 0 || sh->n_factors > SLUICE_MAX_FACTORS)
+        st = SL_ERR(ctx, SL_EDATA, "%s: %d factors (at most %d)", o->generator, sh->n_factors,
                     SLUICE_MAX_FACTORS);
-    if (st == SL_OK && shape.n_factors > 0) {
+    if (st == SL_OK && sh->n_factors > 0) {
         int64_t prod = 1;
-        for (int f = 0; f < shape.n_factors && st == SL_OK; f++) {
-            int64_t sz = shape.factors[f].size;
+        for (int f = 0; f < sh->n_factors && st == SL_OK; f++) {
+            int64_t sz = sh->factors[f].size;
             if (sz < 1)
                 st = SL_ERR(ctx, SL_EDATA, "%s: factor %d has size %lld", o->generator, f, (long long)sz);
             else if (prod > INT64_MAX / sz)
@@ -586,124 +578,277 @@ sl_status sl_model_from_generator_opts(sl_ctx *ctx, const sl_build_opts *o, sl_m
                             f);
             else prod *= sz;
         }
-        if (st == SL_OK && prod != shape.n_states)
+        if (st == SL_OK && prod != sh->n_states)
             st = SL_ERR(ctx, SL_EDATA, "%s: factor sizes multiply to %lld but the generator declares %lld states",
-                        o->generator, (long long)prod, (long long)shape.n_states);
+                        o->generator, (long long)prod, (long long)sh->n_states);
     }
-    if (st == SL_OK && shape.n_states <= 0)
+    if (st == SL_OK && sh->n_states <= 0)
         st = SL_ERR(ctx, SL_EDATA, "%s: the generator declares %lld states: the model is empty", o->generator,
-                    (long long)shape.n_states);
-    else if (st == SL_OK && shape.n_states > SL_MAX_STATES)
+                    (long long)sh->n_states);
+    else if (st == SL_OK && sh->n_states > SL_MAX_STATES)
         st = SL_ERR(ctx, SL_EDATA, "%s: state count %lld overflows the supported range (at most 2^48)",
-                    o->generator, (long long)shape.n_states);
-    else if (st == SL_OK && shape.n_actions <= 0)
+                    o->generator, (long long)sh->n_states);
+    else if (st == SL_OK && sh->n_actions <= 0)
         st = SL_ERR(ctx, SL_EDATA, "%s: the generator declares no actions", o->generator);
-    double gamma = o->have_discount ? o->discount : shape.discount;
+    double gamma = o->have_discount ? o->discount : sh->discount;
     if (st == SL_OK && o->objective == SL_OBJ_DISCOUNTED && !(gamma >= 0.0 && gamma < 1.0))
         st = SL_ERR(ctx, SL_EUSAGE, "discount %g is not in [0, 1) (required for the discounted objective)", gamma);
     if (st == SL_OK && o->objective != SL_OBJ_DISCOUNTED && !(gamma > 0.0 && gamma <= 1.0))
         st = SL_ERR(ctx, SL_EUSAGE, "discount %g is not in (0, 1]", gamma);
     SL_TRY(sl_agree(ctx, st));
-
-    /* enumerate my slice of states */
-    int64_t n = shape.n_states;
-    int64_t s0 = n * ctx->rank / ctx->size, s1 = n * (ctx->rank + 1) / ctx->size;
-    SL_TRY(sl_block_init(ctx, &blk, s0, n, o->generator));
     /* ABI 2 annotations: an ABI 1 object never writes the fields after
      * `discount`, which stay zero from the memset above */
-    if (g->abi_version >= 2) st = take_annotations(ctx, &shape, &meta, o->generator);
-    if (st == SL_OK) st = sl_block_set_quantities(ctx, &blk, meta.n_quantities);
+    if (g->abi_version >= 2) st = take_annotations(ctx, sh, meta, o->generator);
     SL_TRY(sl_agree(ctx, st));
-    blk.prob_tolerance = o->prob_tolerance > 0 ? o->prob_tolerance : 1e-9;
-    blk.renormalize = o->renormalize;
+
+    /* optional terminal values (finite objective only) */
+    void *tsym = dlsym(gs->dl, SLUICE_TERMINAL_VALUE_SYMBOL);
+    if (tsym != NULL && o->objective != SL_OBJ_FINITE)
+        sl_log(ctx, "build: %s exports %s; terminal values apply to the finite objective only, not stored",
+               o->generator, SLUICE_TERMINAL_VALUE_SYMBOL);
+    else if (tsym != NULL) {
+        memcpy(&gs->terminal, &tsym, sizeof(gs->terminal)); /* object to function pointer, as POSIX dlsym requires */
+        meta->has_terminal = 1;
+    }
+
+    /* metadata but the counts and fingerprint */
+    int64_t n = sh->n_states;
+    gs->s0 = n * ctx->rank / ctx->size;
+    gs->s1 = n * (ctx->rank + 1) / ctx->size;
+    meta->format_version = sl_meta_has_annotations(meta) ? 2 : 1;
+    meta->n_states = n;
+    meta->discount = gamma;
+    meta->objective = o->objective;
+    meta->n_factors = sh->n_factors;
+    for (int f = 0; f < sh->n_factors; f++) {
+        snprintf(meta->factor_name[f], SL_NAME_MAX, "%s", sh->factors[f].name ? sh->factors[f].name : "");
+        meta->factor_size[f] = sh->factors[f].size;
+        meta->factor_stage[f] = sh->factors[f].stage != 0;
+    }
+    meta->n_action_names = sh->action_names ? sh->n_actions : 0;
+    meta->n_params = g->n_params;
+    if (SL_ZALLOC(ctx, meta->action_name, meta->n_action_names, "action names") == NULL ||
+        SL_ZALLOC(ctx, meta->param_name, meta->n_params, "params") == NULL ||
+        SL_ZALLOC(ctx, meta->param_unit, meta->n_params, "params") == NULL ||
+        SL_ZALLOC(ctx, meta->param_value, meta->n_params, "params") == NULL)
+        st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    for (int32_t a = 0; a < meta->n_action_names; a++)
+        snprintf(meta->action_name[a], SL_NAME_MAX, "%s", sh->action_names[a] ? sh->action_names[a] : "");
+    for (int i = 0; i < g->n_params; i++) {
+        snprintf(meta->param_name[i], SL_NAME_MAX, "%s", g->params[i].name);
+        snprintf(meta->param_unit[i], SL_NAME_MAX, "%s", g->params[i].unit ? g->params[i].unit : "");
+        meta->param_value[i] = gs->pv[i];
+    }
+    snprintf(meta->generator, sizeof(meta->generator), "%s", g->name ? g->name : "generator");
+    const char *base = strrchr(o->generator, '/');
+    snprintf(meta->source, sizeof(meta->source), "%s", base ? base + 1 : o->generator);
+
     if (snprintf(crash_name, sizeof(crash_name), "%s (%s)", g->name ? g->name : "?", o->generator) >=
         (int)sizeof(crash_name))
         crash_name[sizeof(crash_name) - 1] = '\0'; /* a shortened name is fine */
+    struct sigaction sa;
     memset(&sa, 0, sizeof(sa));
     sa.sa_handler = crash_handler;
     sigemptyset(&sa.sa_mask);
-    for (int i = 0; i < 8; i++) sigaction(sigs[i], &sa, &old[i]);
-    armed = 1;
-    crash_armed = 1;
-    sink_state sk = {{sink_emit, NULL, sink_emit_outcome}, ctx, &blk, SL_OK, 0, 0, 0, o->generator};
+    for (int i = 0; i < 8; i++) sigaction(gen_signals[i], &sa, &gs->old[i]);
+    gs->armed = 1;
+cleanup:
+    return st;
+}
+
+/* An empty block for this rank's rows, set up as the generator's settings
+ * say. Local. */
+static sl_status gen_block(sl_ctx *ctx, gen_session *gs, sl_block *blk)
+{
+    sl_status st = sl_block_init(ctx, blk, gs->s0, gs->meta.n_states, gs->o->generator);
+    if (st == SL_OK) st = sl_block_set_quantities(ctx, blk, gs->meta.n_quantities);
+    blk->prob_tolerance = gs->o->prob_tolerance > 0 ? gs->o->prob_tolerance : 1e-9;
+    blk->renormalize = gs->o->renormalize;
+    return st;
+}
+
+/* The generator's optional sluice_terminal_value (generator.h): for the
+ * finite objective, the terminal value of every state of the block's rows
+ * into blk->terminal (meta->has_terminal was set by gen_open, so the
+ * fingerprint covers them); for other objectives it is not called. Every
+ * rank loads the same object, so all agree on whether it exists. Local. */
+static sl_status gen_terminal_values(sl_ctx *ctx, gen_session *gs, sl_block *blk)
+{
+    int64_t ns = blk->s_end - blk->s_begin;
+    if (gs->terminal == NULL) return SL_OK;
+    free(blk->terminal);
+    if (SL_ALLOC(ctx, blk->terminal, ns + 1, "terminal values") == NULL) return SL_ENOMEM;
+    crash_action = -1;
+    for (int64_t s = blk->s_begin; s < blk->s_end; s++) {
+        double v = NAN;
+        crash_state = s;
+        int rc = gs->terminal(gs->inst, s, &v);
+        if (rc != 0)
+            return SL_ERR(ctx, SL_EDATA, "%s: %s returned error %d at state %lld", gs->o->generator,
+                          SLUICE_TERMINAL_VALUE_SYMBOL, rc, (long long)s);
+        if (!isfinite(v))
+            return SL_ERR(ctx, SL_EDATA, "%s: %s gave %g at state %lld (a terminal value must be a finite number)",
+                          gs->o->generator, SLUICE_TERMINAL_VALUE_SYMBOL, v, (long long)s);
+        blk->terminal[s - blk->s_begin] = v;
+    }
+    return SL_OK;
+}
+
+/* Enumerate states from blk->s_end on into blk, up to state `upto` or until
+ * the block holds `max_trans` transitions (0: no limit). Local. */
+static sl_status gen_rows(sl_ctx *ctx, gen_session *gs, sl_block *blk, int64_t upto, int64_t max_trans,
+                          const char *what)
+{
+    sl_status st = SL_OK;
+    const sluice_generator_def *g = gs->g;
+    sink_state sk = {{sink_emit, NULL, sink_emit_outcome}, ctx, blk, SL_OK, 0, 0, 0, gs->o->generator};
     sk.sink.opaque = &sk;
-    double t0 = sl_now(), last = t0;
-    for (int64_t s = s0; s < s1 && st == SL_OK; s++) {
-        st = sl_block_begin_state(ctx, &blk);
-        for (int32_t a = 0; a < shape.n_actions && st == SL_OK; a++) {
+    crash_armed = 1;
+    for (int64_t s = blk->s_end; s < upto && st == SL_OK; s++) {
+        st = sl_block_begin_state(ctx, blk);
+        for (int32_t a = 0; a < gs->shape.n_actions && st == SL_OK; a++) {
             crash_state = s;
             crash_action = a;
-            if (g->available && !g->available(inst, s, a)) continue;
-            st = sl_block_begin_pair(ctx, &blk, a);
+            if (g->available && !g->available(gs->inst, s, a)) continue;
+            st = sl_block_begin_pair(ctx, blk, a);
             if (st != SL_OK) break;
             sk.n_pair = 0;
             sk.state = s;
             sk.action = a;
-            int grc = g->transitions(inst, s, a, &sk.sink);
+            int grc = g->transitions(gs->inst, s, a, &sk.sink);
             if (sk.st != SL_OK) st = sk.st;
             else if (grc != 0)
                 st = SL_ERR(ctx, SL_EDATA, "%s: generator returned error %d at state %lld, action %d",
-                            o->generator, grc, (long long)s, (int)a);
-            if (st == SL_OK) st = sl_block_end_pair(ctx, &blk);
+                            gs->o->generator, grc, (long long)s, (int)a);
+            if (st == SL_OK) st = sl_block_end_pair(ctx, blk);
         }
-        if (st == SL_OK) st = sl_block_end_state(ctx, &blk);
-        if (((s - s0) & 1023) == 0) progress(ctx, t0, &last, s - s0, s1 - s0, 0);
+        if (st == SL_OK) st = sl_block_end_state(ctx, blk);
+        if (((s - gs->s0) & 1023) == 0) progress(ctx, what, gs->t0, &gs->last, s - gs->s0, gs->s1 - gs->s0, 0);
+        if (max_trans > 0 && sl_block_trans(blk) >= max_trans) break;
     }
-    /* optional terminal values (finite objective): one call per owned state */
-    if (st == SL_OK) st = take_terminal_values(ctx, o, dl, inst, &blk, &meta, s0, s1);
+    /* optional terminal values (finite objective): one call per state of the block */
+    if (st == SL_OK) st = gen_terminal_values(ctx, gs, blk);
     crash_armed = 0;
-    if (st == SL_OK) progress(ctx, t0, &last, s1 - s0, s1 - s0, 1);
-    SL_TRY(sl_agree(ctx, st));
-    if (blk.n_renormalized > 0 || o->renormalize) {
-        int64_t tot = sl_sum_i64(ctx, blk.n_renormalized);
+    return st;
+}
+
+static void gen_report_renormalized(sl_ctx *ctx, gen_session *gs, const sl_block *blk)
+{
+    if (blk->n_renormalized > 0 || gs->o->renormalize) {
+        int64_t tot = sl_sum_i64(ctx, blk->n_renormalized);
         sl_warn(ctx, "--renormalize rescaled %lld pair(s) whose probabilities drifted from 1", (long long)tot);
     }
+}
 
-    /* global offsets, metadata, fingerprint, write */
-    sl_block_rebase(&blk, sl_exscan_i64(ctx, sl_block_pairs(&blk)), sl_exscan_i64(ctx, sl_block_trans(&blk)));
-    meta.format_version = sl_meta_has_annotations(&meta) ? 2 : 1;
-    meta.n_states = n;
-    meta.n_pairs = sl_sum_i64(ctx, sl_block_pairs(&blk));
-    meta.n_trans = sl_sum_i64(ctx, sl_block_trans(&blk));
-    meta.discount = gamma;
-    meta.objective = o->objective;
-    meta.n_factors = shape.n_factors;
-    for (int f = 0; f < shape.n_factors; f++) {
-        snprintf(meta.factor_name[f], SL_NAME_MAX, "%s", shape.factors[f].name ? shape.factors[f].name : "");
-        meta.factor_size[f] = shape.factors[f].size;
-        meta.factor_stage[f] = shape.factors[f].stage != 0;
-    }
-    meta.n_action_names = shape.action_names ? shape.n_actions : 0;
-    meta.n_params = g->n_params;
-    if (SL_ZALLOC(ctx, meta.action_name, meta.n_action_names, "action names") == NULL ||
-        SL_ZALLOC(ctx, meta.param_name, meta.n_params, "params") == NULL ||
-        SL_ZALLOC(ctx, meta.param_unit, meta.n_params, "params") == NULL ||
-        SL_ZALLOC(ctx, meta.param_value, meta.n_params, "params") == NULL)
-        st = SL_ENOMEM;
+sl_status sl_model_from_generator_opts(sl_ctx *ctx, const sl_build_opts *o, sl_model **out)
+{
+    sl_status st = SL_OK;
+    gen_session gs;
+    sl_block blk;
+    memset(&gs, 0, sizeof(gs));
+    memset(&blk, 0, sizeof(blk));
+    if (out == NULL) return SL_ERR(ctx, SL_EUSAGE, "sl_model_from_generator: no output handle");
+    *out = NULL;
+    SL_TRY(gen_open(ctx, o, &gs));
+    st = gen_block(ctx, &gs, &blk);
     SL_TRY(sl_agree(ctx, st));
-    for (int32_t a = 0; a < meta.n_action_names; a++)
-        snprintf(meta.action_name[a], SL_NAME_MAX, "%s", shape.action_names[a] ? shape.action_names[a] : "");
-    for (int i = 0; i < g->n_params; i++) {
-        snprintf(meta.param_name[i], SL_NAME_MAX, "%s", g->params[i].name);
-        snprintf(meta.param_unit[i], SL_NAME_MAX, "%s", g->params[i].unit ? g->params[i].unit : "");
-        meta.param_value[i] = pv[i];
-    }
-    snprintf(meta.generator, sizeof(meta.generator), "%s", g->name ? g->name : "generator");
-    const char *base = strrchr(o->generator, '/');
-    snprintf(meta.source, sizeof(meta.source), "%s", base ? base + 1 : o->generator);
-    SL_TRY(sl_fingerprint(ctx, &meta, &blk, meta.fingerprint));
+    gs.t0 = gs.last = sl_now();
+    st = gen_rows(ctx, &gs, &blk, gs.s1, 0, "");
+    if (st == SL_OK) progress(ctx, "", gs.t0, &gs.last, gs.s1 - gs.s0, gs.s1 - gs.s0, 1);
+    SL_TRY(sl_agree(ctx, st));
+    gen_report_renormalized(ctx, &gs, &blk);
+
+    /* global offsets, counts, fingerprint */
+    sl_block_rebase(&blk, sl_exscan_i64(ctx, sl_block_pairs(&blk)), sl_exscan_i64(ctx, sl_block_trans(&blk)));
+    gs.meta.n_pairs = sl_sum_i64(ctx, sl_block_pairs(&blk));
+    gs.meta.n_trans = sl_sum_i64(ctx, sl_block_trans(&blk));
+    SL_TRY(sl_fingerprint(ctx, &gs.meta, &blk, gs.meta.fingerprint));
     sl_log(ctx, "build: %s: %lld states, %lld pairs, %lld transitions enumerated in %.1f s", o->generator,
-           (long long)meta.n_states, (long long)meta.n_pairs, (long long)meta.n_trans, sl_now() - t0);
-    SL_TRY(sl_model_adopt(ctx, &meta, &blk, out));
+           (long long)gs.meta.n_states, (long long)gs.meta.n_pairs, (long long)gs.meta.n_trans, sl_now() - gs.t0);
+    SL_TRY(sl_model_adopt(ctx, &gs.meta, &blk, out));
 cleanup:
-    if (armed)
-        for (int i = 0; i < 8; i++) sigaction(sigs[i], &old[i], NULL);
-    crash_armed = 0;
-    if (inst && g && g->finish) g->finish(inst);
-    if (dl) dlclose(dl);
-    free(pv);
+    gen_close(&gs);
     sl_block_free(&blk);
-    sl_meta_free(&meta);
+    return st;
+}
+
+/* Transitions per block of a streamed build: the rows of one block, and
+ * one stream's copy of them, are what the build holds (about 16 + 12 bytes
+ * per transition of the block). */
+#define SL_BUILD_BLOCK_TRANS ((int64_t)1 << 21)
+
+sl_status sl_build_to_file(sl_ctx *ctx, const sl_build_opts *o, const char *path, int64_t counts[3])
+{
+    sl_status st = SL_OK;
+    gen_session gs;
+    sl_block blk;
+    sl_model_writer *w = NULL;
+    uint64_t acc[2] = {0, 0};
+    memset(&gs, 0, sizeof(gs));
+    memset(&blk, 0, sizeof(blk));
+    if (path == NULL) return SL_ERR(ctx, SL_EUSAGE, "sl_build_to_file: no output file");
+    if (o != NULL && o->block_transitions < 0)
+        return SL_ERR(ctx, SL_EUSAGE, "block of %lld transitions: must be positive", (long long)o->block_transitions);
+    int64_t block = o != NULL && o->block_transitions > 0 ? o->block_transitions : SL_BUILD_BLOCK_TRANS;
+    SL_TRY(gen_open(ctx, o, &gs));
+    st = gen_block(ctx, &gs, &blk);
+    SL_TRY(sl_agree(ctx, st));
+
+    /* pass 1: count this rank's pairs and transitions, a block at a time,
+     * so that every rank knows where its rows start in the file */
+    int64_t np = 0, nt = 0;
+    gs.t0 = gs.last = sl_now();
+    while (st == SL_OK && blk.s_end < gs.s1) {
+        sl_block_restart(&blk, blk.s_end, 0, 0);
+        st = gen_rows(ctx, &gs, &blk, gs.s1, block, "counting ");
+        np += sl_block_pairs(&blk);
+        nt += sl_block_trans(&blk);
+    }
+    if (st == SL_OK) progress(ctx, "counting ", gs.t0, &gs.last, gs.s1 - gs.s0, gs.s1 - gs.s0, 1);
+    SL_TRY(sl_agree(ctx, st));
+    gen_report_renormalized(ctx, &gs, &blk);
+    int64_t begin[3] = {gs.s0, sl_exscan_i64(ctx, np), sl_exscan_i64(ctx, nt)};
+    int64_t end[3] = {gs.s1, begin[1] + np, begin[2] + nt};
+    gs.meta.n_pairs = sl_sum_i64(ctx, np);
+    gs.meta.n_trans = sl_sum_i64(ctx, nt);
+    sl_log(ctx, "build: %s: %lld states, %lld pairs, %lld transitions counted in %.1f s", o->generator,
+           (long long)gs.meta.n_states, (long long)gs.meta.n_pairs, (long long)gs.meta.n_trans, sl_now() - gs.t0);
+
+    /* pass 2: the same rows again, written and hashed a block at a time;
+     * every rank takes part in every round of writes, with no rows once
+     * its own are done */
+    SL_TRY(sl_store_model_begin(ctx, path, &gs.meta, begin, end, &w));
+    sl_block_restart(&blk, gs.s0, begin[1], begin[2]);
+    gs.t0 = gs.last = sl_now();
+    int64_t rounds = 0;
+    for (;;) {
+        rounds++;
+        sl_block_restart(&blk, blk.s_end, blk.p_end, blk.t_end);
+        st = gen_rows(ctx, &gs, &blk, gs.s1, block, "");
+        st = sl_agree(ctx, st);
+        if (st != SL_OK) break;
+        sl_fingerprint_add(acc, &gs.meta, &blk);
+        int final = sl_sum_i64(ctx, blk.s_end < gs.s1) == 0;
+        st = sl_store_model_append(ctx, w, &gs.meta, &blk, final);
+        if (st != SL_OK || final) break;
+    }
+    if (st == SL_OK) {
+        progress(ctx, "", gs.t0, &gs.last, gs.s1 - gs.s0, gs.s1 - gs.s0, 1);
+        sl_log(ctx, "build: written in %lld rounds of at most %lld transitions per rank", (long long)rounds,
+               (long long)block);
+    }
+    if (st == SL_OK) st = sl_fingerprint_finish(ctx, &gs.meta, acc, gs.meta.fingerprint);
+    st = sl_store_model_end(ctx, &w, &gs.meta, st);
+    if (st == SL_OK && counts != NULL) {
+        counts[0] = gs.meta.n_states;
+        counts[1] = gs.meta.n_pairs;
+        counts[2] = gs.meta.n_trans;
+    }
+cleanup:
+    if (w != NULL) st = sl_store_model_end(ctx, &w, &gs.meta, st);
+    gen_close(&gs);
+    sl_block_free(&blk);
     return st;
 }
 

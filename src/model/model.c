@@ -214,6 +214,16 @@ sl_status sl_block_init(sl_ctx *ctx, sl_block *b, int64_t s_begin, int64_t n_sta
     return SL_OK;
 }
 
+void sl_block_restart(sl_block *b, int64_t s_begin, int64_t p_begin, int64_t t_begin)
+{
+    b->s_begin = b->s_end = s_begin;
+    b->p_begin = b->p_end = p_begin;
+    b->t_begin = b->t_end = t_begin;
+    b->first_pair[0] = p_begin;
+    b->first_trans[0] = t_begin;
+    b->in_pair = 0;
+}
+
 sl_status sl_block_begin_state(sl_ctx *ctx, sl_block *b)
 {
     size_t need = (size_t)(b->s_end - b->s_begin) + 2;
@@ -579,9 +589,8 @@ static uint64_t annotation_hash(const sl_meta *m)
     return sl_mix64(h ^ (uint64_t)m->n_quantities);
 }
 
-sl_status sl_fingerprint(sl_ctx *ctx, const sl_meta *m, const sl_block *b, char out[40])
+void sl_fingerprint_add(uint64_t acc[2], const sl_meta *m, const sl_block *b)
 {
-    uint64_t acc[2] = {0, 0}, tot[2] = {0, 0};
     int64_t ns = sl_block_states(b), np = sl_block_pairs(b), nt = sl_block_trans(b);
     hash_i64(acc, 1, b->s_begin, ns, b->first_pair + 1, 1);
     hash_i32(acc, 2, b->p_begin, np, b->action, 1);
@@ -598,6 +607,11 @@ sl_status sl_fingerprint(sl_ctx *ctx, const sl_meta *m, const sl_block *b, char 
     if (m->has_terminal && b->terminal != NULL) hash_f64(acc, 29, b->s_begin, ns, b->terminal, 1);
     if (m->has_visits && b->visits != NULL)
         hash_i64(acc, 30, b->p_begin, np, b->visits, 1);
+}
+
+sl_status sl_fingerprint_finish(sl_ctx *ctx, const sl_meta *m, const uint64_t acc[2], char out[40])
+{
+    uint64_t tot[2] = {0, 0};
     MPI_Allreduce(acc, tot, 2, MPI_UINT64_T, MPI_SUM, ctx->comm);
     uint64_t head = sl_mix64((uint64_t)m->n_states) ^ sl_mix64((uint64_t)m->n_pairs * 3u) ^
                     sl_mix64((uint64_t)m->n_trans * 7u) ^ sl_mix64(dbits(m->discount)) ^
@@ -612,3 +626,9 @@ sl_status sl_fingerprint(sl_ctx *ctx, const sl_meta *m, const sl_block *b, char 
     return SL_OK;
 }
 
+sl_status sl_fingerprint(sl_ctx *ctx, const sl_meta *m, const sl_block *b, char out[40])
+{
+    uint64_t acc[2] = {0, 0};
+    sl_fingerprint_add(acc, m, b);
+    return sl_fingerprint_finish(ctx, m, acc, out);
+}

@@ -125,6 +125,10 @@ sl_status sl_block_add_outcome(sl_ctx *ctx, sl_block *b, int64_t target, double 
                                const double *q);
 sl_status sl_block_end_pair(sl_ctx *ctx, sl_block *b);
 sl_status sl_block_end_state(sl_ctx *ctx, sl_block *b);
+/* Empty the block, keeping its memory, to build the rows that start at
+ * state s_begin, pair p_begin and transition t_begin (global numbers; the
+ * builder of a model a block of states at a time). Local. */
+void sl_block_restart(sl_block *b, int64_t s_begin, int64_t p_begin, int64_t t_begin);
 /* Shift the global pair/transition offsets (after an exclusive scan). */
 void sl_block_rebase(sl_block *b, int64_t p_begin, int64_t t_begin);
 
@@ -139,6 +143,11 @@ sl_status sl_block_validate(sl_ctx *ctx, const sl_block *b, const sl_meta *m,
  * (position, value) entries over the block, reduced over ranks, mixed with
  * sizes and discount. Same value for any partition. Collective. */
 sl_status sl_fingerprint(sl_ctx *ctx, const sl_meta *m, const sl_block *b, char out[40]);
+/* The two halves of sl_fingerprint, for rows seen a block at a time: add
+ * a block's entries to an accumulator (local; blocks in any order), then
+ * reduce over ranks and mix with the sizes and annotations (collective). */
+void sl_fingerprint_add(uint64_t acc[2], const sl_meta *m, const sl_block *b);
+sl_status sl_fingerprint_finish(sl_ctx *ctx, const sl_meta *m, const uint64_t acc[2], char out[40]);
 /* Add the entries of quantity q for pairs [p0, p0+n) (global numbers) to a
  * fingerprint accumulator; mean[k*stride], pos[k*stride] belong to pair
  * p0+k. Used by the in-memory fingerprint and by streaming readers. Local. */

@@ -47,8 +47,12 @@ sl_status sl_h5_create(sl_ctx *ctx, const char *path, hid_t *file)
     sl_status st = SL_OK;
     H5Eset_auto2(H5E_DEFAULT, NULL, NULL);
     hid_t fapl = H5Pcreate(H5P_FILE_ACCESS);
+    /* metadata written collectively: with the default (distributed) writes,
+     * HDF5 1.10.8 under OpenMPI 4.1.4 failed a metadata flush of the chunk
+     * index (pwritev: Bad address) while writing the 10^7-state model a
+     * block at a time (bench/README.md, big10m.sh) */
     if (fapl < 0 || H5Pset_fapl_mpio(fapl, ctx->comm, MPI_INFO_NULL) < 0 ||
-        H5Pset_libver_bounds(fapl, H5F_LIBVER_V18, H5F_LIBVER_V110) < 0)
+        H5Pset_libver_bounds(fapl, H5F_LIBVER_V18, H5F_LIBVER_V110) < 0 || H5Pset_coll_metadata_write(fapl, 1) < 0)
         st = SL_ERR(ctx, SL_EINTERNAL, "%s: cannot set up parallel HDF5 access", path);
     if (st == SL_OK) {
         *file = H5Fcreate(path, H5F_ACC_TRUNC, H5P_DEFAULT, fapl);
@@ -289,19 +293,17 @@ static sl_status ensure_parent(sl_ctx *ctx, hid_t file, const char *name, const 
     return st;
 }
 
-sl_status sl_h5_write_1d(sl_ctx *ctx, hid_t file, const char *name, hid_t ftype, hid_t mtype,
-                         int64_t total, int64_t offset, int64_t count, const void *buf,
-                         int compress, const char *path)
+sl_status sl_h5_create_1d(sl_ctx *ctx, hid_t file, const char *name, hid_t ftype, int64_t total, int compress,
+                          const char *path, hid_t *dset)
 {
+    *dset = H5I_INVALID_HID;
     sl_status st = ensure_parent(ctx, file, name, path);
     if (st != SL_OK) return st;
     hsize_t dims = (hsize_t)total, chunk = (hsize_t)total < SL_H5_CHUNK ? (hsize_t)total : SL_H5_CHUNK;
     if (chunk == 0) chunk = 1;
     hid_t fspace = H5Screate_simple(1, &dims, NULL);
     hid_t dcpl = H5Pcreate(H5P_DATASET_CREATE);
-    hid_t dxpl = H5Pcreate(H5P_DATASET_XFER);
-    hid_t dset = H5I_INVALID_HID, mspace = H5I_INVALID_HID;
-    if (fspace < 0 || dcpl < 0 || dxpl < 0 || H5Pset_dxpl_mpio(dxpl, H5FD_MPIO_COLLECTIVE) < 0)
+    if (fspace < 0 || dcpl < 0)
         st = SL_ERR(ctx, SL_EINTERNAL, "%s: HDF5 property setup failed for %s", path, name);
     if (st == SL_OK && total > 0) {
         if (H5Pset_chunk(dcpl, 1, &chunk) < 0 ||
@@ -310,27 +312,49 @@ sl_status sl_h5_write_1d(sl_ctx *ctx, hid_t file, const char *name, hid_t ftype,
         H5Pset_fill_time(dcpl, H5D_FILL_TIME_NEVER);
     }
     if (st == SL_OK) {
-        dset = H5Dcreate2(file, name, ftype, fspace, H5P_DEFAULT, dcpl, H5P_DEFAULT);
-        if (dset < 0) st = SL_ERR(ctx, SL_EIO, "%s: cannot create dataset %s (disk full or an I/O error?); nothing written", path, name);
+        *dset = H5Dcreate2(file, name, ftype, fspace, H5P_DEFAULT, dcpl, H5P_DEFAULT);
+        if (*dset < 0) st = SL_ERR(ctx, SL_EIO, "%s: cannot create dataset %s (disk full or an I/O error?); nothing written", path, name);
     }
-    if (st == SL_OK && total > 0) {
-        hsize_t off = (hsize_t)offset, cnt = (hsize_t)count;
-        mspace = H5Screate_simple(1, &cnt, NULL);
+    if (dcpl >= 0) H5Pclose(dcpl);
+    if (fspace >= 0) H5Sclose(fspace);
+    return st;
+}
+
+sl_status sl_h5_write_at(sl_ctx *ctx, hid_t dset, hid_t mtype, int64_t offset, int64_t count, const void *buf,
+                         const char *name, const char *path)
+{
+    sl_status st = SL_OK;
+    hsize_t off = (hsize_t)offset, cnt = (hsize_t)count, dummy = 0;
+    hid_t fspace = H5Dget_space(dset);
+    hid_t dxpl = H5Pcreate(H5P_DATASET_XFER);
+    hid_t mspace = H5Screate_simple(1, &cnt, NULL);
+    if (fspace < 0 || dxpl < 0 || mspace < 0 || H5Pset_dxpl_mpio(dxpl, H5FD_MPIO_COLLECTIVE) < 0)
+        st = SL_ERR(ctx, SL_EINTERNAL, "%s: HDF5 property setup failed for %s", path, name);
+    if (st == SL_OK && H5Sget_simple_extent_npoints(fspace) > 0) {
         herr_t e;
         if (count > 0)
             e = H5Sselect_hyperslab(fspace, H5S_SELECT_SET, &off, NULL, &cnt, NULL);
         else
             e = H5Sselect_none(fspace) < 0 || H5Sselect_none(mspace) < 0 ? -1 : 0;
-        if (mspace < 0 || e < 0)
+        if (e < 0)
             st = SL_ERR(ctx, SL_EINTERNAL, "%s: selection failed for %s", path, name);
-        else if (H5Dwrite(dset, mtype, mspace, fspace, dxpl, count > 0 ? buf : (const void *)&dims) < 0)
+        else if (H5Dwrite(dset, mtype, mspace, fspace, dxpl, count > 0 ? buf : (const void *)&dummy) < 0)
             st = SL_ERR(ctx, SL_EIO, "%s: writing %s failed (disk full or an I/O error?); nothing written", path, name);
     }
     if (mspace >= 0) H5Sclose(mspace);
-    if (dset >= 0) H5Dclose(dset);
     if (dxpl >= 0) H5Pclose(dxpl);
-    if (dcpl >= 0) H5Pclose(dcpl);
     if (fspace >= 0) H5Sclose(fspace);
+    return st;
+}
+
+sl_status sl_h5_write_1d(sl_ctx *ctx, hid_t file, const char *name, hid_t ftype, hid_t mtype,
+                         int64_t total, int64_t offset, int64_t count, const void *buf,
+                         int compress, const char *path)
+{
+    hid_t dset;
+    sl_status st = sl_h5_create_1d(ctx, file, name, ftype, total, compress, path, &dset);
+    if (st == SL_OK) st = sl_h5_write_at(ctx, dset, mtype, offset, count, buf, name, path);
+    if (dset >= 0) H5Dclose(dset);
     return st;
 }
 

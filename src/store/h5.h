@@ -38,6 +38,14 @@ int sl_h5_exists(hid_t file, const char *name);
 sl_status sl_h5_write_1d(sl_ctx *ctx, hid_t file, const char *name, hid_t ftype, hid_t mtype,
                          int64_t total, int64_t offset, int64_t count, const void *buf,
                          int compress, const char *path);
+/* The two halves of sl_h5_write_1d, for datasets written in pieces:
+ * create the dataset (*dset to close with H5Dclose; H5I_INVALID_HID on
+ * failure), then any number of collective writes of [offset, offset+count)
+ * on each rank (count 0: this rank writes nothing). `name` is for messages. */
+sl_status sl_h5_create_1d(sl_ctx *ctx, hid_t file, const char *name, hid_t ftype, int64_t total, int compress,
+                          const char *path, hid_t *dset);
+sl_status sl_h5_write_at(sl_ctx *ctx, hid_t dset, hid_t mtype, int64_t offset, int64_t count, const void *buf,
+                         const char *name, const char *path);
 /* Collective 1-D read of [offset, offset+count) into buf (memory type mtype).
  * *total receives the dataset length if not NULL; expected >= 0 checks it. */
 /* Before writing PATH: fail (74, nothing written) if its directory has less

@@ -92,16 +92,15 @@ static sl_status write_unit(sl_ctx *ctx, hid_t f, const char *name, const char *
     return st;
 }
 
-/* Format 2 annotations: factor values and labels, action values, units,
- * and the per-pair quantity datasets (each rank writes its pairs). */
-static sl_status write_annotations(sl_ctx *ctx, hid_t f, const sl_meta *m, const sl_block *b, const char *path)
+/* Format 2 annotations that do not depend on the rows: units, factor and
+ * action values and labels, quantity names (their per-pair datasets are
+ * streams of the writer). */
+static sl_status write_annotations(sl_ctx *ctx, hid_t f, const sl_meta *m, const char *path)
 {
     sl_status st = SL_OK;
     hid_t str = sl_h5_str_type(SL_NAME_MAX);
-    double *buf = NULL;
     int root = ctx->rank == 0;
     char name[3 * SL_NAME_MAX];
-    int64_t np = sl_block_pairs(b);
     if (str < 0) return SL_ERR(ctx, SL_EINTERNAL, "%s: string type", path);
     SL_TRY(sl_h5_attr_write_str(ctx, f, "reward_unit", m->reward_unit, path));
     SL_TRY(sl_h5_attr_write_str(ctx, f, "period_unit", m->period_unit, path));
@@ -126,105 +125,304 @@ static sl_status write_annotations(sl_ctx *ctx, hid_t f, const sl_meta *m, const
                               root ? m->n_action_values : 0, m->action_value, 1, path));
         SL_TRY(write_unit(ctx, f, "/action/value", m->action_unit, path));
     }
-    if (m->n_quantities > 0) {
-        if (b->nq != m->n_quantities || (np > 0 && (b->qmean == NULL || b->qpos == NULL)))
-            SL_FAIL(SL_EINTERNAL, "%s: %d quantities declared but the rows hold %d", path, m->n_quantities, b->nq);
+    if (m->n_quantities > 0)
         SL_TRY(sl_h5_write_1d(ctx, f, "/labels/quantity_name", str, str, m->n_quantities, 0,
                               root ? m->n_quantities : 0, m->quantity_name, 0, path));
-        if (SL_ALLOC(ctx, buf, np, "quantity buffer") == NULL) st = SL_ENOMEM;
-        SL_TRY(sl_agree(ctx, st));
-        for (int q = 0; q < m->n_quantities; q++) {
-            for (int part = 0; part < 2; part++) {
-                const double *src = part == 0 ? b->qmean : b->qpos;
-                for (int64_t k = 0; k < np; k++) buf[k] = src[k * b->nq + q];
-                snprintf(name, sizeof(name), "/quantity/%s/%s", m->quantity_name[q], part == 0 ? "mean" : "p_positive");
-                SL_TRY(sl_h5_write_1d(ctx, f, name, H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, m->n_pairs, b->p_begin, np,
-                                      buf, 1, path));
-                SL_TRY(write_unit(ctx, f, name, part == 0 ? m->quantity_unit[q] : "1", path));
-            }
-        }
-    }
 cleanup:
-    free(buf);
     H5Tclose(str);
     return st;
 }
 
-sl_status sl_store_model_write(sl_ctx *ctx, const char *path, const sl_meta *m,
-                               const sl_block *b)
+/* ---- the writer: rows appended a block at a time ------------------------------
+ * Every row dataset is a stream: a block's entries go to the file in whole
+ * chunks (SL_H5_CHUNK entries, aligned to the dataset's chunks) and the
+ * rest waits in a buffer of less than a chunk for the next block, so no
+ * compressed chunk is written twice by one rank. The last append writes
+ * what is left. Streams are written one after the other, so the extra
+ * memory is one stream's entries of one block at most. */
+
+enum { W_FIRST_PAIR, W_ACTION, W_REWARD, W_FIRST_TRANS, W_TARGET, W_PROB, W_TERMINAL, W_VISITS, W_QUANTITY };
+enum { W_STATE = 0, W_PAIR = 1, W_TRANS = 2 }; /* what a stream has one entry per */
+#define W_MAX (W_QUANTITY + 2 * SLUICE_MAX_QUANTITIES)
+
+typedef struct wstream {
+    char name[3 * SL_NAME_MAX];
+    hid_t dset, mtype;
+    size_t esize;               /* bytes per entry in memory (and buffer) */
+    int per;                    /* W_STATE, W_PAIR or W_TRANS */
+    int narrow;                 /* int64 rows stored as uint32 */
+    unsigned char *buf;         /* entries not yet written */
+    int64_t n, cap;
+    int64_t off;                /* file position of buf[0] */
+} wstream;
+
+struct sl_model_writer {
+    sl_outfile of;
+    hid_t f;
+    char path[4096];
+    int ns;                     /* streams in use */
+    wstream w[W_MAX];
+    int64_t next[3], end[3];    /* next state/pair/transition this rank appends; its range's end */
+};
+
+static sl_status stream_open(sl_ctx *ctx, sl_model_writer *w, const char *name, hid_t ftype, hid_t mtype,
+                             size_t esize, int per, int narrow, int64_t total)
+{
+    wstream *s = &w->w[w->ns++];
+    memset(s, 0, sizeof(*s));
+    snprintf(s->name, sizeof(s->name), "%s", name);
+    s->mtype = mtype;
+    s->esize = esize;
+    s->per = per;
+    s->narrow = narrow;
+    s->off = w->next[per];
+    return sl_h5_create_1d(ctx, w->f, name, ftype, total, 1, w->path, &s->dset);
+}
+
+/* Make room for `need` buffered entries, keeping the buffered ones (a
+ * checked allocation, so the allocation-failure tests reach it). Local. */
+static sl_status stream_reserve(sl_ctx *ctx, wstream *s, int64_t need)
+{
+    if (need <= s->cap) return SL_OK;
+    unsigned char *nb = sl_malloc(ctx, (size_t)need, s->esize, "model writer buffer");
+    if (nb == NULL) return SL_ENOMEM; /* the allocator recorded the message */
+    if (s->n > 0) memcpy(nb, s->buf, (size_t)s->n * s->esize);
+    free(s->buf);
+    s->buf = nb;
+    s->cap = need;
+    return SL_OK;
+}
+
+/* Append `count` entries, entry k at src + k * stride bytes (int64 narrowed
+ * to uint32 for a narrow stream), and write what fills whole chunks (all of
+ * it when `final`). Exactly one collective write per call on every rank. */
+static sl_status stream_put(sl_ctx *ctx, wstream *s, const void *src, int64_t count, size_t stride, int final,
+                            const char *path)
 {
     sl_status st = SL_OK;
-    sl_outfile of;
-    hid_t f = H5I_INVALID_HID;
-    uint32_t *t32 = NULL;
-    int64_t ns = sl_block_states(b), np = sl_block_pairs(b), nt = sl_block_trans(b);
-    int use32 = m->n_states <= (int64_t)UINT32_MAX;
+    const unsigned char *from = src, *data;
+    int64_t pos, avail;
+    int direct = s->n == 0 && !s->narrow && stride == s->esize;
+    if (direct) { /* nothing waiting: write straight from the rows */
+        data = from;
+        avail = count;
+    } else {
+        st = stream_reserve(ctx, s, s->n + count);
+        for (int64_t k = 0; st == SL_OK && k < count; k++) {
+            unsigned char *to = s->buf + (size_t)(s->n + k) * s->esize;
+            if (s->narrow) {
+                int64_t v;
+                memcpy(&v, from + (size_t)k * stride, sizeof(v));
+                uint32_t u = (uint32_t)v;
+                memcpy(to, &u, sizeof(u));
+            } else {
+                memcpy(to, from + (size_t)k * stride, s->esize);
+            }
+        }
+        if (st == SL_OK) s->n += count;
+        data = s->buf;
+        avail = s->n;
+    }
+    st = sl_agree(ctx, st);
+    if (st != SL_OK) return st;
+    pos = s->off + avail;
+    int64_t wr = final ? avail : (int64_t)(pos / (int64_t)SL_H5_CHUNK * (int64_t)SL_H5_CHUNK) - s->off;
+    if (wr < 0) wr = 0;
+    st = sl_h5_write_at(ctx, s->dset, s->mtype, s->off, wr, data, s->name, path);
+    if (st != SL_OK) return st;
+    s->off += wr;
+    int64_t rest = avail - wr;
+    if (direct) {
+        if (rest > 0) {
+            st = stream_reserve(ctx, s, rest);
+            if (st == SL_OK) memcpy(s->buf, from + (size_t)wr * stride, (size_t)rest * s->esize);
+        }
+        if (st == SL_OK) s->n = rest;
+    } else {
+        memmove(s->buf, s->buf + (size_t)wr * s->esize, (size_t)rest * s->esize);
+        s->n = rest;
+    }
+    return sl_agree(ctx, st);
+}
 
+/* Close the datasets (before the file: an MPI-IO file with open objects
+ * does not close). Collective. */
+static void writer_close_datasets(sl_model_writer *w)
+{
+    for (int i = 0; i < w->ns; i++) {
+        if (w->w[i].dset >= 0) H5Dclose(w->w[i].dset);
+        w->w[i].dset = H5I_INVALID_HID;
+    }
+}
+
+static void writer_free(sl_model_writer *w)
+{
+    writer_close_datasets(w);
+    for (int i = 0; i < w->ns; i++) free(w->w[i].buf);
+    free(w);
+}
+
+sl_status sl_store_model_begin(sl_ctx *ctx, const char *path, const sl_meta *m, const int64_t begin[3],
+                               const int64_t end[3], sl_model_writer **out)
+{
+    sl_status st = SL_OK;
+    sl_model_writer *w = NULL;
+    int use32 = m->n_states <= (int64_t)UINT32_MAX;
+    *out = NULL;
     /* uncompressed bound: pointers, actions, rewards, targets, probabilities */
     double need = 8.0 * (double)(m->n_states + 1) + 20.0 * (double)m->n_pairs + 8.0 +
                   (use32 ? 12.0 : 16.0) * (double)m->n_trans;
     SL_TRY(sl_h5_space_check(ctx, path, need));
     need += SL_H5_METADATA_ALLOWANCE;
-    SL_TRY(sl_outfile_begin(ctx, &of, path));
-    if (use32 && SL_ALLOC(ctx, t32, nt, "target buffer") == NULL) st = SL_ENOMEM;
-    st = sl_agree(ctx, st);
-    if (st != SL_OK) goto cleanup;
-    if (use32)
-        for (int64_t t = 0; t < nt; t++) t32[t] = (uint32_t)b->target[t];
-    SL_TRY(sl_outfile_reserve(ctx, &of, need));
-    SL_TRY(sl_h5_create(ctx, of.tmp_path, &f));
+    if (SL_ZALLOC(ctx, w, 1, "model writer") == NULL) st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    w->f = H5I_INVALID_HID;
+    snprintf(w->path, sizeof(w->path), "%s", path);
+    for (int i = 0; i < 3; i++) {
+        w->next[i] = begin[i];
+        w->end[i] = end[i];
+    }
+    SL_TRY(sl_outfile_begin(ctx, &w->of, path));
+    SL_TRY(sl_outfile_reserve(ctx, &w->of, need));
+    SL_TRY(sl_h5_create(ctx, w->of.tmp_path, &w->f));
 
     const char *p = path;
+    hid_t f = w->f;
     st = sl_h5_attr_write_str(ctx, f, "sluice_format", "model", p);
     if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "format_version", m->format_version >= 2 ? 2 : 1, p);
     if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "n_states", m->n_states, p);
     if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "n_pairs", m->n_pairs, p);
     if (st == SL_OK) st = sl_h5_attr_write_i64(ctx, f, "n_transitions", m->n_trans, p);
     if (st == SL_OK) st = sl_h5_attr_write_f64(ctx, f, "discount", m->discount, p);
-    if (st == SL_OK) st = sl_h5_attr_write_str(ctx, f, "fingerprint", m->fingerprint, p);
     if (st == SL_OK) st = sl_h5_attr_write_str(ctx, f, "objective", sl_objective_name(m->objective), p);
     if (st == SL_OK) st = sl_h5_attr_write_str(ctx, f, "created_by", "sluice " SLUICE_VERSION, p);
     if (st == SL_OK && m->source[0]) st = sl_h5_attr_write_str(ctx, f, "source", m->source, p);
     SL_TRY(sl_agree(ctx, st));
 
-    /* index arrays: the last rank also writes the closing entry */
-    int last = ctx->rank == ctx->size - 1;
-    int64_t s_off = b->s_begin, p_off = b->p_begin;
-    SL_TRY(sl_h5_write_1d(ctx, f, "/state/first_pair", H5T_STD_I64LE, H5T_NATIVE_INT64, m->n_states + 1,
-                          s_off, ns + (last ? 1 : 0), b->first_pair, 1, p));
-    SL_TRY(sl_h5_write_1d(ctx, f, "/pair/action", H5T_STD_I32LE, H5T_NATIVE_INT32, m->n_pairs, p_off, np,
-                          b->action, 1, p));
-    SL_TRY(sl_h5_write_1d(ctx, f, "/pair/reward", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, m->n_pairs, p_off, np,
-                          b->reward, 1, p));
-    SL_TRY(sl_h5_write_1d(ctx, f, "/pair/first_transition", H5T_STD_I64LE, H5T_NATIVE_INT64,
-                          m->n_pairs + 1, p_off, np + (last ? 1 : 0), b->first_trans, 1, p));
+    SL_TRY(stream_open(ctx, w, "/state/first_pair", H5T_STD_I64LE, H5T_NATIVE_INT64, 8, W_STATE, 0,
+                       m->n_states + 1));
+    SL_TRY(stream_open(ctx, w, "/pair/action", H5T_STD_I32LE, H5T_NATIVE_INT32, 4, W_PAIR, 0, m->n_pairs));
+    SL_TRY(stream_open(ctx, w, "/pair/reward", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, 8, W_PAIR, 0, m->n_pairs));
+    SL_TRY(stream_open(ctx, w, "/pair/first_transition", H5T_STD_I64LE, H5T_NATIVE_INT64, 8, W_PAIR, 0,
+                       m->n_pairs + 1));
     if (use32)
-        SL_TRY(sl_h5_write_1d(ctx, f, "/transition/target", H5T_STD_U32LE, H5T_NATIVE_UINT32, m->n_trans,
-                              b->t_begin, nt, t32, 1, p));
+        SL_TRY(stream_open(ctx, w, "/transition/target", H5T_STD_U32LE, H5T_NATIVE_UINT32, 4, W_TRANS, 1,
+                           m->n_trans));
     else
-        SL_TRY(sl_h5_write_1d(ctx, f, "/transition/target", H5T_STD_I64LE, H5T_NATIVE_INT64, m->n_trans,
-                              b->t_begin, nt, b->target, 1, p));
-    SL_TRY(sl_h5_write_1d(ctx, f, "/transition/probability", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE,
-                          m->n_trans, b->t_begin, nt, b->prob, 1, p));
-    if (m->has_terminal) {
-        if (ns > 0 && b->terminal == NULL)
-            SL_FAIL(SL_EINTERNAL, "%s: terminal values declared but the rows hold none", p);
-        SL_TRY(sl_h5_write_1d(ctx, f, "/terminal_value", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, m->n_states, s_off, ns,
-                              b->terminal, 1, p));
-    }
-    if (m->has_visits) {
-        if (np > 0 && b->visits == NULL)
-            SL_FAIL(SL_EINTERNAL, "%s: visit counts declared but the rows hold none", p);
-        SL_TRY(sl_h5_write_1d(ctx, f, "/pair/visits", H5T_STD_I64LE, H5T_NATIVE_INT64, m->n_pairs, p_off, np,
-                              b->visits, 1, p));
-    }
+        SL_TRY(stream_open(ctx, w, "/transition/target", H5T_STD_I64LE, H5T_NATIVE_INT64, 8, W_TRANS, 0,
+                           m->n_trans));
+    SL_TRY(stream_open(ctx, w, "/transition/probability", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, 8, W_TRANS, 0,
+                       m->n_trans));
+    if (m->has_terminal)
+        SL_TRY(stream_open(ctx, w, "/terminal_value", H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, 8, W_STATE, 0,
+                           m->n_states));
+    if (m->has_visits)
+        SL_TRY(stream_open(ctx, w, "/pair/visits", H5T_STD_I64LE, H5T_NATIVE_INT64, 8, W_PAIR, 0, m->n_pairs));
     SL_TRY(write_labels(ctx, f, m, p));
-    if (m->format_version >= 2) SL_TRY(write_annotations(ctx, f, m, b, p));
-    st = sl_h5_close(ctx, &f, p);
+    if (m->format_version >= 2) {
+        SL_TRY(write_annotations(ctx, f, m, p));
+        char name[3 * SL_NAME_MAX];
+        for (int q = 0; q < m->n_quantities; q++)
+            for (int part = 0; part < 2; part++) {
+                snprintf(name, sizeof(name), "/quantity/%s/%s", m->quantity_name[q], part == 0 ? "mean" : "p_positive");
+                SL_TRY(stream_open(ctx, w, name, H5T_IEEE_F64LE, H5T_NATIVE_DOUBLE, 8, W_PAIR, 0, m->n_pairs));
+                SL_TRY(write_unit(ctx, f, name, part == 0 ? m->quantity_unit[q] : "1", p));
+            }
+    }
 cleanup:
-    sl_h5_discard(ctx, &f, of.tmp_path);
-    free(t32);
-    return sl_outfile_end(ctx, &of, st);
+    if (st != SL_OK && w != NULL) {
+        writer_close_datasets(w);
+        sl_h5_discard(ctx, &w->f, w->of.tmp_path);
+        sl_outfile_end(ctx, &w->of, st);
+        writer_free(w);
+    } else {
+        *out = w;
+    }
+    return st;
+}
+
+sl_status sl_store_model_append(sl_ctx *ctx, sl_model_writer *w, const sl_meta *m, const sl_block *b, int final)
+{
+    sl_status st = SL_OK;
+    int64_t ns = sl_block_states(b), np = sl_block_pairs(b), nt = sl_block_trans(b);
+    int closing = final && ctx->rank == ctx->size - 1; /* the last rank also writes the closing entries */
+    if (b->s_begin != w->next[W_STATE] || b->p_begin != w->next[W_PAIR] || b->t_begin != w->next[W_TRANS])
+        st = SL_ERR(ctx, SL_EINTERNAL, "%s: rows appended out of order (states from %lld, expected %lld)", w->path,
+                    (long long)b->s_begin, (long long)w->next[W_STATE]);
+    else if (b->s_end > w->end[W_STATE] || b->p_end > w->end[W_PAIR] || b->t_end > w->end[W_TRANS] ||
+             (final && (b->s_end != w->end[W_STATE] || b->p_end != w->end[W_PAIR] || b->t_end != w->end[W_TRANS])))
+        st = SL_ERR(ctx, SL_EDATA,
+                    "%s: the rows up to state %lld end at pair %lld and transition %lld, but this rank's states "
+                    "were counted to end at %lld and %lld (a generator that gives different rows when run "
+                    "twice?); nothing written",
+                    w->path, (long long)b->s_end - 1, (long long)b->p_end, (long long)b->t_end,
+                    (long long)w->end[W_PAIR], (long long)w->end[W_TRANS]);
+    else if ((m->has_terminal && ns > 0 && b->terminal == NULL) || (m->has_visits && np > 0 && b->visits == NULL) ||
+             (m->n_quantities > 0 && np > 0 && (b->nq != m->n_quantities || b->qmean == NULL || b->qpos == NULL)))
+        st = SL_ERR(ctx, SL_EINTERNAL, "%s: the rows lack terminal values, visit counts or quantities", w->path);
+    SL_TRY(sl_agree(ctx, st));
+    for (int i = 0; i < w->ns; i++) {
+        wstream *s = &w->w[i];
+        const void *src = NULL;
+        int64_t count = s->per == W_STATE ? ns : s->per == W_PAIR ? np : nt;
+        size_t stride = s->esize;
+        switch (i) {
+        case W_FIRST_PAIR: src = b->first_pair; count += closing; stride = 8; break;
+        case W_ACTION: src = b->action; break;
+        case W_REWARD: src = b->reward; break;
+        case W_FIRST_TRANS: src = b->first_trans; count += closing; stride = 8; break;
+        case W_TARGET: src = b->target; stride = 8; break;
+        case W_PROB: src = b->prob; break;
+        default: break;
+        }
+        /* optional streams follow the six row streams in the order opened */
+        if (i >= W_TERMINAL) {
+            int k = i - W_TERMINAL;
+            if (m->has_terminal && k-- == 0) src = b->terminal;
+            else if (m->has_visits && k-- == 0) src = b->visits;
+            else {
+                if (k < 0 || k >= 2 * m->n_quantities)
+                    SL_FAIL(SL_EINTERNAL, "%s: stream %d has no rows", w->path, i);
+                src = (k % 2 == 0 ? b->qmean : b->qpos) + k / 2;
+                stride = (size_t)m->n_quantities * sizeof(double);
+            }
+        }
+        SL_TRY(stream_put(ctx, s, src, count, stride, final, w->path));
+    }
+    w->next[W_STATE] = b->s_end;
+    w->next[W_PAIR] = b->p_end;
+    w->next[W_TRANS] = b->t_end;
+cleanup:
+    return st;
+}
+
+sl_status sl_store_model_end(sl_ctx *ctx, sl_model_writer **pw, const sl_meta *m, sl_status st)
+{
+    sl_model_writer *w = *pw;
+    if (w == NULL) return st;
+    *pw = NULL;
+    for (int i = 0; st == SL_OK && i < w->ns; i++)
+        if (w->w[i].n != 0)
+            st = SL_ERR(ctx, SL_EINTERNAL, "%s: %s: %lld entries never written", w->path, w->w[i].name,
+                        (long long)w->w[i].n);
+    st = sl_agree(ctx, st);
+    if (st == SL_OK) st = sl_agree(ctx, sl_h5_attr_write_str(ctx, w->f, "fingerprint", m->fingerprint, w->path));
+    writer_close_datasets(w);
+    if (st == SL_OK) st = sl_h5_close(ctx, &w->f, w->path);
+    sl_h5_discard(ctx, &w->f, w->of.tmp_path);
+    st = sl_outfile_end(ctx, &w->of, st);
+    writer_free(w);
+    return st;
+}
+
+sl_status sl_store_model_write(sl_ctx *ctx, const char *path, const sl_meta *m, const sl_block *b)
+{
+    sl_model_writer *w = NULL;
+    int64_t begin[3] = {b->s_begin, b->p_begin, b->t_begin}, end[3] = {b->s_end, b->p_end, b->t_end};
+    sl_status st = sl_store_model_begin(ctx, path, m, begin, end, &w);
+    if (st != SL_OK) return st;
+    st = sl_store_model_append(ctx, w, m, b, 1);
+    return sl_store_model_end(ctx, &w, m, st);
 }
 
 /* ---- read ------------------------------------------------------------------- */

@@ -24,6 +24,23 @@ sl_status sl_store_kind(sl_ctx *ctx, const char *path, sl_file_kind *kind);
 sl_status sl_store_model_write(sl_ctx *ctx, const char *path, const sl_meta *meta,
                                const sl_block *block);
 
+/* The same a block of rows at a time, so a model larger than memory can be
+ * written as it is built. sl_store_model_begin: sizes, format and
+ * annotations from `meta` (the fingerprint is not needed yet); this rank
+ * will append states, pairs and transitions [begin[i], end[i]) (i = 0, 1, 2;
+ * global numbers, ranks in state order). sl_store_model_append: the next
+ * rows of this rank (possibly none), `final` = 1 on the last call of every
+ * rank; a rank whose rows overrun its range, or end short of it at the
+ * last call, fails with SL_EDATA. sl_store_model_end: with st == SL_OK
+ * writes meta->fingerprint and puts the file in place; otherwise (or if
+ * that fails) removes the temporary. Always frees *w. All collective. */
+typedef struct sl_model_writer sl_model_writer;
+sl_status sl_store_model_begin(sl_ctx *ctx, const char *path, const sl_meta *meta, const int64_t begin[3],
+                               const int64_t end[3], sl_model_writer **w);
+sl_status sl_store_model_append(sl_ctx *ctx, sl_model_writer *w, const sl_meta *meta, const sl_block *block,
+                                int final);
+sl_status sl_store_model_end(sl_ctx *ctx, sl_model_writer **w, const sl_meta *meta, sl_status st);
+
 /* Read model metadata only (all ranks). Checks kind and format_version. */
 sl_status sl_store_model_meta(sl_ctx *ctx, const char *path, sl_meta *meta);
 
