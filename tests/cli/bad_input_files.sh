@@ -130,6 +130,15 @@ def fingerprint(f):
             h = hs(h, name)
             h = hs(h, unit_of("quantity/%s/mean" % name))
         head ^= m((m(h ^ len(qn)) + 13) & M64)
+    # optional datasets (docs/formats.md): visit counts of an estimated model
+    # (tag 30, per pair) and finite-horizon terminal values (tag 29, per
+    # state), each also marking the header when present
+    if "pair/visits" in f:
+        entries(30, f["pair/visits"][...].astype(np.int64).view(np.uint64))
+        head ^= m(0x7669736974730001)
+    if "terminal_value" in f:
+        entries(29, dbits(f["terminal_value"][...]))
+        head ^= m(0x7465726d696e0002)
     return "%016x%016x" % (m(acc[0] ^ head), m((acc[1] + head) & M64))
 
 def flip_chunk(path, dset, chunk):
@@ -191,6 +200,17 @@ def make(kind, src, dst, refp):
         if refp:
             f.attrs.modify("fingerprint", np.bytes_(fingerprint(f)))
 
+# damage.py --check FILE...: the port against sluice's stored fingerprint of
+# each FILE (models with the optional datasets the reservoir lacks)
+if sys.argv[1] == "--check":
+    bad = 0
+    for path in sys.argv[2:]:
+        with h5py.File(path, "r") as f:
+            mine, theirs = fingerprint(f), text(f.attrs["fingerprint"])
+        print("%s %s: recomputed %s, stored %s" % ("ok" if mine == theirs else "MISMATCH", path, mine, theirs))
+        bad += mine != theirs
+    sys.exit(1 if bad else 0)
+
 # first check the fingerprint port on the intact model; "refp" specs need it
 src = sys.argv[1]
 with h5py.File(src, "r") as f:
@@ -206,6 +226,20 @@ for spec in sys.argv[2:]:
             continue
     make(kind, src, dst, refp)
 EOF
+
+# the port on models with /pair/visits (estimated from logged experience) and
+# /terminal_value (a finite-horizon generator's terminal values): a change in
+# how sluice hashes either makes these fail
+expect "model: an estimated model (visit counts)" --code 0 -- \
+    "$SLUICE" estimate -q "$SRC/tests/data/csv_garage_experience.csv" --discount 0.9 -o "$W/est.h5"
+expect "model: a finite model with generator terminal values" --code 0 -- \
+    "$SLUICE" build -q "$SRC/tests/data/gen_terminal.c" --objective finite -o "$W/term.h5"
+if out=$("$PY" "$W/damage.py" --check "$W/est.h5" "$W/term.h5" 2>&1) &&
+    [ "$(printf '%s\n' "$out" | grep -c '^ok ')" -eq 2 ]; then
+    note_ok "model: the test's fingerprint port matches sluice's on /pair/visits and /terminal_value"
+else
+    note_fail "model: the test's fingerprint port matches sluice's on /pair/visits and /terminal_value" "$out"
+fi
 
 G=$W/good.h5
 S=$W/sol.h5
