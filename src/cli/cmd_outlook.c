@@ -60,14 +60,26 @@ static void write_json(FILE *f, const void *arg)
     fprintf(f, "  ]\n}\n");
 }
 
+/* One CSV column name, NAME_WHAT [unit] (no brackets without a unit): a
+ * factor and a quantity of the same name (the reservoir's inflow) differ by
+ * their unit, as in simulate's per-stage CSV. */
+static void csv_column(FILE *f, const char *name, const char *what, const char *unit)
+{
+    fprintf(f, ",%s%s%s%s%s%s", name, what[0] ? "_" : "", what, unit[0] ? " [" : "", unit, unit[0] ? "]" : "");
+}
+
 static void write_csv(FILE *f, const void *arg)
 {
     const sl_outlook *r = arg;
     fprintf(f, "stage");
     for (int k = 0; k < r->n_factors; k++)
-        for (int i = 0; i < SL_OUTLOOK_NQ; i++) fprintf(f, ",%s_%s", r->factor_name[k], stat_name[i]);
-    for (int q = 0; q < r->n_quantities; q++) fprintf(f, ",%s_mean,%s_p_positive", r->quantity_name[q], r->quantity_name[q]);
-    fprintf(f, ",discounted_reward,mass\n");
+        for (int i = 0; i < SL_OUTLOOK_NQ; i++) csv_column(f, r->factor_name[k], stat_name[i], r->factor_unit[k]);
+    for (int q = 0; q < r->n_quantities; q++) {
+        csv_column(f, r->quantity_name[q], "mean", r->quantity_unit[q]);
+        csv_column(f, r->quantity_name[q], "p_positive", "");
+    }
+    csv_column(f, "discounted_reward", "", r->reward_unit);
+    fprintf(f, ",mass\n");
     for (int64_t t = 0; t <= r->n_stages; t++) {
         fprintf(f, "%lld", (long long)t);
         for (int k = 0; k < r->n_factors; k++)

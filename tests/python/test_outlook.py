@@ -37,10 +37,15 @@ policy's transition matrix P_pi with scipy.sparse and checks:
    probability of a false failure of the whole test is at most
    ALPHA = 1e-6 (union bound over the m checks). No normal approximation.
 6. 1, 2 and 3 MPI ranks give the same numbers (within 1e-12 relative).
+7. The -o FILE.csv table: one row per stage with the JSON's numbers (15
+   significant digits), unique column names, each carrying the unit the
+   model file stores (read with h5py) - the reservoir's factor and quantity
+   both called inflow differ by their unit.
 
 Run under /usr/bin/python3 (Debian numpy, scipy and h5py).
 """
 
+import csv
 import json
 import math
 import os
@@ -199,6 +204,56 @@ def worst_difference(base, other):
     return worst
 
 
+def check_csv(chk, binary, work, model, sol, start_spec, doc):
+    """outlook -o FILE.csv: the JSON's numbers under unique, unit-carrying names."""
+    path = os.path.join(work, "outlook.csv")
+    cp = subprocess.run([binary, "outlook", model, sol, "--start", start_spec, "--stages", str(STAGES), "-o", path, "-q"],
+                        stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, timeout=600)
+    chk.check(cp.returncode == 0, "outlook -o FILE.csv exits 0", cp.stderr.strip())
+    if cp.returncode != 0:
+        return
+    with h5py.File(model, "r") as f:
+        def unit(path):
+            u = f[path].attrs.get("unit", b"") if path in f else b""
+            return u.decode() if isinstance(u, bytes) else str(u)
+        fnames = [x.decode() for x in f["labels/factor_name"][...]]
+        qnames = [x.decode() for x in f["labels/quantity_name"][...]]
+        funit = {n: unit("factor/%s/value" % n) for n in fnames}
+        qunit = {q: unit("quantity/%s/mean" % q) for q in qnames}
+        ru = f.attrs.get("reward_unit", b"")
+        runit = ru.decode() if isinstance(ru, bytes) else str(ru)
+    with_unit = lambda name, u: "%s [%s]" % (name, u) if u else name
+    # expected columns and where each number is in the JSON document
+    cols = [("stage", lambda st: st["stage"])]
+    for n in fnames:
+        if n not in doc["stages"][0]["factors"]:
+            continue            # a factor without numeric values has no statistics
+        for stat in ("mean", "p5", "p25", "p50", "p75", "p95"):
+            cols.append((with_unit("%s_%s" % (n, stat), funit[n]), lambda st, n=n, stat=stat: st["factors"][n][stat]))
+    for q in qnames:
+        cols.append((with_unit("%s_mean" % q, qunit[q]), lambda st, q=q: st["quantities"][q]["mean"]))
+        cols.append(("%s_p_positive" % q, lambda st, q=q: st["quantities"][q]["p_positive"]))
+    cols.append((with_unit("discounted_reward", runit), lambda st: st["discounted_reward"]))
+    cols.append(("mass", lambda st: st["mass"]))
+    with open(path, newline="") as fh:
+        rows = list(csv.reader(fh))
+    head = rows[0]
+    chk.check(len(set(head)) == len(head), "outlook CSV: column names are unique",
+              ", ".join(sorted(h for h in head if head.count(h) > 1)))
+    chk.check(head == [c[0] for c in cols], "outlook CSV: columns NAME_STAT [unit] with the model file's units",
+              "got %s" % head)
+    chk.check(any("[" in h for h in head) and runit != "", "outlook CSV: the reservoir has units to show")
+    worst = 0.0
+    ok = len(rows) == STAGES + 2 and head == [c[0] for c in cols]
+    if ok:
+        for st, row in zip(doc["stages"], rows[1:]):
+            for (name, get), cell in zip(cols, row):
+                want = float(get(st))
+                worst = max(worst, abs(float(cell) - want) / max(1.0, abs(want)))
+    chk.check(ok and worst <= 1e-13, "outlook CSV: one row per stage with the JSON's numbers",
+              "%d rows, worst relative difference %.3g" % (len(rows) - 1, worst))
+
+
 def main():
     binary, work = mc.parse_args(sys.argv, "test_outlook.py SLUICE_BINARY WORKDIR")
     chk = mc.Checker("outlook")
@@ -289,6 +344,8 @@ def main():
             point &= abs(v["p_positive"]) <= 1e-12 or abs(v["p_positive"] - 1) <= 1e-12
     chk.check(point, "deterministic variant: point masses at every stage")
     check_exact(chk, Files(dmodel, dsol), ddoc, 5, "deterministic")
+
+    check_csv(chk, binary, work, model, sol, start_spec, doc)
 
     # ranks
     if mpiexec() is None:
