@@ -114,7 +114,7 @@ sl_status sl_state_parse(sl_ctx *ctx, const sl_meta *m, const char *text, const 
     int seen[SLUICE_MAX_FACTORS] = {0};
     char part[256];
     const char *p = text;
-    while (*p) {
+    do { /* at least once: an empty text is no state, even of a model without factors */
         const char *comma = strchr(p, ',');
         size_t len = comma ? (size_t)(comma - p) : strlen(p);
         if (len == 0 || len >= sizeof(part))
@@ -132,7 +132,7 @@ sl_status sl_state_parse(sl_ctx *ctx, const sl_meta *m, const char *text, const 
         p += len + (comma ? 1 : 0);
         if (comma && *p == '\0')
             return SL_ERR(ctx, SL_EUSAGE, "%s '%s': trailing comma", what, text);
-    }
+    } while (*p);
     s = 0;
     for (int f = m->n_factors - 1; f >= 0; f--) {
         if (!seen[f])
