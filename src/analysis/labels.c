@@ -73,12 +73,17 @@ sl_status sl_factor_parse(sl_ctx *ctx, const sl_meta *m, const char *text, const
         double x = strtod(val, &end);
         if (val[0] == '\0' || *end != '\0' || errno == ERANGE || !isfinite(x))
             return SL_ERR(ctx, SL_EUSAGE, "%s '%s': '%s' is not a number", what, text, val);
-        /* a value as printed (%.6g) or within a relative 1e-9 of the grid */
+        /* a value as printed (%.6g), else within a relative 1e-9 of the
+         * grid: the printed form first, so that it names its own value on a
+         * grid finer than the tolerance */
         char buf[64];
         for (int64_t k = 0; k < n && i < 0; k++) {
+            snprintf(buf, sizeof(buf), "%.6g", m->factor_value[f][k]);
+            if (strcmp(buf, val) == 0) i = k;
+        }
+        for (int64_t k = 0; k < n && i < 0; k++) {
             double g = m->factor_value[f][k];
-            snprintf(buf, sizeof(buf), "%.6g", g);
-            if (strcmp(buf, val) == 0 || fabs(g - x) <= 1e-9 * fmax(1.0, fabs(g))) i = k;
+            if (fabs(g - x) <= 1e-9 * fmax(1.0, fabs(g))) i = k;
         }
         if (i < 0) {
             int64_t best = 0;
