@@ -89,6 +89,10 @@ int sl_policy_path_is_rule(const char *path);
  * and line. Collective; any contiguous slice per rank. */
 sl_status sl_rule_read(sl_ctx *ctx, const sl_meta *m, int32_t n_actions, const char *path, int64_t s_begin,
                        int64_t nl, int32_t *action, int64_t *line);
+/* The reading of sl_rule_read, on one process: action[s] and line[s] for
+ * every state s of the model (arrays of n_states). Local. */
+sl_status sl_rule_read_local(sl_ctx *ctx, const sl_meta *m, int32_t n_actions, const char *path, int32_t *action,
+                             int64_t *line);
 
 /* For each of the nl states from s_begin, the pair whose action is
  * action[i] (chosen[i], relative to first_pair[0]; chosen may be NULL).

@@ -90,6 +90,24 @@ int sl_policy_path_is_rule(const char *path)
     return n > 4 && strcasecmp(path + n - 4, ".csv") == 0;
 }
 
+sl_status sl_rule_read_local(sl_ctx *ctx, const sl_meta *meta, int32_t n_actions, const char *path, int32_t *action,
+                             int64_t *line)
+{
+    policy_rows r = {meta, n_actions, action, line};
+    int64_t n = meta->n_states, missing = 0, first = -1;
+    for (int64_t s = 0; s < n; s++) action[s] = -1;
+    sl_status st = sl_state_csv_read(ctx, meta, path, "action", policy_row, &r);
+    for (int64_t s = 0; st == SL_OK && s < n; s++)
+        if (action[s] < 0 && missing++ == 0) first = s;
+    if (st == SL_OK && missing > 0) {
+        char sw[1024];
+        state_words(meta, first, sw, sizeof(sw));
+        st = SL_ERR(ctx, SL_EDATA, "%s: no row for %s; %lld of %lld states have no action (every state needs one)",
+                    path, sw, (long long)missing, (long long)n);
+    }
+    return st;
+}
+
 sl_status sl_rule_read(sl_ctx *ctx, const sl_meta *meta, int32_t n_actions, const char *path, int64_t s_begin,
                        int64_t nl, int32_t *action, int64_t *line)
 {
@@ -119,19 +137,7 @@ sl_status sl_rule_read(sl_ctx *ctx, const sl_meta *meta, int32_t n_actions, cons
         }
     }
     SL_TRY(sl_agree(ctx, st));
-    if (ctx->rank == 0) {
-        for (int64_t s = 0; s < n; s++) r.action[s] = -1;
-        st = sl_state_csv_read(ctx, meta, path, "action", policy_row, &r);
-        int64_t missing = 0, first = -1;
-        for (int64_t s = 0; st == SL_OK && s < n; s++)
-            if (r.action[s] < 0 && missing++ == 0) first = s;
-        if (st == SL_OK && missing > 0) {
-            char sw[1024];
-            state_words(meta, first, sw, sizeof(sw));
-            st = SL_ERR(ctx, SL_EDATA, "%s: no row for %s; %lld of %lld states have no action (every state needs one)",
-                        path, sw, (long long)missing, (long long)n);
-        }
-    }
+    if (ctx->rank == 0) st = sl_rule_read_local(ctx, meta, n_actions, path, r.action, r.line);
     SL_TRY(sl_agree(ctx, st));
     if (MPI_Scatterv(r.action, cnt, dsp, MPI_INT32_T, action, (int)nl, MPI_INT32_T, 0, ctx->comm) != MPI_SUCCESS ||
         MPI_Scatterv(r.line, cnt, dsp, MPI_INT64_T, line, (int)nl, MPI_INT64_T, 0, ctx->comm) != MPI_SUCCESS)

@@ -13,7 +13,7 @@ store="src/core/core.c src/core/names.c src/model/model.c src/model/handle.c src
 case "$T" in
   validate) libs="src/core/core.c src/model/model.c" ;;
   parse) libs="$store src/analysis/labels.c" ;;
-  statecsv) libs="$store src/analysis/labels.c src/analysis/statecsv.c" ;;
+  statecsv) libs="$store src/analysis/labels.c src/analysis/statecsv.c src/analysis/policycsv.c src/store/solution_io.c src/solve/solution.c src/analysis/words.c"; max_len=2048 ;;
   *) echo "not ok - unknown fuzz target '$T'"; echo "0 passed, 1 failed"; exit 1 ;;
 esac
 command -v clang >/dev/null || { echo "not ok - clang not installed (Debian: clang libclang-rt-14-dev)"; echo "0 passed, 1 failed"; exit 1; }
@@ -35,7 +35,7 @@ else
   tail -20 "$WORK/regress.log"; echo "not ok - a crash regression fails again"; fail=$((fail + 1))
 fi
 cp "$SRC/tests/fuzz/corpus_$T"/* "$WORK/corpus/"
-if "$WORK/fuzz_$T" -max_total_time="$SECS" -max_len=512 -timeout=10 -artifact_prefix="$WORK/" "$WORK/corpus" \
+if "$WORK/fuzz_$T" -max_total_time="$SECS" -max_len="${max_len:-512}" -timeout=10 -artifact_prefix="$WORK/" "$WORK/corpus" \
      > "$WORK/fuzz.log" 2>&1; then
   echo "ok - fuzzed for $SECS s: $(grep -o 'Done [0-9]* runs' "$WORK/fuzz.log")"; pass=$((pass + 1))
 else
