@@ -24,9 +24,9 @@ static int split(char *line, char **field, int max)
     char *p = line;
     while (n < max) {
         char *c = strchr(p, ',');
+        if (c != NULL) *c = '\0'; /* first: trim this field's end, not the line's */
         field[n++] = trim(p);
         if (c == NULL) return n;
-        *c = '\0';
         p = c + 1;
     }
     return max + 1;
