@@ -49,6 +49,12 @@ void sl_factor_label(const sl_meta *m, int f, int64_t i, char *buf, size_t n);
 sl_status sl_factor_parse(sl_ctx *ctx, const sl_meta *m, const char *text, const char *what, int *factor,
                           int64_t *index);
 
+/* Index of the grid value named by text (the number x it parses to): the
+ * value printed ("%.6g") as text, else the first within a relative 1e-9
+ * of x; -1 if none. The printed form comes first so that it names its own
+ * value on a grid finer than the tolerance. Local. */
+int64_t sl_grid_find(const double *grid, int64_t n, const char *text, double x);
+
 /* Parse a state: a number, or every factor as NAME=VALUE / NAME@INDEX
  * separated by commas. Local; records the error. */
 sl_status sl_state_parse(sl_ctx *ctx, const sl_meta *m, const char *text, const char *what, int64_t *state);

@@ -20,6 +20,18 @@ void sl_factor_label(const sl_meta *m, int f, int64_t i, char *buf, size_t n)
     else snprintf(buf, n, "%lld", (long long)i);
 }
 
+int64_t sl_grid_find(const double *grid, int64_t n, const char *text, double x)
+{
+    char buf[64];
+    for (int64_t k = 0; k < n; k++) {
+        snprintf(buf, sizeof(buf), "%.6g", grid[k]);
+        if (strcmp(buf, text) == 0) return k;
+    }
+    for (int64_t k = 0; k < n; k++)
+        if (fabs(grid[k] - x) <= 1e-9 * fmax(1.0, fabs(grid[k]))) return k;
+    return -1;
+}
+
 static void factor_list(const sl_meta *m, char *buf, size_t n)
 {
     buf[0] = '\0';
@@ -73,18 +85,7 @@ sl_status sl_factor_parse(sl_ctx *ctx, const sl_meta *m, const char *text, const
         double x = strtod(val, &end);
         if (val[0] == '\0' || *end != '\0' || errno == ERANGE || !isfinite(x))
             return SL_ERR(ctx, SL_EUSAGE, "%s '%s': '%s' is not a number", what, text, val);
-        /* a value as printed (%.6g), else within a relative 1e-9 of the
-         * grid: the printed form first, so that it names its own value on a
-         * grid finer than the tolerance */
-        char buf[64];
-        for (int64_t k = 0; k < n && i < 0; k++) {
-            snprintf(buf, sizeof(buf), "%.6g", m->factor_value[f][k]);
-            if (strcmp(buf, val) == 0) i = k;
-        }
-        for (int64_t k = 0; k < n && i < 0; k++) {
-            double g = m->factor_value[f][k];
-            if (fabs(g - x) <= 1e-9 * fmax(1.0, fabs(g))) i = k;
-        }
+        i = sl_grid_find(m->factor_value[f], n, val, x);
         if (i < 0) {
             int64_t best = 0;
             for (int64_t k = 1; k < n; k++)

@@ -50,14 +50,7 @@ static int32_t action_id(const policy_rows *r, const char *text)
     errno = 0;
     double x = strtod(text, &end);
     if (text[0] == '\0' || *end != '\0' || errno == ERANGE) return -1;
-    if (m->n_action_values > 0) {
-        char pr[64];
-        for (int32_t a = 0; a < m->n_action_values; a++) {
-            snprintf(pr, sizeof(pr), "%.6g", m->action_value[a]);
-            if (strcmp(pr, text) == 0 || fabs(m->action_value[a] - x) <= 1e-9 * fmax(1.0, fabs(x))) return a;
-        }
-        return -1;
-    }
+    if (m->n_action_values > 0) return (int32_t)sl_grid_find(m->action_value, m->n_action_values, text, x);
     /* neither names nor values: the id itself */
     return m->n_action_names == 0 && x == floor(x) && x >= 0 && x < r->n_actions ? (int32_t)x : -1;
 }
