@@ -98,6 +98,14 @@ set_tests_properties(fuzz_csv PROPERTIES LABELS fuzz TIMEOUT 300)
 add_test(NAME fuzz_validate COMMAND bash ${PROJECT_SOURCE_DIR}/tests/fuzz/run_validate.sh ${PROJECT_SOURCE_DIR}
          ${PROJECT_BINARY_DIR}/fuzz_validate 30)
 set_tests_properties(fuzz_validate PROPERTIES LABELS fuzz TIMEOUT 300)
+# the text a user types to name a factor value or a state (--start, --fix),
+# and the CSV files keyed by state (start distributions, rules): crash
+# regressions and corpus replayed, then a bounded run
+foreach(target parse statecsv)
+  add_test(NAME fuzz_${target} COMMAND bash ${PROJECT_SOURCE_DIR}/tests/fuzz/run_target.sh ${PROJECT_SOURCE_DIR}
+           ${PROJECT_BINARY_DIR}/fuzz_${target} ${target} 30)
+  set_tests_properties(fuzz_${target} PROPERTIES LABELS fuzz TIMEOUT 300)
+endforeach()
 
 # the library API on 2 and 3 ranks (rows on rank 0 only; solving spreads nothing:
 # the same numbers must come out)
