@@ -39,14 +39,17 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size);
 /* libFuzzer passes no user pointer: the temporary file of this process */
 static char tmp_path[64];
 
+static void remove_tmp(void) { unlink(tmp_path); }
+
 int LLVMFuzzerInitialize(int *argc, char ***argv)
 {
     (void)argc;
     (void)argv;
-    snprintf(tmp_path, sizeof(tmp_path), "/tmp/sluice-fuzz-statecsv-XXXXXX");
+    snprintf(tmp_path, sizeof(tmp_path), "%s/sluice-fuzz-statecsv-XXXXXX", access("/dev/shm", W_OK) == 0 ? "/dev/shm" : "/tmp");
     int fd = mkstemp(tmp_path);
     if (fd < 0) abort();
     close(fd);
+    atexit(remove_tmp);
     return 0;
 }
 

@@ -8,6 +8,8 @@
 # Documented bounded run: nice -n 10 bash tests/fuzz/run_target.sh . /tmp/fz-parse parse 300
 set -u
 SRC=$1 WORK=$2 T=$3 SECS=${4:-30}
+dict="" # a libFuzzer dictionary of the format's pieces, if the target has one
+[ -f "$SRC/tests/fuzz/$T.dict" ] && dict="-dict=$SRC/tests/fuzz/$T.dict"
 # labels.c also looks a state up in a model file: the store comes along
 store="src/core/core.c src/core/names.c src/model/model.c src/model/handle.c src/parallel/layout.c src/store/h5.c src/store/model_io.c"
 case "$T" in
@@ -35,7 +37,7 @@ else
   tail -20 "$WORK/regress.log"; echo "not ok - a crash regression fails again"; fail=$((fail + 1))
 fi
 cp "$SRC/tests/fuzz/corpus_$T"/* "$WORK/corpus/"
-if "$WORK/fuzz_$T" -max_total_time="$SECS" -max_len="${max_len:-512}" -timeout=10 -artifact_prefix="$WORK/" "$WORK/corpus" \
+if "$WORK/fuzz_$T" -max_total_time="$SECS" -max_len="${max_len:-512}" $dict -timeout=10 -artifact_prefix="$WORK/" "$WORK/corpus" \
      > "$WORK/fuzz.log" 2>&1; then
   echo "ok - fuzzed for $SECS s: $(grep -o 'Done [0-9]* runs' "$WORK/fuzz.log")"; pass=$((pass + 1))
 else
