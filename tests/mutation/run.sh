@@ -31,7 +31,7 @@ M1~src/solve/kernel.c~c->value_error = 0.5 * f * c->span + fp;~c->value_error = 
 M2~src/solve/kernel.c~c->policy_loss = f * c->span;~c->policy_loss = 0.01 * f * c->span;~^py_certificate$~solve's certificate: policy-loss bound 100x too small
 M3~src/model/model.c~if (!(p >= 0.0 && p <= 1.0))~if (0)~^cli_bad_input_(datasets|files)$~model reader: probability range check removed~SL_FAIL_FAST=1
 M4~src/model/model.c~if (fabs(sum - 1.0) > tol)~if (0)~^cli_bad_input_(datasets|files)$~model reader: probability sum check removed~SL_FAIL_FAST=1
-M5~src/model/model.c~if (p1 < p0)~if (p1 < p0 - 1000000)~^cli_bad_input_(datasets|files)$~model reader: decreasing /state/first_pair accepted~SL_FAIL_FAST=1
+M5~src/model/model.c~if (p1 < p0)~if (p1 < p0 - 1000000)~^fuzz_validate$~block validation: decreasing /state/first_pair accepted
 M6~src/model/model.c~b->target[t] < 0 || b->target[t] >= m->n_states~b->target[t] < 0 || b->target[t] > m->n_states~^cli_bad_input_(datasets|files)$~model reader: off-by-one in the next-state bound~SL_FAIL_FAST=1
 M7~src/store/h5.c~} else if (H5Tget_class(t) != cls) {~} else if (0) {~^cli_bad_input_datasets$~model reader: dataset class check removed~SL_FAIL_FAST=1
 M8~src/solve/methods.c~if (r->ctx->signal_flag) flag = *r->ctx->signal_flag;~if (r->ctx->signal_flag && (r->S.iteration & 1)) flag = *r->ctx->signal_flag;~^cli_checkpoint_signals$~solver: acts on a signal only at every other sweep boundary~CK_SIGNALS_QUICK=1
