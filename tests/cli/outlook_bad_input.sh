@@ -49,6 +49,10 @@ expect "distribution by factor labels: value not on the grid" --code 65 --err "f
     --gone "$O" -- "${T[@]}" --start-distribution "$W/fac.csv" -o "$O"
 printf 'storage,inflow,month,probability\n0,@1,Jan,0.25\n@4,@1,Jan,0.75\n' > "$W/fac2.csv"
 expect "distribution by factor labels" --code 0 --clean "$O" -- "${T[@]}" --start-distribution "$W/fac2.csv" -o "$O"
+# spaces around every field, also before a comma (once kept in the field)
+printf 'storage,inflow ,month,probability\n0 ,@1 , Jan ,0.25\n @4,@1,Jan\t,0.75\n' > "$W/fac3.csv"
+expect "distribution by factor labels with spaces" --code 0 --clean "$O" -- "${T[@]}" --start-distribution \
+    "$W/fac3.csv" -o "$O"
 printf 'storage,probability\n0,1\n' > "$W/hdr.csv"
 expect "distribution with a bad header" --code 65 --err "hdr.csv line 1" --gone "$O" -- \
     "${T[@]}" --start-distribution "$W/hdr.csv" -o "$O"
