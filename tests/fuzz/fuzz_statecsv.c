@@ -6,7 +6,8 @@
  *
  * Input: the first bytes shape a small model description (fuzz_meta.h),
  * then a mode byte (start or rule, a header prepended or not, NUL bytes
- * kept or the text cut at the first), for a rule an actions byte (1..4
+ * kept or the text cut at the first, the rest taken as the file or as the
+ * choices of structured rows), for a rule an actions byte (1..4
  * actions with names, values or neither) and a seed byte for the actions
  * each state offers; the rest is the file, written to a temporary file per
  * input (the readers take a path).
@@ -111,6 +112,43 @@ static int32_t expect_action(const actions *a, const char *t)
         return -1;
     }
     return m->n_action_names == 0 && x == floor(x) && x >= 0 && x < a->n ? (int32_t)x : -1;
+}
+
+/* Structured rows (mode bit 4), so that the search reaches the meaning of
+ * the fields and not only their syntax: per row a state (a number, a
+ * factor's index, label or printed value, sometimes off the model) and a
+ * probability or action from plausible and edge forms. Columns as in the
+ * header this file prepends (factors last to first). */
+static void rows_from_bytes(fz_reader *r, const sl_meta *m, const actions *a, int rule, int by_number, char *out,
+                            size_t n)
+{
+    static const char *probs[16] = {"1", "0.5", "0.25", "0", "-0", "nan", "inf", "-0.5",
+                                    "1.5", "0.4999999999", "0.4999991", "1e-10", "0.75", "0x1p-1", " 0.5", ""};
+    char lab[SL_NAME_MAX + 32];
+    int rows = 1 + fz_byte(r) % 6;
+    out[0] = '\0';
+    for (int k = 0; k < rows; k++) {
+        size_t u = strlen(out);
+        uint8_t b = fz_byte(r);
+        if (by_number) snprintf(out + u, n - u, "%d,", (int)(b % (m->n_states + 2)) - (b >= 250));
+        for (int f = m->n_factors - 1; !by_number && f >= 0; f--) {
+            int64_t i = b % (m->factor_size[f] + 1); /* one past the end, now and then */
+            u = strlen(out);
+            if ((b >> 4) % 3 == 0 || i == m->factor_size[f]) snprintf(out + u, n - u, "@%lld,", (long long)i);
+            else {
+                sl_factor_label(m, f, i, lab, sizeof(lab));
+                snprintf(out + u, n - u, "%s,", lab);
+            }
+            b = fz_byte(r);
+        }
+        u = strlen(out);
+        uint8_t c = fz_byte(r);
+        if (!rule) snprintf(out + u, n - u, "%s\n", probs[c % 16]);
+        else if (c % 4 == 0) snprintf(out + u, n - u, "@%d\n", (int)(c >> 2) % (a->n + 1));
+        else if (c % 4 == 1 && m->n_action_names) snprintf(out + u, n - u, "%s\n", m->action_name[(c >> 2) % a->n]);
+        else if (c % 4 == 1 && m->n_action_values) snprintf(out + u, n - u, "%.6g\n", m->action_value[(c >> 2) % a->n]);
+        else snprintf(out + u, n - u, "%d\n", (int)(c >> 2) % (a->n + 1));
+    }
 }
 
 /* The file read by the rules: 1 if the header and every row's state resolve
@@ -223,9 +261,15 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
         }
     }
     size_t hl = strlen(header), rest = r.n - r.i, len = hl + rest;
+    char rows[2048];
+    if ((mode >> 4) & 1) { /* rows made of the rest: every field from a few plausible and edge forms */
+        rows_from_bytes(&r, &m, &acts, rule, header[0] == 's' || m.n_factors == 0, rows, sizeof(rows));
+        rest = strlen(rows);
+        len = hl + rest;
+    }
     if ((text = malloc(len + 1)) == NULL || (copy = malloc(len + 1)) == NULL) goto done;
     memcpy(text, header, hl);
-    memcpy(text + hl, r.d + r.i, rest);
+    memcpy(text + hl, (mode >> 4) & 1 ? (const uint8_t *)rows : r.d + r.i, rest);
     text[len] = '\0';
     if (!keep_nul) len = strlen(text);
     memcpy(copy, text, len + 1);
