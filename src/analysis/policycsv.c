@@ -149,17 +149,15 @@ sl_status sl_policy_pairs(sl_ctx *ctx, const sl_meta *m, int64_t s_begin, int64_
                           const int32_t *pair_action, const int32_t *action, const int64_t *line, const char *policy,
                           const char *model, int64_t *chosen)
 {
+    if (line == NULL)
+        return sl_saved_policy_check(ctx, policy, "/policy", first_pair, pair_action, s_begin, nl, action, chosen,
+                                     model);
     for (int64_t i = 0; i < nl; i++) {
-        int64_t k = -1;
-        for (int64_t q = first_pair[i]; q < first_pair[i + 1]; q++)
-            if (pair_action[q - first_pair[0]] == action[i]) k = q - first_pair[0];
+        int64_t k = sl_pairs_find_action(first_pair, first_pair[0], pair_action, i, action[i]);
         if (k >= 0) {
             if (chosen) chosen[i] = k;
             continue;
         }
-        if (line == NULL)
-            return SL_ERR(ctx, SL_EDATA, "%s: state %lld: the policy's action %d is not available there in %s", policy,
-                          (long long)(s_begin + i), (int)action[i], model);
         char sw[1024], an[SL_NAME_MAX + 16];
         int32_t a = action[i];
         state_words(m, s_begin + i, sw, sizeof(sw));

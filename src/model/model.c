@@ -427,6 +427,14 @@ void sl_block_rebase(sl_block *b, int64_t p_begin, int64_t t_begin)
     b->t_end += dt;
 }
 
+int64_t sl_pairs_find_action(const int64_t *first_pair, int64_t p_begin, const int32_t *pair_action, int64_t i,
+                             int32_t action)
+{
+    for (int64_t q = first_pair[i] - p_begin; q < first_pair[i + 1] - p_begin; q++)
+        if (pair_action[q] == action) return q;
+    return -1;
+}
+
 /* ---- validation of rows read from a file --------------------------------- */
 
 sl_status sl_block_validate(sl_ctx *ctx, const sl_block *b, const sl_meta *m,

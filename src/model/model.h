@@ -103,6 +103,15 @@ static inline int64_t sl_block_states(const sl_block *b) { return b->s_end - b->
 static inline int64_t sl_block_pairs(const sl_block *b) { return b->p_end - b->p_begin; }
 static inline int64_t sl_block_trans(const sl_block *b) { return b->t_end - b->t_begin; }
 
+/* The pair of state i of a slice that has `action`: its index among the
+ * slice's pairs (first_pair[i] - p_begin .. first_pair[i + 1] - p_begin - 1,
+ * pair_action indexed alike; p_begin is the global number of the slice's
+ * first pair), or -1 if state i does not offer it. The one test of "is this
+ * action available in this state" for policies read from files, rules and
+ * the solvers. Local. */
+int64_t sl_pairs_find_action(const int64_t *first_pair, int64_t p_begin, const int32_t *pair_action, int64_t i,
+                             int32_t action);
+
 void sl_block_free(sl_block *b);
 
 /* ---- builder: append rows in order ------------------------------------

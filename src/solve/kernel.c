@@ -502,13 +502,11 @@ sl_status sl_policy_offsets(sl_ctx *ctx, const sl_problem *p, const int32_t *act
 {
     const sl_block *b = &p->blk;
     for (int64_t i = 0; i < p->n_local; i++) {
-        int64_t p0 = b->first_pair[i] - b->p_begin, p1 = b->first_pair[i + 1] - b->p_begin;
-        policy[i] = -1;
-        for (int64_t k = p0; k < p1; k++)
-            if (b->action[k] == actions[i]) policy[i] = (int32_t)(k - p0);
-        if (policy[i] < 0)
+        int64_t k = sl_pairs_find_action(b->first_pair, b->p_begin, b->action, i, actions[i]);
+        if (k < 0)
             return SL_ERR(ctx, SL_EDATA, "%s: state %lld: policy action %d is not available in the model", where,
                           (long long)sl_problem_file_state(p, i), (int)actions[i]);
+        policy[i] = (int32_t)(k - (b->first_pair[i] - b->p_begin));
     }
     return SL_OK;
 }

@@ -212,15 +212,9 @@ sl_status sl_solution_load(sl_ctx *ctx, const char *path, const sl_model *m, sl_
                                     "(%s, fingerprint %s)",
                                     path, r.model_fingerprint, m->name, m->meta.fingerprint)));
     /* every action must be one the model offers in its state */
-    for (int64_t i = 0; with_actions && i < x->n && st == SL_OK; i++) {
-        const sl_block *b = &m->blk;
-        int found = 0;
-        for (int64_t q = b->first_pair[i] - b->p_begin; q < b->first_pair[i + 1] - b->p_begin; q++)
-            found |= b->action[q] == x->action[i];
-        if (!found)
-            st = SL_ERR(ctx, SL_EDATA, "%s: state %lld: policy action %d is not available in the model", path,
-                        (long long)(x->s_begin + i), (int)x->action[i]);
-    }
+    if (with_actions)
+        st = sl_saved_policy_check(ctx, path, "/policy", m->blk.first_pair, m->blk.action, x->s_begin, x->n,
+                                   x->action, NULL, m->name);
     SL_TRY(sl_agree(ctx, st));
     *out = x;
     x = NULL;

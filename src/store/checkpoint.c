@@ -420,6 +420,9 @@ static sl_status try_load(sl_ctx *ctx, const char *path, const char *fingerprint
             st = SL_ERR(ctx, SL_EDATA, "%s: checksum mismatch (corrupted checkpoint)", path);
         st = sl_agree(ctx, st);
     }
+    /* the checksum says the values are the ones written, not that they are
+     * a start: a non-finite value (a diverged run, a crafted file) is not */
+    if (st == SL_OK) st = sl_agree(ctx, sl_saved_values_check(ctx, path, "/value", s_begin, n_local, value));
 cleanup:
     if (f >= 0) H5Fclose(f);
     return st;

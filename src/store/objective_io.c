@@ -101,23 +101,14 @@ sl_status sl_store_objective_read(sl_ctx *ctx, const char *path, int64_t n_state
         SL_TRY(sl_agree(ctx, st));
         for (int64_t t = x->first_stage; t <= x->horizon; t++) {
             snprintf(name, sizeof(name), "/stage/value_%06lld", (long long)t);
-            if (sl_h5_length(f, name) != n_states)
-                st = SL_ERR(ctx, SL_EDATA, "%s: %s is missing or does not have %lld entries", path, name,
-                            (long long)n_states);
-            SL_TRY(sl_agree(ctx, st));
+            SL_TRY(sl_agree(ctx, sl_saved_length_check(ctx, path, name, sl_h5_length(f, name), n_states)));
             SL_TRY(sl_agree(ctx, sl_h5_read_1d(ctx, f, name, H5T_NATIVE_DOUBLE, n_states, s_begin, n,
                                                x->stage_value + (t - x->first_stage) * n, path)));
-            for (int64_t i = 0; i < n && st == SL_OK; i++)
-                if (!isfinite(x->stage_value[(t - x->first_stage) * n + i]))
-                    st = SL_ERR(ctx, SL_EDATA, "%s: %s: state %lld: value is not finite", path, name,
-                                (long long)(s_begin + i));
-            SL_TRY(sl_agree(ctx, st));
+            SL_TRY(sl_agree(ctx, sl_saved_values_check(ctx, path, name, s_begin, n,
+                                                       x->stage_value + (t - x->first_stage) * n)));
             if (t == x->horizon) break;
             snprintf(name, sizeof(name), "/stage/policy_%06lld", (long long)t);
-            if (sl_h5_length(f, name) != n_states)
-                st = SL_ERR(ctx, SL_EDATA, "%s: %s is missing or does not have %lld entries", path, name,
-                            (long long)n_states);
-            SL_TRY(sl_agree(ctx, st));
+            SL_TRY(sl_agree(ctx, sl_saved_length_check(ctx, path, name, sl_h5_length(f, name), n_states)));
             SL_TRY(sl_agree(ctx, sl_h5_read_1d(ctx, f, name, H5T_NATIVE_INT32, n_states, s_begin, n,
                                                x->stage_action + (t - x->first_stage) * n, path)));
         }
@@ -164,10 +155,7 @@ sl_status sl_store_terminal_read(sl_ctx *ctx, const char *model, int64_t n_state
                                     model, (long long)len, (long long)n_states)));
     SL_TRY(sl_agree(ctx, sl_h5_read_1d(ctx, f, "/terminal_value", H5T_NATIVE_DOUBLE, n_states, s_begin, n_local, value,
                                        model)));
-    for (int64_t i = 0; i < n_local && st == SL_OK; i++)
-        if (!isfinite(value[i]))
-            st = SL_ERR(ctx, SL_EDATA, "%s: /terminal_value: state %lld: not finite", model, (long long)(s_begin + i));
-    SL_TRY(sl_agree(ctx, st));
+    SL_TRY(sl_agree(ctx, sl_saved_values_check(ctx, model, "/terminal_value", s_begin, n_local, value)));
     *found = 1;
 cleanup:
     if (f >= 0) H5Fclose(f);

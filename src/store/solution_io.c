@@ -202,21 +202,12 @@ sl_status sl_store_solution_read(sl_ctx *ctx, const char *path, sl_file_kind kin
     if (st == SL_OK && !isfinite(in->visit_adjust))
         st = SL_ERR(ctx, SL_EDATA, "%s: /visit_adjust is not finite", path);
     in->converged = conv != 0;
-    if (st == SL_OK && sl_h5_length(f, "/value") != n_states)
-        st = SL_ERR(ctx, SL_EDATA, "%s: /value has %lld entries but the model has %lld states", path,
-                    (long long)sl_h5_length(f, "/value"), (long long)n_states);
-    if (st == SL_OK && actions && sl_h5_length(f, "/policy") != n_states)
-        st = SL_ERR(ctx, SL_EDATA, "%s: /policy is missing or has the wrong length (model has %lld states)", path,
-                    (long long)n_states);
+    if (st == SL_OK) st = sl_saved_length_check(ctx, path, "/value", sl_h5_length(f, "/value"), n_states);
+    if (st == SL_OK && actions) st = sl_saved_length_check(ctx, path, "/policy", sl_h5_length(f, "/policy"), n_states);
     SL_TRY(sl_agree(ctx, st));
     if (value) {
         SL_TRY(sl_agree(ctx, sl_h5_read_1d(ctx, f, "/value", H5T_NATIVE_DOUBLE, n_states, s_begin, n_local, value, path)));
-        for (int64_t i = 0; i < n_local; i++)
-            if (!isfinite(value[i])) {
-                st = SL_ERR(ctx, SL_EDATA, "%s: state %lld: value is not finite", path, (long long)(s_begin + i));
-                break;
-            }
-        SL_TRY(sl_agree(ctx, st));
+        SL_TRY(sl_agree(ctx, sl_saved_values_check(ctx, path, "/value", s_begin, n_local, value)));
     }
     if (actions)
         SL_TRY(sl_agree(ctx, sl_h5_read_1d(ctx, f, "/policy", H5T_NATIVE_INT32, n_states, s_begin, n_local, actions, path)));

@@ -116,6 +116,26 @@ sl_status sl_store_solution_read(sl_ctx *ctx, const char *path, sl_file_kind kin
 /* The residual history of a solution file (empty if it has none). Collective. */
 sl_status sl_store_solution_read_history(sl_ctx *ctx, const char *path, sl_history *h);
 
+/* ---- content checks of saved results (src/store/content.c) ----------------
+ * Run by the loaders of solution, values, stage and checkpoint files on the
+ * arrays HDF5 has read, and by the fuzz target tests/fuzz/fuzz_solution.c.
+ * Each fails with SL_EDATA and a message naming the file, the dataset and,
+ * for contents, the first state at fault. Local (callers agree). */
+
+/* `length` (as sl_h5_length reports it: -1 if missing) must be n_states. */
+sl_status sl_saved_length_check(sl_ctx *ctx, const char *path, const char *dataset, int64_t length,
+                                int64_t n_states);
+/* Every value of states s_begin .. s_begin + n - 1 is finite. */
+sl_status sl_saved_values_check(sl_ctx *ctx, const char *path, const char *dataset, int64_t s_begin, int64_t n,
+                                const double *value);
+/* Every action[i] is offered by state i of the slice whose pair pointers are
+ * first_pair[0..n] and pair actions pair_action (sl_pairs_find_action);
+ * chosen (if not NULL) receives each one's pair index in the slice. `model`
+ * (may be NULL or "") is named in the message. */
+sl_status sl_saved_policy_check(sl_ctx *ctx, const char *path, const char *dataset, const int64_t *first_pair,
+                                const int32_t *pair_action, int64_t s_begin, int64_t n, const int32_t *action,
+                                int64_t *chosen, const char *model);
+
 /* ---- checkpoints ---------------------------------------------------------------- */
 
 /* Everything a solver needs to continue exactly where it stopped. */
