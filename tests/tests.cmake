@@ -99,9 +99,10 @@ add_test(NAME fuzz_validate COMMAND bash ${PROJECT_SOURCE_DIR}/tests/fuzz/run_va
          ${PROJECT_BINARY_DIR}/fuzz_validate 30)
 set_tests_properties(fuzz_validate PROPERTIES LABELS fuzz TIMEOUT 300)
 # the text a user types to name a factor value or a state (--start, --fix),
-# and the CSV files keyed by state (start distributions, rules): crash
-# regressions and corpus replayed, then a bounded run
-foreach(target parse statecsv)
+# the CSV files keyed by state (start distributions, rules), and the
+# contents of solution, values, stage and checkpoint files after HDF5 read
+# them: crash regressions and corpus replayed, then a bounded run
+foreach(target parse statecsv solution)
   add_test(NAME fuzz_${target} COMMAND bash ${PROJECT_SOURCE_DIR}/tests/fuzz/run_target.sh ${PROJECT_SOURCE_DIR}
            ${PROJECT_BINARY_DIR}/fuzz_${target} ${target} 30)
   set_tests_properties(fuzz_${target} PROPERTIES LABELS fuzz TIMEOUT 300)
