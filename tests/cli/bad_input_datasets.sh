@@ -87,6 +87,28 @@ with h5py.File(dst, "r+") as f:
         print(s, int(f["pair/action"][k]))
     elif kind == "value_inf":
         d = f["value"]; d[0] = np.inf
+    elif kind == "ckpt_value_nan":    # NaN at state 5 of a checkpoint, its checksum made to match
+        # the checksum (docs/formats.md): sum over states i of
+        # mix(mix(i) ^ bits(value[i])) mod 2^64, mix the splitmix64 finaliser
+        # (src/core/core.h); recomputed for the file as written first, so an
+        # error here is the script's, not the loader's
+        M = (1 << 64) - 1
+        def mix(x):
+            x = (x + 0x9e3779b97f4a7c15) & M
+            x = ((x ^ (x >> 30)) * 0xbf58476d1ce4e5b9) & M
+            x = ((x ^ (x >> 27)) * 0x94d049bb133111eb) & M
+            return x ^ (x >> 31)
+        def checksum(v):
+            bits = v.astype("<f8").view("<u8")
+            return "%016x" % (sum(mix(mix(i) ^ int(b)) for i, b in enumerate(bits)) & M)
+        v = f["value"][...]
+        stored = f.attrs["value_checksum"]
+        stored = stored.decode() if isinstance(stored, bytes) else str(stored)
+        if checksum(v) != stored:
+            sys.exit("edit.py: checksum of the unedited checkpoint is %s, file says %s" % (checksum(v), stored))
+        v[5] = np.nan
+        f["value"][...] = v
+        f.attrs.modify("value_checksum", np.bytes_(checksum(v)))  # keeps the attribute's string type
     else:
         sys.exit("edit.py: unknown kind " + kind)
 PYEOF
@@ -184,6 +206,24 @@ expect "solve --resume: checkpoint written by a newer sluice is refused" --code 
     "$SLUICE" solve -q "$G" -o "$S" --checkpoint "$W/ck_new" --resume
 [ ! -e "$W/ck_new/ckpt-000001.h5.unusable" ] && note_ok "the newer checkpoint was not set aside" ||
     note_fail "the newer checkpoint was not set aside" "renamed to .unusable"
+# a checkpoint whose checksum matches but whose /value holds a NaN (a
+# diverged run, a crafted file): refused by name, never set aside
+mkdir -p "$W/ck_nan" && edit "$W/ck/ckpt-000001.h5" ckpt_value_nan "$W/ck_nan/ckpt-000001.h5"
+expect "solve --resume: the only checkpoint's /value holds a NaN (checksum matching)" --code 65 \
+    --err "ckpt-000001.h5" --err "/value" --err "state 5:" --err "not finite" \
+    --keep "$W/ck_nan/ckpt-000001.h5" --gone "$S" -- "$SLUICE" solve -q "$G" -o "$S" --checkpoint "$W/ck_nan" --resume
+[ ! -e "$W/ck_nan/ckpt-000001.h5.unusable" ] && note_ok "the NaN checkpoint, the only one, was not set aside" ||
+    note_fail "the NaN checkpoint, the only one, was not set aside" "renamed to .unusable"
+# the same as the newer of two: the older good one is resumed from, the NaN
+# one set aside (renamed, not deleted) and named in the warning
+mkdir -p "$W/ck_nan2" && cp "$W/ck/ckpt-000001.h5" "$W/ck_nan2/ckpt-000001.h5" &&
+    cp "$W/ck_nan/ckpt-000001.h5" "$W/ck_nan2/ckpt-000002.h5"
+expect "solve --resume: the newest checkpoint's /value holds a NaN: resumed from the older (set aside, not ignored)" \
+    --code 0 --err "ckpt-000002.h5" --err "not finite" --err "resuming from the older" -- \
+    "$SLUICE" solve -q "$G" -o "$W/nan2_sol.h5" --checkpoint "$W/ck_nan2" --resume
+cmp -s "$W/ck_nan/ckpt-000001.h5" "$W/ck_nan2/ckpt-000002.h5.unusable" &&
+    note_ok "the NaN checkpoint was set aside byte-identical as ckpt-000002.h5.unusable" ||
+    note_fail "the NaN checkpoint set aside" "ckpt-000002.h5.unusable missing or changed"
 mkdir -p "$W/ck_foreign"
 "$PY" -c 'import h5py,sys; f=h5py.File(sys.argv[1],"w"); f["x"]=[1,2,3]; f.close()' "$W/ck_foreign/ckpt-000001.h5"
 expect "solve --resume: a foreign HDF5 file named like a checkpoint" --code 65 --err "ckpt-000001.h5" \
