@@ -1,5 +1,6 @@
 /* fuzz_meta.h - what the text-parser fuzz targets share (fuzz_parse.c,
- * fuzz_statecsv.c): a small model description (sl_meta) shaped by the first
+ * fuzz_statecsv.c; fuzz_solution.c takes only the byte reader and the
+ * context): a small model description (sl_meta) shaped by the first
  * input bytes, and the rules for naming a factor value or a state written
  * here independently from docs/results.md ("Naming a factor value or a
  * state"), to decide what the library's parsers must accept and what they

@@ -31,20 +31,15 @@
 #include <stdlib.h>
 #include <string.h>
 
-#include "core/core.h"
-#include "model/model.h"
+#include "fuzz_meta.h"
 #include "store/store.h"
 
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size);
 
 #define N_ACTIONS 6
 
-typedef struct reader {
-    const uint8_t *d;
-    size_t n, i;
-} reader;
-
-static uint8_t byte(reader *r) { return r->i < r->n ? r->d[r->i++] : 0; }
+typedef fz_reader reader;
+#define byte fz_byte
 
 static double number(reader *r)
 {
@@ -111,9 +106,7 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
 {
     reader r = {data, size, 0};
     sl_ctx ctx;
-    memset(&ctx, 0, sizeof(ctx));
-    ctx.comm = MPI_COMM_NULL;
-    ctx.size = 1;
+    fz_ctx_init(&ctx);
     static const char *paths[4] = {"sol.h5", "val.h5", "ckpt-000001.h5", "fin.h5"};
     static const char *vnames[4] = {"/value", "/value", "/value", "/stage/value_000002"};
     static const char *pnames[4] = {"/policy", "", "/policy", "/stage/policy_000002"};
