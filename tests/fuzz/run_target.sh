@@ -17,7 +17,7 @@ case "$T" in
   validate) libs="src/core/core.c src/model/model.c" ;;
   parse) libs="$store src/analysis/labels.c" ;;
   solution) libs="src/core/core.c src/model/model.c src/store/content.c" ;;
-  statecsv) libs="$store src/analysis/labels.c src/analysis/statecsv.c src/analysis/policycsv.c src/store/solution_io.c src/solve/solution.c src/analysis/words.c"; max_len=2048 ;;
+  statecsv) libs="$store src/analysis/labels.c src/analysis/statecsv.c src/analysis/policycsv.c src/store/solution_io.c src/store/content.c src/solve/solution.c src/analysis/words.c"; max_len=2048 ;;
   *) echo "not ok - unknown fuzz target '$T'"; echo "0 passed, 1 failed"; exit 1 ;;
 esac
 command -v clang >/dev/null || { echo "not ok - clang not installed (Debian: clang libclang-rt-14-dev)"; echo "0 passed, 1 failed"; exit 1; }
