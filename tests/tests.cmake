@@ -101,8 +101,9 @@ set_tests_properties(fuzz_validate PROPERTIES LABELS fuzz TIMEOUT 300)
 # the text a user types to name a factor value or a state (--start, --fix),
 # the CSV files keyed by state (start distributions, rules), and the
 # contents of solution, values, stage and checkpoint files after HDF5 read
-# them: crash regressions and corpus replayed, then a bounded run
-foreach(target parse statecsv solution)
+# them, and build --param NAME=VALUE: crash regressions and corpus replayed,
+# then a bounded run
+foreach(target parse statecsv solution param)
   add_test(NAME fuzz_${target} COMMAND bash ${PROJECT_SOURCE_DIR}/tests/fuzz/run_target.sh ${PROJECT_SOURCE_DIR}
            ${PROJECT_BINARY_DIR}/fuzz_${target} ${target} 30)
   set_tests_properties(fuzz_${target} PROPERTIES LABELS fuzz TIMEOUT 300)

@@ -23,6 +23,13 @@ int cli_common_opt(cli_args *a, const char *help);
 const char *cli_value(cli_args *a);
 /* Strict number parsing; print "sluice CMD: OPTION: ..." on error. */
 int cli_double(cli_args *a, const char *opt, const char *s, double *out);
+/* src/cli/param.c: s is a finite number in C strtod's syntax, the whole of
+ * it, neither overflowing nor underflowing (1 and *out, else 0). */
+int cli_finite(const char *s, double *out);
+/* `--param NAME=VALUE`: NAME is all before the first '=' (not empty), VALUE
+ * all after it, a number as cli_finite takes it. 1, *name_len and *value; or
+ * 0 and the message for the user in err. */
+int cli_param_split(const char *text, size_t *name_len, double *value, char *err, size_t errlen);
 int cli_int64(cli_args *a, const char *opt, const char *s, int64_t *out);
 /* Print a usage error (rank 0) and return SL_EUSAGE. */
 int cli_usage_error(cli_args *a, const char *fmt, ...) __attribute__((format(printf, 2, 3)));

@@ -69,13 +69,16 @@ int cmd_build(cli_args *a)
             if ((output = cli_value(a)) == NULL) rc = SL_EUSAGE;
         } else if (cli_opt(a, "--param")) {
             if ((v = cli_value(a)) == NULL) { rc = SL_EUSAGE; break; }
-            const char *eq = strchr(v, '=');
-            if (eq == NULL || eq == v) { rc = cli_usage_error(a, "--param: expected NAME=VALUE, got '%s'", v); break; }
+            size_t name_len = 0;
+            char msg[600];
             if (o.n_params >= 256) { rc = cli_usage_error(a, "too many --param options"); break; }
-            char *name = strndup(v, (size_t)(eq - v));
+            if (!cli_param_split(v, &name_len, &values[o.n_params], msg, sizeof(msg))) {
+                rc = cli_usage_error(a, "%s", msg);
+                break;
+            }
+            char *name = strndup(v, name_len);
             if (name == NULL) { rc = SL_ENOMEM; break; }
             owned[n_owned++] = name;
-            if (!cli_double(a, name, eq + 1, &values[o.n_params])) { rc = SL_EUSAGE; break; }
             names[o.n_params++] = name;
         } else if (cli_opt(a, "--discount")) {
             if ((v = cli_value(a)) == NULL || !cli_double(a, "--discount", v, &o.discount)) rc = SL_EUSAGE;

@@ -116,15 +116,9 @@ int cli_fail(cli_args *a, sl_status st)
 
 int cli_double(cli_args *a, const char *opt, const char *s, double *out)
 {
-    char *end = NULL;
-    errno = 0;
-    double v = strtod(s, &end);
-    if (s[0] == '\0' || *end != '\0' || errno == ERANGE || !isfinite(v)) {
-        cli_usage_error(a, "%s: '%s' is not a finite number", opt, s);
-        return 0;
-    }
-    *out = v;
-    return 1;
+    if (cli_finite(s, out)) return 1;
+    cli_usage_error(a, "%s: '%s' is not a finite number", opt, s);
+    return 0;
 }
 
 int cli_int64(cli_args *a, const char *opt, const char *s, int64_t *out)

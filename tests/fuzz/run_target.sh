@@ -5,7 +5,8 @@
 # usage: run_target.sh SOURCE_DIR WORKDIR TARGET [SECONDS]
 #   TARGET: validate (model dataset contents), parse (NAME=VALUE and state
 #   text), statecsv (start distributions and rules keyed by state), solution
-#   (the contents of solution, values, stage and checkpoint files)
+#   (the contents of solution, values, stage and checkpoint files), param
+#   (build --param NAME=VALUE and the number options)
 # Documented bounded run: nice -n 10 bash tests/fuzz/run_target.sh . /tmp/fz-parse parse 300
 set -u
 SRC=$1 WORK=$2 T=$3 SECS=${4:-30}
@@ -16,6 +17,7 @@ store="src/core/core.c src/core/names.c src/model/model.c src/model/handle.c src
 case "$T" in
   validate) libs="src/core/core.c src/model/model.c" ;;
   parse) libs="$store src/analysis/labels.c" ;;
+  param) libs="src/cli/param.c" ;;
   solution) libs="src/core/core.c src/model/model.c src/store/content.c" ;;
   statecsv) libs="$store src/analysis/labels.c src/analysis/statecsv.c src/analysis/policycsv.c src/store/solution_io.c src/store/content.c src/solve/solution.c src/analysis/words.c"; max_len=2048 ;;
   *) echo "not ok - unknown fuzz target '$T'"; echo "0 passed, 1 failed"; exit 1 ;;
