@@ -17,6 +17,25 @@ static char *trim(char *s)
     return s;
 }
 
+/* One line of f into buf (newline kept, NUL-terminated). Returns 1 for a
+ * line, 0 at the end of the file, -1 for a line longer than cap - 2 bytes,
+ * -2 for a line holding a NUL byte (which the string functions would take
+ * for its end: part of the line unread, or the line called too long). */
+static int read_line(FILE *f, char *buf, size_t cap)
+{
+    size_t n = 0;
+    int c, nul = 0;
+    while ((c = getc(f)) != EOF) {
+        if (n + 1 >= cap) return -1;
+        if (c == '\0') nul = 1;
+        buf[n++] = (char)c;
+        if (c == '\n') break;
+    }
+    buf[n] = '\0';
+    if (n == 0) return 0;
+    return nul ? -2 : 1;
+}
+
 /* Split a line at commas in place; returns the number of fields (max + 1: too many). */
 static int split(char *line, char **field, int max)
 {
@@ -41,8 +60,10 @@ sl_status sl_state_csv_read(sl_ctx *ctx, const sl_meta *m, const char *path, con
     int64_t lineno = 0, rows = 0;
     int by_factor = 0, nf = 0, fmap[SLUICE_MAX_FACTORS + 1];
     if (f == NULL) return SL_ERR(ctx, SL_ENOINPUT, "%s: %s", path, strerror(errno));
-    if (fgets(line, sizeof(line), f) == NULL) SL_FAIL(SL_EDATA, "%s: empty file (expected a header line)", path);
+    int got = read_line(f, line, sizeof(line));
+    if (got == 0) SL_FAIL(SL_EDATA, "%s: empty file (expected a header line)", path);
     lineno = 1;
+    if (got < 0) SL_FAIL(SL_EDATA, "%s line 1: %s", path, got == -1 ? "line too long" : "a NUL byte (not a text file?)");
     nf = split(line, field, SLUICE_MAX_FACTORS + 1);
     if (nf == 2 && strcmp(field[0], "state") == 0 && strcmp(field[1], last) == 0) {
         by_factor = 0;
@@ -57,9 +78,11 @@ sl_status sl_state_csv_read(sl_ctx *ctx, const sl_meta *m, const char *path, con
     } else {
         SL_FAIL(SL_EDATA, "%s line 1: the header must be 'state,%s' or every factor name then '%s'", path, last, last);
     }
-    while (fgets(line, sizeof(line), f) != NULL) {
+    while ((got = read_line(f, line, sizeof(line))) != 0) {
         lineno++;
-        if (strchr(line, '\n') == NULL && !feof(f)) SL_FAIL(SL_EDATA, "%s line %lld: line too long", path, (long long)lineno);
+        if (got < 0)
+            SL_FAIL(SL_EDATA, "%s line %lld: %s", path, (long long)lineno,
+                    got == -1 ? "line too long" : "a NUL byte (not a text file?)");
         if (trim(line)[0] == '\0') continue;
         int k = split(line, field, SLUICE_MAX_FACTORS + 1);
         if (k != nf) SL_FAIL(SL_EDATA, "%s line %lld: %d fields, the header has %d", path, (long long)lineno, k, nf);

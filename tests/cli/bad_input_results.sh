@@ -45,6 +45,11 @@ expect "rule CSV: a state without a row" --code 65 --err "miss.csv" --err "no ro
 mk dup.csv 4 "$line3"
 expect "rule CSV: a state given twice" --code 65 --err "dup.csv line 4" --err "twice" --err "line 3" --gone "$O" --gone "$W/v.h5" -- \
     "${E[@]}" --compare "$W/dup.csv" --totals "$O"
+# a NUL byte inside line 3 (a binary file, a bad editor): said as such, not
+# "line too long" nor a state read only up to the NUL
+{ sed -n 1,2p "$W/good.csv"; printf '%s' "${line3%%,*}"; printf '\0'; printf '%s\n' "${line3#*,}"; sed -n '4,$p' "$W/good.csv"; } >"$W/nul.csv"
+expect "rule CSV: a NUL byte in line 3" --code 65 --err "nul.csv line 3" --err "NUL byte" --not "too long" \
+    --gone "$O" --gone "$W/v.h5" -- "${E[@]}" --compare "$W/nul.csv" --totals "$O"
 sed '1s/action/release/' "$W/good.csv" > "$W/hdr.csv"
 expect "rule CSV: bad header" --code 65 --err "hdr.csv line 1" --err "'action'" --gone "$O" --gone "$W/v.h5" -- \
     "${E[@]}" --compare "$W/hdr.csv" --totals "$O"
