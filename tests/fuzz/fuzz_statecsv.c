@@ -27,7 +27,8 @@
  *    path and, where it names a line, a line of the file.
  * With NUL bytes kept (the C library's line reading and this file's
  * reading may see different lines) only the second and third hold, on the
- * library's own result.
+ * library's own result; and a file holding a NUL byte is never accepted,
+ * and a message that speaks of a NUL byte names the line of the first one.
  */
 #define _POSIX_C_SOURCE 200809L
 #include <unistd.h>
@@ -37,20 +38,22 @@
 int LLVMFuzzerInitialize(int *argc, char ***argv);
 int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size);
 
-/* libFuzzer passes no user pointer: the temporary file of this process */
+/* libFuzzer passes no user pointer: the temporary file of this process,
+ * named by its descriptor (/proc/self/fd/N). Its directory entry is removed
+ * as soon as it is made, so a run that crashes or is killed leaves nothing
+ * in /dev/shm (an exit handler does not run then); the kernel frees the
+ * file when the process ends, however it ends. */
 static char tmp_path[64];
-
-static void remove_tmp(void) { unlink(tmp_path); }
 
 int LLVMFuzzerInitialize(int *argc, char ***argv)
 {
     (void)argc;
     (void)argv;
-    snprintf(tmp_path, sizeof(tmp_path), "%s/sluice-fuzz-statecsv-XXXXXX", access("/dev/shm", W_OK) == 0 ? "/dev/shm" : "/tmp");
-    int fd = mkstemp(tmp_path);
-    if (fd < 0) abort();
-    close(fd);
-    atexit(remove_tmp);
+    char name[64];
+    snprintf(name, sizeof(name), "%s/sluice-fuzz-statecsv-XXXXXX", access("/dev/shm", W_OK) == 0 ? "/dev/shm" : "/tmp");
+    int fd = mkstemp(name);
+    if (fd < 0 || unlink(name) != 0) abort();
+    snprintf(tmp_path, sizeof(tmp_path), "/proc/self/fd/%d", fd);
     return 0;
 }
 
@@ -203,13 +206,21 @@ static int expect_rows(const sl_meta *m, char *text, const char *last, int64_t *
 }
 
 /* A rejection: SL_EDATA, the path first, any line named one of the file. */
-static void check_rejection(const sl_ctx *ctx, sl_status st, int64_t nlines)
+static void check_rejection(const sl_ctx *ctx, sl_status st, int64_t nlines, int64_t nul_line)
 {
     const char *l = strstr(ctx->err, " line ");
     size_t n = strlen(tmp_path);
     if (st != SL_EDATA || strncmp(ctx->err, tmp_path, n) != 0 || (l && (atoll(l + 6) < 1 || atoll(l + 6) > nlines))) {
         fprintf(stderr, "rejected with status %d, message '%s' (want 65, naming the file and a line of its %lld)\n",
                 (int)st, ctx->err, (long long)nlines);
+        abort();
+    }
+    /* "PATH line N: a NUL byte ..." (the file's own text may say "NUL byte" too) */
+    char *e = NULL;
+    long long ln = strncmp(ctx->err + n, " line ", 6) == 0 ? strtoll(ctx->err + n + 6, &e, 10) : -1;
+    if (e && strncmp(e, ": a NUL byte", 12) == 0 && ln != nul_line) {
+        fprintf(stderr, "message '%s' names a NUL byte; the first is on line %lld (-1: none)\n", ctx->err,
+                (long long)nul_line);
         abort();
     }
 }
@@ -274,7 +285,11 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
     if (!keep_nul) len = strlen(text);
     memcpy(copy, text, len + 1);
     int64_t nlines = 1;
-    for (size_t k = 0; k < len; k++) nlines += text[k] == '\n';
+    int64_t nul_line = -1; /* the line of the first NUL byte, -1 if none */
+    for (size_t k = 0; k < len; k++) {
+        if (text[k] == '\0' && nul_line < 0) nul_line = nlines;
+        nlines += text[k] == '\n';
+    }
     FILE *out = fopen(tmp_path, "w");
     if (out == NULL) abort();
     if (fwrite(text, 1, len, out) != len || fclose(out) != 0) abort();
@@ -303,12 +318,13 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
             }
             if (!(fabs(s2 - 1.0) <= 1e-9)) fail("accepted probabilities do not sum to 1 within 1e-9", n, &ctx);
             if (!keep_nul && !want) fail("an invalid start distribution was accepted", 0, &ctx);
+            if (nul_line >= 0) fail("a start distribution with a NUL byte was accepted", nul_line, &ctx);
             for (int64_t k = 0; want && k < n; k++)
                 if (n != nrows || st_out[k] != states[k] || p_out[k] != strtod(lastf[k], NULL))
                     fail("an accepted row differs from the file read independently", k, &ctx);
         } else {
             if (want) fail("a valid start distribution was rejected", 0, &ctx);
-            check_rejection(&ctx, st, nlines);
+            check_rejection(&ctx, st, nlines, nul_line);
         }
     } else {
         int64_t ns = m.n_states;
@@ -343,6 +359,7 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
             if (want_action[s] < 0) want = 0;
         sl_status st = sl_rule_read_local(&ctx, &m, acts.n, tmp_path, got, got_line);
         if (st == SL_OK) st = sl_policy_pairs(&ctx, &m, 0, ns, fp, pa, got, got_line, tmp_path, "", NULL);
+        if (st == SL_OK && nul_line >= 0) fail("a rule with a NUL byte was accepted", nul_line, &ctx);
         if (st == SL_OK) {
             for (int64_t s = 0; s < ns; s++) {
                 if (got[s] < 0 || got[s] >= acts.n || !offered(&acts, s, got[s]))
@@ -354,7 +371,7 @@ int LLVMFuzzerTestOneInput(const uint8_t *data, size_t size)
             }
         } else {
             if (want) fail("a valid rule was rejected", 0, &ctx);
-            check_rejection(&ctx, st, nlines);
+            check_rejection(&ctx, st, nlines, nul_line);
         }
         free(want_action);
         free(want_line);
