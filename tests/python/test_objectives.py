@@ -852,8 +852,8 @@ def stop_when_logged(binary, nranks, args, trigger, room, sig):
         if nranks == 1:
             p = subprocess.Popen([binary] + args, stdout=subprocess.DEVNULL, stderr=w)
         else:
-            wrap = ('if [ "$OMPI_COMM_WORLD_RANK" = 0 ]; then exec "$0" "$@" 2>/proc/%d/fd/%d; fi; exec "$0" "$@"'
-                    % (os.getpid(), w))
+            wrap = ('if [ "${OMPI_COMM_WORLD_RANK:-$PMI_RANK}" = 0 ]; then exec "$0" "$@" 2>/proc/%d/fd/%d; fi; '
+                    'exec "$0" "$@"' % (os.getpid(), w))
             p = subprocess.Popen([mpiexec(), "-n", str(nranks), "--oversubscribe", "sh", "-c", wrap, binary] + args,
                                  stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
         deadline = time.monotonic() + 300  # only against a hang
@@ -935,7 +935,8 @@ def check_pi_checkpoints(chk, binary, work):
                 not any(i <= k for i in lines)
             chk.check(("resumed policy iteration after iteration %d " % k) in log and cont
                       and int(s["iterations"]) == n_its,
-                      "%s: resumed after iteration %d, the later iterations are those of the uninterrupted run" % (tag, k),
+                      "%s: resumed after iteration %d, the later iterations are those of the uninterrupted run"
+                      % (tag, k),
                       "iterations %s of %d; %s" % (s.get("iterations"), n_its, log.strip()[-300:]))
             if obj == "total":
                 d = float(np.max(np.abs(s["value"] - ref["value"])))
@@ -992,8 +993,8 @@ def check_pi_checkpoints(chk, binary, work):
             chk.check(seen and rc == 75 and 1 <= k < n_its,
                       "%s: exit 75 with a checkpoint after iteration %d of %d (from the log)" % (tag, k, n_its),
                       "rc %d, trigger seen %s; %s" % (rc, seen, log.strip()[-400:]))
-            chk.note("%s: the log shows the stop after iteration %d%s" %
-                     (tag, k, " (the factorization under way was abandoned)" if "direct solve abandoned" in log else ""))
+            abandoned = " (the factorization under way was abandoned)" if "direct solve abandoned" in log else ""
+            chk.note("%s: the log shows the stop after iteration %d%s" % (tag, k, abandoned))
             if k < 1:
                 continue
             check_ckpt(tag, ck, k)
