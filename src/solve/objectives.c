@@ -110,6 +110,38 @@ static int poll_stop(sl_ctx *ctx, const sl_obj_opts *o, double t0, double *last_
     return agreed;
 }
 
+/* The checkpoints of the total and average objectives (value iteration,
+ * relative value iteration and policy iteration alike): the ordinary
+ * ckpt-NNNNNN.h5 files of sl_ckpt_write (atomic, the newest two kept),
+ * values of the owned states, the policy as action ids, and the solver
+ * state whose method says who wrote it ("total", "average", "pi-total",
+ * "pi-average"). acts is scratch of n_local + 1. Collective. */
+static sl_status obj_ckpt_save(sl_ctx *ctx, const sl_problem *p, const sl_obj_opts *o, const char *method,
+                               const double *value, const int32_t *policy, int32_t *acts, sl_solver_state *S,
+                               const sl_history *hist)
+{
+    sl_policy_actions(p, policy, acts);
+    snprintf(S->method, sizeof(S->method), "%s", method);
+    return sl_ckpt_write(ctx, o->checkpoint_dir, o->fingerprint, p->meta.n_states, p->blk.s_begin, p->n_local, value,
+                         acts, S, hist);
+}
+
+/* The newest usable checkpoint of o->checkpoint_dir into value, policy
+ * (pair offsets), *S and *hist; *found = 0 when there is none (nothing
+ * changed then). A checkpoint of another model or objective is refused
+ * (SL_EDATA, by its fingerprint). acts is scratch of n_local + 1.
+ * Collective. */
+static sl_status obj_ckpt_resume(sl_ctx *ctx, const sl_problem *p, const sl_obj_opts *o, double *value,
+                                 int32_t *policy, int32_t *acts, sl_solver_state *S, sl_history *hist, int *found)
+{
+    sl_status st = SL_OK;
+    SL_TRY(sl_ckpt_load(ctx, o->checkpoint_dir, o->fingerprint, p->meta.n_states, p->blk.s_begin, p->n_local, value,
+                        acts, S, hist, found));
+    if (*found) SL_TRY(sl_agree(ctx, sl_policy_offsets(ctx, p, acts, policy, o->checkpoint_dir)));
+cleanup:
+    return st;
+}
+
 /* ---- finite horizon ----------------------------------------------------------- */
 
 /* Per-stage residuals of stored stage values: e*_t = sup |T V_{t+1} - V_t|
@@ -619,10 +651,19 @@ static sl_status check_closed_classes(sl_ctx *ctx, const sl_problem *p, const in
  * *fallback gets the reason and SL_OK is returned with x and policy as they
  * are (the last evaluated values and the policy greedy for them; zero and
  * the first actions before any evaluation) for value iteration to finish
- * from; under strict memory an estimate over the limit is SL_EDATA. No
- * checkpoints: a signal or the walltime stops it with the last evaluated
- * policy (SL_ESTOPPED). The certificate is then computed from the values as
- * for value iteration. Collective. */
+ * from; under strict memory an estimate over the limit is SL_EDATA.
+ * Checkpoints (obj_ckpt_save, method "pi-total"/"pi-average"): at the top
+ * of an iteration, when a stop, a checkpoint signal or --checkpoint-every
+ * is due, the last evaluated values and the policy greedy for them - all
+ * the next iteration needs, since it evaluates that policy afresh. A signal
+ * during a factorization abandons it (x and policy stay as they were) and
+ * the loop top acts on the request; --walltime is looked at there only. A
+ * stop before the first evaluation has nothing to save and leaves any
+ * earlier checkpoint alone. --resume continues from a policy-iteration
+ * checkpoint as it stood; from a value-iteration one (of these solvers, or
+ * of an earlier fallback) it starts from the policy greedy for its values.
+ * A signal or the walltime stops it with SL_ESTOPPED; the certificate is
+ * then computed from the values as for value iteration. Collective. */
 static sl_status policy_iteration(sl_ctx *ctx, const sl_problem *p0, const sl_obj_opts *o, int average, double *x,
                                   double *y, int32_t *policy, int64_t *iterations, char *fallback, size_t fallback_len)
 {
@@ -634,18 +675,58 @@ static sl_status policy_iteration(sl_ctx *ctx, const sl_problem *p0, const sl_ob
                           : o->direct_time_limit < 0 ? 0.0
                                                      : SL_DIRECT_TIME_LIMIT;
     const char *vi = average ? "relative value iteration" : "value iteration";
+    const char *method = average ? "pi-average" : "pi-total";
     char doing[96];
     snprintf(doing, sizeof(doing), "falling back to %s", vi);
     q.direct_fallback = doing;
     const sl_problem *p = &q;
     void *lu = NULL;
+    int32_t *acts = NULL;
+    sl_solver_state S;
+    sl_history hist;
+    memset(&S, 0, sizeof(S));
+    memset(&hist, 0, sizeof(hist));
     double t0 = sl_now(), last = t0, mem = o->memory_limit > 0 ? o->memory_limit : 0.5 * sl_physical_memory();
     fallback[0] = '\0';
     int owner = p->blk.s_begin == 0 && p->n_local > 0;
     *iterations = 0;
-    for (;;) {
+    if (o->checkpoint_dir && SL_ALLOC(ctx, acts, p->n_local + 1, "policy") == NULL) st = SL_ENOMEM;
+    st = sl_agree(ctx, st);
+    int have = 0; /* x and policy hold a state worth saving */
+    if (st == SL_OK && o->resume && o->checkpoint_dir) {
+        int found = 0;
+        st = obj_ckpt_resume(ctx, p, o, x, policy, acts, &S, &hist, &found);
+        if (st == SL_OK && found && strcmp(S.method, method) == 0) {
+            *iterations = S.iteration;
+            have = 1;
+            sl_log(ctx, "solve: resumed policy iteration after iteration %lld (the checkpoint's values and policy)",
+                   (long long)S.iteration);
+        } else if (st == SL_OK && found) {
+            /* written by value iteration: its values, and the policy greedy
+             * for them (ties kept as the checkpoint had them) */
+            st = sl_halo_exchange(ctx, &p->halo, x);
+            sl_check c;
+            if (st == SL_OK) sl_bellman_check(p, x, y, policy, &c);
+            have = st == SL_OK;
+            sl_log(ctx, "solve: resumed policy iteration from a %s checkpoint (iteration %lld): starting from the "
+                        "policy greedy for its values",
+                   vi, (long long)S.iteration);
+            memset(&S, 0, sizeof(S));
+        }
+    }
+    while (st == SL_OK) {
         int pr = poll_stop(ctx, o, t0, &last);
-        if (pr == 2 || (o->max_iterations > 0 && *iterations >= o->max_iterations)) {
+        if (o->max_iterations > 0 && *iterations >= o->max_iterations) pr = 2;
+        if (pr >= 1 && o->checkpoint_dir && have) {
+            S.iteration = S.sweeps = *iterations;
+            st = obj_ckpt_save(ctx, p, o, method, x, policy, acts, &S, &hist);
+            if (st != SL_OK) break;
+            sl_log(ctx, "solve: checkpoint after policy iteration %lld written to %s", (long long)*iterations,
+                   o->checkpoint_dir);
+        }
+        if (pr == 2) {
+            if (o->checkpoint_dir && !have)
+                sl_log(ctx, "solve: stopped before the first policy evaluation: nothing to checkpoint");
             st = SL_ESTOPPED;
             break;
         }
@@ -669,10 +750,7 @@ static sl_status policy_iteration(sl_ctx *ctx, const sl_problem *p0, const sl_ob
                         p->path, (long long)*iterations + 1, msg);
         }
         if (st != SL_OK) break;
-        if (abandoned) { /* a stop request killed the factorization; x is as before */
-            st = SL_ESTOPPED;
-            break;
-        }
+        if (abandoned) continue; /* a signal killed the factorization; x is as before; the loop top acts on it */
         if (!used) {
             char instead[96];
             snprintf(instead, sizeof(instead), "solve by %s", vi);
@@ -693,13 +771,15 @@ static sl_status policy_iteration(sl_ctx *ctx, const sl_problem *p0, const sl_ob
                             "of iteration %lld",
                        fallback, doing, (long long)*iterations);
             else
-                sl_log(ctx, "solve: policy iteration without a direct solve: %s; %s from the start", fallback, doing);
+                sl_log(ctx, "solve: policy iteration without a direct solve: %s; %s from %s", fallback, doing,
+                       have ? "the checkpoint's values" : "the start");
             break;
         }
         double g = owner ? x[0] : 0.0;
         MPI_Allreduce(MPI_IN_PLACE, &g, 1, MPI_DOUBLE, MPI_SUM, ctx->comm);
         if (average && owner) x[0] = 0.0; /* h(0) = 0; the solve put g there */
         (*iterations)++;
+        have = 1;
         st = sl_halo_exchange(ctx, &p->halo, x);
         if (st != SL_OK) break;
         sl_check c;
@@ -714,6 +794,8 @@ static sl_status policy_iteration(sl_ctx *ctx, const sl_problem *p0, const sl_ob
     }
     st = sl_agree(ctx, st);
     sl_evaluate_direct_free(&lu);
+    free(acts);
+    sl_history_free(&hist);
     return st;
 }
 
@@ -789,9 +871,7 @@ static sl_status solve_total(sl_ctx *ctx, const sl_problem *p, const sl_obj_opts
     S.iteration = pi_its;
     if (o->resume && o->checkpoint_dir && !res->fallback[0]) {
         int found = 0;
-        st = sl_ckpt_load(ctx, o->checkpoint_dir, o->fingerprint, p->meta.n_states, p->blk.s_begin, n, res->value,
-                          acts, &S, &hist, &found);
-        if (st == SL_OK && found) st = sl_agree(ctx, sl_policy_offsets(ctx, p, acts, res->policy, o->checkpoint_dir));
+        st = obj_ckpt_resume(ctx, p, o, res->value, res->policy, acts, &S, &hist, &found);
         if (st == SL_OK && found) sl_log(ctx, "solve: resumed at iteration %lld", (long long)S.iteration);
         if (st != SL_OK) goto total_done;
     }
@@ -801,10 +881,7 @@ static sl_status solve_total(sl_ctx *ctx, const sl_problem *p, const sl_obj_opts
         int pr = poll_stop(ctx, o, t0, &last_ckpt);
         if (o->max_iterations > 0 && S.iteration >= o->max_iterations) pr = 2;
         if (pr >= 1 && o->checkpoint_dir) {
-            sl_policy_actions(p, res->policy, acts);
-            snprintf(S.method, sizeof(S.method), "total");
-            st = sl_ckpt_write(ctx, o->checkpoint_dir, o->fingerprint, p->meta.n_states, p->blk.s_begin, n,
-                               res->value, acts, &S, &hist);
+            st = obj_ckpt_save(ctx, p, o, "total", res->value, res->policy, acts, &S, &hist);
             if (st != SL_OK) goto total_done;
         }
         if (pr == 2) {
@@ -1068,12 +1145,8 @@ static sl_status solve_average(sl_ctx *ctx, const sl_problem *p, const sl_obj_op
     S.iteration = S.sweeps = pi_its;
     if (o->resume && o->checkpoint_dir && !res->fallback[0]) {
         int found = 0;
-        SL_TRY(sl_ckpt_load(ctx, o->checkpoint_dir, o->fingerprint, p->meta.n_states, p->blk.s_begin, n, res->value,
-                            acts, &S, &hist, &found));
-        if (found) {
-            SL_TRY(sl_agree(ctx, sl_policy_offsets(ctx, p, acts, res->policy, o->checkpoint_dir)));
-            sl_log(ctx, "solve: resumed at iteration %lld", (long long)S.iteration);
-        }
+        SL_TRY(obj_ckpt_resume(ctx, p, o, res->value, res->policy, acts, &S, &hist, &found));
+        if (found) sl_log(ctx, "solve: resumed at iteration %lld", (long long)S.iteration);
     }
     /* stall detection: the span of Th - h after K iterations against now */
     const int64_t K = 2000;
@@ -1084,10 +1157,7 @@ static sl_status solve_average(sl_ctx *ctx, const sl_problem *p, const sl_obj_op
         int pr = poll_stop(ctx, o, t0, &last_ckpt);
         if (o->max_iterations > 0 && S.iteration >= o->max_iterations) pr = 2;
         if (pr >= 1 && o->checkpoint_dir) {
-            sl_policy_actions(p, res->policy, acts);
-            snprintf(S.method, sizeof(S.method), "average");
-            SL_TRY(sl_ckpt_write(ctx, o->checkpoint_dir, o->fingerprint, p->meta.n_states, p->blk.s_begin, n,
-                                 res->value, acts, &S, &hist));
+            SL_TRY(obj_ckpt_save(ctx, p, o, "average", res->value, res->policy, acts, &S, &hist));
         }
         if (pr == 2) {
             st = SL_ESTOPPED;

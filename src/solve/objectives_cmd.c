@@ -205,9 +205,6 @@ sl_status sl_objective_solve(const sl_model *m, const sl_objective_opts *o)
     oo.memory_limit = o->memory_limit;
     oo.strict_memory = o->strict_memory;
     oo.direct_time_limit = o->direct_time_limit;
-    if (oo.policy_iteration && o->checkpoint_dir)
-        sl_warn(ctx, "policy iteration writes no checkpoints (it takes few iterations); --checkpoint applies only "
-                     "if it falls back to value iteration");
     sl_log(ctx, "solve: %s, %lld states, objective %s, %d rank(s), tolerance %.1e", model,
            (long long)P.meta.n_states, sl_objective_name(obj), ctx->size, oo.tolerance);
     outcome = sl_obj_solve(ctx, &P, &oo, &R);

@@ -279,6 +279,12 @@ ck_mpi_init() {
     if "$MPIEXEC" --version 2>&1 | grep -q "Open MPI"; then
         MPIFLAGS=(--oversubscribe)
     fi
+    # CK_HANG: seconds after which a run under mpirun is taken to hang
+    # (`timeout "$CK_HANG" mpirun ...`). A guard against a deadlock, not a
+    # speed check: with both cores busy (stress-ng, the rest of the suite and
+    # other work, load average 8-9) a 3-rank build of 7,200 states in blocks
+    # of 777 transitions ran past the 300 s this guard used to be.
+    CK_HANG=${SLUICE_TEST_HANG_GUARD:-1200}
 }
 
 # ck_mpirun N ARGS...: sluice ARGS on N ranks

@@ -31,7 +31,7 @@ for bt in 1 777 20000; do
     variants+=("b$bt.h5")
 done
 for np in 2 3; do
-    timeout 300 "$MPIEXEC" -np $np "${MPIFLAGS[@]}" "$SLUICE" build "$GEN" "${P[@]}" --block-transitions 777 \
+    timeout "$CK_HANG" "$MPIEXEC" -np $np "${MPIFLAGS[@]}" "$SLUICE" build "$GEN" "${P[@]}" --block-transitions 777 \
         -o "np$np.h5" >"np$np.log" 2>&1 </dev/null
     ck_rc "build on $np ranks in blocks of 777 transitions" 0 $?
     variants+=("np$np.h5")

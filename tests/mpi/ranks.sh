@@ -63,7 +63,7 @@ solve_all() {
     for m in "${METHODS[@]}"; do
         for n in "${RANKS[@]}"; do
             t0=$EPOCHREALTIME
-            timeout 300 "$MPIEXEC" -np "$n" "${MPIFLAGS[@]}" "$SLUICE" solve "$model" -o "$name-$m-np$n.h5" \
+            timeout "$CK_HANG" "$MPIEXEC" -np "$n" "${MPIFLAGS[@]}" "$SLUICE" solve "$model" -o "$name-$m-np$n.h5" \
                 --method "$m" --tolerance $tol -q >"$name-$m-np$n.log" 2>&1
             rc=$?
             if [ $rc -ne 0 ]; then
@@ -110,7 +110,7 @@ fi
 
 # ---- the reservoir example ------------------------------------------------------------------
 for n in "${RANKS[@]}"; do
-    timeout 300 "$MPIEXEC" -np "$n" "${MPIFLAGS[@]}" "$SLUICE" build "$SRC/examples/reservoir.c" \
+    timeout "$CK_HANG" "$MPIEXEC" -np "$n" "${MPIFLAGS[@]}" "$SLUICE" build "$SRC/examples/reservoir.c" \
         -o "res-np$n.h5" -q >"build-np$n.log" 2>&1 || ck_not_ok "build on $n ranks" "$(tail -n 3 "build-np$n.log")"
 done
 models_agree res
@@ -124,7 +124,7 @@ m = mc.random_mdp(seed=4711, n=3000, gamma=0.95, actions=(1, 5), successors=(1, 
 mc.write_csv(m, "random.csv", shuffle_seed=7)
 EOF
 for n in "${RANKS[@]}"; do
-    timeout 300 "$MPIEXEC" -np "$n" "${MPIFLAGS[@]}" "$SLUICE" import random.csv --discount 0.95 \
+    timeout "$CK_HANG" "$MPIEXEC" -np "$n" "${MPIFLAGS[@]}" "$SLUICE" import random.csv --discount 0.95 \
         -o "rnd-np$n.h5" -q >"import-np$n.log" 2>&1 || ck_not_ok "import on $n ranks" "$(tail -n 3 "import-np$n.log")"
 done
 models_agree rnd

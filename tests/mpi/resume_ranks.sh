@@ -23,7 +23,7 @@ ck_build_reservoir m.h5 || { ck_not_ok "build the reservoir model"; ck_finish; }
 run() {
     local n=$1 log=$2
     shift 2
-    timeout 300 "$MPIEXEC" -np "$n" "${MPIFLAGS[@]}" "$SLUICE" solve m.h5 --tolerance $tol --progress-every 1000 \
+    timeout "$CK_HANG" "$MPIEXEC" -np "$n" "${MPIFLAGS[@]}" "$SLUICE" solve m.h5 --tolerance $tol --progress-every 1000 \
         "$@" >"$log" 2>&1
     rc=$?
 }

@@ -35,7 +35,7 @@ solve_counts() {
     local model=$1 name=$2 n rc tol=${SOLVE_TOL:-$TOL}
     shift 2
     for n in "$@"; do
-        timeout 300 "$MPIEXEC" -np "$n" "${MPIFLAGS[@]}" "$SLUICE" solve "$model" -o "$name-np$n.h5" --method gs \
+        timeout "$CK_HANG" "$MPIEXEC" -np "$n" "${MPIFLAGS[@]}" "$SLUICE" solve "$model" -o "$name-np$n.h5" --method gs \
             --tolerance "$tol" --report "$name-np$n.json" -q >"$name-np$n.log" 2>&1
         rc=$?
         [ $rc = 0 ] || { ck_not_ok "$name: gs on $n ranks: exit $rc" "$(tail -n 3 "$name-np$n.log" | tr '\n' ' ')"; }

@@ -25,15 +25,24 @@ References (each check names its own):
 
 Also: improper and multichain models are refused naming a state; 1, 2 and
 3 ranks agree; resuming from a checkpoint gives the same answer; verify
-fails on tampered files.
+fails on tampered files; policy iteration checkpoints, stops on signals and
+resumes where its log says, and falls back half-way to value iteration.
 
-usage: [OBJ_PARTS=finite,total,average,ranks] test_objectives.py SLUICE_BINARY WORKDIR
+usage: [OBJ_PARTS=finite,total,average,pi,ranks,fallback,checkpoints,generator,pi_checkpoints,pi_midway]
+       test_objectives.py SLUICE_BINARY WORKDIR
 """
 
+import fcntl
 import json
 import os
+import re
 import shutil
+import signal
+import struct
+import subprocess
 import sys
+import termios
+import time
 from fractions import Fraction as F
 
 import h5py
@@ -785,6 +794,333 @@ def check_generator_terminal(chk, binary, work):
                   cp.stderr.strip()[-300:])
 
 
+# ---- policy iteration: checkpoints, resume, a fallback half-way -------------
+
+def canal(n, seed, objective, freight):
+    """Invented model (no source): a barge works down a canal of n - 1 locks.
+    At lock s it may tie up (action 0: the trip ends, reward 0) or go on
+    (action 1: a toll of about 1, and at each lock a chance of 1/8 of being
+    turned back, which ends the trip); the last lock pays the freight.
+    State 0 is the end of a trip: absorbing for the total objective, a new
+    trip may start (action 1) for the average one. From the policy 'tie up
+    everywhere' policy iteration learns one lock per iteration, from the
+    last lock backwards, so it takes many iterations: room for a stop half-way."""
+    rng = np.random.default_rng(seed)
+    if objective == "total":
+        states = [[(0, [(0, 1.0, 0.0)])]]
+    else:
+        states = [[(0, [(0, 1.0, 0.0)]), (1, [(1, 1.0, -1.0)])]]
+    for s in range(1, n):
+        a1 = ((1, [(s + 1, 0.875, -1.0 + 0.1 * float(rng.uniform())), (0, 0.125, -1.0)]) if s < n - 1
+              else (1, [(0, 1.0, freight)]))
+        states.append([(0, [(0, 1.0, 0.0)]), a1])
+    return states
+
+
+F_SETPIPE_SZ, F_GETPIPE_SZ = 1031, 1032  # fcntl.h (Linux)
+
+
+def pi_lines(log):
+    """{k: text} of the lines 'solve: policy iteration k: ...' of a log."""
+    out = {}
+    for line in log.splitlines():
+        m = re.match(r"solve: policy iteration (\d+): (.*)$", line)
+        if m:
+            out[int(m.group(1))] = m.group(2)
+    return out
+
+
+def stop_when_logged(binary, nranks, args, trigger, room, sig):
+    """Run sluice with rank 0's log going into a one-page pipe that holds
+    4096 - room bytes already: on Linux a write to such a pipe appends to
+    its page or waits until the reader has taken everything, so sluice can
+    log `room` bytes and no more while this reader keeps one byte back.
+    Once `trigger` has been logged, send sig (to sluice, or to mpiexec,
+    which forwards it), then read everything. Where the stop landed is for
+    the caller to read from the log, not from any clock. Returns (exit
+    code, rank 0's log, whether the trigger was seen)."""
+    r, w = os.pipe()
+    log = b""
+    seen = False
+    try:
+        fcntl.fcntl(w, F_SETPIPE_SZ, 4096)
+        cap = fcntl.fcntl(w, F_GETPIPE_SZ)
+        if cap != 4096:
+            raise mc.SluiceError("cannot make a one-page pipe (got %d bytes)" % cap)
+        os.write(w, b"\n" * (cap - room))
+        args = [str(a) for a in args]
+        if nranks == 1:
+            p = subprocess.Popen([binary] + args, stdout=subprocess.DEVNULL, stderr=w)
+        else:
+            wrap = ('if [ "${OMPI_COMM_WORLD_RANK:-$PMI_RANK}" = 0 ]; then exec "$0" "$@" 2>/proc/%d/fd/%d; fi; '
+                    'exec "$0" "$@"' % (os.getpid(), w))
+            p = subprocess.Popen([mpiexec(), "-n", str(nranks), "--oversubscribe", "sh", "-c", wrap, binary] + args,
+                                 stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+        deadline = time.monotonic() + 300  # only against a hang
+        while time.monotonic() < deadline:
+            avail = struct.unpack("i", fcntl.ioctl(r, termios.FIONREAD, b"\0\0\0\0"))[0]
+            if avail > 1:
+                log += os.read(r, avail - 1)
+            if trigger in log:
+                seen = True
+                break
+            if p.poll() is not None:
+                break
+            time.sleep(0.005)
+        p.send_signal(sig)
+    finally:
+        os.close(w)
+    while True:
+        chunk = os.read(r, 65536)
+        if not chunk:
+            break
+        log += chunk
+    os.close(r)
+    rc = p.wait(timeout=300)
+    return rc, log.decode(errors="replace").lstrip("\n"), seen
+
+
+def newest_ckpt(d):
+    names = sorted(n for n in os.listdir(d) if re.fullmatch(r"ckpt-\d+\.h5", n))
+    return os.path.join(d, names[-1]) if names else None
+
+
+def check_pi_checkpoints(chk, binary, work):
+    """Policy iteration of the total and average objectives checkpoints and
+    resumes. Stops: by --max-iterations, by SIGTERM (1 rank) and SIGUSR2 to
+    mpiexec (2 ranks) sent once the log shows the first iteration (where it
+    stopped is read from the log), and SIGUSR1 (checkpoint, go on). Each
+    resumed run must continue where the log says the checkpoint was taken:
+    the per-iteration log lines after it and the iteration count equal those
+    of an uninterrupted run, the final policy is the same and the values
+    (gain) agree within the certificates; the result also equals the HiGHS
+    LP of the model (Bertsekas & Tsitsiklis 1991 for total; Puterman 1994,
+    Section 8.8 for average; both recalled from memory). The checkpoint
+    files are read with h5py: method pi-total / pi-average, and the saved
+    policy is greedy for the saved values (numpy). A value-iteration
+    checkpoint resumed with --method pi starts from the greedy policy of its
+    values; a policy-iteration checkpoint resumed by value iteration goes on
+    from its values."""
+    multi = mpiexec() is not None
+    if not multi:
+        chk.note("no mpiexec: the 2-rank cases are skipped")
+    for obj, freight in (("total", 60.0), ("average", 400.0)):
+        mdp = float_states(canal(24, 71, obj, freight), 1.0)
+        model = imp(binary, mdp, work, "pck_" + obj, obj)
+        base = ["--method", "pi", "--tolerance", "1e-8"]
+        full = os.path.join(work, "pck_%s_full.h5" % obj)
+        cp = mc.run_sluice(binary, ["solve", model, "-o", full] + base)
+        ref, ref_log = mc.read_solution(full), cp.stderr
+        ref_lines = pi_lines(ref_log)
+        n_its = len(ref_lines)
+        trig = ref_log.index("solve: policy iteration 1:")
+        prefix = ref_log.index("\n", trig) + 1  # log bytes through iteration 1
+        chk.check(n_its >= 12 and int(ref["iterations"]) == n_its,
+                  "%s pi: the canal takes %d policy iterations (>= 12 needed for stops half-way)" % (obj, n_its))
+        if obj == "total":
+            lp = R.total_lp(mdp)
+            err = float(np.max(np.abs(ref["value"] - lp)))
+            ok = err <= 1e-7 * (1 + np.max(np.abs(lp)))
+        else:
+            lp, _ = R.average_dual_lp(mdp)
+            err = abs(ref["gain"] - lp)
+            ok = err <= 1e-7
+        chk.check(ok and bool(ref["converged"]), "%s pi: uninterrupted run certified and equal to the HiGHS LP" % obj,
+                  "err %.3g" % err)
+
+        def same_as_ref(tag, out, log, k):
+            s = mc.read_solution(out)
+            lines = pi_lines(log)
+            cont = all(lines.get(i) == ref_lines[i] for i in range(k + 1, n_its + 1)) and \
+                not any(i <= k for i in lines)
+            chk.check(("resumed policy iteration after iteration %d " % k) in log and cont
+                      and int(s["iterations"]) == n_its,
+                      "%s: resumed after iteration %d, the later iterations are those of the uninterrupted run"
+                      % (tag, k),
+                      "iterations %s of %d; %s" % (s.get("iterations"), n_its, log.strip()[-300:]))
+            if obj == "total":
+                d = float(np.max(np.abs(s["value"] - ref["value"])))
+                lim = s["value_error_bound"] + ref["value_error_bound"]
+            else:
+                d = abs(s["gain"] - ref["gain"])
+                lim = (s["gain_upper"] - s["gain_lower"]) + (ref["gain_upper"] - ref["gain_lower"])
+            chk.check(bool(s["converged"]) and np.array_equal(s["policy"], ref["policy"]) and d <= lim,
+                      "%s: same policy, %s within the certificates" % (tag, "values" if obj == "total" else "gain"),
+                      "diff %.3g, limit %.3g" % (d, lim))
+
+        def check_ckpt(tag, ck, k):
+            path = newest_ckpt(ck)
+            if path is None:
+                chk.fail("%s: no checkpoint file" % tag)
+                return
+            with h5py.File(path, "r") as f:
+                meth, it = mc._attr(f, "method"), int(mc._attr(f, "iteration"))
+                v, acts = f["value"][...], f["policy"][...].astype(np.int64)
+            pairs, bad = mdp.pairs_of_policy(acts)
+            q = mdp.q_values(v)
+            best = np.maximum.reduceat(q, mdp.first_pair[:-1])
+            greedy = len(bad) == 0 and bool(np.all(q[pairs] >= best - 1e-9 * (1 + np.abs(best))))
+            chk.check(meth == "pi-" + obj and it == k and greedy,
+                      "%s: the checkpoint (h5py) says pi-%s after iteration %d, its policy greedy for its values" %
+                      (tag, obj, k), "method %r, iteration %d, greedy %s" % (meth, it, greedy))
+
+        # --max-iterations: stop on one rank count, resume on the other
+        for stop_r, res_r in ([(1, 2), (2, 1)] if multi else [(1, 1)]):
+            tag = "%s pi: --max-iterations 5 on %d rank(s), resumed on %d" % (obj, stop_r, res_r)
+            ck = os.path.join(work, "pck_%s_mi%d" % (obj, stop_r))
+            shutil.rmtree(ck, ignore_errors=True)
+            part = os.path.join(work, "pck_%s_part.h5" % obj)
+            cp = run_ranks(binary, stop_r, ["solve", model, "-o", part, "--checkpoint", ck, "--max-iterations", "5"]
+                           + base, expect=(75,))
+            chk.check("checkpoint after policy iteration 5 written" in cp.stderr,
+                      "%s: the log says the checkpoint holds iteration 5" % tag, cp.stderr.strip()[-300:])
+            check_ckpt(tag, ck, 5)
+            out = os.path.join(work, "pck_%s_mi%d.h5" % (obj, stop_r))
+            cp = run_ranks(binary, res_r, ["solve", model, "-o", out, "--checkpoint", ck, "--resume"] + base)
+            same_as_ref(tag, out, cp.stderr, 5)
+            run_ranks(binary, res_r, ["verify", model, out])
+        # a signal once iteration 1 is logged; the log says where it stopped
+        room = prefix + 150  # iteration 1 and part of the next evaluation's log
+        for nranks, sig in ([(1, signal.SIGTERM), (2, signal.SIGUSR2)] if multi else [(1, signal.SIGTERM)]):
+            tag = "%s pi: %s on %d rank(s)" % (obj, sig.name, nranks)
+            ck = os.path.join(work, "pck_%s_sig%d" % (obj, nranks))
+            shutil.rmtree(ck, ignore_errors=True)
+            part = os.path.join(work, "pck_%s_sig%d_part.h5" % (obj, nranks))
+            rc, log, seen = stop_when_logged(binary, nranks, ["solve", model, "-o", part, "--checkpoint", ck] + base,
+                                             b"solve: policy iteration 1:", room, sig)
+            m = re.findall(r"checkpoint after policy iteration (\d+) written", log)
+            k = int(m[-1]) if m else -1
+            chk.check(seen and rc == 75 and 1 <= k < n_its,
+                      "%s: exit 75 with a checkpoint after iteration %d of %d (from the log)" % (tag, k, n_its),
+                      "rc %d, trigger seen %s; %s" % (rc, seen, log.strip()[-400:]))
+            abandoned = " (the factorization under way was abandoned)" if "direct solve abandoned" in log else ""
+            chk.note("%s: the log shows the stop after iteration %d%s" % (tag, k, abandoned))
+            if k < 1:
+                continue
+            check_ckpt(tag, ck, k)
+            out = os.path.join(work, "pck_%s_sig%d.h5" % (obj, nranks))
+            cp = run_ranks(binary, nranks, ["solve", model, "-o", out, "--checkpoint", ck, "--resume"] + base)
+            same_as_ref(tag, out, cp.stderr, k)
+        # SIGUSR1: a checkpoint, and the run goes on to the same answer
+        tag = "%s pi: SIGUSR1 on 1 rank" % obj
+        ck = os.path.join(work, "pck_%s_usr1" % obj)
+        shutil.rmtree(ck, ignore_errors=True)
+        out = os.path.join(work, "pck_%s_usr1.h5" % obj)
+        rc, log, seen = stop_when_logged(binary, 1, ["solve", model, "-o", out, "--checkpoint", ck] + base,
+                                         b"solve: policy iteration 1:", room, signal.SIGUSR1)
+        m = re.findall(r"checkpoint after policy iteration (\d+) written", log)
+        s = mc.read_solution(out) if rc == 0 else {}
+        chk.check(seen and rc == 0 and len(m) == 1 and pi_lines(log) == ref_lines
+                  and np.array_equal(s.get("policy"), ref["policy"]),
+                  "%s: one checkpoint (after iteration %s), then the same iterations and policy as uninterrupted" %
+                  (tag, m[0] if m else "?"), "rc %d; %s" % (rc, log.strip()[-300:]))
+        if m:
+            chk.note("%s: checkpoint after iteration %s" % (tag, m[0]))
+            check_ckpt(tag, ck, int(m[0]))
+        # a value-iteration checkpoint, resumed by policy iteration
+        tag = "%s: value-iteration checkpoint resumed with --method pi" % obj
+        ck = os.path.join(work, "pck_%s_vi" % obj)
+        shutil.rmtree(ck, ignore_errors=True)
+        mc.run_sluice(binary, ["solve", model, "-o", part, "--checkpoint", ck, "--max-iterations", "3",
+                               "--tolerance", "1e-8"], expect=(75,))
+        out = os.path.join(work, "pck_%s_vi.h5" % obj)
+        cp = mc.run_sluice(binary, ["solve", model, "-o", out, "--checkpoint", ck, "--resume"] + base)
+        s = mc.read_solution(out)
+        chk.check("starting from the policy greedy for its values" in cp.stderr and s["method"] == "pi-" + obj
+                  and bool(s["converged"]) and np.array_equal(s["policy"], ref["policy"]),
+                  "%s: starts from the greedy policy of its values, same policy certified" % tag,
+                  cp.stderr.strip()[-300:])
+        mc.run_sluice(binary, ["verify", model, out])
+        # a policy-iteration checkpoint, resumed by value iteration
+        tag = "%s: policy-iteration checkpoint resumed by value iteration" % obj
+        ck = os.path.join(work, "pck_%s_mi1" % obj)
+        out = os.path.join(work, "pck_%s_tovi.h5" % obj)
+        cp = mc.run_sluice(binary, ["solve", model, "-o", out, "--checkpoint", ck, "--resume", "--tolerance", "1e-8"])
+        s = mc.read_solution(out)
+        chk.check("resumed at iteration 5" in cp.stderr and bool(s["converged"])
+                  and s["method"] == ("gs-total" if obj == "total" else "rvi"),
+                  "%s: goes on from its values and certifies" % tag, cp.stderr.strip()[-300:])
+        mc.run_sluice(binary, ["verify", model, out])
+
+
+def thin_then_dense(seed, n, objective):
+    """Invented random model (no source): the first action of every state
+    ends the trip at state 0 (a tiny system to factor), the second goes to
+    25 random states (state 0 with probability >= 1/8) with larger rewards.
+    Policy iteration evaluates the first-action policy cheaply, then every
+    state switches and the second policy's factorization needs about ten
+    times the memory (UMFPACK's estimates here: 0.06 MB, then 0.7 MB)."""
+    rng = np.random.default_rng(seed)
+    states = []
+    for s in range(n):
+        if s == 0 and objective == "total":
+            states.append([(0, [(0, 1.0, 0.0)])])
+            continue
+        a0 = (0, [(0, 1.0, float(rng.uniform(-1, 0)))])
+        tgt = rng.choice(np.arange(1, n), size=25, replace=False)
+        p = dyadic_probs(rng, 26)
+        q0 = 0.125 + 0.5 * p[0]
+        rest = (1 - q0) * p[1:] / p[1:].sum()
+        a1 = (1, [(0, float(q0), float(rng.uniform(0, 1)))] +
+              [(int(j), float(x), float(rng.uniform(0, 1))) for j, x in zip(tgt, rest)])
+        states.append([a0, a1])
+    return states
+
+
+def check_pi_midway_fallback(chk, binary, work):
+    """The direct solve declined after one evaluation (--memory-limit
+    between the first and second policy's UMFPACK estimates): the log says
+    so and that (relative) value iteration goes on from the values of
+    iteration 1; the method recorded is the fallback's; the answer is
+    certified and equals the exact one: the HiGHS LP and scipy's sparse
+    solve of the final policy (total; Bertsekas & Tsitsiklis 1991, recalled
+    from memory), numpy policy iteration with dense exact solves and the
+    dual LP (average; Puterman 1994, Sections 8.6 and 8.8, recalled from
+    memory). 1 and 2 ranks."""
+    for obj in ("total", "average"):
+        mdp = float_states(thin_then_dense(81, 150, obj), 1.0)
+        model = imp(binary, mdp, work, "mid_" + obj, obj)
+        vi_words = "value iteration" if obj == "total" else "relative value iteration"
+        for nranks in ((1, 2) if mpiexec() else (1,)):
+            tag = "%s pi, direct solve declined at iteration 2, %d rank(s)" % (obj, nranks)
+            sol = os.path.join(work, "mid_%s_%d.h5" % (obj, nranks))
+            rep = os.path.join(work, "mid_%s_%d.json" % (obj, nranks))
+            cp = run_ranks(binary, nranks, ["solve", model, "-o", sol, "--method", "pi", "--tolerance", "1e-9",
+                                            "--memory-limit", "200000", "--report", rep])
+            s = mc.read_solution(sol)
+            with open(rep) as f:
+                r = json.load(f)
+            want = ("factorization of iteration 2 needs about", "falling back to %s from the values of the policy "
+                    "of iteration 1" % vi_words)
+            chk.check(all(w in cp.stderr for w in want) and "solve: policy iteration 1:" in cp.stderr
+                      and "solve: policy iteration 2:" not in cp.stderr,
+                      "%s: the log shows one evaluation, then the fallback from its values" % tag,
+                      cp.stderr.strip()[-400:])
+            vi_method = "gs-total" if obj == "total" else "rvi"
+            chk.check(s["method"] == vi_method and "iteration 2" in r.get("policy_iteration_fallback", ""),
+                      "%s: method %s recorded, the reason in the report" % (tag, vi_method),
+                      "%s / %r" % (s["method"], r.get("policy_iteration_fallback")))
+            pairs, _ = mdp.pairs_of_policy(s["policy"])
+            if obj == "total":
+                lp = R.total_lp(mdp)
+                vpi = R.total_policy_value(mdp, pairs)
+                err = float(np.max(np.abs(s["value"] - lp)))
+                dpi = float(np.max(np.abs(s["value"] - vpi)))
+                ok = (err <= 1e-7 * (1 + np.max(np.abs(lp))) and dpi <= s["value_error_bound"] + 1e-12
+                      and s["value_error_bound"] <= 1e-9)
+                detail = "LP err %.3g, policy value diff %.3g, bound %.3g" % (err, dpi, s["value_error_bound"])
+            else:
+                g_lp, _ = R.average_dual_lp(mdp)
+                g_np, _, _ = R.average_policy_iteration(mdp)
+                ok = (s["gain_lower"] <= g_np + 1e-12 and g_np - 1e-12 <= s["gain_upper"]
+                      and s["gain_upper"] - s["gain_lower"] <= 1e-9 and abs(s["gain"] - g_lp) <= 1e-7)
+                detail = "gain %r in [%r, %r]; numpy %r, LP %r" % (s["gain"], s["gain_lower"], s["gain_upper"],
+                                                                   g_np, g_lp)
+            chk.check(ok and bool(s["converged"]), "%s: certified, the exact answer within the certificate" % tag,
+                      detail)
+            run_ranks(binary, nranks, ["verify", model, sol])
+
+
 def main():
     # optional: OBJ_PARTS=finite,total,average,ranks (default: all)
     want = os.environ.get("OBJ_PARTS", "finite,total,average,pi,ranks").split(",")
@@ -793,7 +1129,8 @@ def main():
     parts = {"finite": check_finite, "total": check_total,
              "average": check_average, "ranks": check_ranks_and_resume,
              "pi": check_policy_iteration, "fallback": check_pi_fallback,
-             "checkpoints": check_checkpoints, "generator": check_generator_terminal}
+             "checkpoints": check_checkpoints, "generator": check_generator_terminal,
+             "pi_checkpoints": check_pi_checkpoints, "pi_midway": check_pi_midway_fallback}
     for name in want:
         part = parts[name]
         try:

@@ -51,6 +51,13 @@ else()
             $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/py_objectives_more)
   set_tests_properties(py_objectives_more PROPERTIES LABELS "python;mpi" TIMEOUT 900
     ENVIRONMENT "OBJ_PARTS=fallback,checkpoints,generator;SLUICE_CACHE=${PROJECT_BINARY_DIR}/test-cache;SLUICE_MPIEXEC=${MPIEXEC_EXECUTABLE};OMPI_ALLOW_RUN_AS_ROOT=1;OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1;OMPI_MCA_rmaps_base_oversubscribe=1")
+  # policy iteration of total/average: checkpoints, signals, resume (1 and
+  # 2 ranks), and the fallback after one direct solve
+  add_test(NAME py_objectives_pi
+    COMMAND ${SLUICE_TEST_PYTHON} ${_sluice_py_dir}/test_objectives.py
+            $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/py_objectives_pi)
+  set_tests_properties(py_objectives_pi PROPERTIES LABELS "python;mpi" TIMEOUT 900
+    ENVIRONMENT "OBJ_PARTS=pi_checkpoints,pi_midway;SLUICE_CACHE=${PROJECT_BINARY_DIR}/test-cache;SLUICE_MPIEXEC=${MPIEXEC_EXECUTABLE};OMPI_ALLOW_RUN_AS_ROOT=1;OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1;OMPI_MCA_rmaps_base_oversubscribe=1")
   add_test(NAME py_objectives_ranks
     COMMAND ${SLUICE_TEST_PYTHON} ${_sluice_py_dir}/test_objectives.py
             $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/py_objectives_ranks)
