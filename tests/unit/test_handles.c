@@ -338,14 +338,18 @@ static sl_status build(sl_ctx *ctx, double efficiency, const char *path)
 static void test_resave(void **state)
 {
     sl_ctx *ctx = ctx_of(state);
-    const char *a = SLUICE_BINARY_DIR "/resave_a.h5", *b = SLUICE_BINARY_DIR "/resave_b.h5",
-               *c = SLUICE_BINARY_DIR "/resave_c.h5", *d = SLUICE_BINARY_DIR "/resave_d.h5";
+    /* a directory of this run's own: unit_test_handles and mpi_unit_handles_N
+     * run side by side under ctest -j2, and with shared file names one run's
+     * rename took the other's file (seen on 2026-12-03: rename failed) */
+    char dir[] = SLUICE_BINARY_DIR "/resave-XXXXXX", a[sizeof(dir) + 16], b[sizeof(a)], c[sizeof(a)], d[sizeof(a)];
     int rank = sl_ctx_rank(ctx), rc = 0;
+    if (rank == 0) assert_non_null(mkdtemp(dir));
+    MPI_Bcast(dir, (int)sizeof(dir), MPI_CHAR, 0, MPI_COMM_WORLD);
+    snprintf(a, sizeof(a), "%s/a.h5", dir);
+    snprintf(b, sizeof(b), "%s/b.h5", dir);
+    snprintf(c, sizeof(c), "%s/c.h5", dir);
+    snprintf(d, sizeof(d), "%s/d.h5", dir);
     /* files are touched by rank 0 only; every rank sees the outcome */
-    if (rank == 0) {
-        remove(b);
-        remove(d);
-    }
     assert_int_equal(build(ctx, 0.88, a), SL_OK);
     assert_int_equal(build(ctx, 0.8, c), SL_OK);
     sl_model *m = NULL;
@@ -366,6 +370,12 @@ static void test_resave(void **state)
     assert_non_null(strstr(sl_ctx_message(ctx), "changed since the model was loaded"));
     assert_int_not_equal(access(d, F_OK), 0);
     sl_model_free(&m);
+    MPI_Barrier(MPI_COMM_WORLD);
+    if (rank == 0) {
+        unlink(a);
+        unlink(b);
+        rmdir(dir);
+    }
 }
 
 int main(int argc, char **argv)
