@@ -239,7 +239,9 @@ static sl_status stream_put(sl_ctx *ctx, wstream *s, const void *src, int64_t co
         }
         if (st == SL_OK) s->n = rest;
     } else {
-        memmove(s->buf, s->buf + (size_t)wr * s->esize, (size_t)rest * s->esize);
+        /* s->buf is NULL on a rank that has buffered nothing yet: memmove
+         * must not see it even for 0 bytes (UBSan: mpi_unit_handles_2) */
+        if (rest > 0) memmove(s->buf, s->buf + (size_t)wr * s->esize, (size_t)rest * s->esize);
         s->n = rest;
     }
     return sl_agree(ctx, st);
