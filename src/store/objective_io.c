@@ -115,9 +115,8 @@ sl_status sl_store_objective_read(sl_ctx *ctx, const char *path, int64_t n_state
     } else if (x->objective == SL_OBJ_TOTAL) {
         st = sl_h5_attr_read_f64(ctx, f, "steps_bound_max", &x->steps_max, 0, path);
         if (st == SL_OK) st = sl_h5_attr_read_i64(ctx, f, "n_absorbing", &x->n_absorbing, 0, path);
-        if (st == SL_OK && sl_h5_length(f, "/steps_bound") != n_states)
-            st = SL_ERR(ctx, SL_EDATA, "%s: /steps_bound is missing or does not have %lld entries", path,
-                        (long long)n_states);
+        if (st == SL_OK)
+            st = sl_saved_length_check(ctx, path, "/steps_bound", sl_h5_length(f, "/steps_bound"), n_states);
         SL_TRY(sl_agree(ctx, st));
         if (SL_ALLOC(ctx, x->steps, n + 1, "steps bound") == NULL) st = SL_ENOMEM;
         SL_TRY(sl_agree(ctx, st));
@@ -150,9 +149,7 @@ sl_status sl_store_terminal_read(sl_ctx *ctx, const char *model, int64_t n_state
     SL_TRY(sl_h5_open(ctx, model, 0, &f));
     int64_t len = sl_h5_length(f, "/terminal_value");
     if (len < 0) goto cleanup;
-    if (len != n_states)
-        SL_TRY(sl_agree(ctx, SL_ERR(ctx, SL_EDATA, "%s: /terminal_value has %lld entries but the model has %lld states",
-                                    model, (long long)len, (long long)n_states)));
+    SL_TRY(sl_agree(ctx, sl_saved_length_check(ctx, model, "/terminal_value", len, n_states)));
     SL_TRY(sl_agree(ctx, sl_h5_read_1d(ctx, f, "/terminal_value", H5T_NATIVE_DOUBLE, n_states, s_begin, n_local, value,
                                        model)));
     SL_TRY(sl_agree(ctx, sl_saved_values_check(ctx, model, "/terminal_value", s_begin, n_local, value)));
