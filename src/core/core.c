@@ -52,6 +52,10 @@ sl_status sl_ctx_new(MPI_Comm comm, int verbosity, sl_ctx **out)
      * checked allocation of this process fails */
     const char *fa = getenv("SLUICE_FAULT_ALLOC");
     ctx->fault_alloc_at = fa != NULL ? atoll(fa) : 0;
+    /* SLUICE_DIRECT_CHUNKS=0 reads every dataset through H5Dread, the
+     * reference the direct chunk reader is compared with (tests, bench) */
+    const char *dc = getenv("SLUICE_DIRECT_CHUNKS");
+    ctx->h5_direct = !(dc != NULL && strcmp(dc, "0") == 0);
     ctx->log = NULL;            /* the library prints nothing unless asked */
     ctx->log_tty = 0;
     *out = ctx;

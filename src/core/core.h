@@ -21,6 +21,7 @@ struct sl_ctx {
     volatile sig_atomic_t *signal_info; /* [3] signal, monotonic s, us; may be NULL */
     int64_t fault_alloc_at;             /* test hook: this allocation fails (0: none) */
     int64_t alloc_count;                /* checked allocations so far (counted when the hook is set) */
+    int h5_direct;                      /* read deflated HDF5 chunks directly (0: through H5Dread only) */
     sl_status err_status;
     char err[SL_MSG_MAX];               /* first error on this rank */
 };

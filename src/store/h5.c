@@ -479,7 +479,7 @@ sl_status sl_h5_read_1d(sl_ctx *ctx, hid_t file, const char *name, hid_t mtype, 
                             path, name);
         }
     }
-    if (st == SL_OK) {
+    if (st == SL_OK && !sl_h5_read_chunks(ctx, file, dset, mtype, offset, count, buf, name, path, &st)) {
         hsize_t off = (hsize_t)offset, cnt = (hsize_t)count;
         mspace = H5Screate_simple(1, &cnt, NULL);
         herr_t e;

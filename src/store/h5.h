@@ -62,6 +62,13 @@ sl_status sl_h5_check_1d(sl_ctx *ctx, hid_t file, const char *name, H5T_class_t 
                          const char *path);
 sl_status sl_h5_read_1d(sl_ctx *ctx, hid_t file, const char *name, hid_t mtype, int64_t expected,
                         int64_t offset, int64_t count, void *buf, const char *path);
+/* The read of sl_h5_read_1d by the dataset's stored chunks (h5_chunks.c):
+ * returns 0, having read nothing, if the dataset is not one this reader
+ * handles (the caller then uses H5Dread); else 1 with *st the outcome
+ * (SL_EDATA naming the file, dataset and chunk if a chunk is corrupt).
+ * Local. */
+int sl_h5_read_chunks(sl_ctx *ctx, hid_t file, hid_t dset, hid_t mtype, int64_t offset, int64_t count, void *buf,
+                      const char *name, const char *path, sl_status *st);
 /* Length of a 1-D dataset (-1 if missing). Local. */
 int64_t sl_h5_length(hid_t file, const char *name);
 /* Storage and raw sizes of a dataset in bytes. Local. */

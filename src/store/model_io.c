@@ -782,14 +782,17 @@ sl_status sl_store_model_read(sl_ctx *ctx, const char *path, const sl_meta *m, i
             st = sl_h5_read_1d(ctx, f, "/terminal_value", H5T_NATIVE_DOUBLE, m->n_states, s_begin, ns, b->terminal,
                                path);
     }
-    /* quantities are hashed for the fingerprint, not kept */
+    /* quantities are hashed for the fingerprint, not kept: read a stored
+     * chunk at a time (pieces end on chunk boundaries, so no chunk is
+     * inflated twice) into two reused buffers */
     for (int q = 0; st == SL_OK && q < m->n_quantities; q++) {
         const int64_t CH = SL_H5_CHUNK;
         double *mean = NULL, *pos = NULL;
         if (SL_ALLOC(ctx, mean, CH, "quantities") == NULL || SL_ALLOC(ctx, pos, CH, "quantities") == NULL)
             st = SL_ENOMEM;
-        for (int64_t a = b->p_begin; st == SL_OK && a < b->p_end; a += CH) {
-            int64_t c = b->p_end - a < CH ? b->p_end - a : CH;
+        for (int64_t a = b->p_begin, c = 0; st == SL_OK && a < b->p_end; a += c) {
+            const int64_t next = (a / CH + 1) * CH;
+            c = (next < b->p_end ? next : b->p_end) - a;
             st = quantity_read(ctx, f, m, q, a, c, mean, pos, path);
             if (st == SL_OK) sl_fingerprint_quantity(b->qacc, q, a, c, mean, pos, 1);
         }

@@ -1,0 +1,195 @@
+/* h5_chunks.c - reading a 1-D dataset's stored chunks directly.
+ *
+ * H5Dread of a shuffled and deflated dataset inflates each chunk into a
+ * buffer of HDF5's chunk cache, unshuffles it there and copies the wanted
+ * part out. Here each chunk the range touches is read as stored (its address
+ * and size from the chunk index), inflated by zlib (zlib format: its adler32
+ * checksum is verified, as HDF5's deflate filter does) and unshuffled
+ * straight into the caller's array: one pass less over the data, and no
+ * chunk cache.
+ *
+ * Only what sl_h5_create_1d writes is read this way: chunked layout, no
+ * filters or deflate alone or shuffle then deflate, a file type equal to
+ * the memory type (no conversion), every chunk stored with all its filters
+ * applied, no user block, the MPI-IO driver. Anything else falls back to
+ * H5Dread, which is also the reference this reader is tested against
+ * (tests/unit/test_chunk_read.c; SLUICE_DIRECT_CHUNKS=0 forces it).
+ *
+ * The raw bytes are read with MPI_File_read_at on the handle HDF5 holds
+ * open: the HDF5 1.10 reference says H5Dread_chunk is "currently not
+ * supported with parallel HDF5" (H5Dpublic.h, 1.10.8). Reads are
+ * independent, like the H5Dread they replace: each rank reads the chunks of
+ * its own range. */
+#include "store/h5.h"
+
+#include <limits.h>
+#include <stdlib.h>
+#include <string.h>
+#include <zlib.h>
+
+typedef struct chunk_plan {
+    size_t esize;  /* bytes per element */
+    hsize_t ce;    /* elements per chunk */
+    int shuffle;   /* shuffle filter first */
+    int deflate;   /* deflate filter */
+    MPI_File fh;   /* HDF5's open file */
+} chunk_plan;
+
+/* 1 if the chunks of dset can be read directly into memory of type mtype. */
+static int plan_of(hid_t file, hid_t dset, hid_t mtype, chunk_plan *p)
+{
+    int ok = 0;
+    hid_t dcpl = H5Dget_create_plist(dset), ftype = H5Dget_type(dset);
+    hid_t fcpl = H5Fget_create_plist(file), fapl = H5Fget_access_plist(file);
+    hsize_t ub = 1;
+    void *handle = NULL;
+    memset(p, 0, sizeof(*p));
+    if (dcpl < 0 || ftype < 0 || fcpl < 0 || fapl < 0) goto cleanup;
+    /* chunk addresses are relative to the superblock, which a user block moves */
+    if (H5Pget_userblock(fcpl, &ub) < 0 || ub != 0) goto cleanup;
+    if (H5Pget_driver(fapl) != H5FD_MPIO) goto cleanup;
+    if (H5Pget_layout(dcpl) != H5D_CHUNKED || H5Pget_chunk(dcpl, 1, &p->ce) != 1 || p->ce == 0) goto cleanup;
+    if (H5Tequal(ftype, mtype) <= 0) goto cleanup;
+    p->esize = H5Tget_size(ftype);
+    if ((p->esize != 4 && p->esize != 8) || p->ce > (hsize_t)(INT_MAX / 8)) goto cleanup;
+    int nf = H5Pget_nfilters(dcpl);
+    if (nf < 0 || nf > 2) goto cleanup;
+    for (int i = 0; i < nf; i++) {
+        unsigned flags = 0, cd[8] = {0}, config = 0;
+        size_t ncd = sizeof(cd) / sizeof(cd[0]);
+        char fname[64];
+        H5Z_filter_t id = H5Pget_filter2(dcpl, (unsigned)i, &flags, &ncd, cd, sizeof(fname), fname, &config);
+        if (id == H5Z_FILTER_SHUFFLE && i == 0 && ncd >= 1 && cd[0] == p->esize)
+            p->shuffle = 1;
+        else if (id == H5Z_FILTER_DEFLATE && i == nf - 1)
+            p->deflate = 1;
+        else
+            goto cleanup;
+    }
+    if (H5Fget_vfd_handle(file, fapl, &handle) < 0 || handle == NULL) goto cleanup;
+    p->fh = *(MPI_File *)handle;
+    ok = 1;
+cleanup:
+    if (fapl >= 0) H5Pclose(fapl);
+    if (fcpl >= 0) H5Pclose(fcpl);
+    if (ftype >= 0) H5Tclose(ftype);
+    if (dcpl >= 0) H5Pclose(dcpl);
+    return ok;
+}
+
+/* Elements [e0, e1) of a shuffled chunk of ce elements of K bytes: byte b of
+ * element e is src[b * ce + e] (the shuffle filter's layout). */
+static inline void unshuffle_k(unsigned char *restrict dst, const unsigned char *restrict src, size_t ce,
+                               const size_t k, size_t e0, size_t e1)
+{
+    for (size_t e = e0; e < e1; e++) {
+        unsigned char v[8];
+        for (size_t b = 0; b < k; b++) v[b] = src[b * ce + e];
+        memcpy(dst + (e - e0) * k, v, k);
+    }
+}
+
+static void unshuffle(unsigned char *dst, const unsigned char *src, size_t ce, size_t esize, size_t e0, size_t e1)
+{
+    if (esize == 8)
+        unshuffle_k(dst, src, ce, 8, e0, e1);
+    else
+        unshuffle_k(dst, src, ce, 4, e0, e1);
+}
+
+int sl_h5_read_chunks(sl_ctx *ctx, hid_t file, hid_t dset, hid_t mtype, int64_t offset, int64_t count, void *buf,
+                      const char *name, const char *path, sl_status *out)
+{
+    sl_status st = SL_OK;
+    chunk_plan p;
+    int done = 0, zinit = 0;
+    haddr_t *addr = NULL;
+    hsize_t *size = NULL;
+    unsigned char *raw = NULL, *plain = NULL;
+    z_stream zs;
+    memset(&zs, 0, sizeof(zs));
+    if (!ctx->h5_direct || count <= 0 || !plan_of(file, dset, mtype, &p)) return 0;
+    const int64_t ce = (int64_t)p.ce, c0 = offset / ce, c1 = (offset + count - 1) / ce, nc = c1 - c0 + 1;
+    const size_t cbytes = (size_t)ce * p.esize;
+    hsize_t maxsize = 0;
+    if (SL_ALLOC(ctx, addr, nc, "chunk index") == NULL || SL_ALLOC(ctx, size, nc, "chunk index") == NULL) {
+        st = SL_ENOMEM;
+        done = 1;
+        goto cleanup;
+    }
+    /* every chunk stored, all filters applied; else H5Dread (fill values) */
+    for (int64_t i = 0; i < nc; i++) {
+        hsize_t at = (hsize_t)((c0 + i) * ce);
+        unsigned mask = 0;
+        if (H5Dget_chunk_info_by_coord(dset, &at, &mask, &addr[i], &size[i]) < 0 || size[i] == 0 || mask != 0 ||
+            size[i] > (hsize_t)INT_MAX || addr[i] == HADDR_UNDEF)
+            goto cleanup;
+        if (size[i] > maxsize) maxsize = size[i];
+    }
+    done = 1;
+    if (SL_ALLOC(ctx, raw, maxsize, "compressed chunk") == NULL || SL_ALLOC(ctx, plain, cbytes, "chunk") == NULL) {
+        st = SL_ENOMEM;
+        goto cleanup;
+    }
+    if (p.deflate) {
+        if (inflateInit(&zs) != Z_OK) {
+            st = SL_ERR(ctx, SL_ENOMEM, "%s: dataset %s: cannot set up zlib", path, name);
+            goto cleanup;
+        }
+        zinit = 1;
+    }
+    for (int64_t i = 0; i < nc; i++) {
+        const int64_t first = (c0 + i) * ce; /* the chunk's first element */
+        const int64_t lo = first > offset ? first : offset;
+        const int64_t hi = first + ce < offset + count ? first + ce : offset + count;
+        unsigned char *dst = (unsigned char *)buf + (size_t)(lo - offset) * p.esize;
+        const int whole = lo == first && hi == first + ce;
+        MPI_Status ms;
+        int got = -1;
+        if (MPI_File_read_at(p.fh, (MPI_Offset)addr[i], raw, (int)size[i], MPI_BYTE, &ms) != MPI_SUCCESS ||
+            MPI_Get_count(&ms, MPI_BYTE, &got) != MPI_SUCCESS || got != (int)size[i]) {
+            st = SL_ERR(ctx, SL_EDATA, "%s: dataset %s: cannot read the chunk of elements %lld..%lld (file truncated?)",
+                        path, name, (long long)first, (long long)(first + ce - 1));
+            goto cleanup;
+        }
+        if (!p.deflate && size[i] != cbytes) {
+            st = SL_ERR(ctx, SL_EDATA, "%s: dataset %s: the chunk of elements %lld..%lld holds %llu bytes, expected %zu",
+                        path, name, (long long)first, (long long)(first + ce - 1), (unsigned long long)size[i], cbytes);
+            goto cleanup;
+        }
+        /* the chunk's plain bytes, straight into place when nothing follows */
+        unsigned char *plainp = raw;
+        if (p.deflate) {
+            plainp = whole && !p.shuffle ? dst : plain;
+            int zr = inflateReset(&zs);
+            zs.next_in = raw;
+            zs.avail_in = (uInt)size[i];
+            zs.next_out = plainp;
+            zs.avail_out = (uInt)cbytes;
+            if (zr == Z_OK) zr = inflate(&zs, Z_FINISH);
+            if (zr != Z_STREAM_END || zs.total_out != cbytes) {
+                st = SL_ERR(ctx, SL_EDATA,
+                            "%s: dataset %s: the compressed chunk of elements %lld..%lld is corrupted (%s)", path,
+                            name, (long long)first, (long long)(first + ce - 1),
+                            zr == Z_STREAM_END                        ? "inflates to less than a chunk"
+                            : zr == Z_BUF_ERROR && zs.avail_out == 0 ? "inflates to more than a chunk"
+                            : zs.msg != NULL                          ? zs.msg
+                            : zr == Z_BUF_ERROR                       ? "truncated"
+                                                                      : "inflate failed");
+                goto cleanup;
+            }
+        }
+        if (p.shuffle)
+            unshuffle(dst, plainp, (size_t)ce, p.esize, (size_t)(lo - first), (size_t)(hi - first));
+        else if (plainp != dst)
+            memcpy(dst, plainp + (size_t)(lo - first) * p.esize, (size_t)(hi - lo) * p.esize);
+    }
+cleanup:
+    if (zinit) inflateEnd(&zs);
+    free(plain);
+    free(raw);
+    free(size);
+    free(addr);
+    if (done) *out = st;
+    return done;
+}
