@@ -117,6 +117,11 @@ foreach(np 2 3)
   add_test(NAME mpi_unit_handles_${np} COMMAND ${SLUICE_MPIEXEC} -np ${np} ${SLUICE_MPI_FLAGS} $<TARGET_FILE:test_handles>)
   set_tests_properties(mpi_unit_handles_${np} PROPERTIES LABELS mpi TIMEOUT 300 ENVIRONMENT "${SLUICE_TEST_ENV}")
 endforeach()
+# the direct chunk reader against H5Dread with the rows spread over ranks
+foreach(np 2 3)
+  add_test(NAME mpi_unit_chunk_read_${np} COMMAND ${SLUICE_MPIEXEC} -np ${np} ${SLUICE_MPI_FLAGS} $<TARGET_FILE:test_chunk_read>)
+  set_tests_properties(mpi_unit_chunk_read_${np} PROPERTIES LABELS mpi TIMEOUT 300 ENVIRONMENT "${SLUICE_TEST_ENV}")
+endforeach()
 # the optimised sweep paths against the reference sweep with the rows spread
 # over ranks (stage-interleaved and not)
 foreach(np 2 3)

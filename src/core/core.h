@@ -22,6 +22,7 @@ struct sl_ctx {
     int64_t fault_alloc_at;             /* test hook: this allocation fails (0: none) */
     int64_t alloc_count;                /* checked allocations so far (counted when the hook is set) */
     int h5_direct;                      /* read deflated HDF5 chunks directly (0: through H5Dread only) */
+    int64_t h5_chunks_read;             /* chunks read directly so far (for the tests) */
     sl_status err_status;
     char err[SL_MSG_MAX];               /* first error on this rank */
 };
