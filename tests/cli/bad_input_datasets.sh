@@ -109,6 +109,23 @@ with h5py.File(dst, "r+") as f:
         v[5] = np.nan
         f["value"][...] = v
         f.attrs.modify("value_checksum", np.bytes_(checksum(v)))  # keeps the attribute's string type
+    elif kind.startswith("chunk_"):   # the first stored chunk of /transition/probability replaced
+        import zlib
+        d = f["transition/probability"]
+        mask, raw = d.id.read_direct_chunk((0,))
+        plain = zlib.decompress(raw)    # shuffled bytes of one whole chunk
+        if kind == "chunk_flipped":     # 16 bytes in the middle of the deflate stream
+            b = bytearray(raw)
+            for i in range(len(b) // 2, len(b) // 2 + 16):
+                b[i] ^= 0x5A
+            new = bytes(b)
+        elif kind == "chunk_checksum":  # the stream intact, its adler32 trailer off by one bit
+            new = raw[:-1] + bytes([raw[-1] ^ 1])
+        elif kind == "chunk_short":     # a valid stream of one element less than a chunk
+            new = zlib.compress(plain[:-8], 1)
+        else:                           # chunk_long: a valid stream of one element more
+            new = zlib.compress(plain + bytes(8), 1)
+        d.id.write_direct_chunk((0,), new, mask)
     else:
         sys.exit("edit.py: unknown kind " + kind)
 PYEOF
@@ -150,6 +167,18 @@ for kind in prob_range_sum_one prob_negative_sum_one prob_sum_low; do
     expect "verify: $what" --code 65 --err "$kind.h5" --err "state $st, action $ac" -- \
         "$SLUICE" verify -q "$W/$kind.h5" "$W/good_sol.h5"
 done
+# a corrupted compressed chunk (the direct chunk reader, src/store/h5_chunks.c):
+# refused with the file, dataset and chunk named, never a crash; H5Dread took
+# the short and the long stream without a word (the rows were refused later,
+# by the sum check, for the values they held)
+model_case "a stored chunk of /transition/probability with 16 bytes flipped" chunk_flipped 65 \
+    "transition/probability" "compressed chunk of elements 0.."
+model_case "a stored chunk of /transition/probability with a wrong zlib checksum" chunk_checksum 65 \
+    "transition/probability" "compressed chunk of elements 0.." "incorrect data check"
+model_case "a stored chunk of /transition/probability inflating to one element less" chunk_short 65 \
+    "transition/probability" "compressed chunk of elements 0.." "less than a chunk"
+model_case "a stored chunk of /transition/probability inflating to one element more" chunk_long 65 \
+    "transition/probability" "compressed chunk of elements 0.." "more than a chunk"
 model_case "probability +Inf" prob_inf 65
 model_case "reward -Inf" reward_inf 65
 model_case "reward NaN" reward_nan 65
