@@ -125,7 +125,9 @@ static void unshuffle8x8(unsigned char *restrict dst, const unsigned char *restr
         SWAP_BLOCKS(r[b + 1], r[b + 3], 16, 0x0000FFFF0000FFFFull);
     }
     for (int b = 0; b < 4; b++) SWAP_BLOCKS(r[b], r[b + 4], 32, 0x00000000FFFFFFFFull);
-    memcpy(dst, r, sizeof(r));
+    /* word by word: one 64-byte copy went through the stack (store
+     * forwarding failed: 8-byte stores read back as 16-byte loads) */
+    for (int j = 0; j < 8; j++) memcpy(dst + 8 * j, &r[j], 8);
 }
 
 static void unshuffle4x8(unsigned char *restrict dst, const unsigned char *restrict src, size_t ce, size_t e)
