@@ -200,6 +200,13 @@ int sl_h5_read_chunks(sl_ctx *ctx, hid_t file, hid_t dset, hid_t mtype, int64_t 
         if (size[i] > maxsize) maxsize = size[i];
     }
     done = 1;
+    /* a stored size no chunk can have (a damaged index): refused before
+     * anything that large is allocated or read */
+    if (maxsize > (p.deflate ? (hsize_t)compressBound((uLong)cbytes) : (hsize_t)cbytes)) {
+        st = SL_ERR(ctx, SL_EDATA, "%s: dataset %s: a stored chunk of %llu bytes, more than a chunk of %zu bytes can take",
+                    path, name, (unsigned long long)maxsize, cbytes);
+        goto cleanup;
+    }
     if (SL_ALLOC(ctx, raw, maxsize, "compressed chunk") == NULL || SL_ALLOC(ctx, plain, cbytes, "chunk") == NULL) {
         st = SL_ENOMEM;
         goto cleanup;

@@ -123,8 +123,10 @@ with h5py.File(dst, "r+") as f:
             new = raw[:-1] + bytes([raw[-1] ^ 1])
         elif kind == "chunk_short":     # a valid stream of one element less than a chunk
             new = zlib.compress(plain[:-8], 1)
-        else:                           # chunk_long: a valid stream of one element more
+        elif kind == "chunk_long":      # a valid stream of one element more
             new = zlib.compress(plain + bytes(8), 1)
+        else:                           # chunk_oversized: the stream followed by a chunk of zeros,
+            new = raw + bytes(len(plain))  # more than zlib's compressBound of a chunk
         d.id.write_direct_chunk((0,), new, mask)
     else:
         sys.exit("edit.py: unknown kind " + kind)
@@ -179,6 +181,8 @@ model_case "a stored chunk of /transition/probability inflating to one element l
     "transition/probability" "compressed chunk of elements 0.." "less than a chunk"
 model_case "a stored chunk of /transition/probability inflating to one element more" chunk_long 65 \
     "transition/probability" "compressed chunk of elements 0.." "more than a chunk"
+model_case "a stored chunk of /transition/probability longer than any deflated chunk can be" chunk_oversized 65 \
+    "transition/probability" "more than a chunk of"
 model_case "probability +Inf" prob_inf 65
 model_case "reward -Inf" reward_inf 65
 model_case "reward NaN" reward_nan 65
