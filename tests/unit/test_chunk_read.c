@@ -24,22 +24,7 @@
 #include "store/h5.h"
 #include "store/store.h"
 
-static sl_ctx *ctx_of(void **state) { return (sl_ctx *)*state; }
-
-static int setup(void **state)
-{
-    sl_ctx *ctx = NULL;
-    if (sl_ctx_new(MPI_COMM_WORLD, 0, &ctx) != SL_OK) return -1;
-    *state = ctx;
-    return 0;
-}
-
-static int teardown(void **state)
-{
-    sl_ctx *ctx = ctx_of(state);
-    sl_ctx_free(&ctx);
-    return 0;
-}
+#include "ctx_fixture.h"
 
 /* a directory of this run's own (unit and mpi_unit runs go side by side) */
 static void workdir(char *dir)

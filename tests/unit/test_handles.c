@@ -26,22 +26,7 @@
 
 static const double vstar[3] = {10.0, 11.0, 0.0};
 
-static sl_ctx *ctx_of(void **state) { return (sl_ctx *)*state; }
-
-static int setup(void **state)
-{
-    sl_ctx *ctx = NULL;
-    if (sl_ctx_new(MPI_COMM_WORLD, 0, &ctx) != SL_OK) return -1;
-    *state = ctx;
-    return 0;
-}
-
-static int teardown(void **state)
-{
-    sl_ctx *ctx = ctx_of(state);
-    sl_ctx_free(&ctx);
-    return 0;
-}
+#include "ctx_fixture.h"
 
 static void assert_contains(const char *msg, const char *part)
 {
