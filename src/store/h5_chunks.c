@@ -176,16 +176,18 @@ int sl_h5_read_chunks(sl_ctx *ctx, hid_t file, hid_t dset, hid_t mtype, int64_t 
     sl_status st = SL_OK;
     chunk_plan p;
     int done = 0, zinit = 0;
-    haddr_t *addr = NULL;
-    hsize_t *size = NULL;
-    unsigned char *raw = NULL, *plain = NULL;
+    struct chunk_loc {
+        haddr_t addr; /* in the file */
+        hsize_t size; /* stored bytes */
+    } *loc = NULL;
+    unsigned char *raw = NULL, *plain = NULL; /* one allocation: raw, then plain */
     z_stream zs;
     memset(&zs, 0, sizeof(zs));
     if (!ctx->h5_direct || count <= 0 || !plan_of(file, dset, mtype, &p)) return 0;
     const int64_t ce = (int64_t)p.ce, c0 = offset / ce, c1 = (offset + count - 1) / ce, nc = c1 - c0 + 1;
     const size_t cbytes = (size_t)ce * p.esize;
     hsize_t maxsize = 0;
-    if (SL_ALLOC(ctx, addr, nc, "chunk index") == NULL || SL_ALLOC(ctx, size, nc, "chunk index") == NULL) {
+    if (SL_ALLOC(ctx, loc, nc, "chunk index") == NULL) {
         st = SL_ENOMEM;
         done = 1;
         goto cleanup;
@@ -194,10 +196,10 @@ int sl_h5_read_chunks(sl_ctx *ctx, hid_t file, hid_t dset, hid_t mtype, int64_t 
     for (int64_t i = 0; i < nc; i++) {
         hsize_t at = (hsize_t)((c0 + i) * ce);
         unsigned mask = 0;
-        if (H5Dget_chunk_info_by_coord(dset, &at, &mask, &addr[i], &size[i]) < 0 || size[i] == 0 || mask != 0 ||
-            size[i] > (hsize_t)INT_MAX || addr[i] == HADDR_UNDEF)
+        if (H5Dget_chunk_info_by_coord(dset, &at, &mask, &loc[i].addr, &loc[i].size) < 0 || loc[i].size == 0 ||
+            mask != 0 || loc[i].size > (hsize_t)INT_MAX || loc[i].addr == HADDR_UNDEF)
             goto cleanup;
-        if (size[i] > maxsize) maxsize = size[i];
+        if (loc[i].size > maxsize) maxsize = loc[i].size;
     }
     done = 1;
     /* a stored size no chunk can have (a damaged index): refused before
@@ -207,10 +209,11 @@ int sl_h5_read_chunks(sl_ctx *ctx, hid_t file, hid_t dset, hid_t mtype, int64_t 
                     path, name, (unsigned long long)maxsize, cbytes);
         goto cleanup;
     }
-    if (SL_ALLOC(ctx, raw, maxsize, "compressed chunk") == NULL || SL_ALLOC(ctx, plain, cbytes, "chunk") == NULL) {
+    if (SL_ALLOC(ctx, raw, (size_t)maxsize + cbytes, "chunk buffers") == NULL) {
         st = SL_ENOMEM;
         goto cleanup;
     }
+    plain = raw + maxsize;
     if (p.deflate) {
         if (inflateInit(&zs) != Z_OK) {
             st = SL_ERR(ctx, SL_ENOMEM, "%s: dataset %s: cannot set up zlib", path, name);
@@ -226,15 +229,16 @@ int sl_h5_read_chunks(sl_ctx *ctx, hid_t file, hid_t dset, hid_t mtype, int64_t 
         const int whole = lo == first && hi == first + ce;
         MPI_Status ms;
         int got = -1;
-        if (MPI_File_read_at(p.fh, (MPI_Offset)addr[i], raw, (int)size[i], MPI_BYTE, &ms) != MPI_SUCCESS ||
-            MPI_Get_count(&ms, MPI_BYTE, &got) != MPI_SUCCESS || got != (int)size[i]) {
+        const hsize_t stored = loc[i].size;
+        if (MPI_File_read_at(p.fh, (MPI_Offset)loc[i].addr, raw, (int)stored, MPI_BYTE, &ms) != MPI_SUCCESS ||
+            MPI_Get_count(&ms, MPI_BYTE, &got) != MPI_SUCCESS || got != (int)stored) {
             st = SL_ERR(ctx, SL_EDATA, "%s: dataset %s: cannot read the chunk of elements %lld..%lld (file truncated?)",
                         path, name, (long long)first, (long long)(first + ce - 1));
             goto cleanup;
         }
-        if (!p.deflate && size[i] != cbytes) {
+        if (!p.deflate && stored != cbytes) {
             st = SL_ERR(ctx, SL_EDATA, "%s: dataset %s: the chunk of elements %lld..%lld holds %llu bytes, expected %zu",
-                        path, name, (long long)first, (long long)(first + ce - 1), (unsigned long long)size[i], cbytes);
+                        path, name, (long long)first, (long long)(first + ce - 1), (unsigned long long)stored, cbytes);
             goto cleanup;
         }
         /* the chunk's plain bytes, straight into place when nothing follows */
@@ -243,7 +247,7 @@ int sl_h5_read_chunks(sl_ctx *ctx, hid_t file, hid_t dset, hid_t mtype, int64_t 
             plainp = whole && !p.shuffle ? dst : plain;
             int zr = inflateReset(&zs);
             zs.next_in = raw;
-            zs.avail_in = (uInt)size[i];
+            zs.avail_in = (uInt)stored;
             zs.next_out = plainp;
             zs.avail_out = (uInt)cbytes;
             if (zr == Z_OK) zr = inflate(&zs, Z_FINISH);
@@ -267,10 +271,8 @@ int sl_h5_read_chunks(sl_ctx *ctx, hid_t file, hid_t dset, hid_t mtype, int64_t 
     }
 cleanup:
     if (zinit) inflateEnd(&zs);
-    free(plain);
     free(raw);
-    free(size);
-    free(addr);
+    free(loc);
     if (done) *out = st;
     return done;
 }
