@@ -30,7 +30,9 @@ import os
 import re
 import shutil
 import signal
+import subprocess
 import sys
+import time
 
 import h5py
 
@@ -98,7 +100,72 @@ def main():
                     got = int(mc._attr(f, "iteration"))
                 chk.check(got == b, "%s: the first checkpoint holds iteration %d" % (tag, b),
                           "%s holds iteration %d" % (names[0], got))
+    # a model whose solve lasts seconds, so that rank 1 can be found and signalled
+    big = mc.import_model(binary, mc.random_mdp(20261204, 30000, 0.995, actions=(2, 4), successors=(2, 5)), work, "big")
+    check_other_rank(chk, binary, work, big)
     chk.finish()
+
+
+def rank_pids(launcher_pid, binary, rank):
+    """Pids of the processes under launcher_pid whose MPI rank (Open MPI's or
+    PMI's variable) is `rank`."""
+    out = []
+    for d in os.listdir("/proc"):
+        if not d.isdigit():
+            continue
+        try:
+            with open("/proc/%s/environ" % d, "rb") as f:
+                env = dict(kv.split(b"=", 1) for kv in f.read().split(b"\0") if b"=" in kv)
+            with open("/proc/%s/cmdline" % d, "rb") as f:
+                argv = f.read().split(b"\0")
+        except OSError:
+            continue
+        r = env.get(b"OMPI_COMM_WORLD_RANK", env.get(b"PMI_RANK"))
+        if r == str(rank).encode() and argv[0] == binary.encode() and int(d) != launcher_pid:
+            out.append(int(d))
+    return out
+
+
+def check_other_rank(chk, binary, work, model):
+    """2 ranks, TERM sent to rank 1 only: the stop is agreed at a boundary
+    through rank 1's flag, and rank 0 (whose log is the run's account) must
+    say so and name the iteration of the checkpoint written. Before
+    2026-12-03 rank 0 logged nothing about the signal in that case (seen in
+    a real Slurm chain, where mpiexec's forwarding reached rank 1 first)."""
+    mpx = mc.mpiexec()
+    if mpx is None:
+        chk.fail("2 ranks: no mpiexec (Debian package openmpi-bin)")
+        return
+    ck = os.path.join(work, "ck_np2")
+    shutil.rmtree(ck, ignore_errors=True)
+    logpath = os.path.join(work, "np2.log")
+    with open(logpath, "wb") as logf:
+        p = subprocess.Popen([mpx, "-n", "2", "--oversubscribe", binary, "solve", model, "--method", "jacobi",
+                              "--tolerance", "1e-8", "--progress-every", "1e-9", "--checkpoint", ck,
+                              "-o", os.path.join(work, "np2.h5")], stdout=subprocess.DEVNULL, stderr=logf)
+        deadline = time.monotonic() + 300  # only against a hang
+        sent = []
+        while time.monotonic() < deadline and p.poll() is None:
+            with open(logpath, "rb") as f:
+                if b"solve: iter 5 " in f.read():
+                    sent = rank_pids(p.pid, binary, 1)
+                    for pid in sent:
+                        os.kill(pid, signal.SIGTERM)
+                    break
+            time.sleep(0.005)
+        rc = p.wait(timeout=300)
+    with open(logpath, errors="replace") as f:
+        log = f.read()
+    if not chk.check(len(sent) == 1, "2 ranks: TERM sent to rank 1's process only", "pids %s; exit %d" % (sent, rc)):
+        return
+    chk.check(rc == mc.EXIT_STOPPED, "2 ranks, TERM to rank 1: exit 75", "exit %d" % rc)
+    m = re.search(r"solve: a signal received by another rank acted on at the sweep boundary at [\d.]+ s "
+                  r"\(iteration (\d+);", log)
+    c = re.search(r"solve: stop requested; checkpoint written \(iteration (\d+),", log)
+    chk.check(m is not None and c is not None and m.group(1) == c.group(1),
+              "2 ranks, TERM to rank 1: rank 0 logs the other rank's signal at the iteration of the checkpoint",
+              log[-800:])
+    chk.check(SIGNAL_LINE.search(log) is None, "2 ranks, TERM to rank 1: rank 0 does not claim the signal as its own")
 
 
 if __name__ == "__main__":
