@@ -217,12 +217,15 @@ static int poll(run *r)
             by_walltime = 1;
         }
     }
-    int agreed = 0, why = by_walltime ? 2 : 0, why_any = 0;
+    int agreed = 0, why = (by_walltime ? 2 : 0) | (by_signal ? 1 : 0), why_any = 0;
     MPI_Allreduce(&want, &agreed, 1, MPI_INT, MPI_MAX, r->ctx->comm);
     /* the walltime may be reached first on another rank (each measures from
      * its own start): rank 0 logs the stop all the same */
     MPI_Allreduce(&why, &why_any, 1, MPI_INT, MPI_BOR, r->ctx->comm);
     if ((why_any & 2) && !by_signal) by_walltime = 1;
+    /* mpiexec forwards a signal to every rank, but not at the same moment:
+     * another rank's flag may decide the stop before rank 0 sees its own */
+    int elsewhere = (why_any & 1) && !by_signal && !by_walltime;
     /* the solver's own account of when it acted (rank 0's clock): what the
      * signal and walltime tests check, instead of a busy machine's wall clock */
     char prev[32] = "none (first boundary)";
@@ -239,6 +242,10 @@ static int poll(run *r)
                            "previous boundary %s)",
                    now - c0, (long long)r->S.iteration, prev);
         }
+    } else if (elsewhere) {
+        sl_log(r->ctx, "solve: a signal received by another rank acted on at the sweep boundary at %.3f s "
+                       "(iteration %lld; previous boundary %s)",
+               now - c0, (long long)r->S.iteration, prev);
     } else if (by_walltime) {
         sl_log(r->ctx, "solve: --walltime %.3f s: stop due at %.3f s (margin %.3f s); acted on at the sweep boundary "
                        "at %.3f s (iteration %lld; previous boundary %s)%s",

@@ -20,5 +20,5 @@ set_tests_properties(jobs_slurm_standin jobs_pbs_standin PROPERTIES LABELS jobs 
                      ENVIRONMENT "${SLUICE_TEST_ENV}")
 # the PBS chain solves with Jacobi (see pbs_standin_test.sh): 805 s at load 8
 set_tests_properties(jobs_pbs_standin PROPERTIES TIMEOUT 2700)
-set_tests_properties(jobs_slurm_real PROPERTIES LABELS jobs TIMEOUT 1200 SKIP_RETURN_CODE 77
+set_tests_properties(jobs_slurm_real PROPERTIES LABELS jobs TIMEOUT 3000 SKIP_RETURN_CODE 77
                      RUN_SERIAL TRUE FIXTURES_REQUIRED jobs_big ENVIRONMENT "${SLUICE_TEST_ENV}")

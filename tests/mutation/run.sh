@@ -34,7 +34,7 @@ M4~src/model/model.c~if (fabs(sum - 1.0) > tol)~if (0)~^cli_bad_input_(datasets|
 M5~src/model/model.c~if (p1 < p0)~if (p1 < p0 - 1000000)~^fuzz_validate$~block validation: decreasing /state/first_pair accepted
 M6~src/model/model.c~b->target[t] < 0 || b->target[t] >= m->n_states~b->target[t] < 0 || b->target[t] > m->n_states~^cli_bad_input_(datasets|files)$~model reader: off-by-one in the next-state bound~SL_FAIL_FAST=1
 M7~src/store/h5.c~} else if (H5Tget_class(t) != cls) {~} else if (0) {~^cli_bad_input_datasets$~model reader: dataset class check removed~SL_FAIL_FAST=1
-M8~src/solve/methods.c~if (r->ctx->signal_flag) flag = *r->ctx->signal_flag;~if (r->ctx->signal_flag && (r->S.iteration & 1)) flag = *r->ctx->signal_flag;~^cli_checkpoint_signals$~solver: acts on a signal only at every other sweep boundary~CK_SIGNALS_QUICK=1
+M8~src/solve/methods.c~if (r->ctx->signal_flag) flag = *r->ctx->signal_flag;~if (r->ctx->signal_flag && (r->S.iteration & 1)) flag = *r->ctx->signal_flag;~^py_signal_boundary$~solver: acts on a signal only at every other sweep boundary
 M9~src/solve/methods.c~due = r->o->walltime - margin;~due = r->o->walltime - 0.5 * margin;~^cli_checkpoint_signals$~solver: --walltime stop due with half the documented margin~CK_SIGNALS_QUICK=1
 M10~src/store/checkpoint.c~if (st == SL_OK && ver > SLUICE_FORMAT_VERSION) {~if (st == SL_OK && ver > SLUICE_FORMAT_VERSION + 1) {~^cli_bad_input_datasets$~checkpoint of a newer format accepted~SL_FAIL_FAST=1
 M11~src/store/checkpoint.c~if (strcmp(a, cvs) != 0 || strcmp(b, cps) != 0)~if (0)~^cli_checkpoint_corrupt$~checkpoint checksums not compared
@@ -49,6 +49,9 @@ M19~src/cli/signals.c~if (sigprocmask(SIG_UNBLOCK, &set, NULL) != 0) ok = 0;~if 
 M20~src/cli/cmd_solve.c~    if (out[0] == 0.0) return 0;~    return 0;~^cli_bad_input_more$~solve: a stop requested during start-up is not noticed before solving
 M21~src/core/core.c~while ((e = fallocate(fd, FALLOC_FL_KEEP_SIZE, 0, len) == 0 ? 0 : errno) == EINTR) continue;~e = EOPNOTSUPP;~^cli_bad_input_more$~writers: no disk space reserved before writing (the write fails when another program fills the disk)
 M22~src/store/h5.c~    divert_to_memory(tmp_path);~    (void)tmp_path;~^cli_bad_input_more$~writers: a failed file closed without diverting HDF5's last flush (the exit-139 crash)
+M23~src/store/content.c~        if (!isfinite(value[i]))~        if (!isfinite(value[i]) && i + 1 < n)~^fuzz_solution$~saved-result loaders: the last state's value not checked for being finite
+M24~src/store/content.c~    if (length == n_states) return SL_OK;~    if (length >= n_states) return SL_OK;~^fuzz_solution$~saved-result loaders: a dataset longer than the model's states accepted
+M25~src/model/model.c~    for (int64_t q = first_pair[i] - p_begin; q < first_pair[i + 1] - p_begin; q++)~    for (int64_t q = first_pair[i] - p_begin; q <= first_pair[i + 1] - p_begin; q++)~^fuzz_solution$~policy check: an action of the next state's first pair counted as offered
 M
 }
 

@@ -22,11 +22,15 @@ evaluating T itself, which `roundoff_allowance` covers.
 Run under /usr/bin/python3 (numpy, scipy, h5py from Debian).
 """
 
+import fcntl
 import json
 import os
 import shlex
+import shutil
+import struct
 import subprocess
 import sys
+import termios
 import time
 
 import h5py
@@ -390,6 +394,90 @@ class SluiceError(Exception):
 def launcher():
     """Optional launch prefix, e.g. SLUICE_LAUNCH='mpirun -np 2'."""
     return shlex.split(os.environ.get("SLUICE_LAUNCH", ""))
+
+
+def mpiexec():
+    """The MPI launcher: $SLUICE_MPIEXEC (CTest passes CMake's), else mpiexec
+    or mpirun on PATH; None when there is none."""
+    m = os.environ.get("SLUICE_MPIEXEC")
+    if m:
+        return m if os.path.exists(m) else None
+    for name in ("mpiexec", "mpirun"):
+        p = shutil.which(name)
+        if p:
+            return p
+    return None
+
+
+F_SETPIPE_SZ, F_GETPIPE_SZ = 1031, 1032  # fcntl.h (Linux)
+
+
+def _blocked_writing_stderr(pid):
+    """True while process pid (its main thread) sits in write(2, ...): on
+    x86-64 /proc/PID/syscall starts with the number of the call it is
+    blocked in (1 = write) and its first argument (the file descriptor)."""
+    try:
+        with open("/proc/%d/syscall" % pid) as f:
+            fields = f.read().split()
+    except OSError:
+        return False
+    return len(fields) >= 2 and fields[0] in ("1", "20") and int(fields[1], 16) == 2
+
+
+def stop_when_logged(binary, nranks, args, trigger, room, sig, blocked=False):
+    """Run sluice with rank 0's log going into a one-page pipe that holds
+    4096 - room bytes already: on Linux a write to such a pipe appends to
+    its page or waits until the reader has taken everything, so sluice can
+    log `room` bytes and no more while this reader keeps one byte back.
+    Once `trigger` has been logged, send sig (to sluice, or to mpiexec,
+    which forwards it), then read everything. With blocked=True (1 rank
+    only) the signal waits until sluice is also blocked writing its next
+    log line, so it is certain to arrive before whatever follows that
+    write: on Linux a signal sent by kill() is handled before the process
+    returns from the write. Where the stop landed is for the caller to
+    read from the log, not from any clock. Returns (exit code, rank 0's
+    log, whether the trigger was seen)."""
+    if blocked and nranks != 1:
+        raise SluiceError("stop_when_logged: blocked=True needs 1 rank")
+    r, w = os.pipe()
+    log = b""
+    seen = False
+    try:
+        fcntl.fcntl(w, F_SETPIPE_SZ, 4096)
+        cap = fcntl.fcntl(w, F_GETPIPE_SZ)
+        if cap != 4096:
+            raise SluiceError("cannot make a one-page pipe (got %d bytes)" % cap)
+        os.write(w, b"\n" * (cap - room))
+        args = [str(a) for a in args]
+        if nranks == 1:
+            p = subprocess.Popen([binary] + args, stdout=subprocess.DEVNULL, stderr=w)
+        else:
+            wrap = ('if [ "${OMPI_COMM_WORLD_RANK:-$PMI_RANK}" = 0 ]; then exec "$0" "$@" 2>/proc/%d/fd/%d; fi; '
+                    'exec "$0" "$@"' % (os.getpid(), w))
+            p = subprocess.Popen([mpiexec(), "-n", str(nranks), "--oversubscribe", "sh", "-c", wrap, binary] + args,
+                                 stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+        deadline = time.monotonic() + 300  # only against a hang
+        while time.monotonic() < deadline:
+            avail = struct.unpack("i", fcntl.ioctl(r, termios.FIONREAD, b"\0\0\0\0"))[0]
+            if avail > 1:
+                log += os.read(r, avail - 1)
+            if trigger in log and (not blocked or _blocked_writing_stderr(p.pid)):
+                seen = True
+                break
+            if p.poll() is not None:
+                break
+            time.sleep(0.005)
+        p.send_signal(sig)
+    finally:
+        os.close(w)
+    while True:
+        chunk = os.read(r, 65536)
+        if not chunk:
+            break
+        log += chunk
+    os.close(r)
+    rc = p.wait(timeout=300)
+    return rc, log.decode(errors="replace").lstrip("\n"), seen
 
 
 def run_sluice(binary, args, expect=(EXIT_OK,), timeout=300):

@@ -32,17 +32,12 @@ usage: [OBJ_PARTS=finite,total,average,pi,ranks,fallback,checkpoints,generator,p
        test_objectives.py SLUICE_BINARY WORKDIR
 """
 
-import fcntl
 import json
 import os
 import re
 import shutil
 import signal
-import struct
-import subprocess
 import sys
-import termios
-import time
 from fractions import Fraction as F
 
 import h5py
@@ -71,17 +66,12 @@ def imp(binary, mdp, work, name, objective, terminal=None):
     return h5
 
 
-def mpiexec():
-    m = os.environ.get("SLUICE_MPIEXEC") or shutil.which("mpiexec")
-    return m if m and os.path.exists(m) else None
-
-
 def run_ranks(binary, nranks, args, expect=(0,)):
     """Run sluice on nranks ranks (1: no launcher at all)."""
     if nranks == 1:
         os.environ.pop("SLUICE_LAUNCH", None)
         return mc.run_sluice(binary, args, expect=expect)
-    os.environ["SLUICE_LAUNCH"] = "%s -n %d --oversubscribe" % (mpiexec(),
+    os.environ["SLUICE_LAUNCH"] = "%s -n %d --oversubscribe" % (mc.mpiexec(),
                                                                  nranks)
     try:
         return mc.run_sluice(binary, args, expect=expect)
@@ -481,7 +471,7 @@ def check_average(chk, binary, work):
 
 
 def check_ranks_and_resume(chk, binary, work):
-    if mpiexec() is None:
+    if mc.mpiexec() is None:
         chk.note("no mpiexec: rank comparisons skipped")
         return
     cases = [("total", float_states(random_ssp(41, 120), 1.0), []),
@@ -617,7 +607,7 @@ def check_pi_fallback(chk, binary, work):
             ref, _ = R.average_dual_lp(mdp)
         guards = [("memory", ["--memory-limit", "1"], "over the limit of"),
                   ("time", ["--direct-time-limit", "1e-12"], "direct-solve time limit")]
-        for nranks in ((1, 2) if mpiexec() else (1,)):
+        for nranks in ((1, 2) if mc.mpiexec() else (1,)):
             for gname, opt, why in guards:
                 tag = "%s --method pi, %s guard tiny, %d rank(s)" % (obj, gname, nranks)
                 sol = os.path.join(work, "fb_%s_%s_%d.h5" % (obj, gname, nranks))
@@ -680,7 +670,7 @@ def check_checkpoints(chk, binary, work):
         full = os.path.join(work, "ckm_%s_full.h5" % obj)
         mc.run_sluice(binary, ["solve", model, "-o", full, "--tolerance", "1e-9"])
         ref = mc.read_solution(full)
-        ranks = [(1, 1), (1, 2), (2, 1)] if mpiexec() else [(1, 1)]
+        ranks = [(1, 1), (1, 2), (2, 1)] if mc.mpiexec() else [(1, 1)]
         for stop_r, resume_r in ranks:
             tag = "%s: stopped on %d rank(s), resumed on %d" % (obj, stop_r, resume_r)
             ck = os.path.join(work, "ckm_%s_%d%d" % (obj, stop_r, resume_r))
@@ -762,7 +752,7 @@ def check_generator_terminal(chk, binary, work):
     src = os.path.join(os.path.dirname(os.path.abspath(__file__)), "..", "data", "gen_terminal.c")
     W, H = 9, 6
     fps = []
-    for nranks in ((1, 2) if mpiexec() else (1,)):
+    for nranks in ((1, 2) if mc.mpiexec() else (1,)):
         tag = "generator terminal values, built on %d rank(s)" % nranks
         model = os.path.join(work, "pond_%d.h5" % nranks)
         run_ranks(binary, nranks, ["build", src, "--objective", "finite", "--param", "levels=%d" % W, "-o", model])
@@ -817,9 +807,6 @@ def canal(n, seed, objective, freight):
     return states
 
 
-F_SETPIPE_SZ, F_GETPIPE_SZ = 1031, 1032  # fcntl.h (Linux)
-
-
 def pi_lines(log):
     """{k: text} of the lines 'solve: policy iteration k: ...' of a log."""
     out = {}
@@ -828,56 +815,6 @@ def pi_lines(log):
         if m:
             out[int(m.group(1))] = m.group(2)
     return out
-
-
-def stop_when_logged(binary, nranks, args, trigger, room, sig):
-    """Run sluice with rank 0's log going into a one-page pipe that holds
-    4096 - room bytes already: on Linux a write to such a pipe appends to
-    its page or waits until the reader has taken everything, so sluice can
-    log `room` bytes and no more while this reader keeps one byte back.
-    Once `trigger` has been logged, send sig (to sluice, or to mpiexec,
-    which forwards it), then read everything. Where the stop landed is for
-    the caller to read from the log, not from any clock. Returns (exit
-    code, rank 0's log, whether the trigger was seen)."""
-    r, w = os.pipe()
-    log = b""
-    seen = False
-    try:
-        fcntl.fcntl(w, F_SETPIPE_SZ, 4096)
-        cap = fcntl.fcntl(w, F_GETPIPE_SZ)
-        if cap != 4096:
-            raise mc.SluiceError("cannot make a one-page pipe (got %d bytes)" % cap)
-        os.write(w, b"\n" * (cap - room))
-        args = [str(a) for a in args]
-        if nranks == 1:
-            p = subprocess.Popen([binary] + args, stdout=subprocess.DEVNULL, stderr=w)
-        else:
-            wrap = ('if [ "${OMPI_COMM_WORLD_RANK:-$PMI_RANK}" = 0 ]; then exec "$0" "$@" 2>/proc/%d/fd/%d; fi; '
-                    'exec "$0" "$@"' % (os.getpid(), w))
-            p = subprocess.Popen([mpiexec(), "-n", str(nranks), "--oversubscribe", "sh", "-c", wrap, binary] + args,
-                                 stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
-        deadline = time.monotonic() + 300  # only against a hang
-        while time.monotonic() < deadline:
-            avail = struct.unpack("i", fcntl.ioctl(r, termios.FIONREAD, b"\0\0\0\0"))[0]
-            if avail > 1:
-                log += os.read(r, avail - 1)
-            if trigger in log:
-                seen = True
-                break
-            if p.poll() is not None:
-                break
-            time.sleep(0.005)
-        p.send_signal(sig)
-    finally:
-        os.close(w)
-    while True:
-        chunk = os.read(r, 65536)
-        if not chunk:
-            break
-        log += chunk
-    os.close(r)
-    rc = p.wait(timeout=300)
-    return rc, log.decode(errors="replace").lstrip("\n"), seen
 
 
 def newest_ckpt(d):
@@ -901,7 +838,7 @@ def check_pi_checkpoints(chk, binary, work):
     checkpoint resumed with --method pi starts from the greedy policy of its
     values; a policy-iteration checkpoint resumed by value iteration goes on
     from its values."""
-    multi = mpiexec() is not None
+    multi = mc.mpiexec() is not None
     if not multi:
         chk.note("no mpiexec: the 2-rank cases are skipped")
     for obj, freight in (("total", 60.0), ("average", 400.0)):
@@ -986,7 +923,7 @@ def check_pi_checkpoints(chk, binary, work):
             ck = os.path.join(work, "pck_%s_sig%d" % (obj, nranks))
             shutil.rmtree(ck, ignore_errors=True)
             part = os.path.join(work, "pck_%s_sig%d_part.h5" % (obj, nranks))
-            rc, log, seen = stop_when_logged(binary, nranks, ["solve", model, "-o", part, "--checkpoint", ck] + base,
+            rc, log, seen = mc.stop_when_logged(binary, nranks, ["solve", model, "-o", part, "--checkpoint", ck] + base,
                                              b"solve: policy iteration 1:", room, sig)
             m = re.findall(r"checkpoint after policy iteration (\d+) written", log)
             k = int(m[-1]) if m else -1
@@ -1006,7 +943,7 @@ def check_pi_checkpoints(chk, binary, work):
         ck = os.path.join(work, "pck_%s_usr1" % obj)
         shutil.rmtree(ck, ignore_errors=True)
         out = os.path.join(work, "pck_%s_usr1.h5" % obj)
-        rc, log, seen = stop_when_logged(binary, 1, ["solve", model, "-o", out, "--checkpoint", ck] + base,
+        rc, log, seen = mc.stop_when_logged(binary, 1, ["solve", model, "-o", out, "--checkpoint", ck] + base,
                                          b"solve: policy iteration 1:", room, signal.SIGUSR1)
         m = re.findall(r"checkpoint after policy iteration (\d+) written", log)
         s = mc.read_solution(out) if rc == 0 else {}
@@ -1081,7 +1018,7 @@ def check_pi_midway_fallback(chk, binary, work):
         mdp = float_states(thin_then_dense(81, 150, obj), 1.0)
         model = imp(binary, mdp, work, "mid_" + obj, obj)
         vi_words = "value iteration" if obj == "total" else "relative value iteration"
-        for nranks in ((1, 2) if mpiexec() else (1,)):
+        for nranks in ((1, 2) if mc.mpiexec() else (1,)):
             tag = "%s pi, direct solve declined at iteration 2, %d rank(s)" % (obj, nranks)
             sol = os.path.join(work, "mid_%s_%d.h5" % (obj, nranks))
             rep = os.path.join(work, "mid_%s_%d.json" % (obj, nranks))

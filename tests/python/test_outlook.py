@@ -49,7 +49,6 @@ import csv
 import json
 import math
 import os
-import shutil
 import subprocess
 import sys
 
@@ -67,19 +66,11 @@ K = 20000
 STAGES = 36
 
 
-def mpiexec():
-    for name in ("mpiexec", "mpirun"):
-        p = shutil.which(name)
-        if p:
-            return p
-    return None
-
-
 def outlook(binary, model, sol, start, stages, ranks=1):
     env = dict(os.environ, OMPI_ALLOW_RUN_AS_ROOT="1", OMPI_ALLOW_RUN_AS_ROOT_CONFIRM="1")
     cmd = [binary, "outlook", model, sol, "--start", start, "--stages", str(stages), "--json"]
     if ranks > 1:
-        cmd = [mpiexec(), "-np", str(ranks), "--oversubscribe"] + cmd
+        cmd = [mc.mpiexec(), "-np", str(ranks), "--oversubscribe"] + cmd
     cp = subprocess.run(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env, timeout=600)
     if cp.returncode != 0:
         raise mc.SluiceError("%s: exit %d: %s" % (" ".join(cmd), cp.returncode, cp.stderr.strip()))
@@ -348,7 +339,7 @@ def main():
     check_csv(chk, binary, work, model, sol, start_spec, doc)
 
     # ranks
-    if mpiexec() is None:
+    if mc.mpiexec() is None:
         chk.note("skip: no mpiexec for the 2- and 3-rank comparison")
     else:
         base = doc

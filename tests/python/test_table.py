@@ -31,7 +31,6 @@ Run under /usr/bin/python3 (Debian numpy and h5py).
 import csv
 import io
 import os
-import shutil
 import subprocess
 import sys
 
@@ -44,19 +43,11 @@ import mdp_common as mc  # noqa: E402
 PARAMS = ["--param", "storage_levels=21", "--param", "inflow_classes=4", "--param", "release_levels=7"]
 
 
-def mpiexec():
-    for name in ("mpiexec", "mpirun"):
-        p = shutil.which(name)
-        if p:
-            return p
-    return None
-
-
 def run_table(binary, args, ranks):
     env = dict(os.environ, OMPI_ALLOW_RUN_AS_ROOT="1", OMPI_ALLOW_RUN_AS_ROOT_CONFIRM="1")
     cmd = [binary, "table"] + args + ["-o", "-"]
     if ranks > 1:
-        cmd = [mpiexec(), "-np", str(ranks), "--oversubscribe"] + cmd
+        cmd = [mc.mpiexec(), "-np", str(ranks), "--oversubscribe"] + cmd
     cp = subprocess.run(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env, timeout=300)
     if cp.returncode != 0:
         raise mc.SluiceError("%s: exit %d: %s" % (" ".join(cmd), cp.returncode, cp.stderr.strip()))
@@ -168,7 +159,7 @@ def main():
               "%d switches listed, %d expected" % (len(rows), len(want)))
 
     # 2 and 3 ranks give the same CSV, byte for byte
-    if mpiexec() is None:
+    if mc.mpiexec() is None:
         print("skip: no mpiexec for the 2- and 3-rank comparison")
     else:
         for ranks in (2, 3):

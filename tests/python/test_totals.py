@@ -36,21 +36,13 @@ HERE = os.path.dirname(os.path.abspath(__file__))
 RESERVOIR = os.path.join(HERE, "..", "..", "examples", "reservoir.c")
 
 
-def mpiexec():
-    for name in ("mpiexec", "mpirun"):
-        p = shutil.which(name)
-        if p:
-            return p
-    return None
-
-
 def evaluate(binary, work, model, pol, other, tag, ranks=1):
     env = dict(os.environ, OMPI_ALLOW_RUN_AS_ROOT="1", OMPI_ALLOW_RUN_AS_ROOT_CONFIRM="1")
     out = os.path.join(work, "totals-%s.csv" % tag)
     cmd = [binary, "evaluate", model, "--policy", pol, "-o", os.path.join(work, "v-%s.h5" % tag),
            "--totals", out, "--compare", other, "--quiet"]
     if ranks > 1:
-        cmd = [mpiexec(), "-np", str(ranks), "--oversubscribe"] + cmd
+        cmd = [mc.mpiexec(), "-np", str(ranks), "--oversubscribe"] + cmd
     cp = subprocess.run(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env, timeout=600)
     if cp.returncode != 0:
         raise mc.SluiceError("%s: exit %d: %s" % (" ".join(cmd), cp.returncode, cp.stderr.strip()))
@@ -123,7 +115,7 @@ def main():
         chk.check(ed <= 2 * tol, "%s: difference column" % q, "max error %.3g" % ed)
     # the two policies differ, so the comparison is not vacuous
     chk.check(float(np.max(np.abs(ra["release"] - rb["release"]))) > 1.0, "the compared policies differ in release")
-    if mpiexec() is None:
+    if mc.mpiexec() is None:
         chk.note("skip: no mpiexec for the 2- and 3-rank comparison")
     else:
         for ranks in (2, 3):

@@ -58,6 +58,12 @@ else()
             $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/py_objectives_pi)
   set_tests_properties(py_objectives_pi PROPERTIES LABELS "python;mpi" TIMEOUT 900
     ENVIRONMENT "OBJ_PARTS=pi_checkpoints,pi_midway;SLUICE_CACHE=${PROJECT_BINARY_DIR}/test-cache;SLUICE_MPIEXEC=${MPIEXEC_EXECUTABLE};OMPI_ALLOW_RUN_AS_ROOT=1;OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1;OMPI_MCA_rmaps_base_oversubscribe=1")
+  # a signal pinned before a sweep boundary of known parity (deterministic
+  # where cli_checkpoint_signals relies on when a busy machine delivers it)
+  add_test(NAME py_signal_boundary
+    COMMAND ${SLUICE_TEST_PYTHON} ${_sluice_py_dir}/test_signal_boundary.py
+            $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/py_signal_boundary)
+  set_tests_properties(py_signal_boundary PROPERTIES LABELS python TIMEOUT 300)
   add_test(NAME py_objectives_ranks
     COMMAND ${SLUICE_TEST_PYTHON} ${_sluice_py_dir}/test_objectives.py
             $<TARGET_FILE:sluice> ${PROJECT_BINARY_DIR}/py_objectives_ranks)
