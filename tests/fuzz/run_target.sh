@@ -13,7 +13,7 @@ SRC=$1 WORK=$2 T=$3 SECS=${4:-30}
 dict="" # a libFuzzer dictionary of the format's pieces, if the target has one
 [ -f "$SRC/tests/fuzz/$T.dict" ] && dict="-dict=$SRC/tests/fuzz/$T.dict"
 # labels.c also looks a state up in a model file: the store comes along
-store="src/core/core.c src/core/names.c src/model/model.c src/model/handle.c src/parallel/layout.c src/store/h5.c src/store/model_io.c"
+store="src/core/core.c src/core/names.c src/model/model.c src/model/handle.c src/parallel/layout.c src/store/h5.c src/store/h5_chunks.c src/store/model_io.c"
 case "$T" in
   validate) libs="src/core/core.c src/model/model.c" ;;
   parse) libs="$store src/analysis/labels.c" ;;
@@ -26,7 +26,7 @@ command -v clang >/dev/null || { echo "not ok - clang not installed (Debian: cla
 rm -rf "$WORK" && mkdir -p "$WORK/corpus"
 if ! OMPI_CC=clang mpicc -std=c11 -D_POSIX_C_SOURCE=200809L -g -O1 -fsanitize=fuzzer,address,undefined \
      -I"$SRC/src" -I"$SRC/include" $(pkg-config --cflags hdf5-openmpi) "$SRC/tests/fuzz/fuzz_$T.c" \
-     $(for f in $libs; do printf '%s ' "$SRC/$f"; done) $(pkg-config --libs hdf5-openmpi) -lm \
+     $(for f in $libs; do printf '%s ' "$SRC/$f"; done) $(pkg-config --libs hdf5-openmpi) -lz -lm \
      -o "$WORK/fuzz_$T" 2> "$WORK/build.log"; then
   cat "$WORK/build.log"; echo "not ok - build the fuzz target"; echo "0 passed, 1 failed"; exit 1
 fi

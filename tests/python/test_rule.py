@@ -66,7 +66,7 @@ def run_json(binary, args, ranks=1):
     env = dict(os.environ, OMPI_ALLOW_RUN_AS_ROOT="1", OMPI_ALLOW_RUN_AS_ROOT_CONFIRM="1")
     cmd = [binary] + args
     if ranks > 1:
-        cmd = [tol.mpiexec(), "-np", str(ranks), "--oversubscribe"] + cmd
+        cmd = [mc.mpiexec(), "-np", str(ranks), "--oversubscribe"] + cmd
     cp = subprocess.run(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env, timeout=600)
     if cp.returncode != 0:
         raise mc.SluiceError("%s: exit %d: %s" % (" ".join(cmd), cp.returncode, cp.stderr.strip()))
@@ -134,7 +134,7 @@ def main():
                and a["discounted_reward"] == b["discounted_reward"] for a, b in zip(doc["stages"], doch5["stages"]))
     chk.check(same and len(doc["stages"]) == len(doch5["stages"]),
               "the rule from its CSV and from a solution file give identical outlooks")
-    if tol.mpiexec() is None:
+    if mc.mpiexec() is None:
         chk.note("skip: no mpiexec for the 2- and 3-rank comparison")
     else:
         for ranks in (2, 3):
@@ -170,11 +170,11 @@ def main():
     chk.check(err <= allow, "evaluate --policy RULE.csv = scipy spsolve of (I - gamma P_rule) v = r_rule",
               "max error %.3g, allowed %.3g kCU" % (err, allow))
     chk.check(float(np.max(np.abs(v - tol.Files(model, sol).v))) > 1.0, "the rule's values differ from the optimum's")
-    if tol.mpiexec() is not None:
+    if mc.mpiexec() is not None:
         # the rule read once and scattered to the solve's partition of 2 ranks
         vals2 = os.path.join(work, "rule_values_np2.h5")
         env = dict(os.environ, OMPI_ALLOW_RUN_AS_ROOT="1", OMPI_ALLOW_RUN_AS_ROOT_CONFIRM="1")
-        cmd = [tol.mpiexec(), "-np", "2", "--oversubscribe", binary, "evaluate", "-q", model, "--policy", rule_csv,
+        cmd = [mc.mpiexec(), "-np", "2", "--oversubscribe", binary, "evaluate", "-q", model, "--policy", rule_csv,
                "-o", vals2]
         cp = subprocess.run(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env, timeout=600)
         ok = cp.returncode == 0
