@@ -106,9 +106,24 @@ def main():
     chk.finish()
 
 
+def descends_from(pid, ancestor):
+    """True if process pid is ancestor or one of its descendants (/proc)."""
+    while pid > 1:
+        if pid == ancestor:
+            return True
+        try:
+            with open("/proc/%d/stat" % pid) as f:
+                pid = int(f.read().rsplit(")", 1)[1].split()[1])
+        except (OSError, ValueError, IndexError):
+            return False
+    return False
+
+
 def rank_pids(launcher_pid, binary, rank):
     """Pids of the processes under launcher_pid whose MPI rank (Open MPI's or
-    PMI's variable) is `rank`."""
+    PMI's variable) is `rank`. Only its descendants: other tests run the
+    same binary on 2 ranks side by side (ctest -j2), and a signal meant for
+    this run must never reach theirs."""
     out = []
     for d in os.listdir("/proc"):
         if not d.isdigit():
@@ -121,7 +136,8 @@ def rank_pids(launcher_pid, binary, rank):
         except OSError:
             continue
         r = env.get(b"OMPI_COMM_WORLD_RANK", env.get(b"PMI_RANK"))
-        if r == str(rank).encode() and argv[0] == binary.encode() and int(d) != launcher_pid:
+        if r == str(rank).encode() and argv[0] == binary.encode() and int(d) != launcher_pid and \
+                descends_from(int(d), launcher_pid):
             out.append(int(d))
     return out
 
