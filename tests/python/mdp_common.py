@@ -25,6 +25,7 @@ Run under /usr/bin/python3 (numpy, scipy, h5py from Debian).
 import fcntl
 import json
 import os
+import re
 import shlex
 import shutil
 import struct
@@ -478,6 +479,14 @@ def stop_when_logged(binary, nranks, args, trigger, room, sig, blocked=False):
     os.close(r)
     rc = p.wait(timeout=300)
     return rc, log.decode(errors="replace").lstrip("\n"), seen
+
+
+def checkpoint_files(d):
+    """Paths of the checkpoint files in directory d, oldest first (names
+    ckpt-NNNNNN.h5); [] if d does not exist."""
+    if not os.path.isdir(d):
+        return []
+    return [os.path.join(d, n) for n in sorted(os.listdir(d)) if re.fullmatch(r"ckpt-\d+\.h5", n)]
 
 
 def run_sluice(binary, args, expect=(EXIT_OK,), timeout=300):

@@ -818,8 +818,8 @@ def pi_lines(log):
 
 
 def newest_ckpt(d):
-    names = sorted(n for n in os.listdir(d) if re.fullmatch(r"ckpt-\d+\.h5", n))
-    return os.path.join(d, names[-1]) if names else None
+    names = mc.checkpoint_files(d)
+    return names[-1] if names else None
 
 
 def check_pi_checkpoints(chk, binary, work):

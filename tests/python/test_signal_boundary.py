@@ -94,9 +94,9 @@ def main():
             chk.check(at <= acted and (prev is None or prev <= at),
                       "%s: arrival between the previous boundary and the one acted on (solver clock)" % tag,
                       m.group(0))
-            names = sorted(n for n in os.listdir(ck) if re.fullmatch(r"ckpt-\d+\.h5", n)) if os.path.isdir(ck) else []
+            names = mc.checkpoint_files(ck)
             if chk.check(len(names) >= 1, "%s: a checkpoint was written" % tag, "in %s: %s" % (ck, names)):
-                with h5py.File(os.path.join(ck, names[0]), "r") as f:
+                with h5py.File(names[0], "r") as f:
                     got = int(mc._attr(f, "iteration"))
                 chk.check(got == b, "%s: the first checkpoint holds iteration %d" % (tag, b),
                           "%s holds iteration %d" % (names[0], got))

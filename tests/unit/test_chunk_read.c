@@ -26,15 +26,6 @@
 
 #include "ctx_fixture.h"
 
-/* a directory of this run's own (unit and mpi_unit runs go side by side) */
-static void workdir(char *dir)
-{
-    int rank;
-    MPI_Comm_rank(MPI_COMM_WORLD, &rank);
-    if (rank == 0) assert_non_null(mkdtemp(dir));
-    MPI_Bcast(dir, (int)strlen(dir) + 1, MPI_CHAR, 0, MPI_COMM_WORLD);
-}
-
 /* read both ways; the direct way must have read chunks itself, the other none */
 static void read_both(sl_ctx *ctx, const char *path, const sl_meta *m, int64_t s0, int64_t s1, sl_block *direct,
                       sl_block *h5)
@@ -80,7 +71,7 @@ static void test_model_both_ways(void **state)
 {
     sl_ctx *ctx = ctx_of(state);
     char dir[] = SLUICE_BINARY_DIR "/chunkread-XXXXXX", path[sizeof(dir) + 16];
-    workdir(dir);
+    shared_tmpdir(dir);
     snprintf(path, sizeof(path), "%s/r.h5", dir);
     const char *names[2] = {"storage_levels", "inflow_classes"};
     const double values[2] = {250, 5};
@@ -144,7 +135,7 @@ static void test_other_layouts(void **state)
 {
     sl_ctx *ctx = ctx_of(state);
     char dir[] = SLUICE_BINARY_DIR "/chunkread-XXXXXX", path[sizeof(dir) + 16];
-    workdir(dir);
+    shared_tmpdir(dir);
     snprintf(path, sizeof(path), "%s/l.h5", dir);
     const int64_t n = 3 * (int64_t)SL_H5_CHUNK + 123;
     int rank = sl_ctx_rank(ctx);

@@ -202,8 +202,7 @@ static void test_monitor_save_verify(void **state)
     events e = {0, 0, 0, 0, 0, 1};
     char dir[] = "/tmp/sluice-handles-XXXXXX", mp[128], xp[128];
     int rank = sl_ctx_rank(ctx);
-    if (rank == 0) assert_non_null(mkdtemp(dir));
-    MPI_Bcast(dir, (int)sizeof(dir), MPI_CHAR, 0, MPI_COMM_WORLD);
+    shared_tmpdir(dir);
     snprintf(mp, sizeof(mp), "%s/tarn.h5", dir);
     snprintf(xp, sizeof(xp), "%s/tarn-solution.h5", dir);
 
@@ -323,13 +322,11 @@ static sl_status build(sl_ctx *ctx, double efficiency, const char *path)
 static void test_resave(void **state)
 {
     sl_ctx *ctx = ctx_of(state);
-    /* a directory of this run's own: unit_test_handles and mpi_unit_handles_N
-     * run side by side under ctest -j2, and with shared file names one run's
-     * rename took the other's file (seen on 2026-12-03: rename failed) */
+    /* a directory of this run's own: with shared file names one run's rename
+     * took the other's file (seen on 2026-12-03: rename failed) */
     char dir[] = SLUICE_BINARY_DIR "/resave-XXXXXX", a[sizeof(dir) + 16], b[sizeof(a)], c[sizeof(a)], d[sizeof(a)];
     int rank = sl_ctx_rank(ctx), rc = 0;
-    if (rank == 0) assert_non_null(mkdtemp(dir));
-    MPI_Bcast(dir, (int)sizeof(dir), MPI_CHAR, 0, MPI_COMM_WORLD);
+    shared_tmpdir(dir);
     snprintf(a, sizeof(a), "%s/a.h5", dir);
     snprintf(b, sizeof(b), "%s/b.h5", dir);
     snprintf(c, sizeof(c), "%s/c.h5", dir);
