@@ -125,6 +125,10 @@ with h5py.File(dst, "r+") as f:
             new = zlib.compress(plain[:-8], 1)
         elif kind == "chunk_long":      # a valid stream of one element more
             new = zlib.compress(plain + bytes(8), 1)
+        elif kind == "chunk_header":    # compression method 7 in the zlib header (deflate is 8)
+            new = bytes([(raw[0] & 0xF0) | 7]) + raw[1:]
+        elif kind == "chunk_cut":       # the deflate stream whole, the last two checksum bytes cut off
+            new = raw[:-2]
         else:                           # chunk_oversized: the stream followed by a chunk of zeros,
             new = raw + bytes(len(plain))  # more than zlib's compressBound of a chunk
         d.id.write_direct_chunk((0,), new, mask)
@@ -176,11 +180,15 @@ done
 model_case "a stored chunk of /transition/probability with 16 bytes flipped" chunk_flipped 65 \
     "transition/probability" "compressed chunk of elements 0.."
 model_case "a stored chunk of /transition/probability with a wrong zlib checksum" chunk_checksum 65 \
-    "transition/probability" "compressed chunk of elements 0.." "incorrect data check"
+    "transition/probability" "compressed chunk of elements 0.." "adler32 checksum does not match"
 model_case "a stored chunk of /transition/probability inflating to one element less" chunk_short 65 \
     "transition/probability" "compressed chunk of elements 0.." "less than a chunk"
 model_case "a stored chunk of /transition/probability inflating to one element more" chunk_long 65 \
     "transition/probability" "compressed chunk of elements 0.." "more than a chunk"
+model_case "a stored chunk of /transition/probability whose zlib header names another method" chunk_header 65 \
+    "transition/probability" "compressed chunk of elements 0.." "not a zlib stream"
+model_case "a stored chunk of /transition/probability cut inside its checksum" chunk_cut 65 \
+    "transition/probability" "compressed chunk of elements 0.." "truncated before its checksum"
 model_case "a stored chunk of /transition/probability longer than any deflated chunk can be" chunk_oversized 65 \
     "transition/probability" "more than a chunk of"
 model_case "probability +Inf" prob_inf 65
