@@ -57,6 +57,12 @@ with h5py.File(dst, "r+") as f:
         d = f["pair/reward"]; d[1] = -np.inf
     elif kind == "reward_nan":
         d = f["pair/reward"]; d[1] = np.nan
+    elif kind.startswith("quantity_"): # pair 7 of the energy quantity (read for the fingerprint)
+        part, x = {"quantity_mean_inf": ("mean", np.inf), "quantity_mean_nan": ("mean", np.nan),
+                   "quantity_pos_above": ("p_positive", np.nextafter(1.0, 2.0)),
+                   "quantity_pos_negative": ("p_positive", -1e-300),
+                   "quantity_pos_nan": ("p_positive", -np.nan)}[kind]
+        d = f["quantity/energy/" + part]; d[7] = x
     elif kind == "discount_nan":
         f.attrs.modify("discount", np.nan)
     elif kind == "n_trans_huge":      # 2^62 transitions: must not be allocated
@@ -193,6 +199,16 @@ model_case "a stored chunk of /transition/probability longer than any deflated c
     "transition/probability" "more than a chunk of"
 model_case "probability +Inf" prob_inf 65
 model_case "reward -Inf" reward_inf 65
+# the quantities' checks (each value of every pair, on the bits; the message
+# from the plain test): pair 7 of /quantity/energy
+model_case "a quantity's mean +Inf" quantity_mean_inf 65 "/quantity/energy/mean[7]" "not finite"
+model_case "a quantity's mean NaN" quantity_mean_nan 65 "/quantity/energy/mean[7]" "not finite"
+model_case "a quantity's p_positive the next double above 1" quantity_pos_above 65 \
+    "/quantity/energy/p_positive[7]" "not a probability"
+model_case "a quantity's p_positive -1e-300" quantity_pos_negative 65 "/quantity/energy/p_positive[7]" \
+    "not a probability"
+model_case "a quantity's p_positive NaN with the sign bit set" quantity_pos_nan 65 \
+    "/quantity/energy/p_positive[7]" "not a probability"
 model_case "reward NaN" reward_nan 65
 model_case "discount NaN" discount_nan 65 "discount"
 model_case "n_transitions 2^62 (no allocation attempted)" n_trans_huge 65
