@@ -8,8 +8,9 @@
  * its adler32 checksum are checked here, as zlib does for HDF5's own reads)
  * and unshuffled straight into the caller's array: one pass less over the
  * data, and no chunk cache. libdeflate rather than zlib's streaming inflate:
- * it takes a whole chunk at once and its adler32 is vectorised (zlib's took
- * about a tenth of a solve's start-up, bench/README.md).
+ * it takes a whole chunk at once and its adler32 is vectorised (zlib was
+ * about a third of a solve's start-up CPU, its adler32 alone a tenth;
+ * bench/README.md, fifth pass).
  *
  * Only what sl_h5_create_1d writes is read this way: chunked layout, no
  * filters or deflate alone or shuffle then deflate, a file type equal to
