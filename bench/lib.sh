@@ -87,12 +87,14 @@ bench_tv() {
         /User time/ { u = $NF }
         /System time/ { s = $NF }
         /Maximum resident set size/ { r = $NF / 1024 }
+        /Minor \(reclaiming a frame\) page faults/ { f = $NF }
         END {
             if (want == "wall") printf "%.2f\n", w
             else if (want == "user") printf "%.2f\n", u
             else if (want == "sys") printf "%.2f\n", s
             else if (want == "cpu") printf "%.2f\n", u + s
             else if (want == "rss") printf "%.0f\n", r
+            else if (want == "minflt") printf "%d\n", f
         }' "$1"
 }
 

@@ -9,9 +9,10 @@
 #   REPS=3         runs of each variant, interleaved
 #   OLD_SLUICE=... another sluice binary, run as a third variant
 #
-# Prints each run (wall, user, sys, CPU = user + sys, peak RSS, load average
-# before it), then the medians and the ratio of the CPU medians. On a shared
-# machine read CPU time and peak RSS; wall time depends on the load.
+# Prints each run (wall, user, sys, CPU = user + sys, peak RSS, minor page
+# faults, load average before it), then the medians and the ratio of the CPU
+# medians. On a shared machine read CPU time, peak RSS and page faults; wall
+# time depends on the load.
 . "$(dirname "$0")/lib.sh"
 bench_init "$@"
 REPS=${REPS:-3}
@@ -36,7 +37,7 @@ for r in $(seq "$REPS"); do
         [ "$rc" = 0 ] || [ "$rc" = 75 ] || bench_fail "$v run $r: exit $rc ($(tail -1 "startup.$v.$r.err"))"
         echo "$v $r $(bench_tv "startup.$v.$r.time" wall) $(bench_tv "startup.$v.$r.time" user)" \
              "$(bench_tv "startup.$v.$r.time" sys) $(bench_tv "startup.$v.$r.time" cpu)" \
-             "$(bench_tv "startup.$v.$r.time" rss) $l" >>startup-runs.txt
+             "$(bench_tv "startup.$v.$r.time" rss) $(bench_tv "startup.$v.$r.time" minflt) $l" >>startup-runs.txt
     done
 done
 rm -f startup.h5
@@ -46,19 +47,21 @@ import statistics, sys
 runs = {}
 order = []
 for line in open(sys.argv[1]):
-    v, r, wall, user, sys_, cpu, rss, load = line.split()
+    v, r, wall, user, sys_, cpu, rss, minflt, load = line.split()
     if v not in runs:
         runs[v] = []
         order.append(v)
-    runs[v].append((float(wall), float(user), float(sys_), float(cpu), float(rss), float(load)))
-print("%-8s %3s %8s %8s %8s %8s %9s %6s" % ("variant", "run", "wall s", "user s", "sys s", "CPU s", "RSS MB", "load"))
+    runs[v].append((float(wall), float(user), float(sys_), float(cpu), float(rss), float(minflt), float(load)))
+print("%-8s %3s %8s %8s %8s %8s %9s %9s %6s" %
+      ("variant", "run", "wall s", "user s", "sys s", "CPU s", "RSS MB", "minflt", "load"))
 for v in order:
     for i, x in enumerate(runs[v], 1):
-        print("%-8s %3d %8.2f %8.2f %8.2f %8.2f %9.0f %6.2f" % ((v, i) + x))
-med = {v: [statistics.median(x[k] for x in runs[v]) for k in range(5)] for v in order}
+        print("%-8s %3d %8.2f %8.2f %8.2f %8.2f %9.0f %9.0f %6.2f" % ((v, i) + x))
+med = {v: [statistics.median(x[k] for x in runs[v]) for k in range(6)] for v in order}
 print()
 for v in order:
-    print("%-8s medians: wall %.2f s, CPU %.2f s, peak RSS %.0f MB" % (v, med[v][0], med[v][3], med[v][4]))
+    print("%-8s medians: wall %.2f s, user %.2f s, sys %.2f s, CPU %.2f s, peak RSS %.0f MB, minor faults %.0f" %
+          (v, med[v][0], med[v][1], med[v][2], med[v][3], med[v][4], med[v][5]))
 for v in order:
     if v != "direct":
         print("CPU direct / %s: %.3f; peak RSS direct - %s: %+.0f MB" %

@@ -134,22 +134,27 @@ sl_status sl_agree(sl_ctx *ctx, sl_status st)
 }
 
 /* Large arrays (the model's rows, vectors) are filled once and then read
- * every sweep. Asking for transparent huge pages on the 2 MB-aligned inside
- * of such a block turns 512 page faults into one while it is filled, and
- * cuts TLB misses of the gathered x[col] loads. It is advice only: where the
+ * every sweep. A block of 4 MB or more is allocated on a 2 MB boundary and
+ * rounded up to whole 2 MB pages (at most 2 MB more, never touched), and
+ * transparent huge pages are asked for on all of it: one page fault per
+ * 2 MB instead of 512 while it is filled, none at its ends, and fewer TLB
+ * misses of the gathered x[col] loads. The advice is only that: where the
  * kernel does not support it (EINVAL) or has THP switched off, nothing
- * changes, so the call's failure is deliberately not an error. */
-static void advise_huge(void *p, size_t bytes)
+ * changes, so its failure is deliberately not an error. NULL if out of
+ * memory. */
+static void *alloc_large(size_t bytes)
 {
 #ifdef MADV_HUGEPAGE
-    const uintptr_t huge = (uintptr_t)2 << 20;
-    if (p == NULL || bytes < 4 * huge) return;
-    uintptr_t a = ((uintptr_t)p + huge - 1) & ~(huge - 1), e = ((uintptr_t)p + bytes) & ~(huge - 1);
-    if (e > a && madvise((void *)a, e - a, MADV_HUGEPAGE) != 0) return; /* advice refused: plain pages */
-#else
-    (void)p;
-    (void)bytes;
+    const size_t huge = (size_t)2 << 20;
+    if (bytes >= 2 * huge && bytes <= SIZE_MAX - huge) {
+        const size_t whole = (bytes + huge - 1) / huge * huge;
+        void *p = NULL;
+        if (posix_memalign(&p, huge, whole) != 0) return NULL;
+        (void)madvise(p, whole, MADV_HUGEPAGE); /* refused: plain pages, nothing else changes */
+        return p;
+    }
 #endif
+    return malloc(bytes ? bytes : 1);
 }
 
 void *sl_malloc(sl_ctx *ctx, size_t count, size_t size, const char *what)
@@ -164,10 +169,9 @@ void *sl_malloc(sl_ctx *ctx, size_t count, size_t size, const char *what)
                bytes, (long long)ctx->alloc_count);
         return NULL;
     }
-    void *p = malloc(bytes ? bytes : 1);
+    void *p = alloc_large(bytes);
     if (p == NULL)
         SL_ERR(ctx, SL_ENOMEM, "out of memory allocating %s (%zu bytes)", what, bytes);
-    advise_huge(p, bytes);
     return p;
 }
 

@@ -69,6 +69,9 @@ sl_status sl_h5_read_1d(sl_ctx *ctx, hid_t file, const char *name, hid_t mtype, 
  * Local. */
 int sl_h5_read_chunks(sl_ctx *ctx, hid_t file, hid_t dset, hid_t mtype, int64_t offset, int64_t count, void *buf,
                       const char *name, const char *path, sl_status *st);
+/* The most bytes zlib's deflate (HDF5's deflate filter) can make of N bytes:
+ * a larger stored chunk is refused before anything that large is read. */
+size_t sl_zlib_bound(size_t n);
 /* Length of a 1-D dataset (-1 if missing). Local. */
 int64_t sl_h5_length(hid_t file, const char *name);
 /* Storage and raw sizes of a dataset in bytes. Local. */

@@ -818,6 +818,40 @@ sl_status sl_store_quantity_read(sl_ctx *ctx, const char *path, const sl_meta *m
     return st;
 }
 
+/* 1 if any of v[0..n) is not finite (means) or not in [0, 1] (p_positive;
+ * NaN is not). Every quantity of every pair passes here on each load, so it
+ * is written on the IEEE 754 bits, with no comparison (GCC 12 vectorises no
+ * loop that ORs comparison results together) and no early exit; bit 63 of
+ * the accumulated word is the answer:
+ * - not finite: the exponent all ones, the only case where adding one to
+ *   the exponent field carries into bit 63;
+ * - not in [0, 1]: the magnitude bits above those of 1.0 (> 1, Inf, NaN of
+ *   either sign), so ONE - mag wraps around to bit 63 set; or the sign set
+ *   with a magnitude not zero (a negative number; -0.0 passes), where
+ *   mag + 0x7FF..F reaches bit 63.
+ * The plain test (!isfinite(x), !(x >= 0.0 && x <= 1.0)) finds the value
+ * for the message. */
+static int quantity_bad(const double *v, int64_t n, int probability)
+{
+    const uint64_t sign = (uint64_t)1 << 63, exp_bits = 0x7FF0000000000000ull, one = 0x3FF0000000000000ull;
+    uint64_t bad = 0;
+    if (probability) {
+        for (int64_t k = 0; k < n; k++) {
+            uint64_t b;
+            memcpy(&b, v + k, sizeof(b));
+            const uint64_t mag = b & ~sign;
+            bad |= (b & (mag + ~sign)) | (one - mag);
+        }
+    } else {
+        for (int64_t k = 0; k < n; k++) {
+            uint64_t b;
+            memcpy(&b, v + k, sizeof(b));
+            bad |= (b & exp_bits) + ((uint64_t)1 << 52);
+        }
+    }
+    return (bad & sign) != 0;
+}
+
 static sl_status quantity_read(sl_ctx *ctx, hid_t f, const sl_meta *m, int q, int64_t p_begin, int64_t n,
                                double *mean, double *pos, const char *path)
 {
@@ -828,6 +862,8 @@ static sl_status quantity_read(sl_ctx *ctx, hid_t f, const sl_meta *m, int q, in
         double *dst = part ? pos : mean;
         snprintf(name, sizeof(name), "/quantity/%s/%s", m->quantity_name[q], part ? "p_positive" : "mean");
         st = sl_h5_read_1d(ctx, f, name, H5T_NATIVE_DOUBLE, m->n_pairs, p_begin, n, dst, path);
+        if (st != SL_OK || !quantity_bad(dst, n, part)) continue;
+        /* the first value that is wrong, for the message */
         for (int64_t k = 0; st == SL_OK && k < n; k++)
             if (!isfinite(dst[k]) || (part && !(dst[k] >= 0.0 && dst[k] <= 1.0)))
                 st = SL_ERR(ctx, SL_EDATA, "%s: %s[%lld] = %g is %s", path, name, (long long)(p_begin + k), dst[k],

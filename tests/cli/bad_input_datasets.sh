@@ -57,6 +57,12 @@ with h5py.File(dst, "r+") as f:
         d = f["pair/reward"]; d[1] = -np.inf
     elif kind == "reward_nan":
         d = f["pair/reward"]; d[1] = np.nan
+    elif kind.startswith("quantity_"): # pair 7 of the energy quantity (read for the fingerprint)
+        part, x = {"quantity_mean_inf": ("mean", np.inf), "quantity_mean_nan": ("mean", np.nan),
+                   "quantity_pos_above": ("p_positive", np.nextafter(1.0, 2.0)),
+                   "quantity_pos_negative": ("p_positive", -1e-300),
+                   "quantity_pos_nan": ("p_positive", -np.nan)}[kind]
+        d = f["quantity/energy/" + part]; d[7] = x
     elif kind == "discount_nan":
         f.attrs.modify("discount", np.nan)
     elif kind == "n_trans_huge":      # 2^62 transitions: must not be allocated
@@ -125,6 +131,10 @@ with h5py.File(dst, "r+") as f:
             new = zlib.compress(plain[:-8], 1)
         elif kind == "chunk_long":      # a valid stream of one element more
             new = zlib.compress(plain + bytes(8), 1)
+        elif kind == "chunk_header":    # compression method 7 in the zlib header (deflate is 8)
+            new = bytes([(raw[0] & 0xF0) | 7]) + raw[1:]
+        elif kind == "chunk_cut":       # the deflate stream whole, the last two checksum bytes cut off
+            new = raw[:-2]
         else:                           # chunk_oversized: the stream followed by a chunk of zeros,
             new = raw + bytes(len(plain))  # more than zlib's compressBound of a chunk
         d.id.write_direct_chunk((0,), new, mask)
@@ -176,15 +186,29 @@ done
 model_case "a stored chunk of /transition/probability with 16 bytes flipped" chunk_flipped 65 \
     "transition/probability" "compressed chunk of elements 0.."
 model_case "a stored chunk of /transition/probability with a wrong zlib checksum" chunk_checksum 65 \
-    "transition/probability" "compressed chunk of elements 0.." "incorrect data check"
+    "transition/probability" "compressed chunk of elements 0.." "adler32 checksum does not match"
 model_case "a stored chunk of /transition/probability inflating to one element less" chunk_short 65 \
     "transition/probability" "compressed chunk of elements 0.." "less than a chunk"
 model_case "a stored chunk of /transition/probability inflating to one element more" chunk_long 65 \
     "transition/probability" "compressed chunk of elements 0.." "more than a chunk"
+model_case "a stored chunk of /transition/probability whose zlib header names another method" chunk_header 65 \
+    "transition/probability" "compressed chunk of elements 0.." "not a zlib stream"
+model_case "a stored chunk of /transition/probability cut inside its checksum" chunk_cut 65 \
+    "transition/probability" "compressed chunk of elements 0.." "truncated before its checksum"
 model_case "a stored chunk of /transition/probability longer than any deflated chunk can be" chunk_oversized 65 \
     "transition/probability" "more than a chunk of"
 model_case "probability +Inf" prob_inf 65
 model_case "reward -Inf" reward_inf 65
+# the quantities' checks (each value of every pair, on the bits; the message
+# from the plain test): pair 7 of /quantity/energy
+model_case "a quantity's mean +Inf" quantity_mean_inf 65 "/quantity/energy/mean[7]" "not finite"
+model_case "a quantity's mean NaN" quantity_mean_nan 65 "/quantity/energy/mean[7]" "not finite"
+model_case "a quantity's p_positive the next double above 1" quantity_pos_above 65 \
+    "/quantity/energy/p_positive[7]" "not a probability"
+model_case "a quantity's p_positive -1e-300" quantity_pos_negative 65 "/quantity/energy/p_positive[7]" \
+    "not a probability"
+model_case "a quantity's p_positive NaN with the sign bit set" quantity_pos_nan 65 \
+    "/quantity/energy/p_positive[7]" "not a probability"
 model_case "reward NaN" reward_nan 65
 model_case "discount NaN" discount_nan 65 "discount"
 model_case "n_transitions 2^62 (no allocation attempted)" n_trans_huge 65

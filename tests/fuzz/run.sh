@@ -9,7 +9,7 @@ SRC=$1 WORK=$2 SECS=${3:-45}
 command -v clang >/dev/null || { echo "not ok - clang not installed (Debian: clang libclang-rt-14-dev)"; echo "0 passed, 1 failed"; exit 1; }
 rm -rf "$WORK" && mkdir -p "$WORK/corpus"
 inc="-I$SRC/src -I$SRC/include $(pkg-config --cflags hdf5-openmpi)"
-libs="$(pkg-config --libs hdf5-openmpi) -lz -lm -ldl"
+libs="$(pkg-config --libs hdf5-openmpi) -ldeflate -lm -ldl"
 srcs="$SRC/src/core/core.c $SRC/src/core/names.c $SRC/src/model/model.c $SRC/src/input/csv.c
       $SRC/src/input/import.c $SRC/src/input/estimate.c $SRC/src/store/h5.c $SRC/src/store/h5_chunks.c $SRC/src/store/model_io.c
       $SRC/src/model/handle.c $SRC/src/parallel/layout.c"

@@ -26,7 +26,7 @@ command -v clang >/dev/null || { echo "not ok - clang not installed (Debian: cla
 rm -rf "$WORK" && mkdir -p "$WORK/corpus"
 if ! OMPI_CC=clang mpicc -std=c11 -D_POSIX_C_SOURCE=200809L -g -O1 -fsanitize=fuzzer,address,undefined \
      -I"$SRC/src" -I"$SRC/include" $(pkg-config --cflags hdf5-openmpi) "$SRC/tests/fuzz/fuzz_$T.c" \
-     $(for f in $libs; do printf '%s ' "$SRC/$f"; done) $(pkg-config --libs hdf5-openmpi) -lz -lm \
+     $(for f in $libs; do printf '%s ' "$SRC/$f"; done) $(pkg-config --libs hdf5-openmpi) -ldeflate -lm \
      -o "$WORK/fuzz_$T" 2> "$WORK/build.log"; then
   cat "$WORK/build.log"; echo "not ok - build the fuzz target"; echo "0 passed, 1 failed"; exit 1
 fi

@@ -17,6 +17,7 @@
 #include <unistd.h>
 
 #include <cmocka.h>
+#include <zlib.h>
 
 #include "core/core.h"
 #include "model/model.h"
@@ -204,12 +205,27 @@ static void test_other_layouts(void **state)
     }
 }
 
+/* The reader refuses a stored chunk larger than zlib's deflate can make of
+ * a chunk before reading it; its bound must be zlib's own compressBound (the
+ * reference: zlib, which HDF5's deflate filter writes with), or a chunk HDF5
+ * wrote could be refused. Sizes: the chunks of 4- and 8-byte elements, and
+ * others around the shifts of the formula. */
+static void test_zlib_bound(void **state)
+{
+    (void)state;
+    const size_t n[] = {0, 1, 4095, 4096, 16383, 16384, (size_t)SL_H5_CHUNK * 4, (size_t)SL_H5_CHUNK * 8,
+                        ((size_t)1 << 25) - 1, (size_t)1 << 25, 123456789};
+    for (size_t i = 0; i < sizeof(n) / sizeof(n[0]); i++)
+        assert_int_equal(sl_zlib_bound(n[i]), compressBound((uLong)n[i]));
+}
+
 int main(int argc, char **argv)
 {
     MPI_Init(&argc, &argv);
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(test_model_both_ways),
         cmocka_unit_test(test_other_layouts),
+        cmocka_unit_test(test_zlib_bound),
     };
     int failed = cmocka_run_group_tests(tests, setup, teardown);
     MPI_Finalize();
