@@ -157,18 +157,29 @@ static void *alloc_large(size_t bytes)
     return malloc(bytes ? bytes : 1);
 }
 
-void *sl_malloc(sl_ctx *ctx, size_t count, size_t size, const char *what)
+/* What sl_malloc and sl_calloc check before they allocate: the size does
+ * not overflow, and the N-th allocation is not the one the tests asked to
+ * fail (SLUICE_FAULT_ALLOC). 0 with the error set; else 1, and *bytes holds
+ * count * size. */
+static int alloc_allowed(sl_ctx *ctx, size_t count, size_t size, const char *what, size_t *bytes)
 {
     if (size != 0 && count > SIZE_MAX / size) {
         SL_ERR(ctx, SL_ENOMEM, "size overflow allocating %s", what);
-        return NULL;
+        return 0;
     }
-    size_t bytes = count * size;
+    *bytes = count * size;
     if (ctx->fault_alloc_at > 0 && ++ctx->alloc_count == ctx->fault_alloc_at) {
         SL_ERR(ctx, SL_ENOMEM, "out of memory allocating %s (%zu bytes; injected failure of allocation %lld)", what,
-               bytes, (long long)ctx->alloc_count);
-        return NULL;
+               *bytes, (long long)ctx->alloc_count);
+        return 0;
     }
+    return 1;
+}
+
+void *sl_malloc(sl_ctx *ctx, size_t count, size_t size, const char *what)
+{
+    size_t bytes = 0;
+    if (!alloc_allowed(ctx, count, size, what, &bytes)) return NULL;
     void *p = alloc_large(bytes);
     if (p == NULL)
         SL_ERR(ctx, SL_ENOMEM, "out of memory allocating %s (%zu bytes)", what, bytes);
@@ -177,19 +188,11 @@ void *sl_malloc(sl_ctx *ctx, size_t count, size_t size, const char *what)
 
 void *sl_calloc(sl_ctx *ctx, size_t count, size_t size, const char *what)
 {
-    if (size != 0 && count > SIZE_MAX / size) {
-        SL_ERR(ctx, SL_ENOMEM, "size overflow allocating %s", what);
-        return NULL;
-    }
-    if (ctx->fault_alloc_at > 0 && ++ctx->alloc_count == ctx->fault_alloc_at) {
-        SL_ERR(ctx, SL_ENOMEM, "out of memory allocating %s (%zu bytes; injected failure of allocation %lld)", what,
-               count * size, (long long)ctx->alloc_count);
-        return NULL;
-    }
+    size_t bytes = 0;
+    if (!alloc_allowed(ctx, count, size, what, &bytes)) return NULL;
     void *p = calloc(count ? count : 1, size ? size : 1);
     if (p == NULL)
-        SL_ERR(ctx, SL_ENOMEM, "out of memory allocating %s (%zu bytes)", what,
-               count * size);
+        SL_ERR(ctx, SL_ENOMEM, "out of memory allocating %s (%zu bytes)", what, bytes);
     return p;
 }
 
