@@ -128,6 +128,11 @@ foreach(np 2 3)
   add_test(NAME mpi_unit_chunk_read_${np} COMMAND ${SLUICE_MPIEXEC} -np ${np} ${SLUICE_MPI_FLAGS} $<TARGET_FILE:test_chunk_read>)
   set_tests_properties(mpi_unit_chunk_read_${np} PROPERTIES LABELS mpi TIMEOUT 300 ENVIRONMENT "${SLUICE_TEST_ENV}")
 endforeach()
+# the halo plan against one worked out by the test, both ways of finding it
+foreach(np 2 3)
+  add_test(NAME mpi_unit_halo_${np} COMMAND ${SLUICE_MPIEXEC} -np ${np} ${SLUICE_MPI_FLAGS} $<TARGET_FILE:test_halo>)
+  set_tests_properties(mpi_unit_halo_${np} PROPERTIES LABELS mpi TIMEOUT 300 ENVIRONMENT "${SLUICE_TEST_ENV}")
+endforeach()
 # the optimised sweep paths against the reference sweep with the rows spread
 # over ranks (stage-interleaved and not)
 foreach(np 2 3)

@@ -25,6 +25,8 @@ int sl_dist_owner(const int64_t *bounds, int nparts, int64_t s);
 typedef struct sl_halo {
     int64_t n_local, n_halo;
     int64_t *halo_global;       /* [n_halo] ascending global ids */
+    int by_bitmap;              /* how sl_halo_build found them: 1 bitmap
+                                 * over their range, 0 sort (same result) */
     int n_nbr;                  /* ranks we exchange with (either direction) */
     int *recv_rank, n_recv;     /* ranks we receive from */
     int64_t *recv_off;          /* [n_recv + 1] into the halo part */

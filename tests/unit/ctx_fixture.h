@@ -29,7 +29,7 @@ static int teardown(void **state)
 /* dir: a mkdtemp template; rank 0 makes the directory and every rank gets
  * its name (unit and mpi_unit runs of one test go side by side under ctest
  * -j2, so fixed file names would collide) */
-static void shared_tmpdir(char *dir)
+static inline void shared_tmpdir(char *dir)
 {
     int rank;
     MPI_Comm_rank(MPI_COMM_WORLD, &rank);
