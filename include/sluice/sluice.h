@@ -139,6 +139,17 @@ SLUICE_API sl_status sl_model_assemble(sl_model *m);
 /* Load a model file, each rank reading a range of states balanced by
  * transitions; checks the fingerprint. */
 SLUICE_API sl_status sl_model_load(sl_ctx *ctx, const char *path, sl_model **m);
+/* sl_model_load for a discounted solve: on more than one rank, a model
+ * with a stage factor (and no visit counts or terminal values) is read in
+ * the layout the discounted methods sweep in, each rank a share of every
+ * stage, instead of a range of states that the solve would then move
+ * between ranks (about half the rows on 2 ranks, and the memory of a
+ * second copy). Such a model can only be solved (sl_solver_solve,
+ * sl_solver_solve_lean) and described (the getters; sl_model_local_range
+ * then gives the solve's internal numbering); anything that reads its rows
+ * otherwise is refused with SL_EUSAGE. On one rank, or for any other
+ * model, the same as sl_model_load. */
+SLUICE_API sl_status sl_model_load_staged(sl_ctx *ctx, const char *path, sl_model **m);
 /* Write the model file atomically (temporary name, then rename). A loaded
  * model with outcome quantities copies them from the file it was loaded from
  * (checked against their hash at load; SL_EDATA if that file changed). */

@@ -304,7 +304,9 @@ static int run_solve(cli_args *a, const solve_args *o)
     monitor_state ms = {a, o, 0, -1e300};
     ms.every = o->progress_every > 0 ? o->progress_every : (a->stderr_tty ? 1.0 : 30.0);
     int rc = startup_stop(a, "before the model was loaded");
-    if (rc == 0) rc = cli_fail(a, sl_model_load(ctx, o->model, &m));
+    /* on several ranks the rows of a staged model are read in the layout
+     * the discounted solve sweeps in (the other objectives keep the file's) */
+    if (rc == 0) rc = cli_fail(a, sl_model_load_staged(ctx, o->model, &m));
     if (rc == 0) rc = startup_stop(a, "while the model was loaded");
     if (rc == 0 && sl_model_objective(m) != SL_OBJ_DISCOUNTED && (o->visit_bonus > 0 || o->visit_penalty > 0))
         rc = cli_usage_error(a, "--visit-bonus and --visit-penalty apply to the discounted objective; %s records "

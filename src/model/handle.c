@@ -271,7 +271,7 @@ cleanup:
     return st;
 }
 
-sl_status sl_model_check_ready(sl_ctx *ctx, const sl_model *m, const char *what)
+static sl_status check_ready(sl_ctx *ctx, const sl_model *m, const char *what, int solve)
 {
     if (m == NULL) return SL_ERR(ctx, SL_EUSAGE, "%s: no model", what);
     if (!m->assembled) return SL_ERR(ctx, SL_EUSAGE, "%s: the model is not assembled (call sl_model_assemble)", what);
@@ -279,48 +279,221 @@ sl_status sl_model_check_ready(sl_ctx *ctx, const sl_model *m, const char *what)
         return SL_ERR(ctx, SL_EUSAGE,
                       "%s: the model's rows were handed to an earlier solve (sl_solver_solve_lean); load it again",
                       what);
+    if (m->staged != NULL && !solve)
+        return SL_ERR(ctx, SL_EUSAGE,
+                      "%s: the model's rows were loaded in the discounted solve's layout (sl_model_load_staged); "
+                      "load it with sl_model_load for this",
+                      what);
     return SL_OK;
 }
 
-sl_status sl_model_load(sl_ctx *ctx, const char *path, sl_model **out)
+sl_status sl_model_check_ready(sl_ctx *ctx, const sl_model *m, const char *what)
+{
+    return check_ready(ctx, m, what, 0);
+}
+
+sl_status sl_model_check_solvable(sl_ctx *ctx, const sl_model *m, const char *what)
+{
+    return check_ready(ctx, m, what, 1);
+}
+
+/* At most this many runs of file states per rank for sl_model_load_staged
+ * to read them one by one (the reservoir example: 12, one per month). */
+#define SL_STAGED_MAX_RUNS 256
+
+/* This rank's rows in the stage-interleaved layout of map, read straight
+ * from the file: its states are a few runs of file states (one per stage
+ * and outer value), each read into its place in the block as
+ * sl_store_model_read reads a range (every check, the quantities hashed),
+ * added to the fingerprint sum acc, then renumbered in place (pairs,
+ * transitions, targets as internal ids): the block sl_stage_redistribute
+ * would make from the file's layout, without a second copy of the rows,
+ * a temporary one, or any exchange. Collective. */
+static sl_status read_staged(sl_ctx *ctx, const char *path, const sl_meta *meta, const sl_stage_map *map,
+                             sl_block *out, uint64_t acc[2])
+{
+    sl_status st = SL_OK;
+    int64_t *runs = NULL, n_runs = 0, *rp = NULL, *rt = NULL;
+    int64_t S = map->n_stages, a = map->ub[ctx->rank], ns = S * (map->ub[ctx->rank + 1] - a);
+    sl_block tb;
+    memset(&tb, 0, sizeof(tb));
+    memset(out, 0, sizeof(*out));
+    st = sl_stage_runs_internal(ctx, map, ctx->rank, &runs, &n_runs);
+    if (st == SL_OK &&
+        (SL_ALLOC(ctx, rp, n_runs + 1, "stage runs") == NULL || SL_ALLOC(ctx, rt, n_runs + 1, "stage runs") == NULL))
+        st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    SL_TRY(sl_store_model_run_sizes(ctx, path, meta, runs, n_runs, rp, rt));
+    int64_t np = 0, nt = 0;
+    for (int64_t k = 0; k < n_runs; k++) {
+        np += rp[k];
+        nt += rt[k];
+    }
+    if (SL_ALLOC(ctx, out->first_pair, ns + 1, "first_pair") == NULL ||
+        SL_ALLOC(ctx, out->action, np, "actions") == NULL || SL_ALLOC(ctx, out->reward, np, "rewards") == NULL ||
+        SL_ALLOC(ctx, out->first_trans, np + 1, "first_transition") == NULL ||
+        SL_ALLOC(ctx, out->target, nt, "targets") == NULL || SL_ALLOC(ctx, out->prob, nt, "probabilities") == NULL)
+        st = SL_ENOMEM;
+    SL_TRY(sl_agree(ctx, st));
+    int64_t p_begin = sl_exscan_i64(ctx, np), t_begin = sl_exscan_i64(ctx, nt);
+    out->s_begin = S * a;
+    out->s_end = S * a + ns;
+    out->p_begin = p_begin;
+    out->p_end = p_begin + np;
+    out->t_begin = t_begin;
+    out->t_end = t_begin + nt;
+    out->first_pair[0] = p_begin;
+    out->first_trans[0] = t_begin;
+    /* every rank reads as many runs as the rank with the most (the reads
+     * are collective); the others read empty ranges into a spare entry */
+    int64_t n_max = n_runs;
+    MPI_Allreduce(&n_runs, &n_max, 1, MPI_INT64_T, MPI_MAX, ctx->comm);
+    int64_t j = 0, pp = 0, tt = 0, spare_i[2] = {0, 0};
+    int32_t spare_a[1] = {0};
+    double spare_d[2] = {0, 0};
+    for (int64_t k = 0; k < n_max; k++) {
+        /* the run goes straight to its place: first_pair from entry j,
+         * pairs from pp, transitions from tt. Its first first_pair and
+         * first_transition entries land on the last ones of the run before,
+         * which are kept and put back once the run is renumbered. */
+        sl_block at;
+        memset(&at, 0, sizeof(at));
+        int64_t s0 = 0, s1 = 0;
+        if (k < n_runs) {
+            s0 = runs[2 * k];
+            s1 = runs[2 * k + 1];
+            at.first_pair = out->first_pair + j;
+            at.action = out->action + pp;
+            at.reward = out->reward + pp;
+            at.first_trans = out->first_trans + pp;
+            at.target = out->target + tt;
+            at.prob = out->prob + tt;
+            at.p_end = rp[k];
+            at.t_end = rt[k];
+        } else {
+            at.first_pair = &spare_i[0];
+            at.first_trans = &spare_i[1];
+            at.action = spare_a;
+            at.reward = &spare_d[0];
+            at.target = &spare_i[0];
+            at.prob = &spare_d[1];
+        }
+        int64_t keep_p = at.first_pair[0], keep_t = at.first_trans[0];
+        SL_TRY(sl_store_model_read_into(ctx, path, meta, s0, s1, &at, &tb));
+        sl_fingerprint_add(acc, meta, &tb);
+        int64_t n = sl_block_states(&tb), bp = sl_block_pairs(&tb), bt = sl_block_trans(&tb);
+        if (k < n_runs) {
+            for (int64_t i = 1; i <= n; i++) at.first_pair[i] = p_begin + pp + (at.first_pair[i] - tb.p_begin);
+            for (int64_t q = 1; q <= bp; q++) at.first_trans[q] = t_begin + tt + (at.first_trans[q] - tb.t_begin);
+            for (int64_t t = 0; t < bt; t++) at.target[t] = sl_stage_internal(map, at.target[t]);
+            at.first_pair[0] = keep_p;
+            at.first_trans[0] = keep_t;
+            j += n;
+            pp += bp;
+            tt += bt;
+        }
+        memset(&tb, 0, sizeof(tb)); /* its arrays are out's */
+    }
+    if (j != ns) st = SL_ERR(ctx, SL_EINTERNAL, "stage layout: rank %d read %lld states, not %lld", ctx->rank,
+                             (long long)j, (long long)ns);
+    st = sl_agree(ctx, st);
+cleanup:
+    free(runs);
+    free(rp);
+    free(rt);
+    if (st != SL_OK) sl_block_free(out);
+    return st;
+}
+
+/* staged: the rows may be read in the stage-interleaved layout (see
+ * sl_model_load_staged). */
+static sl_status load(sl_ctx *ctx, const char *path, int staged, sl_model **out)
 {
     sl_status st = SL_OK;
     sl_meta meta;
     sl_block blk;
-    int64_t *bounds = NULL;
+    sl_stage_map map;
+    int64_t *bounds = NULL, *cum = NULL;
+    uint64_t acc[2] = {0, 0};
     char fp[40];
     memset(&meta, 0, sizeof(meta));
     memset(&blk, 0, sizeof(blk));
+    memset(&map, 0, sizeof(map));
     if (out == NULL) return SL_ERR(ctx, SL_EUSAGE, "sl_model_load: no output handle");
     *out = NULL;
     SL_TRY(sl_store_model_meta(ctx, path, &meta));
     if (SL_ALLOC(ctx, bounds, ctx->size + 1, "partition") == NULL) st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
-    {
-        /* each rank reads an even share of the cumulative counts; the
-         * parallel layer turns them into ranges balanced by transitions */
-        int64_t lo = meta.n_states * ctx->rank / ctx->size, hi = meta.n_states * (ctx->rank + 1) / ctx->size;
-        int64_t *cum = NULL;
-        SL_TRY(sl_store_model_cumulative(ctx, path, lo, hi, &cum));
-        st = sl_partition_from_counts(ctx, meta.n_states, meta.n_trans, cum, bounds);
-        free(cum);
-        SL_TRY(st);
+    /* each rank reads an even share of the cumulative counts; the parallel
+     * layer turns them into ranges balanced by transitions */
+    int64_t lo = meta.n_states * ctx->rank / ctx->size, hi = meta.n_states * (ctx->rank + 1) / ctx->size;
+    SL_TRY(sl_store_model_cumulative(ctx, path, lo, hi, &cum));
+    SL_TRY(sl_partition_from_counts(ctx, meta.n_states, meta.n_trans, cum, bounds));
+    /* the discounted solve's layout, from the same counts; models with
+     * per-pair visits or terminal values keep the file's layout */
+    if (staged && ctx->size > 1 && meta.objective == SL_OBJ_DISCOUNTED && !meta.has_visits && !meta.has_terminal)
+        SL_TRY(sl_stage_map_counts(ctx, &meta, lo, hi - lo, cum, &map));
+    if (map.active) {
+        /* a run costs a collective open and a partial chunk at each end:
+         * with more runs on some rank (many values of the factors above
+         * the stage), the plain read and the move between ranks instead */
+        int64_t L = map.inner, a = map.ub[ctx->rank], b = map.ub[ctx->rank + 1];
+        int64_t most = a < b ? map.n_stages * ((b - 1) / L - a / L + 1) : 0;
+        MPI_Allreduce(MPI_IN_PLACE, &most, 1, MPI_INT64_T, MPI_MAX, ctx->comm);
+        if (most > SL_STAGED_MAX_RUNS) sl_stage_map_free(&map);
     }
-    SL_TRY(sl_store_model_read(ctx, path, &meta, bounds[ctx->rank], bounds[ctx->rank + 1], &blk));
-    SL_TRY(sl_fingerprint(ctx, &meta, &blk, fp));
+    if (map.active) {
+        SL_TRY(read_staged(ctx, path, &meta, &map, &blk, acc));
+    } else {
+        SL_TRY(sl_store_model_read(ctx, path, &meta, bounds[ctx->rank], bounds[ctx->rank + 1], &blk));
+        sl_fingerprint_add(acc, &meta, &blk);
+    }
+    SL_TRY(sl_fingerprint_finish(ctx, &meta, acc, fp));
     if (strcmp(fp, meta.fingerprint) != 0)
         SL_TRY(SL_ERR(ctx, SL_EDATA,
                       "%s: contents do not match the file's fingerprint (%s recorded, %s computed): the file "
                       "was altered or is corrupted",
                       path, meta.fingerprint, fp));
-    st = sl_model_adopt(ctx, &meta, &blk, out);
-    if (st == SL_OK) snprintf((*out)->name, sizeof((*out)->name), "%s", path);
+    if (map.active) {
+        /* the rows are in the internal layout: the model keeps the file's
+         * partition (for writing vectors) and the map */
+        sl_model *m = NULL;
+        if (SL_ZALLOC(ctx, m, 1, "model") == NULL || SL_ZALLOC(ctx, m->staged, 1, "stage layout") == NULL)
+            st = SL_ENOMEM;
+        if (st != SL_OK) {
+            if (m != NULL) free(m);
+            m = NULL;
+        }
+        SL_TRY(sl_agree(ctx, st));
+        m->ctx = ctx;
+        m->meta = meta;
+        m->blk = blk;
+        *m->staged = map;
+        m->bounds = bounds;
+        memset(&meta, 0, sizeof(meta));
+        memset(&blk, 0, sizeof(blk));
+        memset(&map, 0, sizeof(map));
+        bounds = NULL;
+        m->have_rows = 1;
+        m->assembled = 1;
+        snprintf(m->name, sizeof(m->name), "%s", path);
+        *out = m;
+    } else {
+        st = sl_model_adopt(ctx, &meta, &blk, out);
+        if (st == SL_OK) snprintf((*out)->name, sizeof((*out)->name), "%s", path);
+    }
 cleanup:
     free(bounds);
+    free(cum);
+    sl_stage_map_free(&map);
     sl_meta_free(&meta);
     sl_block_free(&blk);
     return st;
 }
+
+sl_status sl_model_load(sl_ctx *ctx, const char *path, sl_model **out) { return load(ctx, path, 0, out); }
+
+sl_status sl_model_load_staged(sl_ctx *ctx, const char *path, sl_model **out) { return load(ctx, path, 1, out); }
 
 /* A loaded model keeps only a hash of its outcome quantities (they can be
  * larger than the transitions): saving it copies them from the file it was
@@ -379,6 +552,8 @@ void sl_model_free(sl_model **pm)
     sl_meta_free(&m->meta);
     sl_block_free(&m->blk);
     free(m->bounds);
+    sl_stage_map_free(m->staged);
+    free(m->staged);
     free(m);
     *pm = NULL;
 }

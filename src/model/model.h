@@ -177,6 +177,10 @@ struct sl_model {
     int assembled;
     int rows_released;          /* a solve took the rows (sl_solver_solve_lean):
                                  * only the description is left */
+    struct sl_stage_map *staged; /* NULL; or (sl_model_load_staged) the rows are
+                                 * this rank's share of every stage in the
+                                 * solve's internal layout, with this map;
+                                 * bounds is then the file's partition */
 };
 
 /* Wrap rows that are already validated, rebased to global offsets and
@@ -186,5 +190,8 @@ sl_status sl_model_adopt(sl_ctx *ctx, sl_meta *meta, sl_block *blk, sl_model **o
 
 /* Whether a model is ready for solving (assembled); records an error. Local. */
 sl_status sl_model_check_ready(sl_ctx *ctx, const sl_model *m, const char *what);
+/* The same, but a model loaded in the solve's layout (sl_model_load_staged)
+ * is accepted: for the discounted solve only. Local. */
+sl_status sl_model_check_solvable(sl_ctx *ctx, const sl_model *m, const char *what);
 
 #endif /* SL_MODEL_H */

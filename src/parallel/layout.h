@@ -83,9 +83,21 @@ sl_status sl_stage_map_local(sl_ctx *ctx, const sl_meta *meta, const int64_t *cu
 /* The map for ctx->size parts from the rows each rank holds (contiguous
  * file ranges, global targets). Collective. */
 sl_status sl_stage_map_rows(sl_ctx *ctx, const sl_meta *meta, const sl_block *rows, sl_stage_map *m);
+/* The same map from the cumulative transition counts of each rank's own
+ * contiguous file range: cum[i] for states s_begin + i, i <= n (as
+ * sl_store_model_cumulative gives them), before any rows are read.
+ * Collective. */
+sl_status sl_stage_map_counts(sl_ctx *ctx, const sl_meta *meta, int64_t s_begin, int64_t n, const int64_t *cum,
+                              sl_stage_map *m);
+/* A copy of src (its own ub). Local. */
+sl_status sl_stage_map_copy(sl_ctx *ctx, const sl_stage_map *src, sl_stage_map *dst);
 /* Contiguous file ranges holding part r's states, ascending and merged:
  * runs[2k], runs[2k+1] = begin, end. *n_runs <= 2*S + 1. Local. */
 sl_status sl_stage_runs(sl_ctx *ctx, const sl_stage_map *m, int r, int64_t **runs, int64_t *n_runs);
+/* The same states as runs of file states in part r's internal order (stage
+ * by stage): read one after the other they give its rows in that order.
+ * At most S * (number of outer values part r touches) runs. Local. */
+sl_status sl_stage_runs_internal(sl_ctx *ctx, const sl_stage_map *m, int r, int64_t **runs, int64_t *n_runs);
 /* Move rows from their current layout (src: this rank's contiguous file
  * range, src_bounds of all ranks, global file targets) to the
  * stage-interleaved one: out gets this rank's states in internal order

@@ -79,7 +79,11 @@ sl_status sl_stage_map_local(sl_ctx *ctx, const sl_meta *meta, const int64_t *cu
     return SL_OK;
 }
 
-sl_status sl_stage_map_rows(sl_ctx *ctx, const sl_meta *meta, const sl_block *rows, sl_stage_map *m)
+/* The map for ctx->size parts from this rank's share of the per-state
+ * transition counts: count(i) for the states s_begin + i, i < n, which
+ * every rank gives for its own contiguous file range. Collective. */
+static sl_status map_from_counts(sl_ctx *ctx, const sl_meta *meta, int64_t s_begin, int64_t n,
+                                 int64_t (*count)(const void *, int64_t), const void *arg, sl_stage_map *m)
 {
     sl_status st = map_shape(ctx, meta, ctx->size, m);
     st = sl_agree(ctx, st);
@@ -89,10 +93,9 @@ sl_status sl_stage_map_rows(sl_ctx *ctx, const sl_meta *meta, const sl_block *ro
     if (SL_ZALLOC(ctx, cu, nu + 1, "stage layout") == NULL) st = SL_ENOMEM;
     st = sl_agree(ctx, st);
     if (st == SL_OK) {
-        for (int64_t i = 0; i < sl_block_states(rows); i++) {
-            int64_t s = rows->s_begin + i, p0 = rows->first_pair[i] - rows->p_begin;
-            int64_t p1 = rows->first_pair[i + 1] - rows->p_begin;
-            cu[1 + s % L + L * (s / (L * S))] += rows->first_trans[p1] - rows->first_trans[p0];
+        for (int64_t i = 0; i < n; i++) {
+            int64_t s = s_begin + i;
+            cu[1 + s % L + L * (s / (L * S))] += count(arg, i);
         }
         /* in pieces: MPI counts are int */
         for (int64_t off = 1; off <= nu; off += 1 << 28) {
@@ -105,6 +108,43 @@ sl_status sl_stage_map_rows(sl_ctx *ctx, const sl_meta *meta, const sl_block *ro
     free(cu);
     if (st != SL_OK) sl_stage_map_free(m);
     return st;
+}
+
+static int64_t rows_count(const void *arg, int64_t i)
+{
+    const sl_block *rows = arg;
+    int64_t p0 = rows->first_pair[i] - rows->p_begin, p1 = rows->first_pair[i + 1] - rows->p_begin;
+    return rows->first_trans[p1] - rows->first_trans[p0];
+}
+
+static int64_t cum_count(const void *arg, int64_t i)
+{
+    const int64_t *cum = arg;
+    return cum[i + 1] - cum[i];
+}
+
+sl_status sl_stage_map_rows(sl_ctx *ctx, const sl_meta *meta, const sl_block *rows, sl_stage_map *m)
+{
+    return map_from_counts(ctx, meta, rows->s_begin, sl_block_states(rows), rows_count, rows, m);
+}
+
+sl_status sl_stage_map_counts(sl_ctx *ctx, const sl_meta *meta, int64_t s_begin, int64_t n, const int64_t *cum,
+                              sl_stage_map *m)
+{
+    return map_from_counts(ctx, meta, s_begin, n, cum_count, cum, m);
+}
+
+sl_status sl_stage_map_copy(sl_ctx *ctx, const sl_stage_map *src, sl_stage_map *dst)
+{
+    *dst = *src;
+    dst->ub = NULL;
+    if (!src->active) return SL_OK;
+    if (SL_ALLOC(ctx, dst->ub, src->nparts + 1, "stage layout") == NULL) {
+        memset(dst, 0, sizeof(*dst));
+        return SL_ENOMEM;
+    }
+    memcpy(dst->ub, src->ub, (size_t)(src->nparts + 1) * sizeof(int64_t));
+    return SL_OK;
 }
 
 static void add_run(int64_t *runs, int64_t *n, int64_t b, int64_t e)
@@ -134,6 +174,24 @@ sl_status sl_stage_runs(sl_ctx *ctx, const sl_stage_map *m, int r, int64_t **run
                 add_run(runs, &n, l0 + L * (st + S * h), l1 + L * (st + S * h));
         }
     }
+    *runs_out = runs;
+    *n_runs = n;
+    return SL_OK;
+}
+
+sl_status sl_stage_runs_internal(sl_ctx *ctx, const sl_stage_map *m, int r, int64_t **runs_out, int64_t *n_runs)
+{
+    int64_t L = m->inner, S = m->n_stages, a = m->ub[r], b = m->ub[r + 1];
+    int64_t nh = a < b ? (b - 1) / L - a / L + 1 : 0, *runs = NULL, n = 0;
+    if (SL_ALLOC(ctx, runs, 2 * (S * nh + 1), "stage runs") == NULL) return SL_ENOMEM;
+    /* stage by stage, and in a stage by u = l + L*h from a to b: the
+     * internal order. Runs that touch in the file are merged; they also
+     * follow each other internally, as every run does in this order. */
+    for (int64_t st = 0; st < S && a < b; st++)
+        for (int64_t h = a / L; h * L < b; h++) {
+            int64_t l0 = a - h * L > 0 ? a - h * L : 0, l1 = b - h * L < L ? b - h * L : L;
+            add_run(runs, &n, l0 + L * (st + S * h), l1 + L * (st + S * h));
+        }
     *runs_out = runs;
     *n_runs = n;
     return SL_OK;

@@ -69,7 +69,7 @@ static sl_status problem_build(sl_ctx *ctx, const sl_model *m, sl_model *take, s
 {
     sl_status st = SL_OK;
     memset(p, 0, sizeof(*p));
-    SL_TRY(sl_agree(ctx, sl_model_check_ready(ctx, m, "solve")));
+    SL_TRY(sl_agree(ctx, sl_model_check_solvable(ctx, m, "solve")));
     p->path = m->name;
     p->direct_time_limit = SL_DIRECT_TIME_LIMIT;
     if (!allow_any && m->meta.objective != SL_OBJ_DISCOUNTED)
@@ -88,10 +88,16 @@ static sl_status problem_build(sl_ctx *ctx, const sl_model *m, sl_model *take, s
     /* with a stage factor: every rank gets a share of every stage (for the
      * discounted methods; the other objectives (allow_any) keep the model's
      * layout, which their file I/O assumes) */
-    if (!allow_any) SL_TRY(sl_stage_map_rows(ctx, &m->meta, &m->blk, &p->stages));
+    if (m->staged != NULL && allow_any)
+        st = SL_ERR(ctx, SL_EUSAGE, "%s: its rows were loaded in the discounted solve's layout (sl_model_load_staged); "
+                    "load it with sl_model_load for this", p->path);
+    SL_TRY(sl_agree(ctx, st));
+    /* a model loaded in this layout (sl_model_load_staged) brings its map */
+    if (m->staged != NULL) SL_TRY(sl_agree(ctx, sl_stage_map_copy(ctx, m->staged, &p->stages)));
+    else if (!allow_any) SL_TRY(sl_stage_map_rows(ctx, &m->meta, &m->blk, &p->stages));
     /* on one rank with the stage factor slowest the internal numbering is
      * the file's: keep the rows where they are */
-    int same = ctx->size == 1 && p->stages.outer == 1;
+    int same = (ctx->size == 1 && p->stages.outer == 1) || m->staged != NULL;
     if (p->stages.active)
         for (int r = 0; r <= ctx->size; r++) p->bounds[r] = p->stages.n_stages * p->stages.ub[r];
     if (p->stages.active && !same) {
@@ -105,13 +111,13 @@ static sl_status problem_build(sl_ctx *ctx, const sl_model *m, sl_model *take, s
         memset(&take->blk, 0, sizeof(take->blk));
         take->rows_released = 1;
         p->owns_rows = 1;
-        memcpy(p->bounds, m->bounds, (size_t)(ctx->size + 1) * sizeof(int64_t));
+        if (!p->stages.active) memcpy(p->bounds, m->bounds, (size_t)(ctx->size + 1) * sizeof(int64_t));
     } else {
         /* borrow the rows; only the local columns are this problem's own */
         p->blk = m->blk;
         p->blk.col = NULL;
         p->blk.cap_states = p->blk.cap_pairs = p->blk.cap_ptrs = p->blk.cap_trans = 0;
-        memcpy(p->bounds, m->bounds, (size_t)(ctx->size + 1) * sizeof(int64_t));
+        if (!p->stages.active) memcpy(p->bounds, m->bounds, (size_t)(ctx->size + 1) * sizeof(int64_t));
     }
     p->n_local = sl_block_states(&p->blk);
     double rmax = 0;

@@ -691,8 +691,49 @@ cleanup:
 static sl_status quantity_read(sl_ctx *ctx, hid_t f, const sl_meta *m, int q, int64_t p_begin, int64_t n,
                                double *mean, double *pos, const char *path);
 
-sl_status sl_store_model_read(sl_ctx *ctx, const char *path, const sl_meta *m, int64_t s_begin,
-                              int64_t s_end, sl_block *b)
+sl_status sl_store_model_run_sizes(sl_ctx *ctx, const char *path, const sl_meta *m, const int64_t *runs,
+                                   int64_t n_runs, int64_t *n_pairs, int64_t *n_trans)
+{
+    sl_status st = SL_OK;
+    hid_t f;
+    SL_TRY(sl_h5_open(ctx, path, 0, &f));
+    for (int64_t k = 0; st == SL_OK && k < n_runs; k++) {
+        int64_t s0 = runs[2 * k], s1 = runs[2 * k + 1], p[2] = {0, 0}, t[2] = {0, 0};
+        if (s0 < 0 || s1 < s0 || s1 > m->n_states) {
+            st = SL_ERR(ctx, SL_EINTERNAL, "%s: states %lld..%lld are not in the model", path, (long long)s0,
+                        (long long)s1);
+            break;
+        }
+        st = sl_h5_read_1d(ctx, f, "/state/first_pair", H5T_NATIVE_INT64, m->n_states + 1, s0, 1, &p[0], path);
+        if (st == SL_OK)
+            st = sl_h5_read_1d(ctx, f, "/state/first_pair", H5T_NATIVE_INT64, m->n_states + 1, s1, 1, &p[1], path);
+        if (st == SL_OK && (p[0] < 0 || p[1] < p[0] || p[1] > m->n_pairs))
+            st = SL_ERR(ctx, SL_EDATA, "%s: /state/first_pair of states %lld..%lld is out of range", path,
+                        (long long)s0, (long long)s1);
+        if (st == SL_OK)
+            st = sl_h5_read_1d(ctx, f, "/pair/first_transition", H5T_NATIVE_INT64, m->n_pairs + 1, p[0], 1, &t[0],
+                               path);
+        if (st == SL_OK)
+            st = sl_h5_read_1d(ctx, f, "/pair/first_transition", H5T_NATIVE_INT64, m->n_pairs + 1, p[1], 1, &t[1],
+                               path);
+        if (st == SL_OK && (t[0] < 0 || t[1] < t[0] || t[1] > m->n_trans))
+            st = SL_ERR(ctx, SL_EDATA, "%s: /pair/first_transition of states %lld..%lld is out of range", path,
+                        (long long)s0, (long long)s1);
+        n_pairs[k] = p[1] - p[0];
+        n_trans[k] = t[1] - t[0];
+    }
+    st = sl_agree(ctx, st);
+    H5Fclose(f);
+cleanup:
+    return st;
+}
+
+
+/* into: NULL, the arrays are allocated; or arrays of the right sizes
+ * (known from sl_store_model_run_sizes) that b then points into (not
+ * owned by b: freed by the caller, also on failure). */
+static sl_status read_rows(sl_ctx *ctx, const char *path, const sl_meta *m, int64_t s_begin, int64_t s_end,
+                           sl_block *b, const sl_block *into)
 {
     sl_status st = SL_OK;
     hid_t f = H5I_INVALID_HID;
@@ -701,7 +742,10 @@ sl_status sl_store_model_read(sl_ctx *ctx, const char *path, const sl_meta *m, i
     b->s_begin = s_begin;
     b->s_end = s_end;
     SL_TRY(sl_h5_open(ctx, path, 0, &f));
-    if (SL_ALLOC(ctx, b->first_pair, ns + 1, "first_pair") == NULL) st = SL_ENOMEM;
+    if (into != NULL && (m->has_visits || m->has_terminal))
+        st = SL_ERR(ctx, SL_EINTERNAL, "%s: rows with visit counts or terminal values are read whole", path);
+    else if (into != NULL) b->first_pair = into->first_pair;
+    else if (SL_ALLOC(ctx, b->first_pair, ns + 1, "first_pair") == NULL) st = SL_ENOMEM;
     if (st == SL_OK)
         st = sl_h5_read_1d(ctx, f, "/state/first_pair", H5T_NATIVE_INT64, m->n_states + 1, s_begin, ns + 1,
                            b->first_pair, path);
@@ -714,10 +758,18 @@ sl_status sl_store_model_read(sl_ctx *ctx, const char *path, const sl_meta *m, i
             st = SL_ERR(ctx, SL_EDATA, "%s: /state/first_pair of states %lld..%lld is out of range", path,
                         (long long)s_begin, (long long)s_end);
     }
-    if (st == SL_OK && (SL_ALLOC(ctx, b->action, np, "actions") == NULL ||
-                        SL_ALLOC(ctx, b->reward, np, "rewards") == NULL ||
-                        SL_ALLOC(ctx, b->first_trans, np + 1, "first_transition") == NULL))
+    if (st == SL_OK && into != NULL) {
+        if (np != sl_block_pairs(into))
+            st = SL_ERR(ctx, SL_EDATA, "%s: the rows of states %lld..%lld changed while they were read", path,
+                        (long long)s_begin, (long long)s_end);
+        b->action = into->action;
+        b->reward = into->reward;
+        b->first_trans = into->first_trans;
+    } else if (st == SL_OK && (SL_ALLOC(ctx, b->action, np, "actions") == NULL ||
+                               SL_ALLOC(ctx, b->reward, np, "rewards") == NULL ||
+                               SL_ALLOC(ctx, b->first_trans, np + 1, "first_transition") == NULL)) {
         st = SL_ENOMEM;
+    }
     if (st == SL_OK)
         st = sl_h5_read_1d(ctx, f, "/pair/action", H5T_NATIVE_INT32, m->n_pairs, b->p_begin, np, b->action, path);
     if (st == SL_OK)
@@ -735,9 +787,16 @@ sl_status sl_store_model_read(sl_ctx *ctx, const char *path, const sl_meta *m, i
                         path, (long long)s_begin, (long long)s_end);
     }
     int use32 = st == SL_OK && sl_h5_is_u32(f, "/transition/target");
-    if (st == SL_OK && (SL_ALLOC(ctx, b->target, nt, "targets") == NULL ||
-                        SL_ALLOC(ctx, b->prob, nt, "probabilities") == NULL))
+    if (st == SL_OK && into != NULL) {
+        if (nt != sl_block_trans(into))
+            st = SL_ERR(ctx, SL_EDATA, "%s: the rows of states %lld..%lld changed while they were read", path,
+                        (long long)s_begin, (long long)s_end);
+        b->target = into->target;
+        b->prob = into->prob;
+    } else if (st == SL_OK && (SL_ALLOC(ctx, b->target, nt, "targets") == NULL ||
+                               SL_ALLOC(ctx, b->prob, nt, "probabilities") == NULL)) {
         st = SL_ENOMEM;
+    }
     if (st == SL_OK) {
         if (use32) {
             /* 32-bit targets are read into the upper half of the 64-bit
@@ -802,8 +861,21 @@ sl_status sl_store_model_read(sl_ctx *ctx, const char *path, const sl_meta *m, i
     st = sl_agree(ctx, st);
 cleanup:
     if (f >= 0) H5Fclose(f);
-    if (st != SL_OK) sl_block_free(b);
+    if (st != SL_OK && into != NULL) memset(b, 0, sizeof(*b)); /* the arrays are the caller's */
+    else if (st != SL_OK) sl_block_free(b);
     return st;
+}
+
+sl_status sl_store_model_read(sl_ctx *ctx, const char *path, const sl_meta *m, int64_t s_begin, int64_t s_end,
+                              sl_block *b)
+{
+    return read_rows(ctx, path, m, s_begin, s_end, b, NULL);
+}
+
+sl_status sl_store_model_read_into(sl_ctx *ctx, const char *path, const sl_meta *m, int64_t s_begin, int64_t s_end,
+                                   const sl_block *into, sl_block *b)
+{
+    return read_rows(ctx, path, m, s_begin, s_end, b, into);
 }
 
 sl_status sl_store_quantity_read(sl_ctx *ctx, const char *path, const sl_meta *m, int q, int64_t p_begin,

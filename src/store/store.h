@@ -49,6 +49,15 @@ sl_status sl_store_model_meta(sl_ctx *ctx, const char *path, sl_meta *meta);
  * validate the rows. Errors name the file and the state. */
 sl_status sl_store_model_read(sl_ctx *ctx, const char *path, const sl_meta *meta,
                               int64_t s_begin, int64_t s_end, sl_block *block);
+/* The same into arrays the caller owns: into's first_pair (ns + 1
+ * entries), action, reward, first_transition (np + 1), target and
+ * probability (nt), where np and nt (sl_block_pairs/trans of into) must be
+ * the range's counts (sl_store_model_run_sizes). b describes the range as
+ * sl_store_model_read would, its arrays pointing into into's: the caller
+ * frees them, not b (never sl_block_free it). Models with visit counts or
+ * terminal values are not read this way. Collective. */
+sl_status sl_store_model_read_into(sl_ctx *ctx, const char *path, const sl_meta *m, int64_t s_begin, int64_t s_end,
+                                   const sl_block *into, sl_block *b);
 
 /* Read quantity q of pairs [p_begin, p_begin + n) (each rank its own
  * range, possibly empty): expected value and probability of being
@@ -56,6 +65,12 @@ sl_status sl_store_model_read(sl_ctx *ctx, const char *path, const sl_meta *meta
 sl_status sl_store_quantity_read(sl_ctx *ctx, const char *path, const sl_meta *m, int q, int64_t p_begin,
                                  int64_t n, double *mean, double *pos);
 
+/* The number of pairs and transitions of each run of states [runs[2k],
+ * runs[2k+1]), k < n_runs, from first_pair and first_transition at its
+ * ends (range-checked; the rows themselves are checked when read).
+ * Collective (every rank calls it, with its own runs). */
+sl_status sl_store_model_run_sizes(sl_ctx *ctx, const char *path, const sl_meta *m, const int64_t *runs,
+                                   int64_t n_runs, int64_t *n_pairs, int64_t *n_trans);
 /* Read first_pair[s_begin .. s_end] and the first_transition entries at
  * those pairs: cum[i] = first_transition[first_pair[s_begin + i]], i in
  * [0, s_end - s_begin]. Used to partition by transitions. Collective. */

@@ -14,6 +14,9 @@
 #   solve of a model file whose row 2900 has a probability of 1.5 (rank 2's
 #       rows by the partition `sluice info --partition 3` reports) -> 65,
 #       message names state 2900; also `sluice verify` of it
+#   solve of a staged model (the reservoir example, small) whose last row
+#       has a probability of 1.5: each rank reads its share of every stage,
+#       the last state is rank 2's -> 65, message names that state
 #   a checkpoint write that fails (SLUICE_FAULT_CKPT=1, on every rank's
 #       environment) -> 74 on all ranks, one message
 # "One message": exactly one line starting "sluice build:" / "sluice solve:"
@@ -83,6 +86,27 @@ case3 "solve, model row 2900 has probability 1.5 (rank 2 only)" 65 "^sluice solv
 "$SLUICE" solve good.h5 -o good-sol.h5 -q || ck_not_ok "solve the valid ring model"
 case3 "verify, model row 2900 has probability 1.5 (rank 2 only)" 65 "^sluice verify: .*state 2900\b" \
     verify bad.h5 good-sol.h5
+
+# the same with a stage factor: on 3 ranks `solve` reads each rank's share
+# of every stage straight from the file (sl_model_load_staged), so the last
+# state (the largest u, in every stage) is read by rank 2 only
+"$SLUICE" build "$SRC/examples/reservoir.c" --param storage_levels=30 --param inflow_classes=4 \
+    -o staged.h5 -q || ck_not_ok "build the small reservoir"
+cp staged.h5 staged-bad.h5
+last=$("$PY" - staged-bad.h5 <<'EOF'
+import sys
+import h5py
+with h5py.File(sys.argv[1], "r+") as f:
+    s = f["/state/first_pair"].shape[0] - 2    # the last state
+    k = f["/state/first_pair"][s]
+    t = f["/pair/first_transition"][k]
+    f["/transition/probability"][t] = 1.5
+    print(s)
+EOF
+) || ck_not_ok "damage the last row of the small reservoir"
+case3 "solve, staged model, last row has probability 1.5 (rank 2's share only)" 65 \
+    "^sluice solve: .*state $last\b" solve staged-bad.h5 -o staged-bad-sol.h5 -q
+[ -e staged-bad-sol.h5 ] && ck_not_ok "the failed solve wrote staged-bad-sol.h5"
 
 # checkpoint write failure on 3 ranks
 # (mpirun passes the environment on to the ranks it starts on this host)

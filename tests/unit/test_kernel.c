@@ -20,11 +20,14 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <unistd.h>
 
 #include <cmocka.h>
 
 #include "model/model.h"
 #include "solve/solve.h"
+
+#include "ctx_fixture.h"
 
 enum { FL = 3, FS = 4, FH = 5, NS = FL * FS * FH, MAXA = 3, MAXK = 4 };
 
@@ -98,21 +101,6 @@ static sl_status make_model(sl_ctx *ctx, const rows *r, int stage, sl_model **m)
     if (st == SL_OK) st = sl_model_set_factors(*m, 3, names, sizes, stage);
     sl_status sa = sl_model_assemble(*m);
     return st != SL_OK ? st : sa;
-}
-
-static int setup(void **state)
-{
-    sl_ctx *ctx = NULL;
-    if (sl_ctx_new(MPI_COMM_WORLD, 0, &ctx) != SL_OK) return -1;
-    *state = ctx;
-    return 0;
-}
-
-static int teardown(void **state)
-{
-    sl_ctx *ctx = (sl_ctx *)*state;
-    sl_ctx_free(&ctx);
-    return 0;
 }
 
 /* sl_sweep_rows == sl_sweep(eval) bitwise, over 6 sweeps, for every order
@@ -277,6 +265,92 @@ static void lean_solve_is_the_plain_solve(void **state)
     }
 }
 
+/* sl_model_load_staged: the rows read straight into the stage-interleaved
+ * layout are bitwise the rows sl_model_load + the move between ranks make
+ * (pairs, transitions, local columns, halo, partition), with the same
+ * fingerprint; the solve is bitwise the same; the model refuses anything
+ * but solving. Without a stage factor, or on one rank, it is a plain load. */
+static void staged_load_is_the_moved_layout(void **state)
+{
+    sl_ctx *ctx = ctx_of(state);
+    static rows r;
+    make_rows(31, &r);
+    char dir[] = "/tmp/sluice-kernel-XXXXXX", path[64];
+    shared_tmpdir(dir);
+    snprintf(path, sizeof(path), "%s/m.h5", dir);
+    for (int stage = -1; stage <= 1; stage += 2) {
+        sl_model *m = NULL, *plain = NULL, *staged = NULL;
+        assert_int_equal(make_model(ctx, &r, stage, &m), SL_OK);
+        assert_int_equal(sl_model_save(m, path), SL_OK);
+        sl_model_free(&m);
+        assert_int_equal(sl_model_load(ctx, path, &plain), SL_OK);
+        assert_int_equal(sl_model_load_staged(ctx, path, &staged), SL_OK);
+        assert_string_equal(sl_model_fingerprint(plain), sl_model_fingerprint(staged));
+        int moved = stage >= 0 && ctx->size > 1;
+        assert_int_equal(staged->staged != NULL, moved);
+        sl_problem A, B;
+        assert_int_equal(sl_problem_from_model(ctx, plain, SL_ORDER_AUTO, 0, &A), SL_OK);
+        assert_int_equal(sl_problem_from_model(ctx, staged, SL_ORDER_AUTO, 0, &B), SL_OK);
+        assert_int_equal(A.staged, B.staged);
+        assert_memory_equal(A.bounds, B.bounds, (size_t)(ctx->size + 1) * sizeof(int64_t));
+        const sl_block *a = &A.blk, *b = &B.blk;
+        assert_int_equal(a->s_begin, b->s_begin);
+        assert_int_equal(a->s_end, b->s_end);
+        assert_int_equal(a->p_begin, b->p_begin);
+        assert_int_equal(a->p_end, b->p_end);
+        assert_int_equal(a->t_begin, b->t_begin);
+        assert_int_equal(a->t_end, b->t_end);
+        int64_t ns = sl_block_states(a), np = sl_block_pairs(a), nt = sl_block_trans(a);
+        assert_memory_equal(a->first_pair, b->first_pair, (size_t)(ns + 1) * sizeof(int64_t));
+        if (np > 0) {
+            assert_memory_equal(a->action, b->action, (size_t)np * sizeof(int32_t));
+            assert_memory_equal(a->reward, b->reward, (size_t)np * sizeof(double));
+        }
+        assert_memory_equal(a->first_trans, b->first_trans, (size_t)(np + 1) * sizeof(int64_t));
+        if (nt > 0) {
+            assert_memory_equal(a->col, b->col, (size_t)nt * sizeof(uint32_t));
+            assert_memory_equal(a->prob, b->prob, (size_t)nt * sizeof(double));
+        }
+        assert_int_equal(A.halo.n_halo, B.halo.n_halo);
+        if (A.halo.n_halo > 0)
+            assert_memory_equal(A.halo.halo_global, B.halo.halo_global, (size_t)A.halo.n_halo * sizeof(int64_t));
+        sl_problem_free(&A);
+        sl_problem_free(&B);
+        /* the whole solve, the lean one on the staged model */
+        sl_solution *xa = NULL, *xb = NULL;
+        sl_solver *s = NULL;
+        assert_int_equal(solve(ctx, plain, SL_METHOD_GS, &xa), SL_OK);
+        assert_int_equal(sl_solver_create(ctx, &s), SL_OK);
+        assert_int_equal(sl_solver_set_method(s, SL_METHOD_GS), SL_OK);
+        assert_int_equal(sl_solver_set_tolerance(s, 1e-9), SL_OK);
+        if (moved) {
+            /* anything that would read the rows in the file's layout is refused */
+            assert_int_equal(sl_model_save(staged, path), SL_EUSAGE);
+            assert_non_null(strstr(sl_ctx_message(ctx), "discounted solve's layout"));
+        }
+        assert_int_equal(sl_solver_solve_lean(s, staged, &xb), SL_OK);
+        int64_t b1, n1, b2, n2;
+        const double *v1, *v2;
+        const int32_t *a1, *a2;
+        assert_int_equal(sl_solution_get_local(xa, &b1, &n1, &v1, &a1), SL_OK);
+        assert_int_equal(sl_solution_get_local(xb, &b2, &n2, &v2, &a2), SL_OK);
+        assert_int_equal(b1, b2);
+        assert_int_equal(n1, n2);
+        assert_memory_equal(v1, v2, (size_t)n1 * sizeof(double));
+        assert_memory_equal(a1, a2, (size_t)n1 * sizeof(int32_t));
+        sl_solver_free(&s);
+        sl_solution_free(&xa);
+        sl_solution_free(&xb);
+        sl_model_free(&plain);
+        sl_model_free(&staged);
+    }
+    MPI_Barrier(MPI_COMM_WORLD);
+    if (ctx->rank == 0) {
+        remove(path);
+        rmdir(dir);
+    }
+}
+
 int main(void)
 {
     MPI_Init(NULL, NULL);
@@ -284,6 +358,7 @@ int main(void)
         cmocka_unit_test(policy_rows_sweep_is_the_reference_sweep),
         cmocka_unit_test(mpi_agrees_with_gs),
         cmocka_unit_test(lean_solve_is_the_plain_solve),
+        cmocka_unit_test(staged_load_is_the_moved_layout),
     };
     int rc = cmocka_run_group_tests(tests, setup, teardown);
     MPI_Finalize();
