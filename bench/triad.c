@@ -2,10 +2,18 @@
  * bench/speed.sh (McCalpin, "Memory Bandwidth and Machine Balance in Current
  * High Performance Computers", IEEE TCCA Newsletter, 1995: 24 bytes counted
  * per element, the write-allocate read of a[] not counted).
- * usage: triad N_ELEMENTS REPS   -> one line per repetition: seconds GB/s */
+ * usage: triad N_ELEMENTS REPS   -> one line per repetition: seconds GB/s
+ *        triad N_ELEMENTS REPS read12
+ *   instead streams what a Jacobi sweep streams per transition and nothing
+ *   else: a 4-byte column and an 8-byte probability, summed (12 bytes
+ *   counted per element, no gather of x[col], no per-pair work). What it
+ *   reaches against the triad is a ceiling for the sweep on this machine:
+ *   the sweep reads these bytes and more. */
 #define _POSIX_C_SOURCE 200809L
+#include <stdint.h>
 #include <stdio.h>
 #include <stdlib.h>
+#include <string.h>
 #include <time.h>
 
 static double now(void)
@@ -15,9 +23,39 @@ static double now(void)
     return (double)t.tv_sec + 1e-9 * (double)t.tv_nsec;
 }
 
+static int read12(long n, long reps)
+{
+    uint32_t *col = malloc((size_t)n * sizeof(uint32_t));
+    double *p = malloc((size_t)n * sizeof(double)), check = 0;
+    if (col == NULL || p == NULL) {
+        fprintf(stderr, "triad: out of memory\n");
+        return 71;
+    }
+    for (long i = 0; i < n; i++) col[i] = (uint32_t)(i & 1023), p[i] = 1.0 / (double)(1 + (i & 7));
+    for (long r = 0; r < reps; r++) {
+        double t0 = now(), a0 = 0, a1 = 0, a2 = 0, a3 = 0;
+        long i = 0;
+        for (; i + 3 < n; i += 4) {
+            a0 += p[i] + (double)col[i];
+            a1 += p[i + 1] + (double)col[i + 1];
+            a2 += p[i + 2] + (double)col[i + 2];
+            a3 += p[i + 3] + (double)col[i + 3];
+        }
+        for (; i < n; i++) a0 += p[i] + (double)col[i];
+        double t = now() - t0;
+        check += a0 + a1 + a2 + a3;
+        printf("%.6f %.3f\n", t, 12.0 * (double)n / t / 1e9);
+    }
+    fprintf(stderr, "read12 checksum %g\n", check);
+    free(col);
+    free(p);
+    return 0;
+}
+
 int main(int argc, char **argv)
 {
     long n = argc > 1 ? atol(argv[1]) : 1L << 24, reps = argc > 2 ? atol(argv[2]) : 10;
+    if (argc > 3 && strcmp(argv[3], "read12") == 0) return read12(2 * n, reps);
     double *a = malloc((size_t)n * sizeof(double)), *b = malloc((size_t)n * sizeof(double)),
            *c = malloc((size_t)n * sizeof(double));
     if (a == NULL || b == NULL || c == NULL) {
