@@ -335,15 +335,8 @@ static sl_status read_staged(sl_ctx *ctx, const char *path, const sl_meta *meta,
         SL_ALLOC(ctx, out->target, nt, "targets") == NULL || SL_ALLOC(ctx, out->prob, nt, "probabilities") == NULL)
         st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
-    int64_t p_begin = sl_exscan_i64(ctx, np), t_begin = sl_exscan_i64(ctx, nt);
-    out->s_begin = S * a;
-    out->s_end = S * a + ns;
-    out->p_begin = p_begin;
-    out->p_end = p_begin + np;
-    out->t_begin = t_begin;
-    out->t_end = t_begin + nt;
-    out->first_pair[0] = p_begin;
-    out->first_trans[0] = t_begin;
+    sl_stage_block_frame(ctx, map, np, nt, out);
+    int64_t p_begin = out->p_begin, t_begin = out->t_begin;
     /* every rank reads as many runs as the rank with the most (the reads
      * are collective); the others read empty ranges into a spare entry */
     int64_t n_max = n_runs;

@@ -98,6 +98,11 @@ sl_status sl_stage_runs(sl_ctx *ctx, const sl_stage_map *m, int r, int64_t **run
  * by stage): read one after the other they give its rows in that order.
  * At most S * (number of outer values part r touches) runs. Local. */
 sl_status sl_stage_runs_internal(sl_ctx *ctx, const sl_stage_map *m, int r, int64_t **runs, int64_t *n_runs);
+/* The ranges of this rank's block in the internal layout of m, holding np
+ * pairs and nt transitions (global offsets by exclusive scan over ranks),
+ * and the first entries of its first_pair and first_trans, which the
+ * caller has allocated. Collective. */
+void sl_stage_block_frame(sl_ctx *ctx, const sl_stage_map *m, int64_t np, int64_t nt, sl_block *out);
 /* Move rows from their current layout (src: this rank's contiguous file
  * range, src_bounds of all ranks, global file targets) to the
  * stage-interleaved one: out gets this rank's states in internal order

@@ -197,6 +197,20 @@ sl_status sl_stage_runs_internal(sl_ctx *ctx, const sl_stage_map *m, int r, int6
     return SL_OK;
 }
 
+void sl_stage_block_frame(sl_ctx *ctx, const sl_stage_map *m, int64_t np, int64_t nt, sl_block *out)
+{
+    int64_t S = m->n_stages, a = m->ub[ctx->rank], ns = S * (m->ub[ctx->rank + 1] - a);
+    int64_t p_begin = sl_exscan_i64(ctx, np), t_begin = sl_exscan_i64(ctx, nt);
+    out->s_begin = S * a;
+    out->s_end = S * a + ns;
+    out->p_begin = p_begin;
+    out->p_end = p_begin + np;
+    out->t_begin = t_begin;
+    out->t_end = t_begin + nt;
+    out->first_pair[0] = p_begin;
+    out->first_trans[0] = t_begin;
+}
+
 static int fits_int(int64_t v) { return v >= 0 && v <= INT32_MAX; }
 
 sl_status sl_stage_redistribute(sl_ctx *ctx, const sl_block *src, const int64_t *src_bounds, const sl_stage_map *m,
@@ -321,15 +335,8 @@ sl_status sl_stage_redistribute(sl_ctx *ctx, const sl_block *src, const int64_t 
     for (int64_t k = 0; k < ns; k++) poff[k + 1] = poff[k] + rnp[k];
     toff[0] = 0;
     for (int64_t q = 0; q < np; q++) toff[q + 1] = toff[q] + rntr[q];
-    int64_t p_begin = sl_exscan_i64(ctx, np), t_begin = sl_exscan_i64(ctx, nt);
-    out->s_begin = S * a;
-    out->s_end = S * a + ns;
-    out->p_begin = p_begin;
-    out->p_end = p_begin + np;
-    out->t_begin = t_begin;
-    out->t_end = t_begin + nt;
-    out->first_pair[0] = p_begin;
-    out->first_trans[0] = t_begin;
+    sl_stage_block_frame(ctx, m, np, nt, out);
+    int64_t p_begin = out->p_begin, t_begin = out->t_begin;
     for (int64_t j = 0, pp = 0, tt = 0; j < ns; j++) {
         int64_t k = reqpos[j];
         for (int64_t q = poff[k]; q < poff[k + 1]; q++, pp++) {

@@ -223,6 +223,20 @@ static void mpi_agrees_with_gs(void **state)
     }
 }
 
+/* This rank's values and actions of xa and xb are bitwise the same. */
+static void assert_same_solution(const sl_solution *xa, const sl_solution *xb)
+{
+    int64_t b1, n1, b2, n2;
+    const double *v1, *v2;
+    const int32_t *a1, *a2;
+    assert_int_equal(sl_solution_get_local(xa, &b1, &n1, &v1, &a1), SL_OK);
+    assert_int_equal(sl_solution_get_local(xb, &b2, &n2, &v2, &a2), SL_OK);
+    assert_int_equal(b1, b2);
+    assert_int_equal(n1, n2);
+    assert_memory_equal(v1, v2, (size_t)n1 * sizeof(double));
+    assert_memory_equal(a1, a2, (size_t)n1 * sizeof(int32_t));
+}
+
 /* sl_solver_solve_lean (rows taken, columns built over the targets) gives
  * bitwise the solution of sl_solver_solve, and the model refuses a second
  * solve instead of reading freed rows */
@@ -243,15 +257,7 @@ static void lean_solve_is_the_plain_solve(void **state)
             assert_int_equal(sl_solver_set_method(s, meth), SL_OK);
             assert_int_equal(sl_solver_set_tolerance(s, 1e-9), SL_OK);
             assert_int_equal(sl_solver_solve_lean(s, m, &xb), SL_OK);
-            int64_t b1, n1, b2, n2;
-            const double *v1, *v2;
-            const int32_t *a1, *a2;
-            assert_int_equal(sl_solution_get_local(xa, &b1, &n1, &v1, &a1), SL_OK);
-            assert_int_equal(sl_solution_get_local(xb, &b2, &n2, &v2, &a2), SL_OK);
-            assert_int_equal(b1, b2);
-            assert_int_equal(n1, n2);
-            assert_memory_equal(v1, v2, (size_t)n1 * sizeof(double));
-            assert_memory_equal(a1, a2, (size_t)n1 * sizeof(int32_t));
+            assert_same_solution(xa, xb);
             /* the description is still there, the rows are not */
             assert_int_equal(sl_model_n_states(m), NS);
             assert_int_equal(sl_solver_solve(s, m, &xc), SL_EUSAGE);
@@ -329,15 +335,7 @@ static void staged_load_is_the_moved_layout(void **state)
             assert_non_null(strstr(sl_ctx_message(ctx), "discounted solve's layout"));
         }
         assert_int_equal(sl_solver_solve_lean(s, staged, &xb), SL_OK);
-        int64_t b1, n1, b2, n2;
-        const double *v1, *v2;
-        const int32_t *a1, *a2;
-        assert_int_equal(sl_solution_get_local(xa, &b1, &n1, &v1, &a1), SL_OK);
-        assert_int_equal(sl_solution_get_local(xb, &b2, &n2, &v2, &a2), SL_OK);
-        assert_int_equal(b1, b2);
-        assert_int_equal(n1, n2);
-        assert_memory_equal(v1, v2, (size_t)n1 * sizeof(double));
-        assert_memory_equal(a1, a2, (size_t)n1 * sizeof(int32_t));
+        assert_same_solution(xa, xb);
         sl_solver_free(&s);
         sl_solution_free(&xa);
         sl_solution_free(&xb);
