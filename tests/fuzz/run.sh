@@ -12,7 +12,7 @@ inc="-I$SRC/src -I$SRC/include $(pkg-config --cflags hdf5-openmpi)"
 libs="$(pkg-config --libs hdf5-openmpi) -ldeflate -lm -ldl"
 srcs="$SRC/src/core/core.c $SRC/src/core/names.c $SRC/src/model/model.c $SRC/src/input/csv.c
       $SRC/src/input/import.c $SRC/src/input/estimate.c $SRC/src/store/h5.c $SRC/src/store/h5_chunks.c $SRC/src/store/model_io.c
-      $SRC/src/model/handle.c $SRC/src/parallel/layout.c"
+      $SRC/src/model/handle.c $SRC/src/parallel/layout.c $SRC/src/parallel/stages.c"
 if ! OMPI_CC=clang mpicc -std=c11 -D_POSIX_C_SOURCE=200809L -g -O1 -fsanitize=fuzzer,address,undefined \
      $inc "$SRC/tests/fuzz/fuzz_csv.c" $srcs $libs -o "$WORK/fuzz_csv" 2> "$WORK/build.log"; then
   if grep -q "libclang_rt.fuzzer\|cannot find.*fuzzer" "$WORK/build.log"; then

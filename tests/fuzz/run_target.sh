@@ -13,7 +13,7 @@ SRC=$1 WORK=$2 T=$3 SECS=${4:-30}
 dict="" # a libFuzzer dictionary of the format's pieces, if the target has one
 [ -f "$SRC/tests/fuzz/$T.dict" ] && dict="-dict=$SRC/tests/fuzz/$T.dict"
 # labels.c also looks a state up in a model file: the store comes along
-store="src/core/core.c src/core/names.c src/model/model.c src/model/handle.c src/parallel/layout.c src/store/h5.c src/store/h5_chunks.c src/store/model_io.c"
+store="src/core/core.c src/core/names.c src/model/model.c src/model/handle.c src/parallel/layout.c src/parallel/stages.c src/store/h5.c src/store/h5_chunks.c src/store/model_io.c"
 case "$T" in
   validate) libs="src/core/core.c src/model/model.c" ;;
   parse) libs="$store src/analysis/labels.c" ;;
