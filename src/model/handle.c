@@ -430,8 +430,7 @@ static sl_status load(sl_ctx *ctx, const char *path, int staged, sl_model **out)
         /* a run costs a collective open and a partial chunk at each end:
          * with more runs on some rank (many values of the factors above
          * the stage), the plain read and the move between ranks instead */
-        int64_t L = map.inner, a = map.ub[ctx->rank], b = map.ub[ctx->rank + 1];
-        int64_t most = a < b ? map.n_stages * ((b - 1) / L - a / L + 1) : 0;
+        int64_t most = sl_stage_runs_bound(&map, ctx->rank);
         MPI_Allreduce(MPI_IN_PLACE, &most, 1, MPI_INT64_T, MPI_MAX, ctx->comm);
         if (most > SL_STAGED_MAX_RUNS) sl_stage_map_free(&map);
     }
@@ -447,33 +446,23 @@ static sl_status load(sl_ctx *ctx, const char *path, int staged, sl_model **out)
                       "%s: contents do not match the file's fingerprint (%s recorded, %s computed): the file "
                       "was altered or is corrupted",
                       path, meta.fingerprint, fp));
-    if (map.active) {
-        /* the rows are in the internal layout: the model keeps the file's
-         * partition (for writing vectors) and the map */
-        sl_model *m = NULL;
-        if (SL_ZALLOC(ctx, m, 1, "model") == NULL || SL_ZALLOC(ctx, m->staged, 1, "stage layout") == NULL)
-            st = SL_ENOMEM;
+    st = sl_model_adopt(ctx, &meta, &blk, out);
+    if (st == SL_OK) snprintf((*out)->name, sizeof((*out)->name), "%s", path);
+    if (st == SL_OK && map.active) {
+        /* the rows are in the internal layout: the model keeps the map and
+         * the file's partition (for writing vectors) */
+        sl_model *m = *out;
+        if (SL_ZALLOC(ctx, m->staged, 1, "stage layout") == NULL) st = SL_ENOMEM;
+        st = sl_agree(ctx, st);
         if (st != SL_OK) {
-            if (m != NULL) free(m);
-            m = NULL;
+            sl_model_free(out);
+        } else {
+            *m->staged = map;
+            memset(&map, 0, sizeof(map));
+            free(m->bounds);
+            m->bounds = bounds;
+            bounds = NULL;
         }
-        SL_TRY(sl_agree(ctx, st));
-        m->ctx = ctx;
-        m->meta = meta;
-        m->blk = blk;
-        *m->staged = map;
-        m->bounds = bounds;
-        memset(&meta, 0, sizeof(meta));
-        memset(&blk, 0, sizeof(blk));
-        memset(&map, 0, sizeof(map));
-        bounds = NULL;
-        m->have_rows = 1;
-        m->assembled = 1;
-        snprintf(m->name, sizeof(m->name), "%s", path);
-        *out = m;
-    } else {
-        st = sl_model_adopt(ctx, &meta, &blk, out);
-        if (st == SL_OK) snprintf((*out)->name, sizeof((*out)->name), "%s", path);
     }
 cleanup:
     free(bounds);

@@ -96,8 +96,11 @@ sl_status sl_stage_map_copy(sl_ctx *ctx, const sl_stage_map *src, sl_stage_map *
 sl_status sl_stage_runs(sl_ctx *ctx, const sl_stage_map *m, int r, int64_t **runs, int64_t *n_runs);
 /* The same states as runs of file states in part r's internal order (stage
  * by stage): read one after the other they give its rows in that order.
- * At most S * (number of outer values part r touches) runs. Local. */
+ * At most sl_stage_runs_bound(m, r) runs. Local. */
 sl_status sl_stage_runs_internal(sl_ctx *ctx, const sl_stage_map *m, int r, int64_t **runs, int64_t *n_runs);
+/* The most runs sl_stage_runs_internal gives part r: S times the number of
+ * outer values its states touch. Local and pure. */
+int64_t sl_stage_runs_bound(const sl_stage_map *m, int r);
 /* The ranges of this rank's block in the internal layout of m, holding np
  * pairs and nt transitions (global offsets by exclusive scan over ranks),
  * and the first entries of its first_pair and first_trans, which the

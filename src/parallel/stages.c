@@ -179,11 +179,16 @@ sl_status sl_stage_runs(sl_ctx *ctx, const sl_stage_map *m, int r, int64_t **run
     return SL_OK;
 }
 
+int64_t sl_stage_runs_bound(const sl_stage_map *m, int r)
+{
+    int64_t L = m->inner, a = m->ub[r], b = m->ub[r + 1];
+    return a < b ? m->n_stages * ((b - 1) / L - a / L + 1) : 0;
+}
+
 sl_status sl_stage_runs_internal(sl_ctx *ctx, const sl_stage_map *m, int r, int64_t **runs_out, int64_t *n_runs)
 {
-    int64_t L = m->inner, S = m->n_stages, a = m->ub[r], b = m->ub[r + 1];
-    int64_t nh = a < b ? (b - 1) / L - a / L + 1 : 0, *runs = NULL, n = 0;
-    if (SL_ALLOC(ctx, runs, 2 * (S * nh + 1), "stage runs") == NULL) return SL_ENOMEM;
+    int64_t L = m->inner, S = m->n_stages, a = m->ub[r], b = m->ub[r + 1], *runs = NULL, n = 0;
+    if (SL_ALLOC(ctx, runs, 2 * (sl_stage_runs_bound(m, r) + 1), "stage runs") == NULL) return SL_ENOMEM;
     /* stage by stage, and in a stage by u = l + L*h from a to b: the
      * internal order. Runs that touch in the file are merged; they also
      * follow each other internally, as every run does in this order. */

@@ -69,7 +69,9 @@ static sl_status problem_build(sl_ctx *ctx, const sl_model *m, sl_model *take, s
 {
     sl_status st = SL_OK;
     memset(p, 0, sizeof(*p));
-    SL_TRY(sl_agree(ctx, sl_model_check_solvable(ctx, m, "solve")));
+    /* a model loaded in the discounted solve's layout (sl_model_load_staged)
+     * is for those methods only */
+    SL_TRY(sl_agree(ctx, allow_any ? sl_model_check_ready(ctx, m, "solve") : sl_model_check_solvable(ctx, m, "solve")));
     p->path = m->name;
     p->direct_time_limit = SL_DIRECT_TIME_LIMIT;
     if (!allow_any && m->meta.objective != SL_OBJ_DISCOUNTED)
@@ -88,10 +90,6 @@ static sl_status problem_build(sl_ctx *ctx, const sl_model *m, sl_model *take, s
     /* with a stage factor: every rank gets a share of every stage (for the
      * discounted methods; the other objectives (allow_any) keep the model's
      * layout, which their file I/O assumes) */
-    if (m->staged != NULL && allow_any)
-        st = SL_ERR(ctx, SL_EUSAGE, "%s: its rows were loaded in the discounted solve's layout (sl_model_load_staged); "
-                    "load it with sl_model_load for this", p->path);
-    SL_TRY(sl_agree(ctx, st));
     /* a model loaded in this layout (sl_model_load_staged) brings its map */
     if (m->staged != NULL) SL_TRY(sl_agree(ctx, sl_stage_map_copy(ctx, m->staged, &p->stages)));
     else if (!allow_any) SL_TRY(sl_stage_map_rows(ctx, &m->meta, &m->blk, &p->stages));
