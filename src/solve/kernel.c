@@ -334,69 +334,6 @@ static double sweep_part(const sl_problem *p, double *x, int32_t *policy, int ev
     return delta;
 }
 
-/* The fixed-policy sweep over the policy's own rows: the same sums as
- * qval() over the model's rows, term by term. */
-static double sweep_rows_part(const sl_problem *p, const sl_eval_rows *r, double *x, int64_t j0, int64_t j1)
-{
-    const uint32_t *restrict first = r->first, *restrict col = r->col;
-    const double *restrict prob = r->prob, *restrict rew = r->reward;
-    const int64_t *restrict order = p->order;
-    double gamma = p->gamma, delta = 0;
-    for (int64_t j = j0; j < j1; j++) {
-        double acc = 0.0;
-        for (uint32_t t = first[j]; t < first[j + 1]; t++) acc += prob[t] * x[col[t]];
-        double v = rew[j] + gamma * acc;
-        int64_t i = order[j];
-        double dd = fabs(v - x[i]);
-        delta = dd > delta ? dd : delta;
-        x[i] = v;
-    }
-    return delta;
-}
-
-void sl_eval_rows_free(sl_eval_rows *rows)
-{
-    if (rows == NULL) return;
-    free(rows->first);
-    free(rows->col);
-    free(rows->prob);
-    free(rows->reward);
-    memset(rows, 0, sizeof(*rows));
-}
-
-sl_status sl_eval_rows_build(sl_ctx *ctx, const sl_problem *p, const int32_t *policy, sl_eval_rows *rows)
-{
-    const sl_block *b = &p->blk;
-    int64_t n = p->n_local, nt = 0;
-    memset(rows, 0, sizeof(*rows));
-    for (int64_t i = 0; i < n; i++) {
-        int64_t k = b->first_pair[i] - b->p_begin + policy[i];
-        nt += b->first_trans[k + 1] - b->first_trans[k];
-    }
-    if (nt > (int64_t)UINT32_MAX)
-        return SL_ERR(ctx, SL_EDATA, "%s: the policy has %lld transitions on rank %d, more than 32-bit offsets address",
-                      p->path, (long long)nt, ctx->rank);
-    if (SL_ALLOC(ctx, rows->first, n + 1, "policy rows") == NULL || SL_ALLOC(ctx, rows->col, nt, "policy rows") == NULL ||
-        SL_ALLOC(ctx, rows->prob, nt, "policy rows") == NULL || SL_ALLOC(ctx, rows->reward, n, "policy rows") == NULL) {
-        sl_eval_rows_free(rows);
-        return SL_ENOMEM;
-    }
-    uint32_t w = 0;
-    for (int64_t j = 0; j < n; j++) {
-        int64_t i = p->order[j], k = b->first_pair[i] - b->p_begin + policy[i];
-        int64_t t0 = b->first_trans[k] - b->t_begin, t1 = b->first_trans[k + 1] - b->t_begin;
-        rows->first[j] = w;
-        rows->reward[j] = b->reward[k];
-        for (int64_t t = t0; t < t1; t++, w++) {
-            rows->col[w] = b->col[t];
-            rows->prob[w] = b->prob[t];
-        }
-    }
-    rows->first[n] = w;
-    rows->n = n;
-    return SL_OK;
-}
-
 double sl_sweep_gs(const sl_problem *p, double *x, int32_t *policy, int eval)
 {
     return sweep_part(p, x, policy, eval, 0, p->n_local);
@@ -411,7 +348,7 @@ static double sweep_any(sl_ctx *ctx, const sl_problem *p, double *x, int32_t *po
     int64_t S = p->staged ? p->stages.n_stages : 1, w = p->n_local / S;
     double delta = 0;
     for (int64_t k = 0; k < S; k++) {
-        double d = rows ? sweep_rows_part(p, rows, x, k * w, (k + 1) * w)
+        double d = rows ? sl_eval_rows_sweep_part(p, rows, x, k * w, (k + 1) * w)
                         : sweep_part(p, x, policy, eval, k * w, (k + 1) * w);
         if (d > delta) delta = d;
         /* order position k holds stage S-1-k; the next stage reads it (the

@@ -27,7 +27,8 @@ typedef struct run {
     sl_check last;
     int have_check;
     void *lu;               /* PI: cached factorization */
-    sl_eval_rows prow;    /* MPI: the stable policy's transitions, contiguous (first == NULL: none) */
+    sl_eval_rows prow;    /* MPI: the policy's transitions, contiguous */
+    int prow_built;       /* prow holds the rows of pol (the same on every rank) */
     char evaluation[16];
     double lu_estimate;
     int64_t n_ckpt;
@@ -36,6 +37,10 @@ typedef struct run {
 } run;
 
 static double elapsed(const run *r) { return r->S.elapsed + (sl_now() - r->t0); }
+
+/* The largest change of a sweep at which gs checks: the span of the
+ * residual, and so the certificate, is then near the tolerance. */
+static double sweep_target(const run *r) { return r->tol * (1.0 - r->P.gamma) / (r->P.gamma > 0 ? r->P.gamma : 1.0); }
 
 /* ---- monitor ------------------------------------------------------------------- */
 
@@ -64,7 +69,7 @@ static void notify(run *r, sl_event ev, const sl_check *c, const char *note)
             int64_t ds = r->hist.sweeps[b] - r->hist.sweeps[a];
             if (ds > 0 && r->hist.span[a] > 0 && r->hist.span[b] > 0)
                 p.rate = pow(r->hist.span[b] / r->hist.span[a], 1.0 / (double)ds);
-            double target = r->tol * (1.0 - r->P.gamma) / (r->P.gamma > 0 ? r->P.gamma : 1.0);
+            double target = sweep_target(r);
             double secs_per_sweep = r->S.sweeps > 0 ? elapsed(r) / (double)r->S.sweeps : 0;
             if (p.rate > 0 && p.rate < 1 && c->span > target)
                 p.eta = log(target / c->span) / log(p.rate) * secs_per_sweep;
@@ -281,8 +286,7 @@ static int step_gs(run *r)
     r->S.sweeps++;
     r->S.since_check++;
     r->S.iteration++;
-    double target = r->tol * (1.0 - r->P.gamma) / (r->P.gamma > 0 ? r->P.gamma : 1.0);
-    if (r->S.since_check >= r->S.check_interval || delta <= target) {
+    if (r->S.since_check >= r->S.check_interval || delta <= sweep_target(r)) {
         r->S.since_check = 0;
         if (r->S.check_interval < 32) r->S.check_interval *= 2;
         int c = check(r, r->pol);
@@ -316,19 +320,26 @@ static int step_mpi(run *r, sl_status *st)
     double *t = r->x;
     r->x = r->y;
     r->y = t;
-    /* once no action changed, the evaluation sweeps run over the policy's
-     * own transitions, laid out contiguously; a change drops them (the
-     * count of changes is global, so all ranks decide alike) */
-    if (r->last.changed > 0) sl_eval_rows_free(&r->prow);
-    else if (r->prow.first == NULL) {
-        *st = sl_agree(r->ctx, sl_eval_rows_build(r->ctx, &r->P, r->pol, &r->prow));
+    /* the evaluation sweeps run over the policy's own transitions, laid
+     * out contiguously: after an improvement only the changed states' rows
+     * are copied again (the count of changes is global, so all ranks
+     * decide alike). They stop early where gs would check: a sweep that
+     * changed no value by more than the target. */
+    if (r->last.changed > 0 || !r->prow_built) {
+        *st = sl_agree(r->ctx, sl_eval_rows_update(r->ctx, &r->P, r->pol, &r->prow));
         if (*st != SL_OK) return -1;
+        int64_t nvec = 0, nent = 0;
+        if (!r->prow_built && sl_eval_rows_shared(&r->prow, &nvec, &nent))
+            sl_log(r->ctx, "solve: the policy's rows share %lld distinct probability vectors (%lld entries, rank 0)",
+                   (long long)nvec, (long long)nent);
+        r->prow_built = 1;
     }
+    const double target = sweep_target(r);
     int64_t m = r->o->sweeps > 0 ? r->o->sweeps : r->S.mpi_m;
     for (int64_t j = 0; j < m; j++) {
-        if (r->prow.first != NULL) sl_sweep_rows(r->ctx, &r->P, r->x, &r->prow);
-        else sl_sweep(r->ctx, &r->P, r->x, r->pol, 1);
+        double delta = sl_max(r->ctx, sl_sweep_rows(r->ctx, &r->P, r->x, &r->prow));
         r->S.sweeps++;
+        if (delta <= target) break;
     }
     /* adapt m: a stable policy deserves longer evaluation (Puterman & Shin 1978
      * leave m free; doubling when no action changed is common practice, no source) */

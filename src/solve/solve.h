@@ -144,19 +144,49 @@ double sl_sweep(sl_ctx *ctx, const sl_problem *p, double *x, int32_t *policy, in
 /* The transitions of one fixed policy, copied out of the model's rows in
  * sweep order (entry j is state order[j]) so that a fixed-policy sweep
  * streams through them contiguously instead of jumping over the other
- * actions' rows. Arithmetic is the same as the sweep over the model's rows
- * (same terms, same order), so the iterates are bitwise equal. */
+ * actions' rows (policy_rows.c). Where the rows' probability vectors repeat
+ * (on average 4 times or more), each distinct vector is stored once in a
+ * table and a row holds its offset. Arithmetic is the same as the sweep
+ * over the model's rows (same terms, same order), so the iterates are
+ * bitwise equal. */
+typedef struct sl_prob_table sl_prob_table;
+/* The table of distinct probability vectors: an empty one (t NULL: a new
+ * one; else its allocations are kept), NULL out of memory. */
+sl_prob_table *sl_prob_table_reset(sl_ctx *ctx, sl_prob_table *t);
+/* Offset of the vector v[0..len) in the table (equal bits, equal length),
+ * added if new; -1 when adding it would take the table past `limit`
+ * entries, -2 out of memory. */
+int64_t sl_prob_table_find(sl_ctx *ctx, sl_prob_table *t, const double *v, int64_t len, int64_t limit);
+const double *sl_prob_table_values(const sl_prob_table *t);
+void sl_prob_table_free(sl_prob_table *t);
 typedef struct sl_eval_rows {
     int64_t n;              /* owned states; 0: not built */
-    uint32_t *first;        /* [n + 1] offsets into col/prob */
+    uint32_t *first;        /* [n + 1] offsets into col (and prob) */
     uint32_t *col;          /* local columns into [owned | halo] */
-    double *prob;
+    double *prob;           /* the probabilities, or NULL when shared: */
+    uint32_t *poff;         /* [n] offset of row j's probabilities in the table */
+    sl_prob_table *table;   /* the distinct probability vectors (NULL: prob) */
     double *reward;         /* [n] */
+    int32_t *entry;         /* [n] the policy entry each row was copied from */
+    int64_t cap;            /* transitions col (and prob) can hold */
 } sl_eval_rows;
-/* Build the rows of `policy` (pair offsets). Fails with SL_EDATA if the
- * policy's transitions on this rank do not fit 32-bit offsets. Local. */
+/* Build the rows of `policy` (pair offsets) into `rows` (overwritten, not
+ * freed). Fails with SL_EDATA if the policy's transitions on this rank do
+ * not fit 32-bit offsets. Local. */
 sl_status sl_eval_rows_build(sl_ctx *ctx, const sl_problem *p, const int32_t *policy, sl_eval_rows *rows);
+/* The same for rows built before (or zeroed): rows whose entry is
+ * unchanged are kept; changed ones are overwritten in place when every
+ * changed state's new pair has as many transitions as its old one, else all
+ * rows are laid out again (in the same arrays when they are large enough).
+ * Same rows as a fresh build would sweep; freed on failure. Local. */
+sl_status sl_eval_rows_update(sl_ctx *ctx, const sl_problem *p, const int32_t *policy, sl_eval_rows *rows);
 void sl_eval_rows_free(sl_eval_rows *rows);
+/* 1 if the rows share probability vectors (then the count of distinct
+ * vectors and of table entries), else 0. */
+int sl_eval_rows_shared(const sl_eval_rows *rows, int64_t *vectors, int64_t *entries);
+/* The fixed-policy sweep over rows j0..j1 of `rows` (one stage's share);
+ * returns the largest change. Local. */
+double sl_eval_rows_sweep_part(const sl_problem *p, const sl_eval_rows *rows, double *x, int64_t j0, int64_t j1);
 /* sl_sweep(ctx, p, x, policy, 1) for the policy the rows were built from.
  * Collective. */
 double sl_sweep_rows(sl_ctx *ctx, const sl_problem *p, double *x, const sl_eval_rows *rows);

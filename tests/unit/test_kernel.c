@@ -54,8 +54,11 @@ static int cmp_i64(const void *a, const void *b)
 }
 
 /* Random rows: 1-3 actions per state, 1-4 distinct successors, random
- * rewards and probabilities. */
-static void make_rows(uint64_t seed, rows *r)
+ * rewards and probabilities; with `repeat` 1, one probability vector per
+ * number of successors (so they repeat, as an inflow distribution does);
+ * with 2, two vectors of 3 or 4 successors that differ only after the
+ * first entry (telling them apart needs the whole vector). */
+static void make_rows_as(uint64_t seed, rows *r, int repeat)
 {
     uint64_t s = seed;
     int64_t k = 0, t = 0;
@@ -75,7 +78,9 @@ static void make_rows(uint64_t seed, rows *r)
             }
             qsort(tg, (size_t)nk, sizeof(int64_t), cmp_i64);
             double w[MAXK], sum = 0;
-            for (int j = 0; j < nk; j++) sum += w[j] = 1.0 + (double)(next(&s) % 97);
+            int swap = repeat == 2 && nk >= 3 && next(&s) % 2;
+            for (int j = 0; j < nk; j++)
+                sum += w[j] = !repeat ? 1.0 + (double)(next(&s) % 97) : swap && (j == 1 || j == 2) ? 4.0 - j : 1.0 + j;
             double acc = 0;
             for (int j = 0; j < nk; j++, t++) {
                 r->target[t] = tg[j];
@@ -88,6 +93,8 @@ static void make_rows(uint64_t seed, rows *r)
         r->first_pair[i + 1] = k;
     }
 }
+
+static void make_rows(uint64_t seed, rows *r) { make_rows_as(seed, r, 0); }
 
 /* The model on rank 0's rows (other ranks none); stage factor 1 or none. */
 static sl_status make_model(sl_ctx *ctx, const rows *r, int stage, sl_model **m)
@@ -103,15 +110,29 @@ static sl_status make_model(sl_ctx *ctx, const rows *r, int stage, sl_model **m)
     return st != SL_OK ? st : sa;
 }
 
-/* sl_sweep_rows == sl_sweep(eval) bitwise, over 6 sweeps, for every order
- * and with and without the stage factor. */
+/* Transitions of the policy's pairs on this rank. */
+static int64_t policy_transitions(const sl_problem *P, const int32_t *pol)
+{
+    int64_t nt = 0;
+    for (int64_t i = 0; i < P->n_local; i++) {
+        int64_t k = P->blk.first_pair[i] - P->blk.p_begin + pol[i];
+        nt += P->blk.first_trans[k + 1] - P->blk.first_trans[k];
+    }
+    return nt;
+}
+
+/* sl_sweep_rows == sl_sweep(eval) bitwise, over 6 sweeps, for every order,
+ * with and without the stage factor, with probability vectors all
+ * different (plain layout) and repeated (shared), and again after the rows
+ * are updated for two changes of the policy. */
 static void policy_rows_sweep_is_the_reference_sweep(void **state)
 {
     sl_ctx *ctx = (sl_ctx *)*state;
     static rows r;
-    make_rows(7, &r);
     const sl_order orders[] = {SL_ORDER_AUTO, SL_ORDER_NATURAL, SL_ORDER_REVERSE};
+    for (int repeat = 0; repeat < 3; repeat++)
     for (int stage = -1; stage <= 1; stage += 2) {
+        make_rows_as(7, &r, repeat);
         for (int o = 0; o < 3; o++) {
             sl_model *m = NULL;
             sl_problem P;
@@ -132,19 +153,53 @@ static void policy_rows_sweep_is_the_reference_sweep(void **state)
                 x[i] = x2[i] = (double)(next(&s) % 1000) / 7.0;
             }
             assert_int_equal(sl_eval_rows_build(ctx, &P, pol, &pr), SL_OK);
+            /* the layout: shared where the vectors repeat (at most 10 or
+             * 17 table entries, against a quarter of the transitions),
+             * plain where they are all different */
+            int64_t nvec = 0, nent = 0, most = repeat == 1 ? 10 : 17;
+            if (repeat && policy_transitions(&P, pol) >= 4 * most) {
+                assert_true(sl_eval_rows_shared(&pr, &nvec, &nent));
+                assert_true(nvec <= (repeat == 1 ? 4 : 6) && nent <= most);
+            }
+            if (!repeat && n > 0) assert_false(sl_eval_rows_shared(&pr, NULL, NULL));
             for (int sw = 0; sw < 6; sw++) {
                 double d1 = sl_sweep(ctx, &P, x, pol, 1);
                 double d2 = sl_sweep_rows(ctx, &P, x2, &pr);
                 assert_memory_equal(&d1, &d2, sizeof(double));
                 assert_memory_equal(x, x2, (size_t)n * sizeof(double));
             }
-            /* the rows hold exactly the policy's transitions */
-            int64_t nt = 0;
-            for (int64_t i = 0; i < n; i++) {
-                int64_t k = P.blk.first_pair[i] - P.blk.p_begin + pol[i];
-                nt += P.blk.first_trans[k + 1] - P.blk.first_trans[k];
+            assert_int_equal(pr.first[n], policy_transitions(&P, pol));
+            /* updated in place after an improvement: round 0 changes only
+             * to pairs of the same length (rows overwritten where they
+             * stand), round 1 anywhere (rows laid out again) */
+            for (int round = 0; round < 2; round++) {
+                int64_t changed = 0;
+                for (int64_t i = 0; i < n; i++) {
+                    int64_t f = P.blk.first_pair[i] - P.blk.p_begin, np = P.blk.first_pair[i + 1] - P.blk.first_pair[i];
+                    int32_t a = (int32_t)(next(&s) % (uint64_t)np);
+                    int64_t la = P.blk.first_trans[f + a + 1] - P.blk.first_trans[f + a];
+                    int64_t lp = P.blk.first_trans[f + pol[i] + 1] - P.blk.first_trans[f + pol[i]];
+                    if (a != pol[i] && (round == 1 || la == lp)) {
+                        pol[i] = a;
+                        changed++;
+                    }
+                }
+                uint32_t *first_before = round == 0 ? malloc(((size_t)n + 1) * sizeof(uint32_t)) : NULL;
+                if (first_before) memcpy(first_before, pr.first, ((size_t)n + 1) * sizeof(uint32_t));
+                assert_int_equal(sl_eval_rows_update(ctx, &P, pol, &pr), SL_OK);
+                if (first_before) { /* same lengths: no row moved */
+                    assert_memory_equal(first_before, pr.first, ((size_t)n + 1) * sizeof(uint32_t));
+                    free(first_before);
+                }
+                assert_int_equal(pr.first[n], policy_transitions(&P, pol));
+                for (int sw = 0; sw < 3; sw++) {
+                    double d1 = sl_sweep(ctx, &P, x, pol, 1);
+                    double d2 = sl_sweep_rows(ctx, &P, x2, &pr);
+                    assert_memory_equal(&d1, &d2, sizeof(double));
+                    assert_memory_equal(x, x2, (size_t)n * sizeof(double));
+                }
+                if (n > 4) assert_true(changed > 0);
             }
-            assert_int_equal(pr.first[n], nt);
             sl_eval_rows_free(&pr);
             free(x);
             free(x2);
@@ -153,6 +208,48 @@ static void policy_rows_sweep_is_the_reference_sweep(void **state)
             sl_model_free(&m);
         }
     }
+}
+
+/* The table of distinct probability vectors: 300 vectors of 3 entries
+ * that all begin alike (so equal hashes' neighbours are told apart by the
+ * whole vector), their 2-entry prefixes (told apart by length), each found
+ * again at its own offset with its own values; the limit refuses a new
+ * vector and leaves the table as it was. */
+static void probability_table_keeps_vectors_apart(void **state)
+{
+    sl_ctx *ctx = (sl_ctx *)*state;
+    enum { NV = 300 };
+    static double v[NV][3];
+    static int64_t off[NV], off2[NV];
+    sl_prob_table *t = sl_prob_table_reset(ctx, NULL);
+    assert_non_null(t);
+    for (int k = 0; k < NV; k++) {
+        v[k][0] = 0.25;
+        v[k][1] = 0.5 * (double)(k + 1) / (double)(NV + 1);
+        v[k][2] = 0.75 - v[k][1];
+        off[k] = sl_prob_table_find(ctx, t, v[k], 3, 1 << 20);
+        assert_true(off[k] >= 0);
+    }
+    for (int k = 0; k < NV; k++) {
+        off2[k] = sl_prob_table_find(ctx, t, v[k], 2, 1 << 20);
+        assert_true(off2[k] >= 0);
+    }
+    const double *val = sl_prob_table_values(t);
+    for (int k = 0; k < NV; k++) {
+        assert_int_equal(sl_prob_table_find(ctx, t, v[k], 3, 1 << 20), off[k]);
+        assert_int_equal(sl_prob_table_find(ctx, t, v[k], 2, 1 << 20), off2[k]);
+        assert_memory_equal(val + off[k], v[k], 3 * sizeof(double));
+        assert_memory_equal(val + off2[k], v[k], 2 * sizeof(double));
+        for (int q = 0; q < k; q++) assert_true(off[q] != off[k] && off2[q] != off2[k] && off[q] != off2[k]);
+    }
+    double fresh[3] = {0.25, 0.7, 0.05};
+    assert_int_equal(sl_prob_table_find(ctx, t, fresh, 3, NV * 5), -1);
+    assert_int_equal(sl_prob_table_find(ctx, t, v[7], 3, NV * 5), off[7]); /* known ones still found */
+    assert_true(sl_prob_table_find(ctx, t, fresh, 3, NV * 5 + 3) >= 0);
+    /* reset: empty again */
+    assert_ptr_equal(sl_prob_table_reset(ctx, t), t);
+    assert_int_equal(sl_prob_table_find(ctx, t, v[9], 3, 1 << 20), 0);
+    sl_prob_table_free(t);
 }
 
 static sl_status solve(sl_ctx *ctx, const sl_model *m, sl_method method, sl_solution **x)
@@ -354,6 +451,7 @@ int main(void)
     MPI_Init(NULL, NULL);
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(policy_rows_sweep_is_the_reference_sweep),
+        cmocka_unit_test(probability_table_keeps_vectors_apart),
         cmocka_unit_test(mpi_agrees_with_gs),
         cmocka_unit_test(lean_solve_is_the_plain_solve),
         cmocka_unit_test(staged_load_is_the_moved_layout),
