@@ -86,6 +86,13 @@ if [ "$REF_BIG" = 1 ]; then
         bench_timed "speed.t2.$m" "$SLUICE" solve "$BIG" -o "speed.t2.$m.h5" --method "$m" --tolerance $TOL \
             --report "speed.t2.$m.json" --progress-every 600 || bench_fail "$m failed"
     done
+    # the fastest method again (one mpi run is seconds; the host's memory
+    # speed moves a single run by 30%): the ratio is taken over the median
+    for r in $(seq 2 "$REPS"); do
+        echo "target 2: mpi again, run $r ..."
+        bench_timed "speed.t2.mpi.$r" "$SLUICE" solve "$BIG" -o "speed.t2.mpi.h5" --method mpi --tolerance $TOL \
+            --report "speed.t2.mpi.$r.json" --progress-every 600 || bench_fail "mpi failed"
+    done
     load t2-end
 fi
 
@@ -200,10 +207,14 @@ if ref_big:
     ref, rt = ref_json("speed.t2.ref.out"), tv("speed.t2.ref.time")
     print(f"  reference: {ref.get('sweeps')} sweeps, {rt['wall']:.1f} s wall, {rt['cpu']:.1f} s CPU, "
           f"peak RSS {rt['rss'] / 1e6:.0f} MB")
-    best2 = best_vs_reference("speed.t2", ("gs", "mpi"), rt)
-    rows.append(("2", f"big reservoir: reference / best sluice ({best2[0]}) end to end (wall; CPU)",
-                 f"{rt['wall'] / best2[1]['wall']:.1f}; {rt['cpu'] / best2[1]['cpu']:.1f}", ">= 50",
-                 rt["wall"] / best2[1]["wall"] >= 50))
+    best_vs_reference("speed.t2", ("gs", "mpi"), rt)
+    runs = [tv("speed.t2.mpi.time")] + [tv(f"speed.t2.mpi.{r}.time") for r in range(2, reps + 1)]
+    mw = statistics.median(t["wall"] for t in runs)
+    mc = statistics.median(t["cpu"] for t in runs)
+    print(f"  sluice mpi, all {len(runs)} runs: wall " + " ".join(f"{t['wall']:.1f}" for t in runs) +
+          f" s (median {mw:.1f}), CPU " + " ".join(f"{t['cpu']:.1f}" for t in runs) + f" s (median {mc:.1f})")
+    rows.append(("2", f"big reservoir: reference / sluice mpi end to end, median of {len(runs)} (wall; CPU)",
+                 f"{rt['wall'] / mw:.1f}; {rt['cpu'] / mc:.1f}", ">= 50", rt["wall"] / mw >= 50))
 
 
 def eval_sweeps(report, full):
