@@ -266,30 +266,17 @@ sl_status sl_eval_rows_build(sl_ctx *ctx, const sl_problem *p, const int32_t *po
 
 double sl_eval_rows_sweep_part(const sl_problem *p, const sl_eval_rows *r, double *x, int64_t j0, int64_t j1)
 {
-    const uint32_t *restrict first = r->first, *restrict col = r->col;
-    const double *restrict rew = r->reward;
+    const uint32_t *restrict first = r->first, *restrict col = r->col, *restrict poff = r->poff;
+    const double *restrict rew = r->reward, *restrict prob = r->prob;
+    const double *restrict tab = r->table != NULL ? r->table->val : NULL;
     const int64_t *restrict order = p->order;
     double gamma = p->gamma, delta = 0;
-    if (r->table != NULL) {
-        const uint32_t *restrict poff = r->poff;
-        const double *restrict tab = r->table->val;
-        for (int64_t j = j0; j < j1; j++) {
-            const double *restrict pr = tab + poff[j];
-            const uint32_t t0 = first[j], t1 = first[j + 1];
-            double acc = 0.0;
-            for (uint32_t t = t0; t < t1; t++) acc += pr[t - t0] * x[col[t]];
-            double v = rew[j] + gamma * acc;
-            int64_t i = order[j];
-            double dd = fabs(v - x[i]);
-            delta = dd > delta ? dd : delta;
-            x[i] = v;
-        }
-        return delta;
-    }
-    const double *restrict prob = r->prob;
     for (int64_t j = j0; j < j1; j++) {
+        const uint32_t t0 = first[j], t1 = first[j + 1];
+        /* row j's probabilities: its vector in the table, or its own */
+        const double *restrict pr = tab != NULL ? tab + poff[j] : prob + t0;
         double acc = 0.0;
-        for (uint32_t t = first[j]; t < first[j + 1]; t++) acc += prob[t] * x[col[t]];
+        for (uint32_t t = t0; t < t1; t++) acc += pr[t - t0] * x[col[t]];
         double v = rew[j] + gamma * acc;
         int64_t i = order[j];
         double dd = fabs(v - x[i]);
