@@ -323,8 +323,8 @@ static int step_mpi(run *r, sl_status *st)
     /* the evaluation sweeps run over the policy's own transitions, laid
      * out contiguously: after an improvement only the changed states' rows
      * are copied again (the count of changes is global, so all ranks
-     * decide alike). They stop early where gs would check: a sweep that
-     * changed no value by more than the target. */
+     * decide alike). With m adaptive they stop early where gs would
+     * check: at a sweep that changed no value by more than the target. */
     if (r->last.changed > 0 || !r->prow_built) {
         *st = sl_agree(r->ctx, sl_eval_rows_update(r->ctx, &r->P, r->pol, &r->prow));
         if (*st != SL_OK) return -1;
@@ -339,7 +339,7 @@ static int step_mpi(run *r, sl_status *st)
     for (int64_t j = 0; j < m; j++) {
         double delta = sl_max(r->ctx, sl_sweep_rows(r->ctx, &r->P, r->x, &r->prow));
         r->S.sweeps++;
-        if (delta <= target) break;
+        if (r->o->sweeps <= 0 && delta <= target) break; /* an M given is kept */
     }
     /* adapt m: a stable policy deserves longer evaluation (Puterman & Shin 1978
      * leave m free; doubling when no action changed is common practice, no source) */
