@@ -341,12 +341,7 @@ static int step_mpi(run *r, sl_status *st)
         r->S.sweeps++;
         if (r->o->sweeps <= 0 && delta <= target) break; /* an M given is kept */
     }
-    /* adapt m: a stable policy deserves longer evaluation (Puterman & Shin 1978
-     * leave m free; doubling when no action changed is common practice, no source) */
-    if (r->o->sweeps <= 0) {
-        if (r->last.changed == 0 && r->S.mpi_m < 512) r->S.mpi_m *= 2;
-        else if (r->last.changed > 0 && r->S.mpi_m > 4) r->S.mpi_m /= 2;
-    }
+    if (r->o->sweeps <= 0) r->S.mpi_m = sl_mpi_next_m(r->S.mpi_m, r->last.changed, r->P.meta.n_states);
     r->S.iteration++;
     return 0;
 }
@@ -434,7 +429,7 @@ static sl_status solve_model(sl_solver *o, const sl_model *m, sl_model *take, sl
         st = SL_ENOMEM;
     SL_TRY(sl_agree(ctx, st));
     r->S.check_interval = 1;
-    r->S.mpi_m = 4;
+    r->S.mpi_m = SL_MPI_M_MIN;
     r->S.eval_tol = r->tol * 0.1;
     if (o->method == SL_METHOD_MPI) {
         /* start below v*: x = min r / (1 - gamma) makes Tx >= x, the
@@ -455,7 +450,7 @@ static sl_status solve_model(sl_solver *o, const sl_model *m, sl_model *take, sl
                 sl_solver_state keep = r->S;
                 memset(&r->S, 0, sizeof(r->S));
                 r->S.check_interval = 1;
-                r->S.mpi_m = 4;
+                r->S.mpi_m = SL_MPI_M_MIN;
                 r->S.eval_tol = r->tol * 0.1;
                 r->S.elapsed = keep.elapsed;
                 r->S.sweeps = keep.sweeps;

@@ -293,3 +293,14 @@ int sl_eval_rows_shared(const sl_eval_rows *rows, int64_t *vectors, int64_t *ent
     if (entries) *entries = rows->table->n;
     return 1;
 }
+
+/* Puterman & Shin (1978) leave m free. Doubling while the policy is stable
+ * is common practice (no source); counting a policy as settled while at most
+ * 0.1% of its actions change is our own rule of thumb, chosen on the bench
+ * models (bench/README.md, eighth pass): a model whose policy keeps moving a
+ * few states at every improvement otherwise stays at the smallest m. */
+int64_t sl_mpi_next_m(int64_t m, int64_t changed, int64_t n_states)
+{
+    if (changed <= n_states / SL_MPI_M_SHARE) return m < SL_MPI_M_MAX ? 2 * m : m;
+    return m > SL_MPI_M_MIN ? m / 2 : m;
+}

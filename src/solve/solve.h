@@ -190,6 +190,15 @@ double sl_eval_rows_sweep_part(const sl_problem *p, const sl_eval_rows *rows, do
 /* sl_sweep(ctx, p, x, policy, 1) for the policy the rows were built from.
  * Collective. */
 double sl_sweep_rows(sl_ctx *ctx, const sl_problem *p, double *x, const sl_eval_rows *rows);
+/* Modified policy iteration's adaptive m: the evaluation sweeps after an
+ * improvement that changed `changed` of `n_states` actions (global counts,
+ * so every rank agrees). Doubles (to at most SL_MPI_M_MAX) while at most one
+ * state in SL_MPI_M_SHARE changed, halves (to at least SL_MPI_M_MIN) above
+ * that. Local. */
+#define SL_MPI_M_MIN 4
+#define SL_MPI_M_MAX 512
+#define SL_MPI_M_SHARE 1000
+int64_t sl_mpi_next_m(int64_t m, int64_t changed, int64_t n_states);
 
 /* File id of owned local state i (for messages). Local. */
 int64_t sl_problem_file_state(const sl_problem *p, int64_t i);

@@ -252,6 +252,25 @@ static void probability_table_keeps_vectors_apart(void **state)
     sl_prob_table_free(t);
 }
 
+/* mpi's adaptive m: doubles while at most one state in SL_MPI_M_SHARE
+ * changed action (exactly at the share too), halves above it, and stays in
+ * [SL_MPI_M_MIN, SL_MPI_M_MAX]. The values here are worked out by hand. */
+static void mpi_m_follows_the_changed_share(void **state)
+{
+    (void)state;
+    assert_int_equal(SL_MPI_M_SHARE, 1000);
+    assert_int_equal(sl_mpi_next_m(4, 0, 300000), 8);
+    assert_int_equal(sl_mpi_next_m(8, 300, 300000), 16);  /* 0.1%: still settled */
+    assert_int_equal(sl_mpi_next_m(16, 301, 300000), 8);  /* above 0.1% */
+    assert_int_equal(sl_mpi_next_m(4, 301, 300000), 4);   /* not below the minimum */
+    assert_int_equal(sl_mpi_next_m(512, 0, 300000), 512); /* nor above the maximum */
+    assert_int_equal(sl_mpi_next_m(256, 0, 300000), 512);
+    assert_int_equal(sl_mpi_next_m(64, 1, 999), 32);      /* a small model: any change counts */
+    assert_int_equal(sl_mpi_next_m(64, 0, 999), 128);
+    assert_int_equal(SL_MPI_M_MIN, 4);
+    assert_int_equal(SL_MPI_M_MAX, 512);
+}
+
 static sl_status solve(sl_ctx *ctx, const sl_model *m, sl_method method, sl_solution **x)
 {
     sl_solver *s = NULL;
@@ -452,6 +471,7 @@ int main(void)
     const struct CMUnitTest tests[] = {
         cmocka_unit_test(policy_rows_sweep_is_the_reference_sweep),
         cmocka_unit_test(probability_table_keeps_vectors_apart),
+        cmocka_unit_test(mpi_m_follows_the_changed_share),
         cmocka_unit_test(mpi_agrees_with_gs),
         cmocka_unit_test(lean_solve_is_the_plain_solve),
         cmocka_unit_test(staged_load_is_the_moved_layout),
