@@ -97,10 +97,19 @@ if [ "$REF_BIG" = 1 ]; then
 fi
 
 # ---- target 3 ---------------------------------------------------------------------------------
+# the random model's shape for triad.c gather12: states, actions x successors per state, local width,
+# jump fraction (random_sparse.c's defaults where RANDOM_PARAMS does not set them)
+gather_args() {
+    local v
+    param() { v=$(echo "$RANDOM_PARAMS" | sed -n "s/.*--param $1=\([^ ]*\).*/\1/p"); echo "${v:-$2}"; }
+    echo "$(param states 300000) $(($(param actions 5) * $(param successors 6))) $(param local_width 200) $(param jump_fraction 0.1)"
+}
 load t3-start
 for i in 1 2 3; do
     ./triad "$TRIAD_N" 5 >"speed.triad.$i" 2>/dev/null || bench_fail "triad failed"
     ./triad "$TRIAD_N" 5 read12 >"speed.read12.$i" 2>/dev/null || bench_fail "triad read12 failed"
+    # shellcheck disable=SC2086
+    ./triad "$TRIAD_N" 5 gather12 $(gather_args) >"speed.gather12.$i" 2>/dev/null || bench_fail "triad gather12 failed"
     if [ "$i" -lt 3 ]; then
         echo "target 3: Jacobi sweeps on the random model, run $i ..."
         bench_timed "speed.jac.$i" "$SLUICE" solve rnd.h5 -o speed.jac.h5 --method jacobi --max-iterations 40 \
@@ -278,6 +287,15 @@ print(f"  ceiling: a read-only stream of 12-byte (column, probability) records, 
       f"{rd_best / tri_best:.0%} of the triad")
 rows.append(("3b'", "read-only stream of the sweep's 12 B records / triad (ceiling for 3b)",
              f"{rd_med / tri_med:.0%}; {rd_best / tri_best:.0%}", "-", None))
+ga = []
+for i in (1, 2, 3):
+    ga += [float(l.split()[1]) for l in open(f"speed.gather12.{i}") if l.strip()]
+ga_med, ga_best = statistics.median(ga), max(ga)
+print(f"  ceiling with the gather: the same records and p * x[col], columns drawn as random_sparse.c draws them "
+      f"(triad.c gather12): median {ga_med:.2f} GB/s, best {ga_best:.2f} GB/s = {ga_med / tri_med:.0%} / "
+      f"{ga_best / tri_best:.0%} of the triad")
+rows.append(("3b''", "the same stream with the gather x[col] / triad (ceiling for 3b on this model)",
+             f"{ga_med / tri_med:.0%}; {ga_best / tri_best:.0%}", "-", None))
 ref, rt = ref_json("speed.t3.ref.out"), tv("speed.t3.ref.time")
 print(f"  reference: {ref.get('sweeps')} sweeps, {rt['wall']:.1f} s wall, {rt['cpu']:.1f} s CPU")
 best = best_vs_reference("speed.t3", ("gs", "mpi", "jacobi"), rt)

@@ -8,7 +8,16 @@
  *   else: a 4-byte column and an 8-byte probability, summed (12 bytes
  *   counted per element, no gather of x[col], no per-pair work). What it
  *   reaches against the triad is a ceiling for the sweep on this machine:
- *   the sweep reads these bytes and more. */
+ *   the sweep reads these bytes and more.
+ *        triad N_ELEMENTS REPS gather12 N_STATES PER_STATE WIDTH JUMP
+ *   the same records, and for each the product p * x[col] summed into four
+ *   accumulators, col drawn as bench/random_sparse.c draws successors:
+ *   element i belongs to state s = (i / PER_STATE) mod N_STATES, and its
+ *   column is within WIDTH of s, or anywhere with probability JUMP (x is
+ *   N_STATES doubles). The least a sweep over that model must do per
+ *   transition (12 bytes counted per element, as for the sweep; x's reads
+ *   not counted); no per-pair work (action maximum, pair boundaries), so
+ *   the sweep cannot beat it by much either. */
 #define _POSIX_C_SOURCE 200809L
 #include <stdint.h>
 #include <stdio.h>
@@ -52,10 +61,56 @@ static int read12(long n, long reps)
     return 0;
 }
 
+static int gather12(long n, long reps, long ns, long per, long width, double jump)
+{
+    uint32_t *col = malloc((size_t)n * sizeof(uint32_t));
+    double *p = malloc((size_t)n * sizeof(double)), *x = malloc((size_t)ns * sizeof(double)), check = 0;
+    if (col == NULL || p == NULL || x == NULL || ns < 1 || per < 1 || width < 0) {
+        fprintf(stderr, "triad: out of memory\n");
+        free(col);
+        free(p);
+        free(x);
+        return 71;
+    }
+    uint64_t z = 0x9e3779b97f4a7c15ULL; /* xorshift64: fixed, so every run gathers alike */
+    for (long i = 0; i < n; i++) {
+        z ^= z << 13;
+        z ^= z >> 7;
+        z ^= z << 17;
+        long st = (i / per) % ns, c;
+        if ((double)(z >> 11) * (1.0 / 9007199254740992.0) < jump) c = (long)((z >> 7) % (uint64_t)ns);
+        else c = (((st + (long)((z >> 7) % (uint64_t)(2 * width + 1)) - width) % ns) + ns) % ns;
+        col[i] = (uint32_t)c;
+        p[i] = 1.0 / (double)(1 + (i & 7));
+    }
+    for (long i = 0; i < ns; i++) x[i] = 1.0 + (double)(i & 15);
+    for (long r = 0; r < reps; r++) {
+        double t0 = now(), a0 = 0, a1 = 0, a2 = 0, a3 = 0;
+        long i = 0;
+        for (; i + 3 < n; i += 4) {
+            a0 += p[i] * x[col[i]];
+            a1 += p[i + 1] * x[col[i + 1]];
+            a2 += p[i + 2] * x[col[i + 2]];
+            a3 += p[i + 3] * x[col[i + 3]];
+        }
+        for (; i < n; i++) a0 += p[i] * x[col[i]];
+        double t = now() - t0;
+        check += a0 + a1 + a2 + a3;
+        printf("%.6f %.3f\n", t, 12.0 * (double)n / t / 1e9);
+    }
+    fprintf(stderr, "gather12 checksum %g\n", check);
+    free(col);
+    free(p);
+    free(x);
+    return 0;
+}
+
 int main(int argc, char **argv)
 {
     long n = argc > 1 ? atol(argv[1]) : 1L << 24, reps = argc > 2 ? atol(argv[2]) : 10;
     if (argc > 3 && strcmp(argv[3], "read12") == 0) return read12(2 * n, reps);
+    if (argc > 7 && strcmp(argv[3], "gather12") == 0)
+        return gather12(2 * n, reps, atol(argv[4]), atol(argv[5]), atol(argv[6]), atof(argv[7]));
     double *a = malloc((size_t)n * sizeof(double)), *b = malloc((size_t)n * sizeof(double)),
            *c = malloc((size_t)n * sizeof(double));
     if (a == NULL || b == NULL || c == NULL) {
