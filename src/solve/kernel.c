@@ -368,6 +368,16 @@ double sl_sweep_rows(sl_ctx *ctx, const sl_problem *p, double *x, const sl_eval_
     return sweep_any(ctx, p, x, NULL, 1, rows);
 }
 
+double sl_sweep_rows_jacobi(sl_ctx *ctx, const sl_problem *p, double *x, double *y, const sl_eval_rows *rows)
+{
+    sl_halo_exchange(ctx, &p->halo, x);
+    double d[2], g[2];
+    sl_eval_rows_jacobi_part(p, rows, x, y, 0, p->n_local, &d[0], &d[1]);
+    d[0] = -d[0];
+    MPI_Allreduce(d, g, 2, MPI_DOUBLE, MPI_MAX, ctx->comm);
+    return g[0] == -INFINITY ? 0.0 : g[1] + g[0];
+}
+
 int64_t sl_problem_file_state(const sl_problem *p, int64_t i) { return sl_stage_file(&p->stages, p->blk.s_begin + i); }
 
 sl_status sl_problem_ckpt_write(sl_ctx *ctx, const sl_problem *p, const char *dir, const double *value,

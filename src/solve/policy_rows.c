@@ -264,26 +264,62 @@ sl_status sl_eval_rows_build(sl_ctx *ctx, const sl_problem *p, const int32_t *po
     return sl_eval_rows_update(ctx, p, policy, rows);
 }
 
+/* The arrays a sweep over the rows reads, and the value of row j: its
+ * reward plus gamma times its probabilities (its vector in the table, or its
+ * own) against x. Shared by the Gauss-Seidel and Jacobi forms. */
+typedef struct row_view {
+    const uint32_t *first, *col, *poff;
+    const double *rew, *prob, *tab;
+    double gamma;
+} row_view;
+
+static inline row_view view_of(const sl_problem *p, const sl_eval_rows *r)
+{
+    row_view v = {r->first, r->col, r->poff, r->reward, r->prob, r->table != NULL ? r->table->val : NULL, p->gamma};
+    return v;
+}
+
+static inline double row_value(const row_view *v, const double *restrict x, int64_t j)
+{
+    const uint32_t t0 = v->first[j], t1 = v->first[j + 1];
+    const uint32_t *restrict col = v->col;
+    const double *restrict pr = v->tab != NULL ? v->tab + v->poff[j] : v->prob + t0;
+    double acc = 0.0;
+    for (uint32_t t = t0; t < t1; t++) acc += pr[t - t0] * x[col[t]];
+    return v->rew[j] + v->gamma * acc;
+}
+
 double sl_eval_rows_sweep_part(const sl_problem *p, const sl_eval_rows *r, double *x, int64_t j0, int64_t j1)
 {
-    const uint32_t *restrict first = r->first, *restrict col = r->col, *restrict poff = r->poff;
-    const double *restrict rew = r->reward, *restrict prob = r->prob;
-    const double *restrict tab = r->table != NULL ? r->table->val : NULL;
+    const row_view v = view_of(p, r);
     const int64_t *restrict order = p->order;
-    double gamma = p->gamma, delta = 0;
+    double delta = 0;
     for (int64_t j = j0; j < j1; j++) {
-        const uint32_t t0 = first[j], t1 = first[j + 1];
-        /* row j's probabilities: its vector in the table, or its own */
-        const double *restrict pr = tab != NULL ? tab + poff[j] : prob + t0;
-        double acc = 0.0;
-        for (uint32_t t = t0; t < t1; t++) acc += pr[t - t0] * x[col[t]];
-        double v = rew[j] + gamma * acc;
+        double val = row_value(&v, x, j);
         int64_t i = order[j];
-        double dd = fabs(v - x[i]);
+        double dd = fabs(val - x[i]);
         delta = dd > delta ? dd : delta;
-        x[i] = v;
+        x[i] = val;
     }
     return delta;
+}
+
+void sl_eval_rows_jacobi_part(const sl_problem *p, const sl_eval_rows *r, const double *x, double *y, int64_t j0,
+                              int64_t j1, double *dmin, double *dmax)
+{
+    const row_view v = view_of(p, r);
+    const int64_t *restrict order = p->order;
+    double lo = INFINITY, hi = -INFINITY;
+    for (int64_t j = j0; j < j1; j++) {
+        double val = row_value(&v, x, j);
+        int64_t i = order[j];
+        double d = val - x[i];
+        lo = d < lo ? d : lo;
+        hi = d > hi ? d : hi;
+        y[i] = val;
+    }
+    *dmin = lo;
+    *dmax = hi;
 }
 
 int sl_eval_rows_shared(const sl_eval_rows *rows, int64_t *vectors, int64_t *entries)
@@ -303,4 +339,9 @@ int64_t sl_mpi_next_m(int64_t m, int64_t changed, int64_t n_states)
 {
     if (changed <= n_states / SL_MPI_M_SHARE) return m < SL_MPI_M_MAX ? 2 * m : m;
     return m > SL_MPI_M_MIN ? m / 2 : m;
+}
+
+int sl_mpi_pick_eval(double rate_gs, double rate_jacobi)
+{
+    return rate_jacobi < rate_gs ? SL_EVAL_JACOBI : SL_EVAL_GS;
 }

@@ -190,6 +190,15 @@ double sl_eval_rows_sweep_part(const sl_problem *p, const sl_eval_rows *rows, do
 /* sl_sweep(ctx, p, x, policy, 1) for the policy the rows were built from.
  * Collective. */
 double sl_sweep_rows(sl_ctx *ctx, const sl_problem *p, double *x, const sl_eval_rows *rows);
+/* The Jacobi form over rows j0..j1: y = r + gamma P x for the policy's
+ * rows (x is not written), and the least and largest change y - x. Local. */
+void sl_eval_rows_jacobi_part(const sl_problem *p, const sl_eval_rows *rows, const double *x, double *y, int64_t j0,
+                              int64_t j1, double *dmin, double *dmax);
+/* y = T_pi x over all owned states (x's halo refreshed first); returns the
+ * span of y - x over all ranks. A constant error in x stays constant in y
+ * (times gamma), so the span measures what MacQueen's bounds need.
+ * Collective. */
+double sl_sweep_rows_jacobi(sl_ctx *ctx, const sl_problem *p, double *x, double *y, const sl_eval_rows *rows);
 /* Modified policy iteration's adaptive m: the evaluation sweeps after an
  * improvement that changed `changed` of `n_states` actions (global counts,
  * so every rank agrees). Doubles (to at most SL_MPI_M_MAX) while at most one
@@ -199,6 +208,13 @@ double sl_sweep_rows(sl_ctx *ctx, const sl_problem *p, double *x, const sl_eval_
 #define SL_MPI_M_MAX 512
 #define SL_MPI_M_SHARE 1000
 int64_t sl_mpi_next_m(int64_t m, int64_t changed, int64_t n_states);
+/* mpi's evaluation sweeps on a model without stages: Gauss-Seidel (sup of
+ * the change stops them) or Jacobi (the span of the change stops them; a
+ * constant error stays constant, which MacQueen's bounds discount). Chosen
+ * from each kind's measured shrink of its stop quantity per sweep: the
+ * smaller rate wins, gs on a tie. Local and pure. */
+enum { SL_EVAL_GS = 0, SL_EVAL_JACOBI = 1, SL_EVAL_TRIAL = 8 };
+int sl_mpi_pick_eval(double rate_gs, double rate_jacobi);
 
 /* File id of owned local state i (for messages). Local. */
 int64_t sl_problem_file_state(const sl_problem *p, int64_t i);

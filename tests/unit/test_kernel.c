@@ -121,6 +121,40 @@ static int64_t policy_transitions(const sl_problem *P, const int32_t *pol)
     return nt;
 }
 
+/* The Jacobi form of the rows' sweep (sl_sweep_rows_jacobi) against the
+ * fixed-policy check over the model's rows (sl_policy_check, which the
+ * certificates use): y = T_pi x bitwise, x untouched, and the span of y - x
+ * over all ranks. */
+static void jacobi_rows_is_the_policy_check(sl_ctx *ctx, const sl_problem *P, double *x, const int32_t *pol,
+                                            const sl_eval_rows *pr)
+{
+    int64_t n = P->n_local, nx = n + P->halo.n_halo;
+    double *y1 = calloc((size_t)nx + 1, sizeof(double)), *y2 = calloc((size_t)nx + 1, sizeof(double));
+    double *keep = calloc((size_t)nx + 1, sizeof(double));
+    assert_non_null(y1);
+    assert_non_null(y2);
+    assert_non_null(keep);
+    memcpy(keep, x, (size_t)n * sizeof(double));
+    double span = sl_sweep_rows_jacobi(ctx, P, x, y2, pr); /* refreshes x's halo first */
+    sl_halo_exchange(ctx, &P->halo, x); /* (the sweeps before left it stale) */
+    sl_check c;
+    memset(&c, 0, sizeof(c));
+    sl_policy_check(P, x, y1, pol, &c);
+    assert_memory_equal(keep, x, (size_t)n * sizeof(double));
+    assert_memory_equal(y1, y2, (size_t)n * sizeof(double));
+    double lo = n > 0 ? INFINITY : -INFINITY, hi = -INFINITY;
+    for (int64_t i = 0; i < n; i++) {
+        lo = fmin(lo, y1[i] - x[i]);
+        hi = fmax(hi, y1[i] - x[i]);
+    }
+    double want = sl_max(ctx, hi) + sl_max(ctx, n > 0 ? -lo : -INFINITY);
+    assert_memory_equal(&span, &want, sizeof(double));
+    assert_true(span > 0);
+    free(y1);
+    free(y2);
+    free(keep);
+}
+
 /* sl_sweep_rows == sl_sweep(eval) bitwise, over 6 sweeps, for every order,
  * with and without the stage factor, with probability vectors all
  * different (plain layout) and repeated (shared), and again after the rows
@@ -168,6 +202,7 @@ static void policy_rows_sweep_is_the_reference_sweep(void **state)
                 assert_memory_equal(&d1, &d2, sizeof(double));
                 assert_memory_equal(x, x2, (size_t)n * sizeof(double));
             }
+            jacobi_rows_is_the_policy_check(ctx, &P, x, pol, &pr);
             assert_int_equal(pr.first[n], policy_transitions(&P, pol));
             /* updated in place after an improvement: round 0 changes only
              * to pairs of the same length (rows overwritten where they
@@ -269,6 +304,11 @@ static void mpi_m_follows_the_changed_share(void **state)
     assert_int_equal(sl_mpi_next_m(64, 0, 999), 128);
     assert_int_equal(SL_MPI_M_MIN, 4);
     assert_int_equal(SL_MPI_M_MAX, 512);
+    /* the evaluation sweeps: the smaller measured rate, gs on a tie */
+    assert_int_equal(sl_mpi_pick_eval(0.97, 0.88), SL_EVAL_JACOBI);
+    assert_int_equal(sl_mpi_pick_eval(0.50, 0.50), SL_EVAL_GS);
+    assert_int_equal(sl_mpi_pick_eval(0.0, 0.30), SL_EVAL_GS);
+    assert_int_equal(sl_mpi_pick_eval(0.93, 0.0), SL_EVAL_JACOBI);
 }
 
 static sl_status solve(sl_ctx *ctx, const sl_model *m, sl_method method, sl_solution **x)
@@ -298,6 +338,9 @@ static void mpi_agrees_with_gs(void **state)
         assert_int_equal(sl_solution_get_certificate(xg, &cg), SL_OK);
         assert_int_equal(sl_solution_get_certificate(xm, &cm), SL_OK);
         assert_true(cg.converged && cm.converged);
+        /* staged: stage-reverse Gauss-Seidel evaluation; else as measured */
+        if (stage >= 0) assert_string_equal(xm->info.evaluation, "gauss-seidel");
+        else assert_true(strcmp(xm->info.evaluation, "gauss-seidel") == 0 || strcmp(xm->info.evaluation, "jacobi") == 0);
         double *vg = NULL, *vm = NULL;
         int32_t *ag = NULL, *am = NULL;
         assert_int_equal(sl_solution_gather(xg, 0, &vg, &ag), SL_OK);
