@@ -278,24 +278,21 @@ print(f"  sluice Jacobi sweep ({len(per)} sweeps): median {statistics.median(per
       f"min {min(per) * 1e3:.1f} ms ({bw_best:.2f} GB/s)")
 rows.append(("3b", "Jacobi sweep bandwidth / triad (median/median; best/best)",
              f"{bw_med / tri_med:.0%}; {bw_best / tri_best:.0%}", ">= 70%", bw_med / tri_med >= 0.7))
-rd = []
-for i in (1, 2, 3):
-    rd += [float(l.split()[1]) for l in open(f"speed.read12.{i}") if l.strip()]
-rd_med, rd_best = statistics.median(rd), max(rd)
-print(f"  ceiling: a read-only stream of 12-byte (column, probability) records, no gather, same runs "
-      f"(triad.c read12): median {rd_med:.2f} GB/s, best {rd_best:.2f} GB/s = {rd_med / tri_med:.0%} / "
-      f"{rd_best / tri_best:.0%} of the triad")
-rows.append(("3b'", "read-only stream of the sweep's 12 B records / triad (ceiling for 3b)",
-             f"{rd_med / tri_med:.0%}; {rd_best / tri_best:.0%}", "-", None))
-ga = []
-for i in (1, 2, 3):
-    ga += [float(l.split()[1]) for l in open(f"speed.gather12.{i}") if l.strip()]
-ga_med, ga_best = statistics.median(ga), max(ga)
-print(f"  ceiling with the gather: the same records and p * x[col], columns drawn as random_sparse.c draws them "
-      f"(triad.c gather12): median {ga_med:.2f} GB/s, best {ga_best:.2f} GB/s = {ga_med / tri_med:.0%} / "
-      f"{ga_best / tri_best:.0%} of the triad")
-rows.append(("3b''", "the same stream with the gather x[col] / triad (ceiling for 3b on this model)",
-             f"{ga_med / tri_med:.0%}; {ga_best / tri_best:.0%}", "-", None))
+def ceiling(kernel, what, key, label):
+    """a triad.c kernel's runs (interleaved with the triad's) against the triad"""
+    got = []
+    for i in (1, 2, 3):
+        got += [float(l.split()[1]) for l in open(f"speed.{kernel}.{i}") if l.strip()]
+    med, best = statistics.median(got), max(got)
+    print(f"  ceiling {what} (triad.c {kernel}): median {med:.2f} GB/s, best {best:.2f} GB/s = "
+          f"{med / tri_med:.0%} / {best / tri_best:.0%} of the triad")
+    rows.append((key, label, f"{med / tri_med:.0%}; {best / tri_best:.0%}", "-", None))
+
+
+ceiling("read12", "without the gather: a read-only stream of the 12-byte (column, probability) records, same runs",
+        "3b'", "read-only stream of the sweep's 12 B records / triad (ceiling for 3b)")
+ceiling("gather12", "with the gather: the same records and p * x[col], columns drawn as random_sparse.c draws them",
+        "3b''", "the same stream with the gather x[col] / triad (ceiling for 3b on this model)")
 ref, rt = ref_json("speed.t3.ref.out"), tv("speed.t3.ref.time")
 print(f"  reference: {ref.get('sweeps')} sweeps, {rt['wall']:.1f} s wall, {rt['cpu']:.1f} s CPU")
 best = best_vs_reference("speed.t3", ("gs", "mpi", "jacobi"), rt)

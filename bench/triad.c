@@ -32,40 +32,64 @@ static double now(void)
     return (double)t.tv_sec + 1e-9 * (double)t.tv_nsec;
 }
 
-static int read12(long n, long reps)
+/* Four accumulators over n elements of E(k). */
+#define SUM4(E)                                   \
+    do {                                          \
+        for (; i + 3 < n; i += 4) {               \
+            a0 += E(i);                           \
+            a1 += E(i + 1);                       \
+            a2 += E(i + 2);                       \
+            a3 += E(i + 3);                       \
+        }                                         \
+        for (; i < n; i++) a0 += E(i);            \
+    } while (0)
+#define READ(k) (p[k] + (double)col[k])
+#define GATHER(k) (p[k] * x[col[k]])
+
+/* The timed runs over the records (col, p): with x, the gather; else the
+ * read-only stream. Frees what it is given. */
+static int stream12(const char *name, long n, long reps, uint32_t *col, double *p, double *x)
 {
-    uint32_t *col = malloc((size_t)n * sizeof(uint32_t));
-    double *p = malloc((size_t)n * sizeof(double)), check = 0;
-    if (col == NULL || p == NULL) {
-        fprintf(stderr, "triad: out of memory\n");
-        return 71;
-    }
-    for (long i = 0; i < n; i++) col[i] = (uint32_t)(i & 1023), p[i] = 1.0 / (double)(1 + (i & 7));
+    double check = 0;
     for (long r = 0; r < reps; r++) {
         double t0 = now(), a0 = 0, a1 = 0, a2 = 0, a3 = 0;
         long i = 0;
-        for (; i + 3 < n; i += 4) {
-            a0 += p[i] + (double)col[i];
-            a1 += p[i + 1] + (double)col[i + 1];
-            a2 += p[i + 2] + (double)col[i + 2];
-            a3 += p[i + 3] + (double)col[i + 3];
-        }
-        for (; i < n; i++) a0 += p[i] + (double)col[i];
+        if (x != NULL) SUM4(GATHER);
+        else SUM4(READ);
         double t = now() - t0;
         check += a0 + a1 + a2 + a3;
         printf("%.6f %.3f\n", t, 12.0 * (double)n / t / 1e9);
     }
-    fprintf(stderr, "read12 checksum %g\n", check);
+    fprintf(stderr, "%s checksum %g\n", name, check);
     free(col);
     free(p);
+    free(x);
     return 0;
+}
+
+static int read12(long n, long reps)
+{
+    uint32_t *col = malloc((size_t)n * sizeof(uint32_t));
+    double *p = malloc((size_t)n * sizeof(double));
+    if (col == NULL || p == NULL) {
+        fprintf(stderr, "triad: out of memory\n");
+        free(col);
+        free(p);
+        return 71;
+    }
+    for (long i = 0; i < n; i++) col[i] = (uint32_t)(i & 1023), p[i] = 1.0 / (double)(1 + (i & 7));
+    return stream12("read12", n, reps, col, p, NULL);
 }
 
 static int gather12(long n, long reps, long ns, long per, long width, double jump)
 {
+    if (ns < 1 || per < 1 || width < 0) {
+        fprintf(stderr, "triad: gather12 needs N_STATES >= 1, PER_STATE >= 1, WIDTH >= 0\n");
+        return 64;
+    }
     uint32_t *col = malloc((size_t)n * sizeof(uint32_t));
-    double *p = malloc((size_t)n * sizeof(double)), *x = malloc((size_t)ns * sizeof(double)), check = 0;
-    if (col == NULL || p == NULL || x == NULL || ns < 1 || per < 1 || width < 0) {
+    double *p = malloc((size_t)n * sizeof(double)), *x = malloc((size_t)ns * sizeof(double));
+    if (col == NULL || p == NULL || x == NULL) {
         fprintf(stderr, "triad: out of memory\n");
         free(col);
         free(p);
@@ -84,25 +108,7 @@ static int gather12(long n, long reps, long ns, long per, long width, double jum
         p[i] = 1.0 / (double)(1 + (i & 7));
     }
     for (long i = 0; i < ns; i++) x[i] = 1.0 + (double)(i & 15);
-    for (long r = 0; r < reps; r++) {
-        double t0 = now(), a0 = 0, a1 = 0, a2 = 0, a3 = 0;
-        long i = 0;
-        for (; i + 3 < n; i += 4) {
-            a0 += p[i] * x[col[i]];
-            a1 += p[i + 1] * x[col[i + 1]];
-            a2 += p[i + 2] * x[col[i + 2]];
-            a3 += p[i + 3] * x[col[i + 3]];
-        }
-        for (; i < n; i++) a0 += p[i] * x[col[i]];
-        double t = now() - t0;
-        check += a0 + a1 + a2 + a3;
-        printf("%.6f %.3f\n", t, 12.0 * (double)n / t / 1e9);
-    }
-    fprintf(stderr, "gather12 checksum %g\n", check);
-    free(col);
-    free(p);
-    free(x);
-    return 0;
+    return stream12("gather12", n, reps, col, p, x);
 }
 
 int main(int argc, char **argv)
