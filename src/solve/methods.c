@@ -346,8 +346,9 @@ static int step_mpi(run *r, sl_status *st)
     int kind = !trial ? (r->P.staged ? SL_EVAL_GS : r->eval_kind)
                       : r->eval_rate[SL_EVAL_GS] < 0 ? SL_EVAL_GS : SL_EVAL_JACOBI;
     /* a trial runs at least SL_EVAL_TRIAL sweeps and rates the second half,
-     * past the first sweeps' quick drop of the fast components */
-    if (trial && m < SL_EVAL_TRIAL) m = SL_EVAL_TRIAL;
+     * past the first sweeps' quick drop of the fast components (an M given
+     * is kept: below SL_EVAL_TRIAL no trial completes, Gauss-Seidel stays) */
+    if (trial && r->o->sweeps <= 0 && m < SL_EVAL_TRIAL) m = SL_EVAL_TRIAL;
     snprintf(r->evaluation, sizeof(r->evaluation), "%s", kind == SL_EVAL_JACOBI ? "jacobi" : "gauss-seidel");
     double mid = 0, delta = 0;
     int64_t done = 0;
