@@ -30,7 +30,6 @@ typedef struct run {
     sl_eval_rows prow;    /* MPI: the policy's transitions, contiguous */
     int prow_built;       /* prow holds the rows of pol (the same on every rank) */
     double eval_rate[2];  /* MPI: measured rate per evaluation sweep, gs / jacobi (< 0: not yet) */
-    int eval_kind;        /* MPI: SL_EVAL_GS or SL_EVAL_JACOBI once chosen, else -1 */
     char evaluation[16];
     double lu_estimate;
     int64_t n_ckpt;
@@ -342,9 +341,12 @@ static int step_mpi(run *r, sl_status *st)
      * value back through every stage in one sweep. Others: whichever kind
      * converged faster per sweep when each was tried once (gs's largest
      * change, jacobi's span of changes: what each kind's stop reads) */
-    int trial = !r->P.staged && r->eval_kind < 0;
-    int kind = !trial ? (r->P.staged ? SL_EVAL_GS : r->eval_kind)
-                      : r->eval_rate[SL_EVAL_GS] < 0 ? SL_EVAL_GS : SL_EVAL_JACOBI;
+    const double *rate = r->eval_rate;
+    int rated = rate[SL_EVAL_GS] >= 0 && rate[SL_EVAL_JACOBI] >= 0;
+    int trial = !r->P.staged && !rated;
+    int kind = r->P.staged ? SL_EVAL_GS
+             : rated       ? sl_mpi_pick_eval(rate[SL_EVAL_GS], rate[SL_EVAL_JACOBI])
+             : rate[SL_EVAL_GS] < 0 ? SL_EVAL_GS : SL_EVAL_JACOBI;
     /* a trial runs at least SL_EVAL_TRIAL sweeps and rates the second half,
      * past the first sweeps' quick drop of the fast components (an M given
      * is kept: below SL_EVAL_TRIAL no trial completes, Gauss-Seidel stays) */
@@ -369,12 +371,10 @@ static int step_mpi(run *r, sl_status *st)
     if (trial && done >= SL_EVAL_TRIAL) {
         /* converged within the trial: as fast as can be (rate 0) */
         r->eval_rate[kind] = mid > 0 ? pow(delta / mid, 1.0 / (double)(done - SL_EVAL_TRIAL / 2)) : 0.0;
-        if (r->eval_rate[SL_EVAL_GS] >= 0 && r->eval_rate[SL_EVAL_JACOBI] >= 0) {
-            r->eval_kind = sl_mpi_pick_eval(r->eval_rate[SL_EVAL_GS], r->eval_rate[SL_EVAL_JACOBI]);
+        if (rate[SL_EVAL_GS] >= 0 && rate[SL_EVAL_JACOBI] >= 0)
             sl_log(r->ctx, "solve: evaluation sweeps %s (change shrank %.3g per sweep with gs, %.3g with jacobi)",
-                   r->eval_kind == SL_EVAL_JACOBI ? "jacobi" : "gs", r->eval_rate[SL_EVAL_GS],
-                   r->eval_rate[SL_EVAL_JACOBI]);
-        }
+                   sl_mpi_pick_eval(rate[SL_EVAL_GS], rate[SL_EVAL_JACOBI]) == SL_EVAL_JACOBI ? "jacobi" : "gs",
+                   rate[SL_EVAL_GS], rate[SL_EVAL_JACOBI]);
     }
     if (r->o->sweeps <= 0) r->S.mpi_m = sl_mpi_next_m(r->S.mpi_m, r->last.changed, r->P.meta.n_states);
     r->S.iteration++;
@@ -466,7 +466,6 @@ static sl_status solve_model(sl_solver *o, const sl_model *m, sl_model *take, sl
     r->S.check_interval = 1;
     r->S.mpi_m = SL_MPI_M_MIN;
     r->S.eval_tol = r->tol * 0.1;
-    r->eval_kind = -1;
     r->eval_rate[SL_EVAL_GS] = r->eval_rate[SL_EVAL_JACOBI] = -1;
     if (o->method == SL_METHOD_MPI) {
         /* start below v*: x = min r / (1 - gamma) makes Tx >= x, the
